@@ -1,0 +1,407 @@
+"""Evaluate alert rules over the summaries series, strictly causally.
+
+A rule (:class:`riskshape.config.RuleConfig`) watches one summary column. Its windows are taken
+in order; what it decides at window ``t`` depends on the values at windows ``0 .. t`` only, so
+appending windows, or changing values after ``t``, never changes a decision at or before ``t``.
+
+Semantics, for a rule with ``direction="above"`` (``"below"`` mirrors every comparison):
+
+1. **Levels.** The *history* of ``t`` is the non-missing values among the ``lookback`` windows
+   strictly before ``t`` (``t`` itself is excluded, so a spike is compared with the past, not
+   with itself). The threshold ``T_t`` and clear level ``C_t`` in force at ``t`` are in the
+   summary's units. ``level``: the configured numbers. ``quantile`` and ``zscore``: computed
+   from the history of ``t``; ``threshold`` and ``clear`` are a quantile in (0, 1) (numpy's
+   linear method, Hyndman & Fan type 7) or a z-score (trailing mean + z * sample std, ``ddof=1``), converted
+   to the summary's units afresh at each window. ``clear`` defaults to ``threshold``.
+   See :mod:`riskshape.alerts.thresholds`.
+2. **Missing values.** NaN and infinite values are missing: they never fire, never clear, do
+   not enter any history, and break a run of consecutive windows.
+3. **Minimum history.** Window ``t`` is *judged* only if its value is present, its history
+   holds at least ``min_history`` values (and at least 1 for ``quantile``, 2 for ``zscore``),
+   and ``T_t`` is defined. ``min_history`` must not exceed ``lookback`` (for every kind).
+4. **Beyond.** A judged window is beyond the threshold when ``x_t > T_t`` (strictly).
+5. **Run.** ``run_t`` counts the judged-and-beyond windows in a row ending at ``t``; any other
+   window (missing, not judged, or not beyond) resets it to 0.
+6. **Hysteresis.** After a firing the rule is *active*. An active rule is cleared at the first
+   later window with ``x_t <= C_t`` (value present, ``C_t`` defined), and only then may fire
+   again. A clearing window is never beyond (``C_t <= T_t``), so the run restarts from it.
+7. **Cool-down.** After a firing at window ``f``, windows ``f + 1 .. f + cooldown`` may not
+   fire, even if the rule was cleared meanwhile; runs still build up during the cool-down.
+8. **Firing.** The rule fires at ``t`` when ``run_t >= consecutive``, it is not active and
+   ``t`` is not in a cool-down. The :class:`Firing` records ``x_t`` and ``T_t``.
+
+Windows are positions in the series (its index labels them); the cool-down and the lookback
+count windows, not calendar days.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Sequence
+
+import numpy as np
+import pandas as pd
+
+from riskshape.alerts.model import Firing
+from riskshape.alerts.thresholds import MIN_PAST_VALUES, clean_values, trailing_levels
+from riskshape.config import RuleConfig
+from riskshape.errors import ConfigError, DataError
+
+__all__ = [
+    "RuleState",
+    "evaluate_rule",
+    "evaluate_rules",
+    "rule_state",
+    "rule_states",
+    "active_rules",
+    "recheck_firing",
+]
+
+
+@dataclass(frozen=True)
+class RuleState:
+    """Where one rule stands after a given window.
+
+    Attributes
+    ----------
+    rule, summary : str
+        Rule name and the summary column it watches.
+    window_end : pandas.Timestamp
+        The window this state is at (the last window evaluated).
+    value : float
+        The summary at that window (NaN if missing).
+    threshold, clear_level : float
+        Threshold and clear level in force at that window, in the summary's units (NaN where
+        not yet defined).
+    history : int
+        Non-missing values in the ``lookback`` windows before it.
+    run : int
+        Consecutive judged windows beyond the threshold, ending at it.
+    fired : bool
+        Whether the rule fired at this very window.
+    active : bool
+        Whether the rule is active (fired and not yet cleared) after this window.
+    active_since : pandas.Timestamp or None
+        Window of the firing that made it active (None when not active).
+    last_fired : pandas.Timestamp or None
+        Window of its latest firing up to this window, active or not.
+    cooldown_left : int
+        Windows after this one during which it may not fire.
+    severity : str
+        The rule's severity.
+    """
+
+    rule: str
+    summary: str
+    window_end: pd.Timestamp
+    value: float
+    threshold: float
+    clear_level: float
+    history: int
+    run: int
+    fired: bool
+    active: bool
+    active_since: pd.Timestamp | None
+    last_fired: pd.Timestamp | None
+    cooldown_left: int
+    severity: str
+
+
+@dataclass(frozen=True)
+class _Trace:
+    """The state machine's output over a whole series (internal)."""
+
+    values: np.ndarray
+    threshold: np.ndarray
+    clear: np.ndarray
+    history: np.ndarray
+    fired: np.ndarray  # positions where it fired
+    run: int  # at the last window
+    active_since: int | None  # position, after the last window
+    last_fired: int | None
+
+
+def _check_series(series: pd.Series, what: str) -> pd.Series:
+    if not isinstance(series.index, pd.DatetimeIndex):
+        raise DataError(
+            f"{what}: the index must be the windows' end dates (a DatetimeIndex), got {type(series.index).__name__}"
+        )
+    if not series.index.is_monotonic_increasing or not series.index.is_unique:
+        raise DataError(f"{what}: window_end dates must be unique and increasing; sort the features by window_end")
+    try:
+        return clean_values(series)
+    except (TypeError, ValueError):
+        raise DataError(f"{what}: values must be numbers, got dtype {series.dtype}") from None
+
+
+def _check_rule(rule: RuleConfig) -> None:
+    if rule.min_history > rule.lookback:
+        raise ConfigError(
+            f"alerts rule '{rule.name}': min_history ({rule.min_history}) exceeds lookback ({rule.lookback}), "
+            f"the windows in which history is counted, so it could never fire; lower min_history or raise lookback"
+        )
+
+
+def _stamp(index: pd.DatetimeIndex, position: int | None) -> pd.Timestamp | None:
+    return None if position is None else pd.Timestamp(index[position])
+
+
+def _trace(values: pd.Series, rule: RuleConfig) -> _Trace:
+    """Run the rule's state machine (module docstring, points 2-8) over a cleaned series."""
+    levels = trailing_levels(values, rule)
+    x = values.to_numpy()
+    need = max(rule.min_history, MIN_PAST_VALUES[rule.kind])
+    sign = 1.0 if rule.direction == "above" else -1.0
+    with np.errstate(invalid="ignore"):
+        present = ~np.isnan(x)
+        judged = present & (levels.history >= need) & ~np.isnan(levels.threshold)
+        beyond = judged & (sign * x > sign * levels.threshold)
+        past_clear = present & ~np.isnan(levels.clear) & (sign * x <= sign * levels.clear)
+    fired: list[int] = []
+    run = 0
+    active_since: int | None = None
+    for t in range(len(x)):
+        if active_since is not None and past_clear[t]:
+            active_since = None
+        run = run + 1 if beyond[t] else 0
+        cooling = bool(fired) and t - fired[-1] <= rule.cooldown
+        if run >= rule.consecutive and active_since is None and not cooling:
+            fired.append(t)
+            active_since = t
+    return _Trace(
+        values=x,
+        threshold=levels.threshold,
+        clear=levels.clear,
+        history=levels.history,
+        fired=np.asarray(fired, dtype=np.int64),
+        run=run,
+        active_since=active_since,
+        last_fired=fired[-1] if fired else None,
+    )
+
+
+def _firing(rule: RuleConfig, index: pd.DatetimeIndex, trace: _Trace, t: int) -> Firing:
+    return Firing(
+        rule=rule.name,
+        summary=rule.summary,
+        kind=rule.kind,
+        window_end=pd.Timestamp(index[t]),
+        value=float(trace.values[t]),
+        threshold=float(trace.threshold[t]),
+        severity=rule.severity,
+    )
+
+
+def evaluate_rule(series: pd.Series, rule: RuleConfig) -> list[Firing]:
+    """Every firing of one rule over one summary series.
+
+    Parameters
+    ----------
+    series : pandas.Series
+        The summary ``rule.summary``, indexed by ``window_end`` (increasing DatetimeIndex).
+    rule : RuleConfig
+        The rule (semantics in the module docstring).
+
+    Returns
+    -------
+    list of Firing
+        In window order.
+
+    Raises
+    ------
+    DataError
+        If the index is not increasing window_end dates or the values are not numbers.
+    ConfigError
+        If ``min_history`` exceeds ``lookback``.
+
+    Examples
+    --------
+    >>> import pandas as pd
+    >>> s = pd.Series([1.0, 5.0, 3.5, 6.0], index=pd.date_range("2024-01-01", periods=4))
+    >>> rule = RuleConfig(name="high", summary="x", kind="level", threshold=4.0, clear=3.0, min_history=0)
+    >>> [f.window_end.day for f in evaluate_rule(s, rule)]  # 3.5 does not clear, so 6.0 cannot fire
+    [2]
+    """
+    _check_rule(rule)
+    values = _check_series(series, f"summary '{rule.summary}' (rule '{rule.name}')")
+    trace = _trace(values, rule)
+    return [_firing(rule, values.index, trace, int(t)) for t in trace.fired]
+
+
+def _summary_column(features: pd.DataFrame, rule: RuleConfig) -> pd.Series:
+    if rule.summary not in features.columns:
+        available = ", ".join(map(str, features.columns))
+        raise ConfigError(
+            f"alerts rule '{rule.name}': summary '{rule.summary}' is not a features column; "
+            f"available columns: {available}"
+        )
+    return features[rule.summary]
+
+
+def _check_names(rules: Sequence[RuleConfig]) -> None:
+    seen: set[str] = set()
+    for rule in rules:
+        if rule.name in seen:
+            raise ConfigError(f"alerts rule name '{rule.name}' is used twice; give each rule its own name")
+        seen.add(rule.name)
+
+
+def evaluate_rules(features: pd.DataFrame, rules: Sequence[RuleConfig]) -> list[Firing]:
+    """Every firing of every rule over a features table.
+
+    Parameters
+    ----------
+    features : pandas.DataFrame
+        ``MonitorResult.features``: one row per window, indexed by ``window_end``.
+    rules : sequence of RuleConfig
+        Typically ``config.alerts.rules``; names must be unique.
+
+    Returns
+    -------
+    list of Firing
+        Sorted by ``(window_end, rule)``.
+
+    Raises
+    ------
+    ConfigError
+        If a rule names a summary that is not a column (the message lists the columns), two
+        rules share a name, or a rule's ``min_history`` exceeds its ``lookback``.
+    DataError
+        If the index is not increasing window_end dates or a watched column is not numeric.
+    """
+    _check_names(rules)
+    firings: list[Firing] = []
+    for rule in rules:
+        firings.extend(evaluate_rule(_summary_column(features, rule), rule))
+    return sorted(firings, key=lambda f: (f.window_end, f.rule))
+
+
+def rule_state(series: pd.Series, rule: RuleConfig) -> RuleState:
+    """Where one rule stands after the last window of ``series``.
+
+    Parameters
+    ----------
+    series : pandas.Series
+        The summary, indexed by ``window_end``; must hold at least one window.
+    rule : RuleConfig
+
+    Returns
+    -------
+    RuleState
+
+    Raises
+    ------
+    DataError
+        If the series is empty or badly indexed.
+    """
+    _check_rule(rule)
+    what = f"summary '{rule.summary}' (rule '{rule.name}')"
+    values = _check_series(series, what)
+    if values.empty:
+        raise DataError(f"{what}: no windows to evaluate")
+    trace = _trace(values, rule)
+    last = len(values) - 1
+    cooldown_left = 0 if trace.last_fired is None else max(0, rule.cooldown - (last - trace.last_fired))
+    return RuleState(
+        rule=rule.name,
+        summary=rule.summary,
+        window_end=pd.Timestamp(values.index[last]),
+        value=float(trace.values[last]),
+        threshold=float(trace.threshold[last]),
+        clear_level=float(trace.clear[last]),
+        history=int(trace.history[last]),
+        run=trace.run,
+        fired=trace.last_fired == last,
+        active=trace.active_since is not None,
+        active_since=_stamp(values.index, trace.active_since),
+        last_fired=_stamp(values.index, trace.last_fired),
+        cooldown_left=cooldown_left,
+        severity=rule.severity,
+    )
+
+
+def rule_states(features: pd.DataFrame, rules: Sequence[RuleConfig]) -> tuple[RuleState, ...]:
+    """The state of every rule after the last window of ``features``, in the rules' order.
+
+    Parameters
+    ----------
+    features : pandas.DataFrame
+        One row per window, indexed by ``window_end``; at least one row.
+    rules : sequence of RuleConfig
+
+    Returns
+    -------
+    tuple of RuleState
+
+    Raises
+    ------
+    ConfigError, DataError
+        As :func:`evaluate_rules`; DataError also if ``features`` is empty.
+    """
+    _check_names(rules)
+    return tuple(rule_state(_summary_column(features, rule), rule) for rule in rules)
+
+
+def active_rules(features: pd.DataFrame, rules: Sequence[RuleConfig]) -> tuple[RuleState, ...]:
+    """The rules that are active (fired, not yet cleared) at the last window of ``features``.
+
+    Parameters
+    ----------
+    features : pandas.DataFrame
+    rules : sequence of RuleConfig
+
+    Returns
+    -------
+    tuple of RuleState
+        Only those with ``active`` true, in the rules' order.
+    """
+    return tuple(state for state in rule_states(features, rules) if state.active)
+
+
+def recheck_firing(features: pd.DataFrame, rule: RuleConfig, window_end: pd.Timestamp | str) -> Firing | None:
+    """Recompute one rule's decision at one window, from the windows up to and including it.
+
+    Only the rows of ``features`` up to ``window_end`` are read, so this is also a check of
+    causality: for any window where :func:`evaluate_rules` fired, it returns an equal Firing.
+
+    Parameters
+    ----------
+    features : pandas.DataFrame
+        One row per window, indexed by ``window_end`` (later rows may be present; they are ignored).
+    rule : RuleConfig
+    window_end : pandas.Timestamp or str
+        The window to decide at; must be a row of ``features``.
+
+    Returns
+    -------
+    Firing or None
+        The firing at ``window_end``, or None if the rule does not fire there.
+
+    Raises
+    ------
+    DataError
+        If ``window_end`` is not a window of ``features`` (or the index is bad).
+    ConfigError
+        If the rule's summary is not a column.
+    """
+    series = _summary_column(features, rule)
+    what = f"summary '{rule.summary}' (rule '{rule.name}')"
+    values = _check_series(series, what)
+    try:
+        stamp = pd.Timestamp(window_end)
+    except (TypeError, ValueError):
+        raise DataError(f"window_end {window_end!r} is not a date; use YYYY-MM-DD") from None
+    if stamp not in values.index:
+        raise DataError(f"{what}: window_end {stamp.date()} is not one of the {len(values)} windows of the features")
+    state = rule_state(series.loc[:stamp], rule)
+    if not state.fired:
+        return None
+    return Firing(
+        rule=rule.name,
+        summary=rule.summary,
+        kind=rule.kind,
+        window_end=state.window_end,
+        value=state.value,
+        threshold=state.threshold,
+        severity=rule.severity,
+    )

@@ -1,0 +1,110 @@
+"""The threshold and clear level each rule has in force at each window, in the summary's units.
+
+Every statistic here is trailing and excludes the window it is used at: the history of window
+``t`` is the ``lookback`` windows *before* ``t`` (positions ``t - lookback .. t - 1``, fewer at
+the start of the series), missing values (NaN or infinite) left out. A spike is thus compared
+with the past, never with itself.
+
+* ``level``: threshold and clear are the configured numbers, the same at every window.
+* ``quantile``: the ``threshold``-quantile (and the ``clear``-quantile) of the history, with
+  linear interpolation between order statistics -- numpy's default ``method="linear"``, which
+  is definition 7 of Hyndman & Fan (1996). Needs at least one past value.
+* ``zscore``: ``mean + z * std`` of the history with the sample standard deviation
+  (``ddof=1``, common practice), for ``z`` = ``threshold`` (and ``clear``). Needs at least two
+  past values. A constant history (std 0) puts both levels at its mean.
+
+The rolling statistics are pandas' (``Series.rolling``), which skip missing values and use only
+values up to the current position, so the levels at ``t`` never depend on anything after ``t``.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+import pandas as pd
+
+from riskshape.config import RuleConfig
+
+__all__ = ["RuleLevels", "clean_values", "trailing_levels", "MIN_PAST_VALUES"]
+
+#: Fewest past values each kind needs before its threshold is defined.
+MIN_PAST_VALUES = {"level": 0, "quantile": 1, "zscore": 2}
+
+
+@dataclass(frozen=True)
+class RuleLevels:
+    """Per-window levels of one rule over one series (arrays aligned with the series).
+
+    Attributes
+    ----------
+    history : numpy.ndarray of int
+        Non-missing values among the ``lookback`` windows before each window.
+    threshold : numpy.ndarray of float
+        Threshold in force at each window, in the summary's units (NaN where undefined).
+    clear : numpy.ndarray of float
+        Clear level in force at each window, in the summary's units (NaN where undefined).
+    """
+
+    history: np.ndarray
+    threshold: np.ndarray
+    clear: np.ndarray
+
+
+def clean_values(series: pd.Series) -> pd.Series:
+    """The series as float64 with infinite values turned into NaN (missing).
+
+    Parameters
+    ----------
+    series : pandas.Series
+        A numeric summary series.
+
+    Returns
+    -------
+    pandas.Series
+        Same index, float64, NaN wherever the value was NaN or infinite.
+    """
+    values = series.to_numpy(dtype=np.float64, copy=True)
+    values[~np.isfinite(values)] = np.nan
+    return pd.Series(values, index=series.index, name=series.name)
+
+
+def trailing_levels(values: pd.Series, rule: RuleConfig) -> RuleLevels:
+    """Threshold and clear level of ``rule`` at every window of ``values``.
+
+    Parameters
+    ----------
+    values : pandas.Series
+        The summary series as returned by :func:`clean_values` (float64, NaN = missing).
+    rule : RuleConfig
+        The rule; its ``clear`` defaults to its ``threshold``.
+
+    Returns
+    -------
+    RuleLevels
+
+    Examples
+    --------
+    >>> import pandas as pd
+    >>> rule = RuleConfig(name="r", summary="x", kind="quantile", threshold=0.5, lookback=3)
+    >>> trailing_levels(pd.Series([1.0, 3.0, 2.0, 10.0]), rule).threshold.tolist()
+    [nan, 1.0, 2.0, 2.0]
+    """
+    n = len(values)
+    clear_at = rule.threshold if rule.clear is None else rule.clear
+    past = values.shift(1)
+    history = past.rolling(rule.lookback, min_periods=0).count().to_numpy(dtype=np.int64)
+    if rule.kind == "level":
+        threshold = np.full(n, rule.threshold, dtype=np.float64)
+        clear = np.full(n, clear_at, dtype=np.float64)
+    elif rule.kind == "quantile":
+        window = past.rolling(rule.lookback, min_periods=MIN_PAST_VALUES["quantile"])
+        threshold = window.quantile(rule.threshold, interpolation="linear").to_numpy(dtype=np.float64)
+        clear = window.quantile(clear_at, interpolation="linear").to_numpy(dtype=np.float64)
+    else:  # zscore
+        window = past.rolling(rule.lookback, min_periods=MIN_PAST_VALUES["zscore"])
+        mean = window.mean().to_numpy(dtype=np.float64)
+        std = window.std(ddof=1).to_numpy(dtype=np.float64)
+        threshold = mean + rule.threshold * std
+        clear = mean + clear_at * std
+    return RuleLevels(history=history, threshold=threshold, clear=clear)

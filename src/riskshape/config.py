@@ -1,0 +1,260 @@
+"""Configuration: the only module that reads TOML files or the environment.
+
+A :class:`Config` is frozen and validated once, here. ``Config(window=90)`` takes
+keyword arguments; :meth:`Config.from_toml` reads a file laid out like
+``config/default.toml`` (sections ``[monitor]``, ``[compute]``, ``[alerts]``).
+:meth:`Config.hash` is a SHA-256 over the canonical JSON of everything that can
+change a result (the ``compute`` section cannot, so it is left out).
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import os
+import sys
+from pathlib import Path
+from typing import Any, Literal, Mapping
+
+from pydantic import BaseModel, ConfigDict, Field, ValidationError, model_validator
+
+from riskshape.errors import ConfigError
+
+if sys.version_info >= (3, 11):
+    import tomllib
+else:  # pragma: no cover - exercised on Python 3.10 only
+    import tomli as tomllib
+
+__all__ = ["Config", "ComputeConfig", "AlertsConfig", "RuleConfig", "ServiceSettings", "format_validation_error"]
+
+Severity = Literal["info", "warning", "critical"]
+
+
+def format_validation_error(err: ValidationError, where: str, prefix: str = "") -> str:
+    """Turn a pydantic error into one message per bad field, each naming the key and the value received.
+
+    Parameters
+    ----------
+    err : pydantic.ValidationError
+        The error to format.
+    where : str
+        What was being read (a file name, or ``"Config(...)"``).
+    prefix : str
+        Prepended to each key path, e.g. ``"monitor."``.
+
+    Returns
+    -------
+    str
+        A message of one line per problem.
+    """
+    lines = []
+    for problem in err.errors():
+        key = prefix + ".".join(str(p) for p in problem["loc"])
+        got = problem.get("input")
+        if problem["type"] == "extra_forbidden":
+            lines.append(f"{where}: unknown key '{key}'; remove it or check its spelling (see config/default.toml)")
+        else:
+            lines.append(f"{where}: '{key}': {problem['msg']} (got {got!r})")
+    return "\n".join(lines)
+
+
+class _Frozen(BaseModel):
+    model_config = ConfigDict(frozen=True, extra="forbid")
+
+    def __init__(self, **data: Any) -> None:
+        try:
+            super().__init__(**data)
+        except ValidationError as err:
+            raise ConfigError(format_validation_error(err, f"{type(self).__name__}(...)")) from None
+
+
+class ComputeConfig(_Frozen):
+    """Where windows are computed; never changes a result."""
+
+    executor: Literal["serial", "process", "dask"] = "process"
+    workers: int = Field(0, ge=0, description="processes for the local pool; 0 means one per core")
+    scheduler: str | None = Field(None, description="Dask scheduler address, e.g. tcp://10.0.0.5:8786")
+    batch_windows: int = Field(64, ge=1, description="windows sent to a worker at once")
+
+
+class RuleConfig(_Frozen):
+    """One alert rule over one summary column.
+
+    ``kind`` decides what ``threshold`` and ``clear`` mean: for ``level`` they are values
+    of the summary; for ``quantile`` they are quantiles in (0, 1) of the summary's trailing
+    history; for ``zscore`` they are z-scores against the trailing mean and standard deviation.
+    """
+
+    name: str = Field(min_length=1, max_length=80, pattern=r"^[A-Za-z0-9_.-]+$")
+    summary: str = Field(min_length=1)
+    kind: Literal["level", "quantile", "zscore"]
+    threshold: float
+    clear: float | None = None
+    direction: Literal["above", "below"] = "above"
+    lookback: int = Field(250, ge=2, description="trailing windows used by quantile and zscore")
+    min_history: int = Field(60, ge=0, description="windows of history needed before the rule may fire")
+    consecutive: int = Field(1, ge=1, description="windows in a row beyond the threshold before it fires")
+    cooldown: int = Field(0, ge=0, description="windows after a firing during which it may not fire again")
+    severity: Severity = "warning"
+
+    @model_validator(mode="after")
+    def _check_levels(self) -> "RuleConfig":
+        if self.kind == "quantile":
+            for key in ("threshold", "clear"):
+                value = getattr(self, key)
+                if value is not None and not 0.0 < value < 1.0:
+                    raise ValueError(f"{key} of a quantile rule must lie in (0, 1), got {value}")
+        if self.clear is not None:
+            wrong_side = self.clear > self.threshold if self.direction == "above" else self.clear < self.threshold
+            if wrong_side:
+                raise ValueError(
+                    f"clear ({self.clear}) must be on the calm side of threshold ({self.threshold}) "
+                    f"for a rule that fires {self.direction} it"
+                )
+        return self
+
+
+class AlertsConfig(_Frozen):
+    """The alert rules (see ``config/default.toml``)."""
+
+    rules: tuple[RuleConfig, ...] = ()
+
+
+class Config(_Frozen):
+    """Everything that decides what riskshape computes.
+
+    Parameters
+    ----------
+    window : int
+        Returns per window (trading days). A window is labelled by its last date.
+    step : int
+        Windows advance by this many trading days.
+    min_coverage : float
+        An asset enters a window only if at least this fraction of the window's returns are
+        present; its missing returns are then set to its mean over the window.
+    returns : {"log", "simple"}
+        How returns are made from prices.
+    correlation : {"pearson", "spearman"}
+        Correlation estimator.
+    maxdim : int
+        Highest homology dimension computed (0, 1 or 2).
+    order_p : float
+        Order of the Wasserstein distance to the previous window (ground metric L-infinity).
+    engine : {"auto", "ripser", "giotto"}
+        Vietoris-Rips engine; ``auto`` uses giotto-ph where it is installed, else ripser.
+    embedding : {"correlation", "point_cloud"}
+        ``correlation``: assets are points, d = sqrt(2 (1 - rho)). ``point_cloud``: the days of the
+        window are points in R^n (one coordinate per asset).
+    standardize_cloud : bool
+        For ``point_cloud``: divide each asset's returns by its window standard deviation.
+    compute, alerts
+        See :class:`ComputeConfig` and :class:`AlertsConfig`.
+
+    Examples
+    --------
+    >>> Config(window=90, maxdim=1).window
+    90
+    """
+
+    window: int = Field(60, ge=5, le=5000)
+    step: int = Field(1, ge=1)
+    min_coverage: float = Field(0.9, gt=0.0, le=1.0)
+    returns: Literal["log", "simple"] = "log"
+    correlation: Literal["pearson", "spearman"] = "pearson"
+    maxdim: int = Field(1, ge=0, le=2)
+    order_p: float = Field(1.0, ge=1.0)
+    engine: Literal["auto", "ripser", "giotto"] = "auto"
+    embedding: Literal["correlation", "point_cloud"] = "correlation"
+    standardize_cloud: bool = True
+    compute: ComputeConfig = ComputeConfig()
+    alerts: AlertsConfig = AlertsConfig()
+
+    @classmethod
+    def from_toml(cls, path: str | os.PathLike[str]) -> "Config":
+        """Read a configuration file laid out like ``config/default.toml``.
+
+        Parameters
+        ----------
+        path : path-like
+            The TOML file.
+
+        Returns
+        -------
+        Config
+
+        Raises
+        ------
+        ConfigError
+            If the file is missing, is not TOML, or holds an unknown key or a bad value.
+        """
+        file = Path(path)
+        try:
+            data = tomllib.loads(file.read_text(encoding="utf-8"))
+        except FileNotFoundError:
+            raise ConfigError(f"{file}: no such configuration file") from None
+        except (OSError, UnicodeDecodeError) as err:
+            raise ConfigError(f"{file}: cannot read it ({err})") from None
+        except tomllib.TOMLDecodeError as err:
+            raise ConfigError(f"{file}: not valid TOML ({err})") from None
+        return cls.from_mapping(data, where=str(file))
+
+    @classmethod
+    def from_mapping(cls, data: Mapping[str, Any], where: str = "configuration") -> "Config":
+        """Build a Config from the nested mapping a TOML file holds (``monitor``, ``compute``, ``alerts``)."""
+        unknown = set(data) - {"monitor", "compute", "alerts"}
+        if unknown:
+            raise ConfigError(
+                f"{where}: unknown section(s) {sorted(unknown)}; allowed are [monitor], [compute], [alerts]"
+            )
+        flat: dict[str, Any] = dict(data.get("monitor", {}))
+        for section in ("compute", "alerts"):
+            if section in data:
+                flat[section] = data[section]
+        try:
+            return cls.model_validate(flat)
+        except ValidationError as err:
+            raise ConfigError(format_validation_error(err, where, prefix="")) from None
+
+    def to_mapping(self) -> dict[str, Any]:
+        """The nested mapping :meth:`from_mapping` reads (round-trips)."""
+        dumped = self.model_dump(mode="json")
+        compute = dumped.pop("compute")
+        alerts = dumped.pop("alerts")
+        return {"monitor": dumped, "compute": compute, "alerts": alerts}
+
+    def replace(self, **changes: Any) -> "Config":
+        """A copy with some fields changed, validated like a new Config."""
+        data = self.model_dump()
+        data.update(changes)
+        return type(self)(**data)
+
+    def hash(self) -> str:
+        """SHA-256 (hex) of the canonical JSON of every setting that can change a result."""
+        payload = self.model_dump(mode="json", exclude={"compute"})
+        text = json.dumps(payload, sort_keys=True, separators=(",", ":"), allow_nan=False)
+        return hashlib.sha256(text.encode("utf-8")).hexdigest()
+
+
+class ServiceSettings(_Frozen):
+    """Settings of the HTTP service, read from ``RISKSHAPE_*`` environment variables by :meth:`from_env`."""
+
+    store_url: str = "sqlite:///riskshape.sqlite"
+    max_body_bytes: int = Field(5_000_000, ge=1024)
+    max_page_size: int = Field(1000, ge=1)
+    rate_limit_per_minute: int = Field(600, ge=1)
+    config_path: str | None = None
+
+    @classmethod
+    def from_env(cls, environ: Mapping[str, str] | None = None, **overrides: Any) -> "ServiceSettings":
+        """Read ``RISKSHAPE_STORE_URL``, ``RISKSHAPE_MAX_BODY_BYTES``, ... then apply ``overrides``."""
+        env = os.environ if environ is None else environ
+        data: dict[str, Any] = {}
+        for name in cls.model_fields:
+            key = f"RISKSHAPE_{name.upper()}"
+            if key in env:
+                data[name] = env[key]
+        data.update({k: v for k, v in overrides.items() if v is not None})
+        try:
+            return cls.model_validate(data)
+        except ValidationError as err:
+            raise ConfigError(format_validation_error(err, "environment (RISKSHAPE_*)")) from None

@@ -1,0 +1,59 @@
+"""The exceptions and warnings riskshape raises.
+
+Every public function raises only these. The tree::
+
+    RiskshapeError
+    +-- DataError      bad market data (file, row or date, column named in the message)
+    +-- ConfigError    bad configuration (the key named in the message)
+    +-- StoreError     the archive cannot be opened, read or written
+    |   +-- NotFoundError   a record that does not exist
+    |   +-- ConflictError   a write that contradicts what is archived
+    +-- AuditError     the archive's hash chain does not verify
+
+    DataQualityWarning  repairable data (for example unsorted dates, sorted for you)
+"""
+
+from __future__ import annotations
+
+__all__ = [
+    "RiskshapeError",
+    "DataError",
+    "ConfigError",
+    "StoreError",
+    "NotFoundError",
+    "ConflictError",
+    "AuditError",
+    "DataQualityWarning",
+]
+
+
+class RiskshapeError(Exception):
+    """Base class of every error riskshape raises on purpose."""
+
+
+class DataError(RiskshapeError, ValueError):
+    """Market data that cannot be used as it is; the message says where and how to fix it."""
+
+
+class ConfigError(RiskshapeError, ValueError):
+    """A configuration value that is not allowed; the message names the key."""
+
+
+class StoreError(RiskshapeError):
+    """The archive cannot be opened, read or written."""
+
+
+class NotFoundError(StoreError, LookupError):
+    """A record (portfolio, run, alert, window) that the archive does not hold."""
+
+
+class ConflictError(StoreError):
+    """A write that contradicts what the archive already holds."""
+
+
+class AuditError(RiskshapeError):
+    """The archive's hash chain does not verify; the message names the first bad record."""
+
+
+class DataQualityWarning(UserWarning):
+    """Data that riskshape repaired (and says how) rather than rejected."""

@@ -1,0 +1,256 @@
+"""The one boundary for market data: read a price table and validate it.
+
+Accepted layouts (CSV or Parquet):
+
+* **wide**: a ``date`` column, then one column per asset;
+* **long**: exactly the columns ``date``, ``asset``, ``price``.
+
+Validation rejects, with a message naming the file, the line or date, the column and the fix:
+unparseable dates, duplicate dates, non-numeric cells, zero or negative prices, infinite
+values, duplicate asset names, fewer than 3 assets, and (given ``min_rows``) fewer rows than
+one window needs. Unsorted dates are sorted with a :class:`~riskshape.errors.DataQualityWarning`.
+Empty cells are missing prices, which are normal (late listings, delistings, holidays): the
+window policy in :mod:`riskshape.windows` decides who enters each window.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import os
+import warnings
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from riskshape.errors import DataError, DataQualityWarning
+
+__all__ = ["read_prices", "validate_prices", "hash_prices", "MIN_ASSETS"]
+
+MIN_ASSETS = 3
+_MISSING = {"", "na", "nan", "null", "none", "n/a", "#n/a"}
+
+
+def read_prices(source: str | os.PathLike[str], min_rows: int = 2) -> pd.DataFrame:
+    """Read and validate a price file.
+
+    Parameters
+    ----------
+    source : path-like
+        A ``.csv`` or ``.parquet`` file, wide or long (see the module notes).
+    min_rows : int
+        The fewest dates accepted (one window of returns needs ``window + 1`` prices).
+
+    Returns
+    -------
+    pandas.DataFrame
+        Wide prices: sorted ``DatetimeIndex`` named ``date``, one float64 column per asset,
+        NaN where a price is missing.
+
+    Raises
+    ------
+    DataError
+        If the file cannot be read or fails validation.
+    """
+    path = Path(source)
+    suffix = path.suffix.lower()
+    if not path.exists():
+        raise DataError(f"{path}: no such file; give the path of a CSV or Parquet price table")
+    try:
+        if suffix == ".csv":
+            raw = pd.read_csv(path, dtype=str, keep_default_na=False, skipinitialspace=True)
+            first_line = 2  # line 1 holds the header
+        elif suffix in {".parquet", ".pq"}:
+            raw = pd.read_parquet(path)
+            first_line = 1
+        else:
+            raise DataError(f"{path}: unknown file type '{suffix}'; use a .csv or .parquet file")
+    except DataError:
+        raise
+    except (pd.errors.ParserError, pd.errors.EmptyDataError, UnicodeDecodeError, OSError, ValueError) as err:
+        raise DataError(f"{path}: cannot read it as {suffix[1:]} ({err})") from None
+    label = "line" if suffix == ".csv" else "row"
+    return validate_prices(raw, source=str(path), min_rows=min_rows, first_line=first_line, row_label=label)
+
+
+def validate_prices(
+    table: pd.DataFrame,
+    source: str = "prices",
+    min_rows: int = 2,
+    first_line: int = 1,
+    row_label: str = "row",
+) -> pd.DataFrame:
+    """Validate a price table in any accepted layout and return it wide.
+
+    A wide DataFrame that already has a ``DatetimeIndex`` (the notebook case) is accepted as it
+    is; otherwise the table needs a ``date`` column (wide) or ``date, asset, price`` (long).
+
+    Parameters
+    ----------
+    table : pandas.DataFrame
+        The prices as read.
+    source : str
+        Name used in messages (a file name, or "prices DataFrame").
+    min_rows : int
+        The fewest dates accepted.
+    first_line, row_label : int, str
+        How rows are numbered in messages (``line 2`` is the first data line of a CSV file).
+
+    Returns
+    -------
+    pandas.DataFrame
+        Wide, sorted, float64 prices indexed by ``date``.
+
+    Raises
+    ------
+    DataError
+        On any violation listed in the module notes.
+    """
+    frame = _to_wide(table, source, first_line, row_label)
+    dates = frame.index
+    lines = frame["__line__"].to_numpy()
+    frame = frame.drop(columns="__line__")
+
+    if frame.columns.has_duplicates:
+        dup = frame.columns[frame.columns.duplicated()][0]
+        raise DataError(f"{source}: asset column '{dup}' appears twice; give each asset one column")
+    empty = [c for c in frame.columns if not str(c).strip()]
+    if empty:
+        raise DataError(f"{source}: an asset column has no name; name every column in the header")
+    if frame.shape[1] < MIN_ASSETS:
+        raise DataError(
+            f"{source}: {frame.shape[1]} asset column(s) found, at least {MIN_ASSETS} are needed "
+            "to measure the shape of dependence; add assets"
+        )
+
+    values = np.empty(frame.shape, dtype=float)
+    for j, column in enumerate(frame.columns):
+        values[:, j] = _parse_column(frame[column], column, source, dates, lines, row_label)
+
+    bad = ~np.isnan(values) & ~np.isfinite(values)
+    if bad.any():
+        i, j = np.argwhere(bad)[0]
+        raise DataError(
+            f"{source}: {row_label} {lines[i]} (date {dates[i].date()}), column '{frame.columns[j]}': "
+            f"infinite price {values[i, j]}; fix or leave the cell empty (missing)"
+        )
+    nonpos = ~np.isnan(values) & (values <= 0)
+    if nonpos.any():
+        i, j = np.argwhere(nonpos)[0]
+        raise DataError(
+            f"{source}: {row_label} {lines[i]} (date {dates[i].date()}), column '{frame.columns[j]}': "
+            f"price {values[i, j]:g} is not positive; prices must be > 0 (leave a cell empty if unknown)"
+        )
+
+    result = pd.DataFrame(values, index=pd.DatetimeIndex(dates, name="date"), columns=[str(c) for c in frame.columns])
+    result.columns.name = "asset"
+    if len(result) < min_rows:
+        raise DataError(
+            f"{source}: {len(result)} dates, but one window needs at least {min_rows} "
+            "(window + 1 prices); give a longer history or a shorter window"
+        )
+    return result
+
+
+def hash_prices(prices: pd.DataFrame) -> str:
+    """SHA-256 (hex) of a validated price table: dates, asset names and float64 values (NaN kept).
+
+    Two tables with the same dates, assets and values give the same hash, however they were read.
+    """
+    digest = hashlib.sha256()
+    digest.update("\x1f".join(prices.columns).encode("utf-8"))
+    digest.update(prices.index.asi8.astype("<i8").tobytes())
+    digest.update(np.ascontiguousarray(prices.to_numpy(dtype="<f8")).tobytes())
+    return digest.hexdigest()
+
+
+def _to_wide(table: pd.DataFrame, source: str, first_line: int, row_label: str) -> pd.DataFrame:
+    """Bring the table to wide form with a sorted DatetimeIndex and a ``__line__`` column."""
+    if isinstance(table.index, pd.DatetimeIndex):
+        wide = table.copy()
+        wide.columns = [str(c) for c in wide.columns]
+        wide["__line__"] = np.arange(first_line, first_line + len(wide))
+        dates = pd.DatetimeIndex(wide.index)
+        if dates.hasnans:
+            pos = int(np.flatnonzero(dates.isna())[0])
+            raise DataError(f"{source}: {row_label} {first_line + pos}: the date index has a missing date")
+        wide.index = dates.tz_localize(None) if dates.tz is not None else dates
+    else:
+        lower = {str(c).strip().lower(): c for c in table.columns}
+        if "date" not in lower:
+            raise DataError(
+                f"{source}: no 'date' column; the table needs a 'date' column then one column per asset "
+                "(wide), or the columns date, asset, price (long)"
+            )
+        table = table.rename(columns={lower["date"]: "date"})
+        table = table.assign(__line__=np.arange(first_line, first_line + len(table)))
+        table["date"] = _parse_dates(table["date"], source, table["__line__"].to_numpy(), row_label)
+        if set(lower) == {"date", "asset", "price"}:
+            wide = _pivot_long(table.rename(columns={lower["asset"]: "asset", lower["price"]: "price"}), source, row_label)
+        else:
+            wide = table.set_index("date")
+            wide.columns = [str(c).strip() for c in wide.columns]
+    if wide.index.has_duplicates:
+        dup = wide.index[wide.index.duplicated()][0]
+        rows = wide.loc[[dup], "__line__"].tolist()
+        raise DataError(
+            f"{source}: date {dup.date()} appears more than once ({row_label}s {', '.join(map(str, rows))}); "
+            "keep one row per date"
+        )
+    if not wide.index.is_monotonic_increasing:
+        warnings.warn(f"{source}: dates were not in order; sorted them", DataQualityWarning, stacklevel=3)
+        wide = wide.sort_index()
+    return wide
+
+
+def _parse_dates(column: pd.Series, source: str, lines: np.ndarray, row_label: str) -> pd.Series:
+    if pd.api.types.is_datetime64_any_dtype(column):
+        parsed = pd.to_datetime(column)
+        if getattr(parsed.dt, "tz", None) is not None:
+            parsed = parsed.dt.tz_localize(None)
+    else:
+        text = column.astype(str).str.strip()
+        parsed = pd.to_datetime(text, errors="coerce", format="ISO8601")
+        bad = parsed.isna().to_numpy()
+        if bad.any():
+            i = int(np.flatnonzero(bad)[0])
+            raise DataError(
+                f"{source}: {row_label} {lines[i]}, column 'date': cannot read {text.iloc[i]!r} as a date; "
+                "write dates as YYYY-MM-DD"
+            )
+    return parsed.dt.normalize()
+
+
+def _pivot_long(table: pd.DataFrame, source: str, row_label: str) -> pd.DataFrame:
+    table = table.assign(asset=table["asset"].astype(str).str.strip())
+    dup = table.duplicated(subset=["date", "asset"], keep="first")
+    if dup.any():
+        row = table[dup].iloc[0]
+        raise DataError(
+            f"{source}: {row_label} {row['__line__']}: asset '{row['asset']}' has a second price on "
+            f"{row['date'].date()}; keep one price per asset and date"
+        )
+    prices = table.pivot(index="date", columns="asset", values="price")
+    lines = table.groupby("date")["__line__"].min()
+    prices["__line__"] = lines.reindex(prices.index).to_numpy()
+    prices.columns.name = None
+    return prices
+
+
+def _parse_column(
+    column: pd.Series, name: str, source: str, dates: pd.DatetimeIndex, lines: np.ndarray, row_label: str
+) -> np.ndarray:
+    """Parse one asset column to float64; empty cells become NaN, anything else unreadable is an error."""
+    if pd.api.types.is_numeric_dtype(column) and not pd.api.types.is_bool_dtype(column):
+        return column.to_numpy(dtype=float)
+    text = column.astype(object)
+    missing = column.isna().to_numpy() | text.map(lambda v: str(v).strip().lower() in _MISSING).to_numpy()
+    numbers = pd.to_numeric(text.where(~missing, None), errors="coerce").to_numpy(dtype=float)
+    bad = np.isnan(numbers) & ~missing
+    if bad.any():
+        i = int(np.flatnonzero(bad)[0])
+        raise DataError(
+            f"{source}: {row_label} {lines[i]} (date {dates[i].date()}), column '{name}': "
+            f"{column.iloc[i]!r} is not a number; write a price like 101.25 or leave the cell empty"
+        )
+    return numbers
