@@ -1,0 +1,79 @@
+"""The ``riskshape`` command line. Each command group lives in its own module, loaded on demand.
+
+User errors (any :class:`riskshape.errors.RiskshapeError`) end with one line on stderr,
+``riskshape: error: ...``, and exit status 2; no traceback.
+"""
+
+from __future__ import annotations
+
+import importlib
+import sys
+from typing import Any
+
+import click
+
+from riskshape._version import __version__
+from riskshape.errors import RiskshapeError
+
+__all__ = ["main", "cli"]
+
+# command name -> "module:attribute" (modules under riskshape.cli)
+COMMANDS: dict[str, str] = {
+    "run": "riskshape.cli.run:run",
+    "demo": "riskshape.cli.demo:demo",
+    "audit": "riskshape.cli.audit:audit",
+    "alerts": "riskshape.cli.alerts:alerts",
+    "serve": "riskshape.cli.serve:serve",
+    "keys": "riskshape.cli.keys:keys",
+    "report": "riskshape.cli.report:report",
+}
+
+
+class _LazyGroup(click.Group):
+    def list_commands(self, ctx: click.Context) -> list[str]:
+        return sorted(name for name in COMMANDS if self._load(name) is not None)
+
+    def get_command(self, ctx: click.Context, cmd_name: str) -> click.Command | None:
+        return self._load(cmd_name)
+
+    @staticmethod
+    def _load(name: str) -> click.Command | None:
+        target = COMMANDS.get(name)
+        if target is None:
+            return None
+        module_name, attr = target.split(":")
+        try:
+            module = importlib.import_module(module_name)
+        except ModuleNotFoundError as err:
+            if err.name == module_name:  # that command is not part of this build
+                return None
+            raise
+        command: click.Command = getattr(module, attr)
+        return command
+
+
+@click.group(cls=_LazyGroup, context_settings={"help_option_names": ["-h", "--help"]})
+@click.version_option(__version__, prog_name="riskshape")
+def cli() -> None:
+    """riskshape: portfolio-regime monitor built on rolling persistent homology.
+
+    A decision aid, not investment advice.
+    """
+
+
+def main(argv: list[str] | None = None) -> Any:
+    """Entry point: run the CLI, turning riskshape's own errors into one line and exit status 2."""
+    try:
+        return cli.main(args=argv, prog_name="riskshape", standalone_mode=False)
+    except click.exceptions.Abort:
+        click.echo("riskshape: aborted", err=True)
+        sys.exit(130)
+    except click.ClickException as err:
+        err.show()
+        sys.exit(err.exit_code)
+    except RiskshapeError as err:
+        click.echo(f"riskshape: error: {err}", err=True)
+        sys.exit(2)
+    except KeyboardInterrupt:
+        click.echo("riskshape: interrupted", err=True)
+        sys.exit(130)

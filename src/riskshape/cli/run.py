@@ -1,0 +1,50 @@
+"""``riskshape run``: prices file in, features, diagrams and a manifest out."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import click
+
+from riskshape.caution import CAUTION
+from riskshape.cli.progress import progress_bar
+from riskshape.config import Config
+from riskshape.monitor import monitor
+from riskshape.output import write_run
+from riskshape.prices import read_prices
+
+__all__ = ["run", "load_config"]
+
+
+def load_config(path: Path | None) -> Config:
+    """The configuration file given, or the defaults."""
+    return Config.from_toml(path) if path is not None else Config()
+
+
+@click.command()
+@click.option("--prices", "prices_path", type=click.Path(path_type=Path), required=True,
+              help="Price table: CSV or Parquet, wide (date + one column per asset) or long (date, asset, price).")
+@click.option("--config", "config_path", type=click.Path(path_type=Path), default=None,
+              help="TOML configuration (see config/default.toml); defaults apply without it.")
+@click.option("--out", "out_dir", type=click.Path(path_type=Path), required=True, help="Folder for the results.")
+@click.option("--executor", type=click.Choice(["serial", "process", "dask"]), default=None,
+              help="Where windows are computed (overrides [compute] executor).")
+@click.option("--scheduler", default=None, help="Dask scheduler address, with --executor dask.")
+def run(prices_path: Path, config_path: Path | None, out_dir: Path, executor: str | None, scheduler: str | None) -> None:
+    """Compute rolling persistence summaries of a price table."""
+    config = load_config(config_path)
+    if executor or scheduler:
+        compute = config.compute.model_dump()
+        compute.update({k: v for k, v in {"executor": executor, "scheduler": scheduler}.items() if v})
+        config = config.replace(compute=compute)
+    prices = read_prices(prices_path, min_rows=config.window + 1)
+    with progress_bar("windows") as tick:
+        result = monitor(prices, config, progress=tick)
+    files = write_run(result, out_dir, source=str(prices_path))
+    click.echo(f"{len(result.window_ends)} windows of {prices.shape[1]} assets "
+               f"({result.window_ends[0].date()} to {result.window_ends[-1].date()})")
+    click.echo(f"features:  {files.features_csv}  ({files.features_parquet.name})")
+    click.echo(f"diagrams:  {files.diagrams}")
+    click.echo(f"left out:  {files.left_out}")
+    click.echo(f"manifest:  {files.manifest}")
+    click.echo(CAUTION)
