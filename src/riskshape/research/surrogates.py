@@ -1,0 +1,340 @@
+"""Surrogate returns and per-window significance of the summaries against them.
+
+Each surrogate keeps some properties of a window's returns block (days x assets) and destroys
+others; a summary that stands out from its surrogates carries what the surrogate destroyed:
+
+* ``shuffle`` - each asset's days permuted independently: keeps each asset's distribution,
+  destroys cross-asset dependence and any time order;
+* ``gaussian`` - a multivariate normal with the window's mean and covariance: keeps the
+  correlation matrix (up to sampling), destroys fat tails and any higher structure;
+* ``phase`` - multivariate phase randomisation (Prichard and Theiler 1994, Phys. Rev. Lett.
+  73:951): the same random phase is added at each frequency to every asset's Fourier transform,
+  keeping every auto- and cross-periodogram (so the linear auto- and cross-correlations, in the
+  circular sense) and making the data Gaussian-like;
+* ``iaaft`` - iterative amplitude-adjusted Fourier transform, multivariate (Schreiber and
+  Schmitz 2000, Physica D 142:346): alternately imposes the original amplitudes with the
+  original cross-phases (each asset's phase is its original phase plus a common angle
+  ``alpha(f)``, chosen closest to the current iterate: ``tan alpha = sum_j sin(psi_j - phi_j) /
+  sum_j cos(psi_j - phi_j)``, from memory of the paper) and the original values of each asset
+  (rank ordering); keeps each asset's distribution exactly and its spectra approximately;
+* ``stationary_bootstrap`` / ``moving_block_bootstrap`` - days resampled jointly in blocks
+  (Politis and Romano 1994; Kuensch 1989) with ``arch.bootstrap``: keeps the cross-section of each
+  day and short-range time dependence, reorders time.
+
+:func:`surrogate_zscores` gives, for one window, each summary's z-score and two-sided empirical
+p-value against ``n`` surrogates; :func:`rolling_surrogate_zscores` does it for chosen windows
+of a monitoring run, with the summaries computed by the engine's own building blocks.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable, Mapping, Sequence
+from dataclasses import dataclass
+from typing import Literal
+
+import numpy as np
+import pandas as pd
+from arch.bootstrap import MovingBlockBootstrap, StationaryBootstrap
+from scipy.stats import rankdata
+
+from riskshape.compute import make_executor
+from riskshape.errors import ConfigError, DataError
+from riskshape.monitor import MonitorResult, settings_of
+from riskshape.summaries import SUMMARY_NAMES, summarize_diagram
+from riskshape.window import WindowSettings, compute_window
+from riskshape.windows import select_assets
+
+__all__ = [
+    "METHODS",
+    "surrogate",
+    "SurrogateTest",
+    "surrogate_zscores",
+    "WindowSummaries",
+    "rolling_surrogate_zscores",
+]
+
+Method = Literal["shuffle", "gaussian", "phase", "iaaft", "stationary_bootstrap", "moving_block_bootstrap"]
+METHODS: tuple[str, ...] = ("shuffle", "gaussian", "phase", "iaaft", "stationary_bootstrap", "moving_block_bootstrap")
+
+
+def _complete(block: np.ndarray, method: str) -> np.ndarray:
+    data = np.asarray(block, dtype=float)
+    if data.ndim != 2 or data.shape[0] < 4:
+        raise DataError(f"surrogate '{method}': need a (days, assets) block with at least 4 days, got shape {data.shape}")
+    if not np.isfinite(data).all():
+        raise DataError(
+            f"surrogate '{method}': the block holds missing or infinite returns; use the complete block "
+            "riskshape.windows.select_assets gives"
+        )
+    return data
+
+
+def _shuffle(x: np.ndarray, rng: np.random.Generator) -> np.ndarray:
+    return rng.permuted(x, axis=0)
+
+
+def _gaussian(x: np.ndarray, rng: np.random.Generator) -> np.ndarray:
+    cov = np.atleast_2d(np.cov(x, rowvar=False))
+    return rng.multivariate_normal(x.mean(axis=0), cov, size=x.shape[0], method="eigh")
+
+
+def _random_phases(n_days: int, rng: np.random.Generator) -> np.ndarray:
+    """One random phase per rfft frequency; 0 at frequency 0 and at Nyquist (they must stay real)."""
+    n_freq = n_days // 2 + 1
+    phases = rng.uniform(0.0, 2.0 * np.pi, n_freq)
+    phases[0] = 0.0
+    if n_days % 2 == 0:
+        phases[-1] = 0.0
+    return phases
+
+
+def _phase(x: np.ndarray, rng: np.random.Generator) -> np.ndarray:
+    spectrum = np.fft.rfft(x, axis=0)
+    rotated = spectrum * np.exp(1j * _random_phases(x.shape[0], rng))[:, None]
+    return np.fft.irfft(rotated, n=x.shape[0], axis=0)
+
+
+def _rank_order(target_sorted: np.ndarray, y: np.ndarray) -> np.ndarray:
+    """Each column of ``y`` replaced by ``target_sorted``'s values in ``y``'s rank order."""
+    ranks = (rankdata(y, axis=0, method="ordinal") - 1).astype(np.int64)
+    return np.take_along_axis(target_sorted, ranks, axis=0)
+
+
+def _iaaft(x: np.ndarray, rng: np.random.Generator, max_iter: int = 200) -> np.ndarray:
+    n_days = x.shape[0]
+    target_sorted = np.sort(x, axis=0)
+    spectrum = np.fft.rfft(x, axis=0)
+    amplitude, phase0 = np.abs(spectrum), np.angle(spectrum)
+    y = _shuffle(x, rng)
+    ranks = None
+    for _ in range(max_iter):
+        psi = np.angle(np.fft.rfft(y, axis=0))
+        alpha = np.arctan2(np.sin(psi - phase0).sum(axis=1), np.cos(psi - phase0).sum(axis=1))
+        y = np.fft.irfft(amplitude * np.exp(1j * (phase0 + alpha[:, None])), n=n_days, axis=0)
+        new_ranks = rankdata(y, axis=0, method="ordinal")
+        y = _rank_order(target_sorted, y)
+        if ranks is not None and np.array_equal(ranks, new_ranks):
+            break
+        ranks = new_ranks
+    return y
+
+
+def _bootstrap(x: np.ndarray, rng: np.random.Generator, kind: str, block_size: int | None) -> np.ndarray:
+    size = block_size or max(1, int(round(x.shape[0] ** (1.0 / 3.0))))  # T^(1/3): common practice
+    scheme = StationaryBootstrap if kind == "stationary_bootstrap" else MovingBlockBootstrap
+    resampler = scheme(size, x, seed=rng)
+    (data,), _ = next(resampler.bootstrap(1))
+    return np.asarray(data, dtype=float)
+
+
+def surrogate(
+    block: np.ndarray, method: Method, rng: np.random.Generator, *, block_size: int | None = None
+) -> np.ndarray:
+    """One surrogate of a complete returns block.
+
+    Parameters
+    ----------
+    block : numpy.ndarray
+        (days, assets) returns, no NaN.
+    method : str
+        One of :data:`METHODS` (see the module notes).
+    rng : numpy.random.Generator
+        Source of randomness.
+    block_size : int, optional
+        Mean (stationary) or fixed (moving) block length of the bootstraps; default
+        ``round(days ** (1/3))``.
+
+    Returns
+    -------
+    numpy.ndarray
+        Same shape as ``block``.
+
+    Raises
+    ------
+    ConfigError
+        For an unknown method.
+    DataError
+        For a block with missing values or fewer than 4 days.
+    """
+    x = _complete(block, method)
+    if method == "shuffle":
+        return _shuffle(x, rng)
+    if method == "gaussian":
+        return _gaussian(x, rng)
+    if method == "phase":
+        return _phase(x, rng)
+    if method == "iaaft":
+        return _iaaft(x, rng)
+    if method in ("stationary_bootstrap", "moving_block_bootstrap"):
+        return _bootstrap(x, rng, method, block_size)
+    raise ConfigError(f"unknown surrogate method {method!r}; choose one of {', '.join(METHODS)}")
+
+
+@dataclass(frozen=True)
+class SurrogateTest:
+    """A window's summaries against their surrogate null.
+
+    Attributes
+    ----------
+    method : str
+    observed : pandas.Series
+        Each summary on the window itself.
+    null : pandas.DataFrame
+        Each summary (column) on each surrogate (row).
+    """
+
+    method: str
+    observed: pd.Series
+    null: pd.DataFrame
+
+    @property
+    def zscores(self) -> pd.Series:
+        """(observed - null mean) / null standard deviation (ddof = 1); NaN when the null is constant."""
+        std = self.null.std(ddof=1)
+        return ((self.observed - self.null.mean()) / std.where(std > 0)).rename("z")
+
+    @property
+    def pvalues(self) -> pd.Series:
+        """Two-sided empirical p-values ``(1 + #{|null - m| >= |obs - m|}) / (n + 1)``, m the null mean.
+
+        The +1 keeps a p-value from being 0 with finitely many surrogates (common practice,
+        e.g. Davison and Hinkley 1997, from memory).
+        """
+        centre = self.null.mean()
+        extreme = (self.null - centre).abs().ge((self.observed - centre).abs(), axis=1).sum()
+        return ((1.0 + extreme) / (len(self.null) + 1.0)).rename("p")
+
+    def table(self) -> pd.DataFrame:
+        """One row per summary: ``observed``, ``null_mean``, ``null_std``, ``z``, ``p``."""
+        return pd.DataFrame(
+            {
+                "observed": self.observed,
+                "null_mean": self.null.mean(),
+                "null_std": self.null.std(ddof=1),
+                "z": self.zscores,
+                "p": self.pvalues,
+            }
+        )
+
+
+def surrogate_zscores(
+    block: np.ndarray,
+    summary_fn: Callable[[np.ndarray], Mapping[str, float]],
+    n: int,
+    method: Method,
+    rng: np.random.Generator,
+    *,
+    block_size: int | None = None,
+) -> SurrogateTest:
+    """Summaries of one window against ``n`` surrogates of it.
+
+    Parameters
+    ----------
+    block : numpy.ndarray
+        (days, assets) complete returns of the window.
+    summary_fn : callable
+        Block -> mapping (or Series) of summary name to value, e.g. :class:`WindowSummaries`.
+    n : int
+        Number of surrogates (>= 2).
+    method : str
+        One of :data:`METHODS`.
+    rng : numpy.random.Generator
+    block_size : int, optional
+        For the bootstraps.
+
+    Returns
+    -------
+    SurrogateTest
+    """
+    if n < 2:
+        raise ConfigError(f"surrogate_zscores: n must be at least 2 surrogates, got {n}")
+    x = _complete(block, method)
+    observed = pd.Series(dict(summary_fn(x)), dtype=float)
+    null = pd.DataFrame(
+        [dict(summary_fn(surrogate(x, method, rng, block_size=block_size))) for _ in range(n)], dtype=float
+    )
+    return SurrogateTest(method=method, observed=observed, null=null[observed.index])
+
+
+@dataclass(frozen=True)
+class WindowSummaries:
+    """The monitor's per-window summaries of a complete block, by the engine's own functions.
+
+    Calling it on a block gives ``mean_correlation`` and ``h{k}_<summary>`` for k = 0..maxdim
+    (the diagram summaries of :mod:`riskshape.summaries`), through
+    :func:`riskshape.window.compute_window` (so the embedding of the configuration is used).
+    Picklable, so it can go to worker processes.
+    """
+
+    settings: WindowSettings
+
+    def __call__(self, block: np.ndarray) -> dict[str, float]:
+        result = compute_window(block, self.settings)
+        values = {"mean_correlation": float(result.mean_correlation)}
+        for k, dgm in enumerate(result.diagrams):
+            for name, value in zip(SUMMARY_NAMES, summarize_diagram(dgm).as_tuple()):
+                values[f"h{k}_{name}"] = float(value)
+        return values
+
+
+def _one_window(
+    window_end: pd.Timestamp,
+    raw: np.ndarray,
+    settings: WindowSettings,
+    n: int,
+    method: Method,
+    rng: np.random.Generator,
+    block_size: int | None,
+) -> pd.DataFrame:
+    block = select_assets(raw, settings.min_coverage).block
+    table = surrogate_zscores(block, WindowSummaries(settings), n, method, rng, block_size=block_size).table()
+    table.index.name = "summary"
+    return table.reset_index().assign(window_end=window_end)
+
+
+def rolling_surrogate_zscores(
+    result: MonitorResult,
+    n: int,
+    method: Method,
+    rng: np.random.Generator,
+    *,
+    window_ends: Sequence[object] | pd.DatetimeIndex | None = None,
+    block_size: int | None = None,
+) -> pd.DataFrame:
+    """Per-window z-scores and p-values of the summaries of a monitoring run against surrogates.
+
+    Parameters
+    ----------
+    result : MonitorResult
+    n : int
+        Surrogates per window.
+    method : str
+        One of :data:`METHODS`.
+    rng : numpy.random.Generator
+        Each window gets its own child generator (``rng.spawn``), so results do not depend on
+        the executor.
+    window_ends : sequence of dates, optional
+        Windows to test (default: all of them; this costs ``n`` times the run).
+    block_size : int, optional
+        For the bootstraps.
+
+    Returns
+    -------
+    pandas.DataFrame
+        Long table: ``window_end``, ``summary``, ``observed``, ``null_mean``, ``null_std``, ``z``, ``p``.
+    """
+    ends = result.window_ends if window_ends is None else pd.DatetimeIndex(pd.to_datetime(list(window_ends)))
+    settings = settings_of(result.config)
+    jobs = []
+    for end, child in zip(ends, rng.spawn(len(ends))):
+        returns = result.window_returns(end)  # validates the date; admitted assets only
+        jobs.append((pd.Timestamp(end), returns.to_numpy(dtype=float), settings, n, method, child, block_size))
+    executor = make_executor(result.config.compute, len(jobs))
+    try:
+        parts = list(executor.map(_one_window, jobs))
+    finally:
+        executor.close()
+    columns = ["window_end", "summary", "observed", "null_mean", "null_std", "z", "p"]
+    if not parts:
+        return pd.DataFrame(columns=columns)
+    return pd.concat(parts, ignore_index=True)[columns]
