@@ -1,0 +1,173 @@
+"""Opening the archive database: URL checks, connection settings, the write lock and migrations.
+
+SQLite: WAL journal, ``synchronous=FULL``, foreign keys on, a 30 s busy timeout. Transactions are
+started by SQLAlchemy rather than by the sqlite3 driver (the recipe in SQLAlchemy's SQLite dialect
+documentation, "Enabling Non-Legacy SQLite Transactional Modes": the driver's own BEGIN is turned
+off with ``isolation_level = None`` and the ``begin`` event emits it), so a write transaction can
+start with ``BEGIN IMMEDIATE`` and hold the write lock *before* it reads the ledger head.
+
+PostgreSQL: a write transaction first takes a transaction-scoped advisory lock
+(``pg_advisory_xact_lock``) keyed by the current schema; the ledger's UNIQUE ``seq`` and
+``prev_hash`` are the second line of defence against a fork.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Iterator
+from contextlib import contextmanager
+from pathlib import Path
+from typing import Any
+
+import sqlalchemy as sa
+from alembic import command
+from alembic.config import Config as AlembicConfig
+from alembic.runtime.migration import MigrationContext
+from alembic.script import ScriptDirectory
+from alembic.util import CommandError
+from sqlalchemy.engine import Connection, Engine, make_url
+from sqlalchemy.exc import ArgumentError, NoSuchModuleError
+
+from riskshape.errors import StoreError
+
+__all__ = ["create_archive_engine", "write_transaction", "read_transaction", "upgrade", "schema_revision"]
+
+WRITE_OPTION = "riskshape_write"
+BUSY_TIMEOUT_MS = 30_000
+LOCK_KEY = 0x7273  # first key of the two-key advisory lock; the second is hashtext(current_schema())
+MIGRATIONS = Path(__file__).resolve().parent / "migrations"
+URL_HELP = "use sqlite:///path/to/archive.sqlite or postgresql+psycopg://user@host:5432/database"
+
+
+def create_archive_engine(url: str) -> Engine:
+    """A SQLAlchemy engine for the archive at ``url``, with the archive's connection settings.
+
+    Parameters
+    ----------
+    url : str
+        ``sqlite:///path`` (the folder must exist) or ``postgresql+psycopg://...``.
+
+    Returns
+    -------
+    sqlalchemy.engine.Engine
+
+    Raises
+    ------
+    StoreError
+        If the URL is malformed or names another database or driver.
+    """
+    try:
+        parsed = make_url(url)
+    except ArgumentError:
+        raise StoreError(f"store URL {url!r} cannot be read; {URL_HELP}") from None
+    backend, driver = parsed.get_backend_name(), parsed.get_driver_name()
+    if backend == "sqlite":
+        if driver != "pysqlite":
+            raise StoreError(f"store URL {url!r}: SQLite driver {driver!r} is not supported; {URL_HELP}")
+        database = parsed.database or ""
+        if database in ("", ":memory:") or database.startswith("file:"):
+            raise StoreError(f"store URL {url!r}: the archive must be a file; {URL_HELP}")
+        folder = Path(database).expanduser().resolve().parent
+        if not folder.is_dir():
+            raise StoreError(f"store URL {url!r}: folder {folder} does not exist; create it first")
+        engine = sa.create_engine(parsed, connect_args={"timeout": BUSY_TIMEOUT_MS / 1000})
+        _configure_sqlite(engine)
+        return engine
+    if backend == "postgresql":
+        if driver != "psycopg":
+            raise StoreError(f"store URL {url!r}: use the psycopg (3) driver, postgresql+psycopg://...")
+        try:
+            return sa.create_engine(parsed, pool_pre_ping=True)
+        except NoSuchModuleError as err:  # pragma: no cover - psycopg is a dependency
+            raise StoreError(f"store URL {url!r}: {err}") from None
+    raise StoreError(f"store URL {url!r}: database {backend!r} is not supported; {URL_HELP}")
+
+
+def _configure_sqlite(engine: Engine) -> None:
+    @sa.event.listens_for(engine, "connect")
+    def _on_connect(dbapi_connection: Any, _record: Any) -> None:
+        dbapi_connection.isolation_level = None  # SQLAlchemy emits BEGIN itself (see _on_begin)
+        cursor = dbapi_connection.cursor()
+        try:
+            cursor.execute(f"PRAGMA busy_timeout = {BUSY_TIMEOUT_MS}")
+            cursor.execute("PRAGMA journal_mode = WAL")
+            cursor.execute("PRAGMA synchronous = FULL")
+            cursor.execute("PRAGMA foreign_keys = ON")
+        finally:
+            cursor.close()
+
+    @sa.event.listens_for(engine, "begin")
+    def _on_begin(connection: Connection) -> None:
+        write = connection.get_execution_options().get(WRITE_OPTION, False)
+        connection.exec_driver_sql("BEGIN IMMEDIATE" if write else "BEGIN")
+
+
+@contextmanager
+def write_transaction(engine: Engine) -> Iterator[Connection]:
+    """A transaction that holds the archive's write lock from its first statement.
+
+    SQLite: ``BEGIN IMMEDIATE``. PostgreSQL: ``pg_advisory_xact_lock``, released at commit or
+    rollback. Commits on normal exit, rolls back on an exception.
+    """
+    with engine.connect() as connection:
+        connection.execution_options(**{WRITE_OPTION: True})
+        with connection.begin():
+            if connection.dialect.name == "postgresql":
+                connection.execute(
+                    sa.text("SELECT pg_advisory_xact_lock(:key, hashtext(current_schema()))"), {"key": LOCK_KEY}
+                )
+            yield connection
+
+
+@contextmanager
+def read_transaction(engine: Engine) -> Iterator[Connection]:
+    """A read transaction (one consistent snapshot on SQLite; statement snapshots on PostgreSQL)."""
+    with engine.connect() as connection, connection.begin():
+        yield connection
+
+
+def _alembic_config() -> AlembicConfig:
+    config = AlembicConfig()
+    config.set_main_option("script_location", str(MIGRATIONS).replace("%", "%%"))
+    return config
+
+
+def schema_revision(connection: Connection) -> str | None:
+    """The Alembic revision the archive's schema is at (None for an empty database)."""
+    return MigrationContext.configure(connection).get_current_revision()
+
+
+def _known(script: ScriptDirectory, revision: str) -> bool:
+    try:
+        return script.get_revision(revision) is not None
+    except CommandError:
+        return False
+
+
+def upgrade(engine: Engine) -> str:
+    """Create or upgrade the archive's schema to the newest revision this package knows.
+
+    Runs under the write lock, so two processes opening a new archive at once do not both
+    create it. Returns the revision the schema is at.
+
+    Raises
+    ------
+    StoreError
+        If the archive was written by a newer riskshape (its revision is unknown here).
+    """
+    config = _alembic_config()
+    script = ScriptDirectory.from_config(config)
+    head = script.get_current_head()
+    with read_transaction(engine) as connection:
+        current = schema_revision(connection)
+    if current == head:
+        return current
+    if current is not None and not _known(script, current):
+        raise StoreError(
+            f"archive schema revision {current!r} is newer than this riskshape knows ({head!r}); "
+            "upgrade riskshape to open it"
+        )
+    with write_transaction(engine) as connection:
+        config.attributes["connection"] = connection
+        command.upgrade(config, "head")
+    assert head is not None
+    return head

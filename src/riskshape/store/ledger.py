@@ -1,0 +1,231 @@
+"""Appending to and reading the ledger: alerts and reviews, one hash chain.
+
+Every append runs in :func:`~riskshape.store.engine.write_transaction`, which holds the write lock
+before the head is read, so two writers can never both extend the same head.
+"""
+
+from __future__ import annotations
+
+import math
+import re
+from collections.abc import Sequence
+from datetime import date, datetime, timezone
+from typing import Any
+
+import pandas as pd
+import sqlalchemy as sa
+from sqlalchemy.engine import Connection, Engine
+
+from riskshape.alerts.model import Alert
+from riskshape.errors import NotFoundError, StoreError
+from riskshape.store import schema as t
+from riskshape.store.canonical import entry_hash
+from riskshape.store.engine import read_transaction, write_transaction
+from riskshape.store.records import (
+    GENESIS_HASH,
+    REVIEW_ACTIONS,
+    AlertAppend,
+    AlertDetail,
+    AlertPage,
+    AlertRecord,
+    ReviewRecord,
+)
+
+__all__ = ["append_alerts", "append_review", "list_alerts", "get_alert", "alert_from_row", "review_from_row",
+           "ledger_head", "to_date"]
+
+_HEX64 = re.compile(r"^[0-9a-f]{64}$")
+MAX_COMMENT = 10_000
+
+
+def to_date(value: object, what: str) -> date:
+    """A whole day from a date, a datetime-like at midnight, or an ISO string."""
+    if isinstance(value, date) and not isinstance(value, datetime):
+        return value
+    try:
+        stamp = pd.Timestamp(value)  # type: ignore[arg-type]
+    except (ValueError, TypeError):
+        raise StoreError(f"{what}: cannot read {value!r} as a date; write it as YYYY-MM-DD") from None
+    if stamp is pd.NaT or stamp != stamp.normalize():
+        raise StoreError(f"{what}: {value!r} is not a whole day; give a date (YYYY-MM-DD)")
+    return stamp.date()
+
+
+def ledger_head(connection: Connection) -> tuple[int, str]:
+    """(seq, entry_hash) of the last ledger record, or (0, GENESIS_HASH) for an empty ledger."""
+    row = connection.execute(
+        sa.select(t.ledger.c.seq, t.ledger.c.entry_hash).order_by(t.ledger.c.seq.desc()).limit(1)
+    ).first()
+    return (0, GENESIS_HASH) if row is None else (int(row.seq), str(row.entry_hash))
+
+
+def _next_id(connection: Connection, table: sa.Table) -> int:
+    return int(connection.execute(sa.select(sa.func.coalesce(sa.func.max(table.c.id), 0))).scalar_one()) + 1
+
+
+def _check_alert(alert: Alert, n: int) -> None:
+    where = f"alert {n} ({alert.firing.rule} at {alert.firing.window_end})"
+    f = alert.firing
+    for name, value in (("value", f.value), ("threshold", f.threshold)):
+        if not isinstance(value, (int, float)) or not math.isfinite(float(value)):
+            raise StoreError(f"{where}: {name} must be a finite number, got {value!r}")
+    for name, value, limit in (("rule", f.rule, 80), ("summary", f.summary, 80), ("kind", f.kind, 16),
+                               ("severity", f.severity, 16), ("portfolio", alert.portfolio, 200),
+                               ("package_version", alert.package_version, 64)):
+        if not isinstance(value, str) or not value or len(value) > limit:
+            raise StoreError(f"{where}: {name} must be a non-empty string of at most {limit} characters, got {value!r}")
+    for name, value in (("config_hash", alert.config_hash), ("inputs_hash", alert.inputs_hash)):
+        if not isinstance(value, str) or not _HEX64.match(value):
+            raise StoreError(f"{where}: {name} must be 64 lowercase hex digits (SHA-256), got {value!r}")
+    if not isinstance(alert.raised_at, datetime) or alert.raised_at.tzinfo is None:
+        raise StoreError(f"{where}: raised_at must be a timezone-aware datetime, got {alert.raised_at!r}")
+
+
+def append_alerts(engine: Engine, alerts: Sequence[Alert], run_id: int) -> AlertAppend:
+    """Append alerts of one run; an alert already archived (same portfolio, rule, window end and
+    configuration hash) adds nothing. See :meth:`riskshape.store.Store.append_alerts`."""
+    for n, alert in enumerate(alerts):
+        _check_alert(alert, n)
+    ordered = sorted(alerts, key=lambda a: (pd.Timestamp(a.firing.window_end), a.firing.rule))
+    with write_transaction(engine) as connection:
+        run = connection.execute(
+            sa.select(t.runs.c.id, t.portfolios.c.id.label("pid"), t.portfolios.c.name)
+            .join(t.portfolios, t.portfolios.c.id == t.runs.c.portfolio_id)
+            .where(t.runs.c.id == run_id)
+        ).first()
+        if run is None:
+            raise NotFoundError(f"run {run_id} is not in the archive; record the run first (Store.create_run)")
+        wrong = [a.portfolio for a in ordered if a.portfolio != run.name]
+        if wrong:
+            raise StoreError(f"run {run_id} belongs to portfolio {run.name!r}, got an alert for {wrong[0]!r}")
+        seen = {
+            (r.rule, r.window_end, r.config_hash)
+            for r in connection.execute(
+                sa.select(t.alerts.c.rule, t.alerts.c.window_end, t.alerts.c.config_hash).where(
+                    t.alerts.c.portfolio_id == run.pid
+                )
+            )
+        }
+        seq, prev = ledger_head(connection)
+        next_id = _next_id(connection, t.alerts)
+        rows: list[dict[str, Any]] = []
+        existing = 0
+        for alert in ordered:
+            f = alert.firing
+            key = (f.rule, to_date(f.window_end, f"alert {f.rule}: window_end"), alert.config_hash)
+            if key in seen:
+                existing += 1
+                continue
+            seen.add(key)
+            seq += 1
+            row: dict[str, Any] = {
+                "id": next_id, "seq": seq, "prev_hash": prev, "portfolio_id": run.pid, "portfolio": run.name,
+                "rule": f.rule, "summary": f.summary, "kind": f.kind, "window_end": key[1],
+                "value": float(f.value), "threshold": float(f.threshold), "severity": f.severity,
+                "raised_at": alert.raised_at.astimezone(timezone.utc), "config_hash": alert.config_hash,
+                "inputs_hash": alert.inputs_hash, "package_version": alert.package_version, "run_id": run_id,
+            }  # fmt: skip
+            row["entry_hash"] = prev = entry_hash("alerts", row)
+            rows.append(row)
+            next_id += 1
+        if rows:
+            connection.execute(
+                sa.insert(t.ledger),
+                [{"seq": r["seq"], "kind": "alert", "prev_hash": r["prev_hash"], "entry_hash": r["entry_hash"]}
+                 for r in rows],
+            )
+            connection.execute(sa.insert(t.alerts), rows)
+    return AlertAppend(added=tuple(AlertRecord(**r) for r in rows), existing=existing)
+
+
+def append_review(engine: Engine, alert_id: int, action: str, reviewer: str, comment: str = "",
+                  now: datetime | None = None) -> ReviewRecord:
+    """Append a review of an alert. See :meth:`riskshape.store.Store.append_review`."""
+    if action not in REVIEW_ACTIONS:
+        raise StoreError(f"review action {action!r} is not one of {', '.join(REVIEW_ACTIONS)}")
+    if not isinstance(reviewer, str) or not reviewer.strip() or len(reviewer) > 200:
+        raise StoreError(f"reviewer must be a non-empty name of at most 200 characters, got {reviewer!r}")
+    if not isinstance(comment, str) or len(comment) > MAX_COMMENT:
+        raise StoreError(f"review comment must be text of at most {MAX_COMMENT} characters")
+    created = (now or datetime.now(timezone.utc)).astimezone(timezone.utc)
+    with write_transaction(engine) as connection:
+        found = connection.execute(sa.select(t.alerts.c.id).where(t.alerts.c.id == alert_id)).first()
+        if found is None:
+            raise NotFoundError(f"alert {alert_id} is not in the archive; list alerts to find its id")
+        seq, prev = ledger_head(connection)
+        row: dict[str, Any] = {
+            "id": _next_id(connection, t.reviews), "seq": seq + 1, "prev_hash": prev, "alert_id": alert_id,
+            "action": action, "reviewer": reviewer, "comment": comment, "created_at": created,
+        }  # fmt: skip
+        row["entry_hash"] = entry_hash("reviews", row)
+        connection.execute(
+            sa.insert(t.ledger),
+            {"seq": row["seq"], "kind": "review", "prev_hash": prev, "entry_hash": row["entry_hash"]},
+        )
+        connection.execute(sa.insert(t.reviews), row)
+    return ReviewRecord(**row)
+
+
+def alert_from_row(row: Any) -> AlertRecord:
+    """An :class:`AlertRecord` from a result row of the ``alerts`` table."""
+    m = row._mapping
+    return AlertRecord(**{name: m[name] for name in AlertRecord.__dataclass_fields__})
+
+
+def review_from_row(row: Any) -> ReviewRecord:
+    """A :class:`ReviewRecord` from a result row of the ``reviews`` table."""
+    m = row._mapping
+    return ReviewRecord(**{name: m[name] for name in ReviewRecord.__dataclass_fields__})
+
+
+def list_alerts(
+    engine: Engine,
+    *,
+    portfolio: str | None = None,
+    since: object = None,
+    until: object = None,
+    severity: str | Sequence[str] | None = None,
+    rule: str | None = None,
+    reviewed: bool | None = None,
+    limit: int | None = 100,
+    offset: int = 0,
+) -> AlertPage:
+    """Alerts matching the filters. See :meth:`riskshape.store.Store.list_alerts`."""
+    if limit is not None and limit < 0 or offset < 0:
+        raise StoreError(f"paging: limit and offset must not be negative, got limit={limit}, offset={offset}")
+    a = t.alerts
+    conditions: list[Any] = []
+    if portfolio is not None:
+        conditions.append(a.c.portfolio == portfolio)
+    if since is not None:
+        conditions.append(a.c.window_end >= to_date(since, "since"))
+    if until is not None:
+        conditions.append(a.c.window_end <= to_date(until, "until"))
+    if severity is not None:
+        levels = [severity] if isinstance(severity, str) else list(severity)
+        conditions.append(a.c.severity.in_(levels))
+    if rule is not None:
+        conditions.append(a.c.rule == rule)
+    if reviewed is not None:
+        has_review = sa.exists().where(t.reviews.c.alert_id == a.c.id)
+        conditions.append(has_review if reviewed else ~has_review)
+    where = sa.and_(sa.true(), *conditions)
+    with read_transaction(engine) as connection:
+        total = int(connection.execute(sa.select(sa.func.count()).select_from(a).where(where)).scalar_one())
+        query = sa.select(a).where(where).order_by(a.c.window_end, a.c.id).offset(offset)
+        if limit is not None:
+            query = query.limit(limit)
+        items = tuple(alert_from_row(r) for r in connection.execute(query))
+    return AlertPage(items=items, total=total, offset=offset)
+
+
+def get_alert(engine: Engine, alert_id: int) -> AlertDetail:
+    """One alert and its reviews. See :meth:`riskshape.store.Store.get_alert`."""
+    with read_transaction(engine) as connection:
+        row = connection.execute(sa.select(t.alerts).where(t.alerts.c.id == alert_id)).first()
+        if row is None:
+            raise NotFoundError(f"alert {alert_id} is not in the archive; list alerts to find its id")
+        reviews = connection.execute(
+            sa.select(t.reviews).where(t.reviews.c.alert_id == alert_id).order_by(t.reviews.c.seq)
+        )
+        return AlertDetail(alert=alert_from_row(row), reviews=tuple(review_from_row(r) for r in reviews))

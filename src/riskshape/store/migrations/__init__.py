@@ -1,0 +1,1 @@
+"""Alembic migrations of the archive, run programmatically by :func:`riskshape.store.open_store`."""

@@ -1,0 +1,328 @@
+"""The archive: :func:`open_store` and the :class:`Store` with its typed repository methods.
+
+Every method runs in its own transaction; writes hold the archive's write lock (see
+:mod:`riskshape.store.engine`). Database failures surface as :class:`~riskshape.errors.StoreError`
+(a constraint violation as :class:`~riskshape.errors.ConflictError`).
+"""
+
+from __future__ import annotations
+
+import functools
+from collections.abc import Callable, Iterable, Sequence
+from datetime import datetime, timezone
+from typing import Any, ParamSpec, TypeVar
+
+import numpy as np
+import pandas as pd
+import sqlalchemy as sa
+from sqlalchemy.engine import Engine
+
+from riskshape.alerts.model import Alert
+from riskshape.errors import ConflictError, StoreError
+from riskshape.store import catalog, keys, ledger, pricebook, series
+from riskshape.store.chain import verify_ledger
+from riskshape.store.engine import create_archive_engine, read_transaction, upgrade, write_transaction
+from riskshape.store.records import (
+    AlertAppend,
+    AlertDetail,
+    AlertPage,
+    ApiKey,
+    Diagram,
+    FeaturesPage,
+    Head,
+    NewApiKey,
+    Portfolio,
+    PriceCorrection,
+    PriceWrite,
+    ReviewRecord,
+    Run,
+    RunManifest,
+    VerifyReport,
+    WriteCount,
+)
+
+__all__ = ["Store", "open_store", "verify_chain", "chain_head"]
+
+P = ParamSpec("P")
+R = TypeVar("R")
+
+
+def _database_errors(method: Callable[P, R]) -> Callable[P, R]:
+    """Turn SQLAlchemy errors into riskshape's StoreError / ConflictError, naming the operation."""
+
+    @functools.wraps(method)
+    def wrapper(*args: P.args, **kwargs: P.kwargs) -> R:
+        try:
+            return method(*args, **kwargs)
+        except sa.exc.IntegrityError as err:
+            raise ConflictError(f"{method.__name__}: the archive refused the write ({err.orig})") from None
+        except sa.exc.SQLAlchemyError as err:
+            detail = getattr(err, "orig", None) or err
+            raise StoreError(f"{method.__name__}: database error ({detail})") from None
+
+    return wrapper
+
+
+class Store:
+    """An open archive. Make one with :func:`open_store`; close it with :meth:`close` (or ``with``)."""
+
+    def __init__(self, engine: Engine, url: str, revision: str) -> None:
+        self.engine = engine
+        self.url = url
+        self.revision = revision
+
+    def __enter__(self) -> "Store":
+        return self
+
+    def __exit__(self, *exc: object) -> None:
+        self.close()
+
+    def __repr__(self) -> str:
+        return f"Store({self.url!r}, revision={self.revision!r})"
+
+    def close(self) -> None:
+        """Release the database connections."""
+        self.engine.dispose()
+
+    @property
+    def dialect(self) -> str:
+        """``sqlite`` or ``postgresql``."""
+        return self.engine.dialect.name
+
+    # -- portfolios ------------------------------------------------------------------------------
+    @_database_errors
+    def list_portfolios(self) -> tuple[Portfolio, ...]:
+        """Every portfolio, by name."""
+        return catalog.list_portfolios(self.engine)
+
+    @_database_errors
+    def get_portfolio(self, name: str) -> Portfolio:
+        """A portfolio by name. Raises :class:`NotFoundError` if absent."""
+        return catalog.get_portfolio(self.engine, name)
+
+    @_database_errors
+    def create_portfolio(self, name: str) -> Portfolio:
+        """Create a portfolio (1-200 printable characters). Raises :class:`ConflictError` if the name is taken."""
+        return catalog.create_portfolio(self.engine, name)
+
+    @_database_errors
+    def ensure_portfolio(self, name: str) -> Portfolio:
+        """The portfolio of that name, created if needed (safe under concurrency)."""
+        return catalog.ensure_portfolio(self.engine, name)
+
+    # -- prices and runs -------------------------------------------------------------------------
+    @_database_errors
+    def append_prices(self, portfolio: str, prices: pd.DataFrame, source: str = "prices") -> PriceWrite:
+        """Append prices; a changed price becomes a correction (a new revision), never an overwrite.
+
+        Parameters
+        ----------
+        portfolio : str
+            An existing portfolio.
+        prices : pandas.DataFrame
+            Wide prices (validated by :func:`riskshape.prices.validate_prices`; raises DataError).
+        source : str
+            Name used in validation messages.
+
+        Returns
+        -------
+        PriceWrite
+            Cells added, corrections added and cells already archived with the same price.
+        """
+        valid = pricebook.validated(prices, source)
+        with write_transaction(self.engine) as connection:
+            pid = catalog.portfolio_id(connection, portfolio)
+            return pricebook.append_prices(connection, pid, valid, datetime.now(timezone.utc))
+
+    @_database_errors
+    def read_prices(self, portfolio: str, *, start: object = None, end: object = None,
+                    assets: Sequence[str] | None = None, as_of_run: int | None = None) -> pd.DataFrame:
+        """Prices as a wide DataFrame (latest revision of every cell).
+
+        Parameters
+        ----------
+        portfolio : str
+        start, end : date-like, optional
+            Inclusive date range.
+        assets : sequence of str, optional
+            Columns, in this order (default: every archived asset, sorted).
+        as_of_run : int, optional
+            Only what was archived when that run was recorded (later corrections left out).
+
+        Returns
+        -------
+        pandas.DataFrame
+            DatetimeIndex ``date``, float64 columns, NaN where missing.
+        """
+        first = None if start is None else ledger.to_date(start, "start")
+        last = None if end is None else ledger.to_date(end, "end")
+        with read_transaction(self.engine) as connection:
+            pid = catalog.portfolio_id(connection, portfolio)
+            through = None
+            if as_of_run is not None:
+                run = catalog.get_run(self.engine, as_of_run)
+                if run.portfolio != portfolio:
+                    raise StoreError(f"run {as_of_run} belongs to portfolio {run.portfolio!r}, not {portfolio!r}")
+                through = run.prices_through_id
+            return pricebook.read_prices(connection, pid, first, last, None if assets is None else list(assets), through)
+
+    @_database_errors
+    def list_corrections(self, portfolio: str, *, start: object = None, end: object = None) -> tuple[PriceCorrection, ...]:
+        """Every corrected price cell (revision > 0) with the price it replaced, by date and asset."""
+        first = None if start is None else ledger.to_date(start, "start")
+        last = None if end is None else ledger.to_date(end, "end")
+        with read_transaction(self.engine) as connection:
+            return pricebook.list_corrections(connection, catalog.portfolio_id(connection, portfolio), first, last)
+
+    @_database_errors
+    def create_run(self, portfolio: str, manifest: RunManifest, prices: pd.DataFrame | None = None) -> Run:
+        """Record a run: archive its prices (corrections where they differ) and its manifest, atomically.
+
+        The run remembers the extent of the prices (dates, assets, highest price row), so
+        :meth:`read_prices` with ``as_of_run`` rebuilds exactly the table it saw.
+        """
+        return catalog.create_run(self.engine, portfolio, manifest, prices)
+
+    @_database_errors
+    def get_run(self, run_id: int) -> Run:
+        """A run by id. Raises :class:`NotFoundError` if absent."""
+        return catalog.get_run(self.engine, run_id)
+
+    @_database_errors
+    def list_runs(self, portfolio: str | None = None) -> tuple[Run, ...]:
+        """Runs, oldest first (of one portfolio, or all)."""
+        return catalog.list_runs(self.engine, portfolio)
+
+    # -- features and diagrams -------------------------------------------------------------------
+    @_database_errors
+    def write_features(self, run_id: int, features: pd.DataFrame) -> WriteCount:
+        """Archive ``MonitorResult.features`` for a run; idempotent by (portfolio, window_end, config_hash)."""
+        return series.write_features(self.engine, run_id, features)
+
+    @_database_errors
+    def read_features(self, portfolio: str, *, start: object = None, end: object = None,
+                      columns: Sequence[str] | None = None, limit: int | None = None, offset: int = 0,
+                      config_hash: str | None = None) -> FeaturesPage:
+        """A page of the features series (window ends ascending).
+
+        ``config_hash`` defaults to that of the portfolio's latest run. ``columns`` selects and orders
+        columns (an unknown name raises StoreError listing the archived ones).
+        """
+        return series.read_features(self.engine, portfolio, start=start, end=end, columns=columns, limit=limit,
+                                    offset=offset, config_hash=config_hash)
+
+    @_database_errors
+    def write_diagrams(self, run_id: int, diagrams: Iterable[tuple[object, int, np.ndarray]]) -> WriteCount:
+        """Archive (window_end, dim, bars) triples of a run as float32; idempotent like features."""
+        return series.write_diagrams(self.engine, run_id, diagrams)
+
+    @_database_errors
+    def read_diagram(self, portfolio: str, window_end: object, dim: int, config_hash: str | None = None) -> Diagram:
+        """One archived diagram (float32 bars). Raises :class:`NotFoundError` if absent."""
+        return series.read_diagram(self.engine, portfolio, window_end, dim, config_hash)
+
+    # -- alerts and reviews (the ledger) ---------------------------------------------------------
+    @_database_errors
+    def append_alerts(self, alerts: Sequence[Alert], run_id: int) -> AlertAppend:
+        """Append alerts of a run to the ledger, in (window_end, rule) order.
+
+        Idempotent: an alert with the same portfolio, rule, window end and configuration hash as an
+        archived one adds nothing (counted in ``existing``). Values must be finite, timestamps aware.
+        """
+        return ledger.append_alerts(self.engine, alerts, run_id)
+
+    @_database_errors
+    def list_alerts(self, *, portfolio: str | None = None, since: object = None, until: object = None,
+                    severity: str | Sequence[str] | None = None, rule: str | None = None,
+                    reviewed: bool | None = None, limit: int | None = 100, offset: int = 0) -> AlertPage:
+        """Alerts by window end (then id). ``since``/``until`` bound the window end (inclusive);
+        ``reviewed`` True/False keeps alerts with / without any review."""
+        return ledger.list_alerts(self.engine, portfolio=portfolio, since=since, until=until, severity=severity,
+                                  rule=rule, reviewed=reviewed, limit=limit, offset=offset)
+
+    @_database_errors
+    def get_alert(self, alert_id: int) -> AlertDetail:
+        """One alert with its reviews. Raises :class:`NotFoundError` if absent."""
+        return ledger.get_alert(self.engine, alert_id)
+
+    @_database_errors
+    def append_review(self, alert_id: int, action: str, reviewer: str, comment: str = "") -> ReviewRecord:
+        """Append a review (``acknowledge``, ``dismiss`` as noise, or ``escalate``) of an alert."""
+        return ledger.append_review(self.engine, alert_id, action, reviewer, comment)
+
+    # -- API keys --------------------------------------------------------------------------------
+    @_database_errors
+    def create_api_key(self, owner: str, role: str) -> NewApiKey:
+        """Create an API key; ``token`` in the result is shown once (only its hash is stored)."""
+        return keys.create_api_key(self.engine, owner, role)
+
+    @_database_errors
+    def lookup_api_key(self, token: str) -> ApiKey | None:
+        """The key of a token, or None. A revoked key comes back with ``revoked=True``."""
+        return keys.lookup_api_key(self.engine, token)
+
+    @_database_errors
+    def revoke_api_key(self, key_id: str) -> ApiKey:
+        """Revoke a key. Raises :class:`NotFoundError` if absent."""
+        return keys.revoke_api_key(self.engine, key_id)
+
+    @_database_errors
+    def list_api_keys(self) -> tuple[ApiKey, ...]:
+        """Every API key (without secrets)."""
+        return keys.list_api_keys(self.engine)
+
+
+def open_store(url: str) -> Store:
+    """Open (creating or upgrading its schema) the archive at ``url``.
+
+    Parameters
+    ----------
+    url : str
+        ``sqlite:///path/to/archive.sqlite`` or ``postgresql+psycopg://user@host:5432/database``
+        (a ``?options=-csearch_path%3Dschema`` query selects a PostgreSQL schema).
+
+    Returns
+    -------
+    Store
+
+    Raises
+    ------
+    StoreError
+        If the URL is not supported or the database cannot be reached or migrated.
+    """
+    engine = create_archive_engine(url)
+    shown = engine.url.render_as_string(hide_password=True)
+    try:
+        revision = upgrade(engine)
+    except sa.exc.SQLAlchemyError as err:
+        engine.dispose()
+        raise StoreError(f"cannot open the archive {shown}: {getattr(err, 'orig', None) or err}") from None
+    return Store(engine, shown, revision)
+
+
+@_database_errors
+def verify_chain(store: Store, expect_head: str | None = None) -> VerifyReport:
+    """Recompute the ledger's hash chain and name the first record that does not verify.
+
+    Parameters
+    ----------
+    store : Store
+    expect_head : str, optional
+        ``COUNT:HASH`` (or ``HASH``) kept from ``chain_head`` earlier: also catches a cut tail.
+
+    Returns
+    -------
+    VerifyReport
+        ``ok``, records checked, the head, and the first bad record (None when ok).
+    """
+    with read_transaction(store.engine) as connection:
+        return verify_ledger(connection, expect_head)
+
+
+@_database_errors
+def chain_head(store: Store) -> Head:
+    """Record count and hash of the last record, as stored (run :func:`verify_chain` to check them)."""
+    with read_transaction(store.engine) as connection:
+        seq, head = ledger.ledger_head(connection)
+    return Head(count=seq, head_hash=head)
+
