@@ -13,6 +13,8 @@ import hashlib
 import json
 import os
 import sys
+from functools import lru_cache
+from importlib import resources
 from pathlib import Path
 from typing import Any, Literal, Mapping
 
@@ -25,7 +27,7 @@ if sys.version_info >= (3, 11):
 else:  # pragma: no cover - exercised on Python 3.10 only
     import tomli as tomllib
 
-__all__ = ["Config", "ComputeConfig", "AlertsConfig", "RuleConfig", "ServiceSettings", "format_validation_error"]
+__all__ = ["Config", "ComputeConfig", "AlertsConfig", "RuleConfig", "ServiceSettings", "format_validation_error", "default_rules"]
 
 Severity = Literal["info", "warning", "critical"]
 
@@ -114,10 +116,18 @@ class RuleConfig(_Frozen):
         return self
 
 
-class AlertsConfig(_Frozen):
-    """The alert rules (see ``config/default.toml``)."""
+@lru_cache(maxsize=1)
+def default_rules() -> tuple[RuleConfig, ...]:
+    """The alert rules shipped in ``config/default.toml`` (packaged as ``riskshape/default.toml``)."""
+    text = resources.files("riskshape").joinpath("default.toml").read_text(encoding="utf-8")
+    rules = tomllib.loads(text).get("alerts", {}).get("rules", [])
+    return tuple(RuleConfig(**rule) for rule in rules)
 
-    rules: tuple[RuleConfig, ...] = ()
+
+class AlertsConfig(_Frozen):
+    """The alert rules; by default those of ``config/default.toml``. ``rules = []`` turns them off."""
+
+    rules: tuple[RuleConfig, ...] = Field(default_factory=default_rules)
 
 
 class Config(_Frozen):
