@@ -16,6 +16,16 @@ from riskshape import Config
 from riskshape.scenario import Scenario, generate_scenario
 
 
+def pytest_configure(config: pytest.Config) -> None:
+    """Keep hypothesis's failure reports readable under ``filterwarnings = error``.
+
+    When a hypothesis test fails, its pytest plugin imports libcst (to suggest a patch), and
+    libcst subclasses ``mypy_extensions.TypedDict``, which warns. Without this filter the warning
+    becomes an INTERNALERROR that hides the falsifying example.
+    """
+    config.addinivalue_line("filterwarnings", "ignore:mypy_extensions.TypedDict is deprecated:DeprecationWarning")
+
+
 @pytest.fixture
 def rng() -> np.random.Generator:
     """A fresh seeded generator for each test."""
