@@ -1,0 +1,73 @@
+"""Plain-text rendering of an :class:`~riskshape.explain.model.Explanation` (for the terminal and reports)."""
+
+from __future__ import annotations
+
+from riskshape.explain.model import ClusterExplanation, Explanation, LoopExplanation, Members
+
+__all__ = ["render_text", "describe_cluster"]
+
+_SHOWN = 12  # members listed before "..."
+
+
+def describe_cluster(members: Members) -> str:
+    """``{A, B, C}`` (at most a dozen names, then ``... (n in all)``)."""
+    names = ", ".join(members[:_SHOWN])
+    more = f", ... ({len(members)} in all)" if len(members) > _SHOWN else ""
+    return "{" + names + more + "}"
+
+
+def _clusters(c: ClusterExplanation) -> list[str]:
+    lines = [f"Clusters (H0), single linkage cut at distance {c.scale:.4f}: {c.scale_rule}."]
+    if c.previous_end is None:
+        lines.append(f"  First window of the run: nothing to compare; {len(c.clusters_after)} clusters.")
+        return lines
+    big_before = sum(1 for g in c.clusters_before if len(g) > 1)
+    big_after = sum(1 for g in c.clusters_after if len(g) > 1)
+    lines.append(
+        f"  {c.previous_end}: {len(c.clusters_before)} clusters ({big_before} of 2+ assets); "
+        f"{c.window_end}: {len(c.clusters_after)} clusters ({big_after} of 2+ assets)."
+    )
+    if not c.events:
+        lines.append("  No cluster merged or split at this scale.")
+    for e in c.events:
+        if e.kind == "merge":
+            parts = " + ".join(describe_cluster(g) for g in e.before)
+            lines.append(f"  Merged: {parts} -> {describe_cluster(e.after[0])}")
+        else:
+            parts = " + ".join(describe_cluster(g) for g in e.after)
+            lines.append(f"  Split: {describe_cluster(e.before[0])} -> {parts}")
+    if c.entered:
+        lines.append(f"  Entered the window: {', '.join(c.entered)}")
+    if c.left:
+        lines.append(f"  Left the window: {', '.join(c.left)}")
+    if c.pair_changes:
+        lines.append("  Largest correlation changes (before -> after):")
+        for p in c.pair_changes:
+            lines.append(f"    {p.first} ~ {p.second}: {p.before:+.3f} -> {p.after:+.3f} ({p.change:+.3f})")
+    return lines
+
+
+def _loops(x: LoopExplanation) -> list[str]:
+    lines = ["Loops (H1), most persistent first:"]
+    if not x.loops:
+        lines.append("  No loop in this window.")
+    for n, loop in enumerate(x.loops, start=1):
+        since = f"{loop.windows_alive} window(s) in a row since {loop.first_seen}"
+        if loop.lookback_exhausted:
+            since = f"at least {since} (search limit reached)"
+        lines.append(
+            f"  {n}. born {loop.birth:.4f}, dies {loop.death:.4f} (persistence {loop.persistence:.4f}); {since}"
+        )
+        lines.append(f"     cycle: {' -> '.join(loop.members)} -> {loop.members[0] if loop.members else ''}")
+    lines.append(f"  Method: {x.method}.")
+    return lines
+
+
+def render_text(explanation: Explanation) -> str:
+    """Several lines of plain text describing an explanation."""
+    lines = [f"Explanation of {explanation.summary} at the window ending {explanation.window_end}"]
+    if explanation.clusters is not None:
+        lines += _clusters(explanation.clusters)
+    if explanation.loops is not None:
+        lines += _loops(explanation.loops)
+    return "\n".join(lines)
