@@ -6,11 +6,16 @@ signal is indexed by window ends, which are days of that calendar. For an event 
 
 * **label** of window end ``t``: 1 when an event starts in ``(t, t + H]``, else 0; unknown (left
   out) when ``t + H`` passes the end of the data without an event, and, by default, when ``t``
-  lies inside an event (from its start to its trough: neither a warning nor calm; dropping the
-  crisis period is common practice in early-warning studies, e.g. Bussiere and Fratzscher 2006,
-  J. Int. Money and Finance 25:953, from memory);
+  lies inside an event (from its start to its trough, plus ``post_event_days``: neither a
+  warning nor calm; dropping the crisis and post-crisis periods is common practice in
+  early-warning studies, e.g. Bussiere and Fratzscher 2006, J. Int. Money and Finance 25:953,
+  from memory; with rolling windows, ``post_event_days = window`` also drops every window that
+  still holds a crisis day);
 * **ROC AUC** of the signal against those labels (``sklearn.metrics.roc_auc_score``); 0.5 is
   no information; with ``direction="below"`` the signal is negated first;
+* **effect size**: Glass's delta (Glass 1976), the (oriented) mean over positive windows minus
+  the mean over negative windows, over the standard deviation (ddof = 1) of the negatives;
+  overlapping windows are autocorrelated, so it is a size, not a test;
 * **alerts** are window ends (from an alert rule, :func:`riskshape.alerts.rules.evaluate_rule`,
   or given). An alert at ``t`` is *true* when an event starts in ``(t, t + H]``, *in event*
   inside an event, *unknown* when ``t + H`` passes the end of the data, else *false*;
@@ -71,6 +76,10 @@ class EventStudy:
         ROC AUC of the (oriented) signal; NaN when one class is absent.
     years : float
         Trading years spanned by the signal.
+    score : pandas.Series
+        The signal, negated when ``direction`` is ``below`` (so high values warn).
+    direction : str
+        ``above`` or ``below``.
     """
 
     signal: str
@@ -81,6 +90,8 @@ class EventStudy:
     labels: pd.Series
     auc: float
     years: float
+    score: pd.Series
+    direction: str
 
     def _count(self, outcome: str) -> int:
         return int((self.alerts["outcome"] == outcome).sum())
@@ -125,6 +136,16 @@ class EventStudy:
         return float(leads.mean()) if len(leads) else float("nan")
 
     @property
+    def effect_size(self) -> float:
+        """Glass's delta of the oriented signal, positive windows against negative ones."""
+        ok = np.isfinite(self.score) & self.labels.notna()
+        pos = self.score[ok & (self.labels == 1)]
+        neg = self.score[ok & (self.labels == 0)]
+        if len(pos) == 0 or len(neg) < 2:
+            return float("nan")
+        return _ratio(pos.mean() - neg.mean(), neg.std(ddof=1))
+
+    @property
     def mean_kendall_tau(self) -> float:
         """Mean Kendall tau over the events with a trend computed."""
         return float(self.per_event["kendall_tau"].mean()) if self.per_event["kendall_tau"].notna().any() else float("nan")
@@ -144,6 +165,7 @@ class EventStudy:
                 "recall": self.recall,
                 "f1": self.f1,
                 "auc": self.auc,
+                "effect_size": self.effect_size,
                 "n_positive": int((labels == 1).sum()),
                 "n_negative": int((labels == 0).sum()),
                 "mean_kendall_tau": self.mean_kendall_tau,
@@ -175,7 +197,12 @@ def _event_positions(events: DrawdownEvents) -> tuple[np.ndarray, np.ndarray]:
 
 
 def event_labels(
-    index: pd.DatetimeIndex, events: DrawdownEvents, horizon: int, *, exclude_in_event: bool = True
+    index: pd.DatetimeIndex,
+    events: DrawdownEvents,
+    horizon: int,
+    *,
+    exclude_in_event: bool = True,
+    post_event_days: int = 0,
 ) -> pd.Series:
     """Label of each window end: 1.0 when an event starts within the next ``horizon`` days.
 
@@ -188,6 +215,8 @@ def event_labels(
         ``H``, trading days (>= 1).
     exclude_in_event : bool
         Leave out (NaN) the window ends from an event's start to its trough.
+    post_event_days : int
+        With ``exclude_in_event``, also leave out this many trading days after each trough.
 
     Returns
     -------
@@ -204,7 +233,8 @@ def event_labels(
     labels = np.where(positive, 1.0, 0.0)
     labels[~positive & (pos + horizon > len(cal) - 1)] = np.nan
     if exclude_in_event:
-        inside = ((pos[:, None] >= starts[None, :]) & (pos[:, None] <= troughs[None, :])).any(axis=1)
+        ends = troughs + post_event_days
+        inside = ((pos[:, None] >= starts[None, :]) & (pos[:, None] <= ends[None, :])).any(axis=1)
         labels[inside] = np.nan
     return pd.Series(labels, index=index, name="label")
 
@@ -250,6 +280,7 @@ def event_study(
     trend: Literal["level", "variance"] = "level",
     variance_window: int = 20,
     exclude_in_event: bool = True,
+    post_event_days: int = 0,
 ) -> EventStudy:
     """Event study of one signal (and alerts on it) against drawdown events.
 
@@ -272,7 +303,7 @@ def event_study(
         What the Kendall tau is computed on (see the module notes).
     variance_window : int
         Windows of the rolling variance for ``trend="variance"``.
-    exclude_in_event : bool
+    exclude_in_event, post_event_days
         See :func:`event_labels`.
 
     Returns
@@ -285,7 +316,9 @@ def event_study(
     values = signal.astype(float)
     cal = events.calendar
     pos = _positions(pd.DatetimeIndex(values.index), cal, f"signal '{name}'")
-    labels = event_labels(values.index, events, horizon, exclude_in_event=exclude_in_event)
+    labels = event_labels(
+        values.index, events, horizon, exclude_in_event=exclude_in_event, post_event_days=post_event_days
+    )
     score = values if direction == "above" else -values
     usable = labels.notna() & np.isfinite(score)
     y = labels[usable].to_numpy()
@@ -334,6 +367,8 @@ def event_study(
         labels=labels,
         auc=auc,
         years=years,
+        score=score.rename(name),
+        direction=direction,
     )
 
 
@@ -377,6 +412,7 @@ def study_table(
     horizon: int = 20,
     lookback: int = 120,
     trend: Literal["level", "variance"] = "level",
+    post_event_days: int = 0,
 ) -> pd.DataFrame:
     """The event study of many summary columns, one row each.
 
@@ -391,7 +427,7 @@ def study_table(
         ``"above"`` or ``"below"`` per column (default ``"above"``).
     rules : sequence of RuleConfig
         Alert rules; a column without a rule gets :func:`default_rule` in its direction.
-    horizon, lookback, trend
+    horizon, lookback, trend, post_event_days
         See :func:`event_study`.
 
     Returns
@@ -417,6 +453,7 @@ def study_table(
             alerts=by_summary.get(col),
             direction=direction,
             trend=trend,
+            post_event_days=post_event_days,
         )
         rows.append(pd.concat([pd.Series({"direction": direction}, name=col), study.table()]))
     table = pd.DataFrame(rows)

@@ -135,7 +135,7 @@ def surrogate(
     Parameters
     ----------
     block : numpy.ndarray
-        (days, assets) returns, no NaN.
+        (days, assets) returns, no NaN (``shuffle`` alone accepts NaN and moves it with the rest).
     method : str
         One of :data:`METHODS` (see the module notes).
     rng : numpy.random.Generator
@@ -156,9 +156,9 @@ def surrogate(
     DataError
         For a block with missing values or fewer than 4 days.
     """
+    if method == "shuffle":  # missing returns are moved with the others
+        return _shuffle(np.asarray(block, dtype=float), rng)
     x = _complete(block, method)
-    if method == "shuffle":
-        return _shuffle(x, rng)
     if method == "gaussian":
         return _gaussian(x, rng)
     if method == "phase":

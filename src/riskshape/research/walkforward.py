@@ -91,6 +91,7 @@ def walk_forward(
     min_train: int = 250,
     regularization: float = 1.0,
     exclude_in_event: bool = True,
+    post_event_days: int = 0,
 ) -> WalkForward:
     """Walk-forward logistic regression of "event within ``horizon`` days" for each feature set.
 
@@ -114,7 +115,7 @@ def walk_forward(
         Windows before the first test fold.
     regularization : float
         Inverse L2 strength ``C`` of the logistic regression.
-    exclude_in_event : bool
+    exclude_in_event, post_event_days
         See :func:`riskshape.research.study.event_labels`.
 
     Returns
@@ -143,7 +144,8 @@ def walk_forward(
         )
     calendar = pd.DatetimeIndex(wealth.index)
     final_events = drawdown_events(wealth, min_depth, max_duration)
-    final_labels = event_labels(features.index, final_events, horizon, exclude_in_event=exclude_in_event)
+    label_options = {"exclude_in_event": exclude_in_event, "post_event_days": post_event_days}
+    final_labels = event_labels(features.index, final_events, horizon, **label_options)
     bounds = np.linspace(min_train, n_rows, n_folds + 1).round().astype(int)
     fold_rows, predictions = [], []
     for k in range(n_folds):
@@ -152,7 +154,7 @@ def walk_forward(
         known_events = drawdown_events(wealth.iloc[: now + 1], min_depth, max_duration)
         past = features.iloc[: bounds[k]]
         past = past[past.index <= calendar[now]]
-        train_labels = event_labels(past.index, known_events, horizon, exclude_in_event=exclude_in_event)
+        train_labels = event_labels(past.index, known_events, horizon, **label_options)
         out = pd.DataFrame({"fold": k, "label": final_labels.loc[test.index]}, index=test.index)
         row: dict[str, object] = {
             "fold": k,

@@ -1,0 +1,128 @@
+"""The same event study over a grid of window lengths and steps, in parallel.
+
+Each grid point runs the monitor (in its worker, serially), the baselines on the same windows
+and :func:`riskshape.research.study.study_table` against one fixed set of events; the grid
+points go to the executor the configuration's ``compute`` section names
+(:func:`riskshape.compute.make_executor`: a local process pool by default, or Dask).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass
+from itertools import product
+from typing import Literal
+
+import pandas as pd
+
+from riskshape.baselines import compute_baselines
+from riskshape.compute import make_executor
+from riskshape.config import Config
+from riskshape.errors import ConfigError
+from riskshape.monitor import monitor
+from riskshape.research.events import DrawdownEvents
+from riskshape.research.study import study_table
+
+__all__ = ["SweepResult", "sweep"]
+
+
+@dataclass(frozen=True)
+class SweepResult:
+    """Event-study rows for every (window, step, signal).
+
+    Attributes
+    ----------
+    table : pandas.DataFrame
+        Indexed by ``window``, ``step``, ``signal``; the columns of
+        :func:`riskshape.research.study.study_table`.
+    """
+
+    table: pd.DataFrame
+
+    def pivot(self, metric: str = "auc") -> pd.DataFrame:
+        """One metric as a (signal) x (window, step) table."""
+        if metric not in self.table.columns:
+            raise ConfigError(f"unknown metric {metric!r}; choose one of {list(self.table.columns)}")
+        return self.table[metric].astype(float).unstack(["window", "step"])
+
+    def best(self, metric: str = "auc") -> pd.DataFrame:
+        """For each signal, the grid point with the highest ``metric`` (NaN rows skipped)."""
+        values = self.table[metric].astype(float).dropna()
+        if values.empty:
+            return self.table.iloc[0:0]
+        return self.table.loc[values.groupby(level="signal").idxmax().to_list()]
+
+
+def _one_point(
+    prices: pd.DataFrame,
+    config: Config,
+    events: DrawdownEvents,
+    columns: Sequence[str] | None,
+    directions: Mapping[str, Literal["above", "below"]] | None,
+    horizon: int,
+    lookback: int,
+    post_event_days: int | None,
+) -> pd.DataFrame:
+    result = monitor(prices, config)
+    baselines = compute_baselines(result.returns, config, data_are_returns=True)
+    features = result.features.join(baselines.drop(columns=[c for c in baselines.columns if c in result.features]))
+    table = study_table(
+        features,
+        events,
+        columns=columns,
+        directions=directions,
+        horizon=horizon,
+        lookback=lookback,
+        post_event_days=config.window if post_event_days is None else post_event_days,
+    )
+    return table.assign(window=config.window, step=config.step).reset_index()
+
+
+def sweep(
+    prices: pd.DataFrame,
+    events: DrawdownEvents,
+    *,
+    windows: Sequence[int],
+    steps: Sequence[int] = (1,),
+    config: Config | None = None,
+    columns: Sequence[str] | None = None,
+    directions: Mapping[str, Literal["above", "below"]] | None = None,
+    horizon: int = 20,
+    lookback: int = 120,
+    post_event_days: int | None = None,
+) -> SweepResult:
+    """Event study of the summaries (and baselines) for every window length and step.
+
+    Parameters
+    ----------
+    prices : pandas.DataFrame
+        Wide prices, as for :func:`riskshape.monitor`.
+    events : DrawdownEvents
+        The events, fixed across the grid (e.g. from
+        :func:`riskshape.research.events.portfolio_drawdown_events` on the same prices).
+    windows, steps : sequence of int
+        The grid.
+    config : Config, optional
+        Everything else (embedding, correlation, ...); its ``compute`` section decides where the
+        grid points run. Each point runs its monitor serially.
+    columns, directions, horizon, lookback
+        See :func:`riskshape.research.study.study_table`.
+    post_event_days : int, optional
+        Default: the window length of each grid point (drops every window holding a crisis day).
+
+    Returns
+    -------
+    SweepResult
+    """
+    base = config or Config()
+    if not windows or not steps:
+        raise ConfigError("sweep: give at least one window length and one step")
+    points = [base.replace(window=w, step=s, compute={"executor": "serial"}) for w, s in product(windows, steps)]
+    jobs = [(prices, cfg, events, columns, directions, horizon, lookback, post_event_days) for cfg in points]
+    executor = make_executor(base.compute, len(jobs))
+    try:
+        parts = list(executor.map(_one_point, jobs))
+    finally:
+        executor.close()
+    table = pd.concat(parts, ignore_index=True).set_index(["window", "step", "signal"]).sort_index()
+    return SweepResult(table=table)
