@@ -246,13 +246,35 @@ class Config(_Frozen):
 
 
 class ServiceSettings(_Frozen):
-    """Settings of the HTTP service, read from ``RISKSHAPE_*`` environment variables by :meth:`from_env`."""
+    """Settings of the HTTP service, read from ``RISKSHAPE_*`` environment variables by :meth:`from_env`
+    (``RISKSHAPE_STORE_URL``, ``RISKSHAPE_MAX_BODY_BYTES``, ...).
+
+    Parameters
+    ----------
+    store_url : str
+        Archive URL (``sqlite:///path`` or ``postgresql+psycopg://...``).
+    max_body_bytes : int
+        Largest request body accepted, counted as it streams (413 beyond it).
+    max_page_size : int
+        Largest page a paged endpoint returns (422 beyond it).
+    rate_limit_per_minute : int
+        Sustained requests a minute per API key (429 with Retry-After beyond it).
+    rate_limit_burst : int
+        Requests a key may make at once after being idle (the token bucket's size).
+    config_path : str or None
+        TOML configuration for portfolios before their first run (defaults without it); a portfolio
+        with runs keeps the configuration of its latest run.
+    log_level : str
+        Level of the service's JSON logs.
+    """
 
     store_url: str = "sqlite:///riskshape.sqlite"
     max_body_bytes: int = Field(5_000_000, ge=1024)
     max_page_size: int = Field(1000, ge=1)
     rate_limit_per_minute: int = Field(600, ge=1)
+    rate_limit_burst: int = Field(60, ge=1)
     config_path: str | None = None
+    log_level: Literal["debug", "info", "warning", "error"] = "info"
 
     @classmethod
     def from_env(cls, environ: Mapping[str, str] | None = None, **overrides: Any) -> "ServiceSettings":

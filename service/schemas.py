@@ -1,0 +1,265 @@
+"""Request and response bodies of the API (pydantic models; the OpenAPI schema is made from them).
+
+Every response object derives from :class:`Cautioned` and so carries ``caution``. Numbers that
+are undefined (a distance at the first window, a threshold before enough history) are ``null``.
+"""
+
+from __future__ import annotations
+
+import math
+from datetime import date, datetime
+from typing import Annotated, Any, Literal
+
+from pydantic import BaseModel, ConfigDict, Field, model_validator
+
+from riskshape.caution import CAUTION
+from riskshape.store.records import REVIEW_ACTIONS
+
+__all__ = [
+    "Cautioned", "ErrorOut", "FieldError", "StoreStatus", "HealthOut", "PortfolioOut", "PortfolioList",
+    "PortfolioIn", "AlertOut", "ProvenanceOut", "ReviewOut", "AlertDetailOut", "AlertPageOut", "ReviewIn",
+    "ReviewCreated", "RuleStateOut", "LatestOut", "SeriesRow", "SeriesOut", "DiagramOut", "LongRow", "WideRow",
+    "PricesIn", "IngestOut", "ChainHead", "HeadOut", "PortfolioCreated", "BadRecordOut", "VerifyOut", "finite_or_none",
+]
+
+AssetName = Annotated[str, Field(min_length=1, max_length=200)]
+Price = Annotated[float, Field(allow_inf_nan=False, description="a price (> 0), or null where missing")]
+Number = Annotated[float | None, Field(description="null where undefined")]
+ReviewAction = Literal["acknowledge", "dismiss", "escalate"]
+assert set(REVIEW_ACTIONS) == {"acknowledge", "dismiss", "escalate"}
+
+
+def finite_or_none(value: Any) -> float | None:
+    """A float, or None where the value is missing, NaN or infinite (JSON has no NaN)."""
+    if value is None:
+        return None
+    number = float(value)
+    return number if math.isfinite(number) else None
+
+
+class Cautioned(BaseModel):
+    """Base of every response object: the not-investment-advice caution travels with the data."""
+
+    caution: str = Field(CAUTION, description="riskshape is a decision aid, not investment advice")
+
+
+class _Input(BaseModel):
+    model_config = ConfigDict(extra="forbid")
+
+
+# -- errors and health ---------------------------------------------------------------------------
+class FieldError(BaseModel):
+    field: str = Field(description="where in the request, e.g. body.rows.3.price or query.limit")
+    message: str
+
+
+class ErrorOut(Cautioned):
+    """Every 4xx and 5xx body."""
+
+    detail: str = Field(description="what is wrong and how to fix it")
+    request_id: str = Field(description="quote it when reporting a problem; the logs carry it")
+    errors: list[FieldError] | None = None
+
+
+class StoreStatus(BaseModel):
+    ok: bool
+    dialect: str | None = None
+    revision: str | None = Field(None, description="schema revision of the archive")
+    detail: str | None = None
+
+
+class HealthOut(Cautioned):
+    status: Literal["ok", "degraded"]
+    version: str
+    store: StoreStatus
+
+
+# -- portfolios ----------------------------------------------------------------------------------
+class PortfolioOut(BaseModel):
+    name: str
+    created_at: datetime
+
+
+class PortfolioList(Cautioned):
+    items: list[PortfolioOut]
+
+
+class PortfolioIn(_Input):
+    name: str = Field(min_length=1, max_length=200, pattern=r"^[^\s\x00-\x1f\x7f](?:[^\x00-\x1f\x7f]*[^\s\x00-\x1f\x7f])?$",
+                      description="1 to 200 printable characters, no surrounding spaces")
+
+
+class PortfolioCreated(Cautioned):
+    portfolio: PortfolioOut
+
+
+# -- alerts and reviews --------------------------------------------------------------------------
+class AlertOut(BaseModel):
+    id: int
+    portfolio: str
+    rule: str
+    summary: str = Field(description="the summary column the rule watches")
+    kind: str = Field(description="level, quantile or zscore")
+    window_end: date
+    value: float
+    threshold: float = Field(description="threshold in force at that window, in the summary's units")
+    severity: str
+    raised_at: datetime
+
+
+class ProvenanceOut(BaseModel):
+    config_hash: str
+    inputs_hash: str = Field(description="SHA-256 of the exact returns the window used")
+    package_version: str
+    run_id: int
+    seq: int = Field(description="place in the ledger (hash chain)")
+    prev_hash: str
+    entry_hash: str
+
+
+class ReviewOut(BaseModel):
+    id: int
+    alert_id: int
+    action: ReviewAction
+    reviewer: str = Field(description="owner of the API key that posted the review")
+    comment: str
+    created_at: datetime
+    seq: int
+    entry_hash: str
+
+
+class AlertDetailOut(Cautioned):
+    alert: AlertOut
+    provenance: ProvenanceOut
+    reviews: list[ReviewOut]
+
+
+class AlertPageOut(Cautioned):
+    items: list[AlertOut]
+    total: int = Field(description="alerts matching the filters")
+    offset: int
+    limit: int
+    next_offset: int | None = Field(description="offset of the next page, null on the last one")
+
+
+class ReviewIn(_Input):
+    """A review; the reviewer is the owner of the key that sends it, never a field of the body."""
+
+    action: ReviewAction
+    comment: str = Field("", max_length=5000)
+
+
+class ReviewCreated(Cautioned):
+    review: ReviewOut
+
+
+# -- series, latest state, diagrams --------------------------------------------------------------
+class RuleStateOut(BaseModel):
+    rule: str
+    summary: str
+    severity: str
+    value: Number
+    threshold: Number
+    clear_level: Number
+    active: bool = Field(description="fired and not yet cleared")
+    active_since: date | None
+    last_fired: date | None
+
+
+class LatestOut(Cautioned):
+    portfolio: str
+    config_hash: str | None = Field(description="configuration of the latest run; null before the first window")
+    n_windows: int
+    window_end: date | None = Field(description="the last window; null before the first window")
+    values: dict[str, Number] = Field(description="the summaries of the last window")
+    rules: list[RuleStateOut]
+    active_alerts: list[AlertOut] = Field(description="archived alerts whose rule is still active")
+
+
+class SeriesRow(BaseModel):
+    window_end: date
+    values: list[Number] = Field(description="one value per entry of `columns`")
+
+
+class SeriesOut(Cautioned):
+    portfolio: str
+    config_hash: str | None
+    columns: list[str]
+    rows: list[SeriesRow]
+    total: int = Field(description="windows in the date range")
+    offset: int
+    limit: int
+    next_offset: int | None
+
+
+class DiagramOut(Cautioned):
+    portfolio: str
+    window_end: date
+    dim: int
+    config_hash: str
+    run_id: int
+    n_bars: int
+    bars: list[tuple[float, float]] = Field(description="finite (birth, death) pairs; float32 values")
+
+
+# -- ingest --------------------------------------------------------------------------------------
+class LongRow(_Input):
+    date: date
+    asset: AssetName
+    price: Price | None
+
+
+class WideRow(_Input):
+    date: date
+    prices: dict[AssetName, Price | None] = Field(description="asset -> price on that date")
+
+
+class PricesIn(_Input):
+    """Prices for one portfolio: give ``rows`` (long: date, asset, price) or ``wide`` (one object per date)."""
+
+    rows: list[LongRow] | None = Field(None, min_length=1)
+    wide: list[WideRow] | None = Field(None, min_length=1)
+
+    @model_validator(mode="after")
+    def _one_layout(self) -> "PricesIn":
+        if (self.rows is None) == (self.wide is None):
+            raise ValueError("give exactly one of 'rows' (long: date, asset, price) or 'wide' (date, prices)")
+        return self
+
+
+class IngestOut(Cautioned):
+    portfolio: str
+    prices_added: int = Field(description="price cells archived for the first time")
+    corrections: int = Field(description="price cells archived as corrections (new revisions)")
+    unchanged: int = Field(description="price cells already archived with the same price")
+    windows_added: int = Field(description="windows computed and archived by this request")
+    first_window: date | None
+    last_window: date | None
+    alerts: list[AlertOut] = Field(description="alerts raised by this request")
+    run_id: int | None = Field(description="the run recorded for this request (null when nothing was new)")
+    note: str = Field(description="what happened, in words")
+
+
+# -- audit ---------------------------------------------------------------------------------------
+class ChainHead(BaseModel):
+    count: int = Field(description="records in the ledger")
+    head_hash: str
+    head: str = Field(description="COUNT:HASH, the form verify's expect_head reads back")
+
+
+class HeadOut(Cautioned, ChainHead):
+    """The ledger's head, to keep somewhere else and check against later."""
+
+
+class BadRecordOut(BaseModel):
+    seq: int
+    table: str
+    record_id: int | None
+    reason: str
+
+
+class VerifyOut(Cautioned):
+    ok: bool
+    checked: int
+    head: ChainHead
+    first_bad: BadRecordOut | None
