@@ -1,0 +1,37 @@
+"""``GET /v1/portfolios/{name}/diagrams/{window_end}``: one window's persistence diagram."""
+
+from __future__ import annotations
+
+from datetime import date
+from typing import Annotated
+
+from fastapi import APIRouter, Path, Query
+
+from riskshape.config import ServiceSettings
+from service.deps import ReaderDep, StoreDep
+from service.routers import API_PREFIX, errors
+from service.routers.portfolios import PortfolioName
+from service.schemas import DiagramOut
+
+__all__ = ["make_router"]
+
+
+def make_router(settings: ServiceSettings) -> APIRouter:
+    router = APIRouter(prefix=f"{API_PREFIX}/portfolios", tags=["diagrams"])
+
+    @router.get("/{name}/diagrams/{window_end}", response_model=DiagramOut, responses=errors(401, 403, 404, 422, 429))
+    def diagram(
+        name: PortfolioName,
+        window_end: Annotated[date, Path(description="the window's last date (YYYY-MM-DD)")],
+        caller: ReaderDep,
+        store: StoreDep,
+        dim: Annotated[int, Query(ge=0, le=2, description="homology dimension")] = 1,
+    ) -> DiagramOut:
+        """Finite (birth, death) bars of one window in one dimension, under the latest configuration."""
+        found = store.read_diagram(name, window_end, dim)
+        return DiagramOut(
+            portfolio=found.portfolio, window_end=found.window_end, dim=found.dim, config_hash=found.config_hash,
+            run_id=found.run_id, n_bars=len(found.bars), bars=[(float(b), float(d)) for b, d in found.bars],
+        )  # fmt: skip
+
+    return router

@@ -1,0 +1,40 @@
+"""``GET /v1/health``: is the service up, and can it read the archive? (No key needed.)"""
+
+from __future__ import annotations
+
+from fastapi import APIRouter
+from fastapi.responses import JSONResponse
+
+from riskshape._version import __version__
+from riskshape.config import ServiceSettings
+from riskshape.errors import RiskshapeError
+from service.access import store_status
+from service.deps import ContextDep
+from service.routers import API_PREFIX, errors
+from service.schemas import HealthOut, StoreStatus
+
+__all__ = ["make_router"]
+
+
+def make_router(settings: ServiceSettings) -> APIRouter:
+    router = APIRouter(prefix=API_PREFIX, tags=["health"])
+
+    @router.get("/health", response_model=HealthOut,
+                responses={503: {"model": HealthOut, "description": "The archive cannot be read"}, **errors()})
+    def health(context: ContextDep) -> HealthOut | JSONResponse:
+        """Service version and archive status; 503 when the archive cannot be read."""
+        store = context.store
+        if store is None:
+            status = StoreStatus(ok=False, detail=context.store_error)
+        else:
+            try:
+                store_status(store)
+                status = StoreStatus(ok=True, dialect=store.dialect, revision=store.revision)
+            except RiskshapeError as err:
+                status = StoreStatus(ok=False, dialect=store.dialect, revision=store.revision, detail=str(err))
+        body = HealthOut(status="ok" if status.ok else "degraded", version=__version__, store=status)
+        if not status.ok:
+            return JSONResponse(body.model_dump(mode="json"), status_code=503)
+        return body
+
+    return router

@@ -1,0 +1,113 @@
+"""``POST /v1/portfolios/{name}/prices``: archive a portfolio's prices, compute the windows they
+complete and raise alerts (ingest or admin). The policy is in :mod:`service.ingest`.
+
+The body is JSON (``{"rows": [{date, asset, price}, ...]}`` or ``{"wide": [{date, prices}, ...]}``)
+or CSV text (``Content-Type: text/csv``; wide ``date,A,B,...`` or long ``date,asset,price``).
+"""
+
+from __future__ import annotations
+
+import email.message
+import json
+from typing import Annotated
+
+from fastapi import APIRouter, HTTPException, Query, Request
+from fastapi.exceptions import RequestValidationError
+from pydantic import ValidationError
+from starlette.concurrency import run_in_threadpool
+
+from riskshape.config import ServiceSettings
+from service.bodies import CSV_SOURCE, JSON_SOURCE, table_from_csv, table_from_json, validated_prices
+from service.convert import alert_out
+from service.deps import ContextDep, IngestDep, StoreDep
+from service.ingest import IngestReport
+from service.routers import API_PREFIX, errors
+from service.routers.portfolios import PortfolioName
+from service.schemas import IngestOut, PricesIn
+
+__all__ = ["make_router", "PRICES_BODY"]
+
+CSV_EXAMPLE = "date,Orchard-01,Foundry-01,Harbor-01\n2031-03-03,101.5,98.25,100.75\n"
+PRICES_BODY = {
+    "required": True,
+    "content": {
+        "application/json": {"schema": {"$ref": "#/components/schemas/PricesIn"}},
+        "text/csv": {"schema": {"type": "string", "description": "wide (date, one column per asset) or long "
+                                "(date, asset, price) CSV, one header line"}, "example": CSV_EXAMPLE},
+    },
+}
+
+
+def _media_type(request: Request) -> str:
+    header = request.headers.get("content-type")
+    if not header:
+        return ""
+    message = email.message.Message()
+    message["content-type"] = header
+    return message.get_content_type()
+
+
+def _json_body(raw: bytes) -> PricesIn:
+    try:
+        data = json.loads(raw)
+    except json.JSONDecodeError as err:
+        raise RequestValidationError([{"type": "json_invalid", "loc": ("body", err.pos), "msg": "JSON decode error",
+                                       "input": {}, "ctx": {"error": err.msg}}]) from None
+    except UnicodeDecodeError:
+        raise RequestValidationError([{"type": "json_invalid", "loc": ("body",), "msg": "JSON decode error",
+                                       "input": {}, "ctx": {"error": "not UTF-8 text"}}]) from None
+    try:
+        return PricesIn.model_validate(data)
+    except ValidationError as err:
+        raise RequestValidationError([{**e, "loc": ("body", *e["loc"])} for e in err.errors()]) from None
+
+
+def _ingest_out(report: IngestReport) -> IngestOut:
+    return IngestOut(
+        portfolio=report.portfolio, prices_added=report.prices_added, corrections=report.corrections,
+        unchanged=report.unchanged, windows_added=report.windows_added, first_window=report.first_window,
+        last_window=report.last_window, alerts=[alert_out(a) for a in report.alerts], run_id=report.run_id,
+        note=report.note,
+    )  # fmt: skip
+
+
+def make_router(settings: ServiceSettings) -> APIRouter:
+    router = APIRouter(prefix=f"{API_PREFIX}/portfolios", tags=["prices"])
+
+    @router.post("/{name}/prices", response_model=IngestOut, openapi_extra={"requestBody": PRICES_BODY},
+                 responses=errors(401, 403, 404, 409, 413, 415, 422, 429))
+    async def post_prices(
+        name: PortfolioName,
+        request: Request,
+        caller: IngestDep,
+        store: StoreDep,
+        context: ContextDep,
+        correction: Annotated[bool, Query(description="archive prices that differ from archived ones as "
+                                          "corrections (otherwise they are refused with 409)")] = False,
+    ) -> IngestOut:
+        """Archive prices, compute only the new windows, evaluate the alert rules; idempotent."""
+        media = _media_type(request)
+        raw = await request.body()
+        if media == "application/json" or media.endswith("+json"):
+            table, layout = table_from_json(_json_body(raw))
+            source, first, label = f"{JSON_SOURCE} ({layout})", 0, ("rows" if layout == "long" else "wide")
+        elif media == "text/csv":
+            table = await run_in_threadpool(table_from_csv, raw)
+            source, first, label = CSV_SOURCE, 2, "line"
+        else:
+            raise HTTPException(status_code=415, detail=f"content type {media or 'none'!r} is not accepted; send "
+                                "application/json or text/csv")
+        prices = await run_in_threadpool(validated_prices, table, source, first, label)
+
+        def work() -> IngestReport:
+            return context.ingestor.ingest(store, name, prices, correction=correction, source=source)
+
+        report = await run_in_threadpool(work)
+        context.metrics.windows.inc(report.windows_computed)
+        context.metrics.price_cells.labels("added").inc(report.prices_added)
+        context.metrics.price_cells.labels("correction").inc(report.corrections)
+        for alert in report.alerts:
+            context.metrics.alerts.labels(alert.severity).inc()
+        return _ingest_out(report)
+
+    return router

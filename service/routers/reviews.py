@@ -1,0 +1,27 @@
+"""``POST /v1/alerts/{alert_id}/reviews``: acknowledge, dismiss or escalate an alert (reviewer)."""
+
+from __future__ import annotations
+
+from fastapi import APIRouter
+
+from riskshape.config import ServiceSettings
+from service.convert import review_out
+from service.deps import ReviewerDep, StoreDep
+from service.routers import API_PREFIX, errors
+from service.routers.alerts import AlertId
+from service.schemas import ReviewCreated, ReviewIn
+
+__all__ = ["make_router"]
+
+
+def make_router(settings: ServiceSettings) -> APIRouter:
+    router = APIRouter(prefix=f"{API_PREFIX}/alerts", tags=["reviews"])
+
+    @router.post("/{alert_id}/reviews", response_model=ReviewCreated, status_code=201,
+                 responses=errors(401, 403, 404, 413, 422, 429))
+    def post_review(alert_id: AlertId, body: ReviewIn, caller: ReviewerDep, store: StoreDep) -> ReviewCreated:
+        """Append a review; the reviewer recorded is the owner of the key, never a field of the body."""
+        record = store.append_review(alert_id, body.action, caller.owner, body.comment)
+        return ReviewCreated(review=review_out(record))
+
+    return router

@@ -1,0 +1,43 @@
+"""``GET /v1/portfolios/{name}/series``: the summaries series, by date range, chosen summaries, paged."""
+
+from datetime import date
+from typing import Annotated
+
+from fastapi import APIRouter, Query
+
+from riskshape.config import ServiceSettings
+from service import access
+from service.deps import ReaderDep, StoreDep
+from service.routers import API_PREFIX, MAX_ID, errors
+from service.routers.portfolios import PortfolioName
+from service.schemas import SeriesOut, SeriesRow, finite_or_none
+
+__all__ = ["make_router"]
+
+
+def make_router(settings: ServiceSettings) -> APIRouter:
+    router = APIRouter(prefix=f"{API_PREFIX}/portfolios", tags=["series"])
+    cap = settings.max_page_size
+
+    @router.get("/{name}/series", response_model=SeriesOut, responses=errors(401, 403, 404, 422, 429))
+    def series(
+        name: PortfolioName,
+        caller: ReaderDep,
+        store: StoreDep,
+        start: Annotated[date | None, Query(description="first window end (inclusive)")] = None,
+        end: Annotated[date | None, Query(description="last window end (inclusive)")] = None,
+        summaries: Annotated[list[str] | None, Query(description="summaries to return (repeat); default all")] = None,
+        limit: Annotated[int, Query(ge=1, le=cap, description=f"windows per page (at most {cap})")] = min(100, cap),
+        offset: Annotated[int, Query(ge=0, le=MAX_ID, description="windows to skip")] = 0,
+    ) -> SeriesOut:
+        """Per-window summaries under the portfolio's latest configuration, oldest window first."""
+        page = access.series_page(store, name, start=start, end=end, columns=summaries, limit=limit, offset=offset)
+        rows = [SeriesRow(window_end=stamp.date(), values=[finite_or_none(v) for v in values])
+                for stamp, values in zip(page.frame.index, page.frame.to_numpy(dtype=float))]
+        following = offset + len(rows)
+        return SeriesOut(
+            portfolio=name, config_hash=page.config_hash, columns=[str(c) for c in page.frame.columns], rows=rows,
+            total=page.total, offset=offset, limit=limit, next_offset=following if following < page.total else None,
+        )  # fmt: skip
+
+    return router
