@@ -109,3 +109,19 @@ def test_point_cloud_loops_are_made_of_days(small_prices, small_config) -> None:
 
 def test_summary_dimension() -> None:
     assert [summary_dimension(s) for s in ("h0_entropy", "h1_bottleneck", "h2_n_bars", "n_assets")] == [0, 1, 2, None]
+
+
+def test_archived_forms_round_trip(run) -> None:
+    from riskshape.alerts.model import Firing
+    from riskshape.explain import NO_EXPLANATION, explanation_json, explanation_object, explanation_text
+
+    end = run.window_ends[5]
+    firing = Firing("rule-a", "h1_entropy", "level", end, 1.0, 0.5, "warning")
+    stored = explanation_json(run, firing)
+    expected = explain_alert(run, end, "h1_entropy")
+    assert stored == expected.to_json()
+    assert explanation_text(stored) == expected.to_text()
+    assert explanation_object(stored) == json.loads(stored)
+    assert explanation_text(None) == NO_EXPLANATION and explanation_object(None) is None
+    with pytest.raises(DataError):
+        explanation_object('{"version": 1}')

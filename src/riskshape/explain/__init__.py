@@ -4,6 +4,7 @@
 alert as :meth:`Explanation.to_json` and shown with :meth:`Explanation.to_text`.
 """
 
+from riskshape.explain.archived import NO_EXPLANATION, explanation_json, explanation_object, explanation_text
 from riskshape.explain.attach import explain_alert, summary_dimension
 from riskshape.explain.clusters import choose_scale, clusters_at, explain_clusters, match_clusters
 from riskshape.explain.geometry import WindowGeometry, window_geometry
@@ -19,6 +20,10 @@ from riskshape.explain.model import (
 
 __all__ = [
     "explain_alert",
+    "explanation_json",
+    "explanation_text",
+    "explanation_object",
+    "NO_EXPLANATION",
     "summary_dimension",
     "Explanation",
     "ClusterExplanation",

@@ -1,0 +1,64 @@
+"""The explanation as the archive, the service and the CLI handle it: canonical JSON text.
+
+:func:`explanation_json` is what to store with an alert (inside its hash chain record);
+:func:`explanation_text` turns the stored text back into lines for ``riskshape alerts show``;
+:func:`explanation_object` gives the JSON object for an API response.
+"""
+
+from __future__ import annotations
+
+import json
+from typing import Any
+
+from riskshape.alerts.model import Firing
+from riskshape.explain.attach import explain_alert
+from riskshape.explain.model import Explanation
+from riskshape.monitor import MonitorResult
+
+__all__ = ["explanation_json", "explanation_text", "explanation_object", "NO_EXPLANATION"]
+
+NO_EXPLANATION = "No explanation archived with this alert."
+
+
+def explanation_json(result: MonitorResult, firing: Firing) -> str:
+    """Canonical JSON of the explanation of one firing of a run (store it with the alert).
+
+    Parameters
+    ----------
+    result : MonitorResult
+        The run whose rules fired.
+    firing : Firing
+        One firing of that run.
+
+    Returns
+    -------
+    str
+        :meth:`Explanation.to_json` of :func:`explain_alert` with the default settings.
+    """
+    return explain_alert(result, firing.window_end, firing.summary).to_json()
+
+
+def explanation_text(stored: str | None) -> str:
+    """Plain text of a stored explanation, or :data:`NO_EXPLANATION` when there is none.
+
+    Raises
+    ------
+    DataError
+        If ``stored`` is not an explanation written by :func:`explanation_json`.
+    """
+    return NO_EXPLANATION if not stored else Explanation.from_json(stored).to_text()
+
+
+def explanation_object(stored: str | None) -> dict[str, Any] | None:
+    """The stored explanation as a JSON object for an API response (None when there is none).
+
+    Raises
+    ------
+    DataError
+        If ``stored`` is not an explanation written by :func:`explanation_json`.
+    """
+    if not stored:
+        return None
+    Explanation.from_json(stored)  # validates the layout
+    loaded: dict[str, Any] = json.loads(stored)
+    return loaded
