@@ -26,7 +26,7 @@ from riskshape.store import open_store
 from service.context import ServiceContext
 from service.handlers import install_handlers
 from service.ingest import Ingestor
-from service.logs import LOGGER_NAME
+from service.logs import LOGGER_NAME, stamp_request_ids
 from service.metrics import ServiceMetrics
 from service.middleware import CAUTION_HEADER, CAUTION_HEADER_VALUE, RequestContextMiddleware
 from service.ratelimit import RateLimiter
@@ -83,6 +83,7 @@ def create_app(settings: ServiceSettings | None = None) -> FastAPI:
         If ``settings.config_path`` names a bad configuration file.
     """
     settings = settings or ServiceSettings.from_env()
+    stamp_request_ids()
     config = Config.from_toml(settings.config_path) if settings.config_path else Config()
     service_metrics = ServiceMetrics()
     context = ServiceContext(

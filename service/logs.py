@@ -14,7 +14,7 @@ from contextvars import ContextVar
 from datetime import datetime, timezone
 from typing import Any
 
-__all__ = ["REQUEST_ID", "JsonFormatter", "configure_logging", "LOGGER_NAME"]
+__all__ = ["REQUEST_ID", "JsonFormatter", "RequestIdFilter", "configure_logging", "stamp_request_ids", "LOGGER_NAME"]
 
 LOGGER_NAME = "riskshape.service"
 REQUEST_ID: ContextVar[str | None] = ContextVar("riskshape_request_id", default=None)
@@ -44,6 +44,23 @@ class JsonFormatter(logging.Formatter):
             entry["exception"] = record.exc_info[0].__name__
             entry["traceback"] = self.formatException(record.exc_info)
         return json.dumps(entry, default=str, ensure_ascii=False)
+
+
+class RequestIdFilter(logging.Filter):
+    """Stamp each record with the current request id when it is logged (so a record formatted
+    later, or elsewhere, still names its request)."""
+
+    def filter(self, record: logging.LogRecord) -> bool:
+        if getattr(record, "request_id", None) is None:
+            record.request_id = REQUEST_ID.get()
+        return True
+
+
+def stamp_request_ids() -> None:
+    """Attach a :class:`RequestIdFilter` to the service's logger (once per process)."""
+    logger = logging.getLogger(LOGGER_NAME)
+    if not any(isinstance(f, RequestIdFilter) for f in logger.filters):
+        logger.addFilter(RequestIdFilter())
 
 
 def configure_logging(level: str = "info") -> None:
