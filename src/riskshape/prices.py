@@ -155,11 +155,12 @@ def validate_prices(
 def hash_prices(prices: pd.DataFrame) -> str:
     """SHA-256 (hex) of a validated price table: dates, asset names and float64 values (NaN kept).
 
-    Two tables with the same dates, assets and values give the same hash, however they were read.
+    Two tables with the same dates, assets and values give the same hash, however they were read
+    (dates are hashed as microseconds, whatever resolution the index was stored at).
     """
     digest = hashlib.sha256()
     digest.update("\x1f".join(prices.columns).encode("utf-8"))
-    digest.update(prices.index.asi8.astype("<i8").tobytes())
+    digest.update(pd.DatetimeIndex(prices.index).as_unit("us").asi8.astype("<i8").tobytes())
     digest.update(np.ascontiguousarray(prices.to_numpy(dtype="<f8")).tobytes())
     return digest.hexdigest()
 
