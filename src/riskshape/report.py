@@ -98,7 +98,6 @@ def _recompute(store: Store, alerts: list[AlertRecord]) -> dict[int, tuple[Expla
         try:
             run = store.get_run(run_id)
             config = Config.from_mapping(run.config, where=f"run {run_id} configuration")
-            config = config.replace(compute={"executor": "serial"})
             prices = store.read_prices(run.portfolio, start=run.first_date, end=run.last_date, assets=run.assets,
                                        as_of_run=run.id)
             last = max(pd.Timestamp(a.window_end) for a in group)

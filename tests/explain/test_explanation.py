@@ -43,11 +43,24 @@ def test_first_window_has_nothing_to_compare(run) -> None:
 
 def test_clusters_cover_each_window_s_assets_once(run) -> None:
     end = run.window_ends[4]
-    clusters = explain_alert(run, end, "h0_entropy").clusters
+    clusters = explain_alert(run, end, "h0_entropy", compare="adjacent").clusters
+    assert clusters.previous_end == run.window_ends[3].date()
     members = [a for c in clusters.clusters_after for a in c]
     assert sorted(members) == sorted(run.assets(end))
     before = [a for c in clusters.clusters_before for a in c]
     assert sorted(before) == sorted(run.assets(run.window_ends[3]))
+
+
+def test_default_comparison_is_the_latest_window_sharing_no_day(run) -> None:
+    # run: window 20, step 5 -> the latest disjoint window is 4 windows back
+    end = run.window_ends[7]
+    clusters = explain_alert(run, end, "h0_entropy").clusters
+    assert clusters.previous_end == run.window_ends[3].date()
+    shared = run.window_returns(end).index.intersection(run.window_returns(run.window_ends[3]).index)
+    assert len(shared) == 0
+    assert len(run.window_returns(end).index.intersection(run.window_returns(run.window_ends[4]).index)) > 0
+    # too early for a disjoint window: the first window stands in
+    assert explain_alert(run, run.window_ends[2], "h0_entropy").clusters.previous_end == run.window_ends[0].date()
 
 
 def test_json_round_trips_and_is_canonical(run) -> None:

@@ -2,9 +2,10 @@
 
 from __future__ import annotations
 
+import math
 import re
 from collections.abc import Sequence
-from typing import overload
+from typing import Literal, overload
 
 import pandas as pd
 
@@ -65,6 +66,7 @@ def explain_alert(
     summary: str,
     *,
     scale: ScaleRule = "persistent",
+    compare: Literal["disjoint", "adjacent"] = "disjoint",
     n_pairs: int = 10,
     n_loops: int = 3,
     lookback: int = 60,
@@ -74,6 +76,12 @@ def explain_alert(
 
     H0 summaries (``h0_*``) get the cluster explanation, H1 summaries (``h1_*``) the loop
     explanation, every other summary both (the loops only if the run computed H1).
+
+    The clusters are compared with "the window before": by default the latest window that
+    shares no day with the alert window (with ``step < window`` consecutive windows share all
+    but ``step`` days, and would differ too little to show what changed); ``compare="adjacent"``
+    takes the window just before. Early in a run, when no disjoint window exists, the first
+    window is used. ``ClusterExplanation.previous_end`` names the window compared.
 
     Parameters
     ----------
@@ -85,6 +93,8 @@ def explain_alert(
         The summary column the alert's rule watches.
     scale : {"persistent", "median"} or float
         Cut distance of the clusters (see :mod:`riskshape.explain.clusters`).
+    compare : {"disjoint", "adjacent"}
+        Which earlier window the clusters are compared with (see above).
     n_pairs : int
         Asset pairs with the largest correlation change to list.
     n_loops : int
@@ -114,6 +124,8 @@ def explain_alert(
     """
     if n_pairs < 0 or n_loops < 0 or lookback < 0:
         raise DataError(f"n_pairs, n_loops and lookback must not be negative, got {n_pairs}, {n_loops}, {lookback}")
+    if compare not in ("disjoint", "adjacent"):
+        raise DataError(f"compare must be 'disjoint' or 'adjacent', got {compare!r}")
     if not 0.0 < min_overlap <= 1.0:
         raise DataError(f"min_overlap must lie in (0, 1], got {min_overlap}")
     position = _position(result, window_end)
@@ -123,7 +135,8 @@ def explain_alert(
     want_loops = dim != 0 and result.config.maxdim >= 1
     clusters = loops = None
     if want_clusters:
-        previous = window_geometry(result, result.window_ends[position - 1]) if position > 0 else None
+        earlier = _compared_position(result, position, compare)
+        previous = window_geometry(result, result.window_ends[earlier]) if earlier is not None else None
         clusters = explain_clusters(current, previous, scale, n_pairs)
     if want_loops:
         count = min(lookback, position)
@@ -131,6 +144,15 @@ def explain_alert(
         loops = explain_loops(current, earlier, n_loops=n_loops, min_overlap=min_overlap,
                               reaches_first_window=count == position)
     return Explanation(summary=summary, window_end=current.window_end, clusters=clusters, loops=loops)
+
+
+def _compared_position(result: MonitorResult, position: int, compare: str) -> int | None:
+    """Position of the window the clusters are compared with (None for the run's first window)."""
+    if position == 0:
+        return None
+    if compare == "adjacent":
+        return position - 1
+    return max(0, position - math.ceil(result.config.window / result.config.step))
 
 
 def _position(result: MonitorResult, window_end: object) -> int:

@@ -81,7 +81,8 @@ class ClusterExplanation:
     Attributes
     ----------
     window_end, previous_end : datetime.date
-        The alert window and the window before it (``None`` if the alert window is the first).
+        The alert window and the earlier window it is compared with (``None`` if the alert window
+        is the run's first).
     scale : float
         The distance at which the single-linkage tree is cut (same scale for both windows).
     scale_rule : str

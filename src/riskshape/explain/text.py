@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from riskshape.explain.model import ClusterExplanation, Explanation, LoopExplanation, Members
 
-__all__ = ["render_text", "describe_cluster"]
+__all__ = ["render_text", "describe_cluster", "describe_clusters"]
 
 _SHOWN = 12  # members listed before "..."
 
@@ -16,26 +16,39 @@ def describe_cluster(members: Members) -> str:
     return "{" + names + more + "}"
 
 
+def describe_clusters(groups: tuple[Members, ...]) -> str:
+    """Clusters joined by ``+``, single assets counted together after the larger clusters."""
+    parts = [describe_cluster(g) for g in groups if len(g) > 1]
+    singles = [g[0] for g in groups if len(g) == 1]
+    if len(singles) == 1:
+        parts.append(describe_cluster(tuple(singles)))
+    elif singles:
+        parts.append(f"{len(singles)} single assets {describe_cluster(tuple(singles))}")
+    return " + ".join(parts)
+
+
+def _count(n: int, word: str) -> str:
+    return f"{n} {word}" + ("" if n == 1 else "s")
+
+
 def _clusters(c: ClusterExplanation) -> list[str]:
     lines = [f"Clusters (H0), single linkage cut at distance {c.scale:.4f}: {c.scale_rule}."]
     if c.previous_end is None:
-        lines.append(f"  First window of the run: nothing to compare; {len(c.clusters_after)} clusters.")
+        lines.append(f"  First window of the run: nothing to compare; {_count(len(c.clusters_after), 'cluster')}.")
         return lines
     big_before = sum(1 for g in c.clusters_before if len(g) > 1)
     big_after = sum(1 for g in c.clusters_after if len(g) > 1)
     lines.append(
-        f"  {c.previous_end}: {len(c.clusters_before)} clusters ({big_before} of 2+ assets); "
-        f"{c.window_end}: {len(c.clusters_after)} clusters ({big_after} of 2+ assets)."
+        f"  {c.previous_end}: {_count(len(c.clusters_before), 'cluster')} ({big_before} of 2+ assets); "
+        f"{c.window_end}: {_count(len(c.clusters_after), 'cluster')} ({big_after} of 2+ assets)."
     )
     if not c.events:
         lines.append("  No cluster merged or split at this scale.")
     for e in c.events:
         if e.kind == "merge":
-            parts = " + ".join(describe_cluster(g) for g in e.before)
-            lines.append(f"  Merged: {parts} -> {describe_cluster(e.after[0])}")
+            lines.append(f"  Merged: {describe_clusters(e.before)} -> {describe_cluster(e.after[0])}")
         else:
-            parts = " + ".join(describe_cluster(g) for g in e.after)
-            lines.append(f"  Split: {describe_cluster(e.before[0])} -> {parts}")
+            lines.append(f"  Split: {describe_cluster(e.before[0])} -> {describe_clusters(e.after)}")
     if c.entered:
         lines.append(f"  Entered the window: {', '.join(c.entered)}")
     if c.left:
