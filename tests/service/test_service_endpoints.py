@@ -103,6 +103,12 @@ def test_series_date_range_and_chosen_summaries(client: TestClient, auth: Auth, 
     np.testing.assert_array_equal(np.array([r["values"] for r in page["rows"]], dtype=float), expected)
 
 
+def test_unknown_summary_is_422_naming_the_known_ones(client: TestClient, auth: Auth, loaded: dict) -> None:
+    response = client.get("/v1/portfolios/alpha/series", params={"summaries": "h9_magic"}, headers=auth("reader"))
+    body = cautioned(response)
+    assert response.status_code == 422 and "'h9_magic'" in body["detail"] and "h1_entropy" in body["detail"]
+
+
 def test_diagram_is_the_windows_float32_bars(client: TestClient, auth: Auth, loaded: dict, batch) -> None:
     end = batch.window_ends[5]
     for dim in (0, 1):
