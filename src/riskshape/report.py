@@ -196,6 +196,7 @@ def _e(value: object) -> str:
 
 
 _STYLE = """
+@page{size:A4;margin:1.5cm}td{overflow-wrap:anywhere}
 body{font-family:sans-serif;margin:2em;color:#222;max-width:70em}
 h1{font-size:1.5em}h2{font-size:1.2em;border-bottom:1px solid #999;margin-top:2em}
 table{border-collapse:collapse;margin:.5em 0}td,th{border:1px solid #bbb;padding:.2em .5em;text-align:left;

@@ -167,3 +167,32 @@ def test_report_renders_in_headless_chromium(archive, tmp_path: Path) -> None:
     # nothing else on the page uses
     blue = np.all(np.abs(pixels - np.array([0x1F, 0x77, 0xB4]) / 255.0) < 0.06, axis=-1)
     assert blue.sum() > 500
+
+
+def _pdf_unusable() -> str | None:
+    try:
+        import pypdf  # noqa: F401
+        import weasyprint  # noqa: F401
+    except (ImportError, OSError) as err:  # OSError: WeasyPrint's system libraries (pango) are missing
+        return f"PDF output needs riskshape[pdf] and pango: {err}"
+    return None
+
+
+@pytest.mark.skipif(_pdf_unusable() is not None, reason=str(_pdf_unusable()))
+def test_pdf_holds_the_same_report(archive, tmp_path: Path) -> None:
+    import pypdf
+
+    url, _, _, _ = archive
+    pdf = tmp_path / "review.pdf"
+    main(["report", "--store", url, "--from", PERIOD[0], "--to", PERIOD[1], "--out", str(tmp_path / "r.html"),
+          "--pdf", str(pdf)])
+    reader = pypdf.PdfReader(pdf)
+    text = "".join("".join(page.extract_text().split()) for page in reader.pages)  # no whitespace: lines wrap
+    with open_store(url) as store:
+        archived = store.list_alerts(since=PERIOD[0], until=PERIOD[1], limit=None).items
+        head = chain_head(store)
+    assert "".join(CAUTION.split()) in text
+    assert head.head_hash in text
+    for a in archived:
+        assert repr(a.value) in text and repr(a.threshold) in text and a.inputs_hash in text
+    assert any(page.images for page in reader.pages)  # the summaries plot
