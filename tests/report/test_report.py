@@ -196,3 +196,24 @@ def test_pdf_holds_the_same_report(archive, tmp_path: Path) -> None:
     for a in archived:
         assert repr(a.value) in text and repr(a.threshold) in text and a.inputs_hash in text
     assert any(page.images for page in reader.pages)  # the summaries plot
+
+
+def test_archived_explanation_is_preferred_and_labelled(archive) -> None:
+    """From typed inputs: an explanation archived with the alert is shown as archived."""
+    from dataclasses import replace
+    from types import SimpleNamespace
+
+    from riskshape.report import ReportedAlert, archived_explanation
+
+    url, _, result, added = archive
+    with open_store(url) as store:
+        review = collect_review(store, *PERIOD, recompute=False)
+    assert review.alerts and all(a.explanation_source == "unavailable" for a in review.alerts)
+    first = review.alerts[0]
+    explanation = explain_alert(result, first.alert.window_end, first.alert.summary)
+    stored = SimpleNamespace(explanation=explanation.to_json())
+    assert archived_explanation(stored) == explanation  # type: ignore[arg-type]
+    assert archived_explanation(first.alert) is None  # no explanation archived in this store
+    shown = ReportedAlert(first.alert, first.reviews, explanation, "archived", "archived with the alert")
+    page = render_html(replace(review, alerts=(shown,)), images={})
+    assert "Explanation (archived)" in page and _escape(explanation.to_text()) in page
