@@ -14,12 +14,13 @@ import pytest
 from matplotlib.image import imread
 
 from riskshape import CAUTION, Config, monitor
-from riskshape.archive import archive_run
+from riskshape.alerts.model import Alert
+from riskshape.alerts.rules import evaluate_rules
 from riskshape.cli import main
 from riskshape.explain import explain_alert
 from riskshape.report import collect_review, render_html, write_report
 from riskshape.scenario import generate_scenario
-from riskshape.store import chain_head, open_store, verify_chain
+from riskshape.store import RunManifest, Store, chain_head, open_store, verify_chain
 
 RULES = [
     {"name": "h0-high", "summary": "h0_total_persistence", "kind": "quantile", "threshold": 0.9,
@@ -31,6 +32,20 @@ PERIOD = ("2031-05-01", "2032-04-30")
 COMMENT = 'checked <b>by hand</b> & "fine"'
 
 
+def record_run(store: Store, portfolio: str, result) -> tuple:
+    """Archive a run through the store's public API: prices and manifest, features, alerts of its rules."""
+    config = result.config
+    store.ensure_portfolio(portfolio)
+    manifest = RunManifest(config=config.to_mapping(), config_hash=config.hash(), input_hash=result.input_hash,
+                           package_version=result.package_version, source="test")
+    run = store.create_run(portfolio, manifest, result.prices)
+    store.write_features(run.id, result.features)
+    raised = pd.Timestamp("2033-01-03", tz="UTC").to_pydatetime()
+    alerts = [Alert(portfolio, f, raised, manifest.config_hash, result.window_inputs_hash(f.window_end),
+                    result.package_version) for f in evaluate_rules(result.features, config.alerts.rules)]
+    return store.append_alerts(alerts, run.id).added
+
+
 @pytest.fixture(scope="module")
 def archive(tmp_path_factory: pytest.TempPathFactory):
     """A SQLite archive holding one run of a small fictional market, its alerts and one review."""
@@ -40,7 +55,7 @@ def archive(tmp_path_factory: pytest.TempPathFactory):
     config = Config(window=40, step=5, compute={"executor": "serial"}, alerts={"rules": RULES})
     result = monitor(scenario.prices, config)
     with open_store(url) as store:
-        added = archive_run(store, "fictional-book", result).alerts.added
+        added = record_run(store, "fictional-book", result)
         inside = [a for a in added if PERIOD[0] <= str(a.window_end) <= PERIOD[1]]
         store.append_review(inside[0].id, "escalate", "reviewer one", COMMENT)
     return url, folder, result, added
