@@ -17,8 +17,10 @@ Policy (the service's own):
   values would now differ. A missing price never replaces an archived one.
 * A date **inside** the archived history that is not archived yet is refused (422): windows
   count trading days, so it would shift every later window; rerun the portfolio instead.
-* **Assets** are fixed by the portfolio's first prices: an unknown asset is refused (422); an
-  asset left out of a new day is missing on that day.
+* **Assets** are fixed by the portfolio's first prices, in name order (the order the archive reads
+  them back in, so a portfolio fed one day at a time and one fed in a single body compute alike;
+  a portfolio made by ``riskshape run`` keeps its file's order): an unknown asset is refused (422);
+  an asset left out of a new day is missing on that day.
 * Until one window of history is archived (``window + 1`` dates) prices are only archived.
 """
 
@@ -99,10 +101,12 @@ def _plan(portfolio: str, incoming: pd.DataFrame, held: pd.DataFrame, correction
         if unknown:
             raise DataError(
                 f"{source}: asset {unknown[0]!r} is not one of portfolio {portfolio!r}'s assets "
-                f"({', '.join(held.columns)}); a portfolio's assets are fixed by its first prices -- "
-                "create another portfolio for another set of assets"
+                f"({', '.join(held.columns)}); a portfolio's assets are fixed by its first prices -- send every "
+                "asset from the first day (null where it has no price yet), or create another portfolio"
             )
         incoming = incoming.reindex(columns=held.columns)
+    else:  # a new portfolio: its assets in name order, however the first prices came
+        incoming = incoming[sorted(incoming.columns)]
     overlap = incoming.index.intersection(held.index)
     sent = incoming.loc[overlap].to_numpy(dtype=float)
     kept = held.loc[overlap, incoming.columns].to_numpy(dtype=float) if len(overlap) else sent.copy()

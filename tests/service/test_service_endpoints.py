@@ -39,7 +39,7 @@ def loaded(client: TestClient, auth: Auth, scenario_prices: pd.DataFrame) -> dic
 def batch(client: TestClient, scenario_prices: pd.DataFrame):
     """The same dates through the library directly, with the service's configuration."""
     config = client.app.state.context.config  # type: ignore[attr-defined]
-    return monitor(scenario_prices.iloc[:N_FIRST], config)
+    return monitor(scenario_prices.iloc[:N_FIRST].sort_index(axis=1), config)  # a portfolio's assets are in name order
 
 
 def test_health_names_the_archive_and_carries_the_caution(client: TestClient) -> None:
