@@ -8,8 +8,8 @@ are archived as NULL cells so the table a run saw can be rebuilt exactly.
 
 from __future__ import annotations
 
-from datetime import date, datetime
-from typing import Any
+import math
+from datetime import date, datetime, timezone
 
 import numpy as np
 import pandas as pd
@@ -77,17 +77,34 @@ def append_prices(connection: Connection, portfolio_id: int, valid: pd.DataFrame
     new_price, old_price = merged["price"].to_numpy(float), merged["price_held"].to_numpy(float)
     same = (new_price == old_price) | (np.isnan(new_price) & np.isnan(old_price))
     changed = ~is_new & ~same
-    rows: list[dict[str, Any]] = []
     revision = merged["revision"].to_numpy()
-    for mask, rev in ((is_new, None), (changed, 1)):
-        part = merged[mask]
-        revs = np.zeros(len(part), dtype=int) if rev is None else revision[mask].astype(int) + 1
-        for (d, asset, price), r in zip(part[["date", "asset", "price"]].itertuples(index=False), revs):
-            rows.append({"portfolio_id": portfolio_id, "date": d, "asset": asset,
-                         "price": None if np.isnan(price) else float(price), "revision": int(r), "recorded_at": now})
-    if rows:
-        connection.execute(sa.insert(t.prices), rows)
+    keep = is_new | changed
+    part = merged[keep]
+    revs = np.where(is_new[keep], 0, np.nan_to_num(revision[keep].astype(float)) + 1).astype(int)
+    rows = [(d, asset, None if math.isnan(price) else float(price), int(r))
+            for (d, asset, price), r in zip(part[["date", "asset", "price"]].itertuples(index=False), revs)]
+    _bulk_insert(connection, portfolio_id, rows, now)
     return PriceWrite(added=int(is_new.sum()), corrections=int(changed.sum()), unchanged=int((~is_new & same).sum()))
+
+
+def _bulk_insert(connection: Connection, portfolio_id: int, rows: list[tuple[date, str, float | None, int]],
+                 now: datetime) -> None:
+    """Insert price rows with the driver's ``executemany`` (SQLAlchemy's per-row parameter processing
+    costs ~70 us a row, which dominates a run of 60 000 cells). Values are given in the form the
+    SQLAlchemy column types would store: ISO text on SQLite (as its Date and DateTime types do),
+    native date and aware datetime on PostgreSQL."""
+    if not rows:
+        return
+    columns = "portfolio_id, date, asset, price, revision, recorded_at"
+    if connection.dialect.name == "sqlite":
+        stamp: object = now.astimezone(timezone.utc).strftime("%Y-%m-%d %H:%M:%S.%f")
+        params = [(portfolio_id, d.isoformat(), a, p, r, stamp) for d, a, p, r in rows]
+        marks = ", ".join("?" * 6)
+    else:
+        stamp = now.astimezone(timezone.utc)
+        params = [(portfolio_id, d, a, p, r, stamp) for d, a, p, r in rows]
+        marks = ", ".join(["%s"] * 6)
+    connection.exec_driver_sql(f"INSERT INTO prices ({columns}) VALUES ({marks})", params)
 
 
 def max_price_id(connection: Connection, portfolio_id: int) -> int:

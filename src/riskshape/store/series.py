@@ -73,7 +73,7 @@ def write_features(engine: Engine, run_id: int, features: pd.DataFrame) -> Write
         f = t.features
         held = dict(connection.execute(
             sa.select(f.c.window_end, f.c.values_json).where(f.c.portfolio_id == pid, f.c.config_hash == config_hash)
-        ).tuples().all())
+        ).all())
         rows = [{"portfolio_id": pid, "config_hash": config_hash, "window_end": e, "run_id": run_id,
                  "values_json": text} for e, text in zip(ends, texts) if e not in held]
         differing = sum(1 for e, text in zip(ends, texts) if e in held and held[e] != text)

@@ -1,0 +1,244 @@
+"""Archive a monitoring run into the store, and reproduce archived alerts from the archive alone.
+
+:func:`archive_run` stores the run's prices (corrections where they differ from what is archived),
+its manifest, features, diagrams, and appends the alerts its rules raise (idempotently: a second
+run over the same data adds nothing; a run over new days adds only what is new).
+
+:func:`reproduce_alert` reads back the prices the run saw and its configuration, recomputes the
+windows up to the alert's window through :func:`riskshape.monitor` and re-decides the rule with
+:func:`riskshape.alerts.rules.recheck_firing`; it confirms the archived value, threshold, window
+inputs hash and decision.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Sequence
+from dataclasses import dataclass
+from datetime import datetime, timezone
+
+import pandas as pd
+
+from riskshape.alerts.model import Alert
+from riskshape.alerts.rules import evaluate_rules, recheck_firing
+from riskshape.config import ComputeConfig, Config
+from riskshape.errors import ConfigError, RiskshapeError
+from riskshape.monitor import MonitorResult, monitor
+from riskshape.prices import hash_prices
+from riskshape.store import AlertAppend, AlertRecord, Run, RunManifest, Store, WriteCount
+
+__all__ = ["RunReport", "Check", "ReproduceReport", "archive_run", "reproduce_alert", "reproduce_alerts",
+           "VALUE_RTOL", "VALUE_ATOL"]
+
+VALUE_RTOL = 1e-5
+"""Relative tolerance on a recomputed value: diagrams come from float32 Rips filtrations (float32
+epsilon is 1.2e-7), and summaries add up many bars, so agreement to ~1e-5 is float32-level."""
+VALUE_ATOL = 1e-7
+"""Absolute tolerance on a recomputed value, for values near zero."""
+
+
+@dataclass(frozen=True)
+class RunReport:
+    """What :func:`archive_run` stored."""
+
+    run: Run
+    features: WriteCount
+    diagrams: WriteCount
+    alerts: AlertAppend
+
+
+@dataclass(frozen=True)
+class Check:
+    """One comparison of :func:`reproduce_alert`: what the archive says against what was recomputed."""
+
+    name: str
+    ok: bool
+    archived: str
+    recomputed: str
+
+
+@dataclass(frozen=True)
+class ReproduceReport:
+    """Outcome of reproducing one alert: ``ok`` when every check passed (``exact`` if the value and
+    threshold came out bit-identical)."""
+
+    alert_id: int
+    ok: bool
+    exact: bool
+    checks: tuple[Check, ...]
+
+    @property
+    def failed(self) -> tuple[Check, ...]:
+        """The checks that did not pass."""
+        return tuple(c for c in self.checks if not c.ok)
+
+
+def archive_run(store: Store, portfolio: str, result: MonitorResult, config: Config | None = None, *,
+                source: str | None = None, raised_at: datetime | None = None) -> RunReport:
+    """Write a monitoring run into the archive and append the alerts its rules raise.
+
+    Parameters
+    ----------
+    store : Store
+    portfolio : str
+        Portfolio name (created if new).
+    result : MonitorResult
+        The run.
+    config : Config, optional
+        The configuration whose rules are evaluated; defaults to ``result.config`` and must hash
+        like it (``compute`` may differ).
+    source : str, optional
+        Where the prices came from, kept in the manifest.
+    raised_at : datetime, optional
+        When the alerts are raised (UTC); defaults to now.
+
+    Returns
+    -------
+    RunReport
+
+    Raises
+    ------
+    ConfigError
+        If ``config`` differs from the configuration the result was computed with.
+    StoreError, DataError
+        If the archive refuses the write or the prices fail validation.
+    """
+    config = config or result.config
+    if config.hash() != result.config.hash():
+        raise ConfigError(
+            f"archive_run: the configuration given (hash {config.hash()[:12]}) is not the one the result was "
+            f"computed with (hash {result.config.hash()[:12]}); pass result.config or run monitor again"
+        )
+    store.ensure_portfolio(portfolio)
+    manifest = RunManifest(config=config.to_mapping(), config_hash=config.hash(), input_hash=result.input_hash,
+                           package_version=result.package_version, source=source)
+    run = store.create_run(portfolio, manifest, result.prices)
+    features = store.write_features(run.id, result.features)
+    dims = range(config.maxdim + 1)
+    diagrams = store.write_diagrams(run.id, ((end, k, result.diagram(end, k)) for end in result.window_ends for k in dims))
+    stamp = (raised_at or datetime.now(timezone.utc)).astimezone(timezone.utc)
+    alerts = [
+        Alert(portfolio=portfolio, firing=f, raised_at=stamp, config_hash=manifest.config_hash,
+              inputs_hash=result.window_inputs_hash(f.window_end), package_version=result.package_version)
+        for f in evaluate_rules(result.features, config.alerts.rules)
+    ]
+    return RunReport(run=run, features=features, diagrams=diagrams, alerts=store.append_alerts(alerts, run.id))
+
+
+def _close(archived: float, recomputed: float) -> bool:
+    return math.isclose(archived, recomputed, rel_tol=VALUE_RTOL, abs_tol=VALUE_ATOL)
+
+
+def _checks_for(alert: AlertRecord, config: Config, result: MonitorResult | None, failure: str | None) -> ReproduceReport:
+    checks: list[Check] = []
+    rule = next((r for r in config.alerts.rules if r.name == alert.rule), None)
+    checks.append(Check("rule in the run's configuration", rule is not None, alert.rule,
+                        alert.rule if rule is not None else "absent"))
+    if result is None or rule is None:
+        if failure is not None:
+            checks.append(Check("recomputation", False, "windows up to the alert", failure))
+        return ReproduceReport(alert.id, ok=False, exact=False, checks=tuple(checks))
+    end = pd.Timestamp(alert.window_end)
+    inputs = result.window_inputs_hash(end)
+    checks.append(Check("window inputs hash", inputs == alert.inputs_hash, alert.inputs_hash, inputs))
+    firing = recheck_firing(result.features, rule, end)
+    checks.append(Check("decision", firing is not None, "fires", "fires" if firing is not None else "does not fire"))
+    exact = False
+    if firing is not None:
+        for name, archived, again in (("value", alert.value, firing.value), ("threshold", alert.threshold, firing.threshold)):
+            checks.append(Check(name, _close(archived, again), repr(archived), repr(again)))
+        exact = firing.value == alert.value and firing.threshold == alert.threshold
+        for name in ("summary", "kind", "severity"):
+            archived_text, again_text = getattr(alert, name), getattr(firing, name)
+            checks.append(Check(name, archived_text == again_text, archived_text, again_text))
+    ok = all(c.ok for c in checks)
+    return ReproduceReport(alert.id, ok=ok, exact=ok and exact, checks=tuple(checks))
+
+
+def reproduce_alerts(store: Store, alert_ids: Sequence[int], compute: ComputeConfig | None = None) -> tuple[ReproduceReport, ...]:
+    """Reproduce several alerts, recomputing each run once (up to its latest alert's window).
+
+    Parameters
+    ----------
+    store : Store
+    alert_ids : sequence of int
+    compute : ComputeConfig, optional
+        Where to compute (never changes a result); defaults to the run's own compute settings.
+
+    Returns
+    -------
+    tuple of ReproduceReport
+        In the order of ``alert_ids``.
+
+    Raises
+    ------
+    NotFoundError
+        If an alert or its run is not in the archive.
+    """
+    alerts = [store.get_alert(i).alert for i in alert_ids]
+    by_run: dict[int, list[AlertRecord]] = {}
+    for alert in alerts:
+        by_run.setdefault(alert.run_id, []).append(alert)
+    reports: dict[int, ReproduceReport] = {}
+    for run_id, group in by_run.items():
+        run = store.get_run(run_id)
+        base: list[Check] = []
+        config: Config | None = None
+        try:
+            config = Config.from_mapping(run.config, where=f"run {run_id} configuration")
+        except ConfigError as err:
+            base.append(Check("configuration readable", False, "the run's configuration", str(err)))
+        if config is not None:
+            again = config.hash()
+            base.append(Check("configuration hash", again == run.config_hash, run.config_hash, again))
+            if compute is not None:
+                config = config.replace(compute=compute)
+        prices = store.read_prices(run.portfolio, start=run.first_date, end=run.last_date, assets=run.assets,
+                                   as_of_run=run.id)
+        archived_hash = hash_prices(prices)
+        base.append(Check("run prices hash", archived_hash == run.input_hash, run.input_hash, archived_hash))
+        result: MonitorResult | None = None
+        failure: str | None = None
+        if config is not None and all(c.ok for c in base):
+            last = max(pd.Timestamp(a.window_end) for a in group)
+            try:
+                result = monitor(prices.loc[:last], config)
+            except RiskshapeError as err:
+                failure = str(err)
+        for alert in group:
+            own = Check("alert configuration hash", alert.config_hash == run.config_hash, alert.config_hash,
+                        run.config_hash)
+            report = _checks_for(alert, config or Config(), result, failure)
+            checks = tuple(base) + (own,) + report.checks
+            ok = all(c.ok for c in checks)
+            reports[alert.id] = ReproduceReport(alert.id, ok=ok, exact=ok and report.exact, checks=checks)
+    return tuple(reports[i] for i in alert_ids)
+
+
+def reproduce_alert(store: Store, alert_id: int, compute: ComputeConfig | None = None) -> ReproduceReport:
+    """Recompute one archived alert from the archive alone and compare.
+
+    Reads the prices as of the alert's run (later corrections left out) and the run's
+    configuration, recomputes the windows up to the alert's window with :func:`riskshape.monitor`,
+    and re-decides the rule with :func:`riskshape.alerts.rules.recheck_firing`. Checks: the
+    configuration hashes, the archived prices hash to the run's input hash, the window's inputs
+    hash, the decision (it fires), the value and threshold (within :data:`VALUE_RTOL` /
+    :data:`VALUE_ATOL`), summary, kind and severity.
+
+    Parameters
+    ----------
+    store : Store
+    alert_id : int
+    compute : ComputeConfig, optional
+        Where to compute; defaults to the run's own compute settings.
+
+    Returns
+    -------
+    ReproduceReport
+
+    Raises
+    ------
+    NotFoundError
+        If the alert is not in the archive.
+    """
+    return reproduce_alerts(store, [alert_id], compute)[0]

@@ -1,0 +1,152 @@
+"""``riskshape alerts``: list, show, review and export archived alerts."""
+
+from __future__ import annotations
+
+import csv
+import io
+import json
+from datetime import date, datetime
+from pathlib import Path
+from typing import Any
+
+import click
+
+from riskshape.caution import CAUTION
+from riskshape.cli.audit import STORE_OPTION
+from riskshape.store import REVIEW_ACTIONS, AlertRecord, Store, open_store
+from riskshape.store.canonical import ALERT_FIELDS
+
+__all__ = ["alerts", "neutralise_cell", "EXPORT_COLUMNS"]
+
+EXPORT_COLUMNS = ("id", "window_end") + tuple(f for f in ALERT_FIELDS if f not in ("id", "window_end")) + (
+    "entry_hash", "reviews", "last_review")
+"""Columns of an export: id and window end first, then every stored alert field, its hashes and review status."""
+
+_RISKY_FIRST = ("=", "+", "-", "@", "\t", "\r")
+
+
+def neutralise_cell(text: str) -> str:
+    """Make a text cell inert in spreadsheets: a cell starting with =, +, -, @, tab or carriage return
+    gets a leading apostrophe (OWASP "CSV Injection" guidance)."""
+    return "'" + text if text.startswith(_RISKY_FIRST) else text
+
+
+def _text(value: object) -> object:
+    if isinstance(value, datetime):
+        return value.isoformat()
+    if isinstance(value, date):
+        return value.isoformat()
+    return value
+
+
+def _rows(store: Store, alerts: tuple[AlertRecord, ...]) -> list[dict[str, Any]]:
+    out = []
+    for alert in alerts:
+        reviews = store.get_alert(alert.id).reviews
+        row = {name: _text(getattr(alert, name)) for name in EXPORT_COLUMNS if hasattr(alert, name)}
+        row["reviews"] = len(reviews)
+        row["last_review"] = reviews[-1].action if reviews else ""
+        out.append({name: row[name] for name in EXPORT_COLUMNS})
+    return out
+
+
+@click.group()
+def alerts() -> None:
+    """Archived alerts: list, show, review, export."""
+
+
+@alerts.command("list")
+@STORE_OPTION
+@click.option("--portfolio", default=None, help="Only this portfolio.")
+@click.option("--since", default=None, metavar="DATE", help="Window end on or after DATE (YYYY-MM-DD).")
+@click.option("--until", default=None, metavar="DATE", help="Window end on or before DATE (YYYY-MM-DD).")
+@click.option("--severity", multiple=True, type=click.Choice(["info", "warning", "critical"]), help="Repeatable.")
+@click.option("--rule", default=None, help="Only this rule.")
+@click.option("--reviewed/--unreviewed", default=None, help="Only alerts with / without a review.")
+@click.option("--limit", type=click.IntRange(min=0), default=50, show_default=True)
+@click.option("--offset", type=click.IntRange(min=0), default=0, show_default=True)
+def list_alerts(store_url: str, portfolio: str | None, since: str | None, until: str | None,
+                severity: tuple[str, ...], rule: str | None, reviewed: bool | None, limit: int, offset: int) -> None:
+    """List archived alerts, oldest window first."""
+    click.echo(CAUTION)
+    with open_store(store_url) as store:
+        page = store.list_alerts(portfolio=portfolio, since=since, until=until, severity=severity or None, rule=rule,
+                                 reviewed=reviewed, limit=limit, offset=offset)
+        header = f"{'id':>6}  {'window_end':<10}  {'portfolio':<16}  {'rule':<24}  {'severity':<8}  {'value':>12}  {'threshold':>12}"
+        click.echo(header)
+        for a in page.items:
+            click.echo(f"{a.id:>6}  {a.window_end.isoformat():<10}  {a.portfolio[:16]:<16}  {a.rule[:24]:<24}  "
+                       f"{a.severity:<8}  {a.value:>12.6g}  {a.threshold:>12.6g}")
+    shown = f"{offset + 1}-{offset + len(page.items)}" if page.items else "none"
+    click.echo(f"{shown} of {page.total} alert(s)")
+
+
+@alerts.command()
+@click.argument("alert_id", type=int)
+@STORE_OPTION
+def show(alert_id: int, store_url: str) -> None:
+    """Show one alert with every archived field and its reviews."""
+    click.echo(CAUTION)
+    with open_store(store_url) as store:
+        detail = store.get_alert(alert_id)
+    for name in ("id", "window_end") + tuple(f for f in ALERT_FIELDS if f not in ("id", "window_end")) + ("entry_hash",):
+        click.echo(f"{name:<16} {_text(getattr(detail.alert, name))}")
+    if not detail.reviews:
+        click.echo("reviews          none")
+    for review in detail.reviews:
+        comment = f": {review.comment}" if review.comment else ""
+        click.echo(f"review {review.id:<9} {review.created_at.isoformat()} {review.action} by {review.reviewer}{comment}")
+
+
+@alerts.command()
+@click.argument("alert_id", type=int)
+@STORE_OPTION
+@click.option("--action", type=click.Choice(REVIEW_ACTIONS), required=True,
+              help="acknowledge it, dismiss it as noise, or escalate it.")
+@click.option("--reviewer", required=True, help="Who reviews.")
+@click.option("--comment", default="", help="Why.")
+def review(alert_id: int, store_url: str, action: str, reviewer: str, comment: str) -> None:
+    """Append a review of ALERT_ID (the alert itself never changes)."""
+    click.echo(CAUTION)
+    with open_store(store_url) as store:
+        record = store.append_review(alert_id, action, reviewer, comment)
+    click.echo(f"review {record.id} of alert {alert_id} recorded ({record.action}); ledger seq {record.seq}, "
+               f"hash {record.entry_hash}")
+
+
+@alerts.command()
+@STORE_OPTION
+@click.option("--format", "fmt", type=click.Choice(["csv", "jsonl"]), required=True)
+@click.option("--from", "start", default=None, metavar="DATE", help="Window end on or after DATE (YYYY-MM-DD).")
+@click.option("--to", "end", default=None, metavar="DATE", help="Window end on or before DATE (YYYY-MM-DD).")
+@click.option("--portfolio", default=None, help="Only this portfolio.")
+@click.option("--out", "out_path", type=click.Path(path_type=Path, dir_okay=False), default=None,
+              help="Write to this file (default: standard output).")
+def export(store_url: str, fmt: str, start: str | None, end: str | None, portfolio: str | None,
+           out_path: Path | None) -> None:
+    """Export alerts for review: the caution line first, then one alert per row with its hashes.
+
+    CSV text cells that a spreadsheet would run as a formula are prefixed with an apostrophe;
+    JSON Lines keeps every value exactly as archived.
+    """
+    with open_store(store_url) as store:
+        page = store.list_alerts(portfolio=portfolio, since=start, until=end, limit=None)
+        rows = _rows(store, page.items)
+    buffer = io.StringIO()
+    if fmt == "csv":
+        writer = csv.writer(buffer, lineterminator="\n")
+        writer.writerow([f"# {CAUTION}"])
+        writer.writerow(EXPORT_COLUMNS)
+        for row in rows:
+            writer.writerow([neutralise_cell(v) if isinstance(v, str) else repr(v) if isinstance(v, float) else v
+                             for v in row.values()])
+    else:
+        buffer.write(json.dumps({"caution": CAUTION}) + "\n")
+        for row in rows:
+            buffer.write(json.dumps(row, ensure_ascii=False, allow_nan=False) + "\n")
+    if out_path is None:
+        click.echo(buffer.getvalue(), nl=False)
+        return
+    out_path.write_text(buffer.getvalue(), encoding="utf-8")
+    click.echo(CAUTION)
+    click.echo(f"{len(rows)} alert(s) written to {out_path}")
