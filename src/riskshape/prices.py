@@ -58,7 +58,11 @@ def read_prices(source: str | os.PathLike[str], min_rows: int = 2) -> pd.DataFra
         raise DataError(f"{path}: no such file; give the path of a CSV or Parquet price table")
     try:
         if suffix == ".csv":
-            raw = pd.read_csv(path, dtype=str, keep_default_na=False, skipinitialspace=True)
+            # header=None: pandas would rename a repeated name ("A.1") or a blank one ("Unnamed: 2")
+            # and hide both from validation, so the header row is taken as written
+            cells = pd.read_csv(path, dtype=str, keep_default_na=False, skipinitialspace=True, header=None)
+            raw = cells.iloc[1:].reset_index(drop=True)
+            raw.columns = [str(c).strip() for c in cells.iloc[0]]
             first_line = 2  # line 1 holds the header
         elif suffix in {".parquet", ".pq"}:
             raw = pd.read_parquet(path)
@@ -68,7 +72,7 @@ def read_prices(source: str | os.PathLike[str], min_rows: int = 2) -> pd.DataFra
     except DataError:
         raise
     except (pd.errors.ParserError, pd.errors.EmptyDataError, UnicodeDecodeError, OSError, ValueError) as err:
-        raise DataError(f"{path}: cannot read it as {suffix[1:]} ({err})") from None
+        raise DataError(f"{path}: cannot read it as {suffix[1:]} ({' '.join(str(err).split())})") from None
     label = "line" if suffix == ".csv" else "row"
     return validate_prices(raw, source=str(path), min_rows=min_rows, first_line=first_line, row_label=label)
 

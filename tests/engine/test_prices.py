@@ -139,3 +139,48 @@ def test_input_hash_does_not_depend_on_how_the_dates_were_stored(price_files: An
     assert hash_prices(from_parquet) == hash_prices(from_csv)
     in_memory = typed.set_index("date")
     assert hash_prices(validate_prices(in_memory)) == hash_prices(from_csv)
+
+
+def _write_text(path: Path, header: str, n_rows: int = 5) -> Path:
+    dates = pd.bdate_range("2031-01-02", periods=n_rows)
+    body = "\n".join(f"{d.date()},{100 + i},{50 + i / 2},{70 - i / 10}" for i, d in enumerate(dates))
+    path.write_text(header + "\n" + body + "\n")
+    return path
+
+
+def test_csv_header_with_a_repeated_asset_is_rejected(tmp_path: Path) -> None:
+    """A repeated asset name must not be renamed behind the user's back (pandas would make it 'ALD.1')."""
+    path = _write_text(tmp_path / "twice.csv", "date,ALD,ALD,CYN")
+    with pytest.raises(DataError, match=r"twice\.csv: asset column 'ALD' appears twice"):
+        read_prices(path)
+
+
+def test_csv_header_with_a_nameless_asset_is_rejected(tmp_path: Path) -> None:
+    """A nameless column must not become an asset called 'Unnamed: 2'."""
+    path = _write_text(tmp_path / "nameless.csv", "date,ALD,,CYN")
+    with pytest.raises(DataError, match=r"nameless\.csv: an asset column has no name"):
+        read_prices(path)
+
+
+def test_unreadable_csv_message_is_one_line(tmp_path: Path) -> None:
+    path = tmp_path / "ragged.csv"
+    path.write_text("date,ALD,BRK,CYN\n2031-01-02,1,2,3\n2031-01-03,1,2,3,4\n")
+    with pytest.raises(DataError) as caught:
+        read_prices(path)
+    message = str(caught.value)
+    assert message.startswith(f"{path}: cannot read it as csv") and "line 3" in message
+    assert "\n" not in message
+
+
+def test_long_layout_error_names_the_line_of_the_bad_price(price_files: Any, tmp_path: Path) -> None:
+    """In a long file each price has its own line: the message must point at it (and the asset)."""
+    long_table = price_files.table().melt(id_vars="date", var_name="asset", value_name="price")
+    bad_row = int(np.flatnonzero((long_table["asset"] == "CYN") & (long_table["date"] == "2031-01-09"))[0])
+    for value, words in (("abc", "not a number"), ("0", "not positive"), ("inf", "infinite")):
+        spoiled = long_table.copy()
+        spoiled.loc[bad_row, "price"] = value
+        path = price_files.write(spoiled, tmp_path / "long.csv")
+        with pytest.raises(DataError) as caught:
+            read_prices(path)
+        message = str(caught.value)
+        assert f"line {bad_row + 2} " in message and "CYN" in message and words in message, message
