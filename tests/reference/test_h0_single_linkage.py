@@ -11,11 +11,12 @@ rounding to float32 as well (rtol 1e-6 covers one float32 ulp).
 from __future__ import annotations
 
 import numpy as np
+import pandas as pd
 import pytest
 from scipy.cluster.hierarchy import linkage
 from scipy.spatial.distance import pdist, squareform
 
-from riskshape import Config, monitor
+from riskshape import Config, MonitorResult, monitor
 from riskshape.distance import correlation_matrix, correlation_to_distance
 from riskshape.persistence import compute_diagrams
 from riskshape.scenario import Scenario
@@ -68,10 +69,30 @@ def test_h0_on_scenario_windows_matches_single_linkage(small_scenario: Scenario)
     result = monitor(small_scenario.prices, config)
     assert len(result.window_ends) >= 4
     for end in result.window_ends:
-        raw = result.window_returns(end).to_numpy()
-        selection = select_assets(raw, config.min_coverage)
-        distance = correlation_to_distance(correlation_matrix(selection.block, config.correlation))
+        distance = _window_distance(result, end)
         expected = _scipy_merge_heights(distance)
         np.testing.assert_allclose(np.sort(result.diagram(end, 0)[:, 1]), expected, rtol=1e-6, atol=0)
         fast = compute_diagrams(distance, maxdim=0)[0]
         np.testing.assert_allclose(np.sort(fast[:, 1]), expected, rtol=1e-6, atol=0)
+
+
+def test_h0_features_drop_the_infinite_bar_and_sum_the_merge_heights(small_scenario: Scenario) -> None:
+    """The infinite H0 bar is left out of every summary (our documented convention): n assets give
+    n - 1 finite bars, and total persistence is the sum of the single-linkage heights (scipy).
+    The single-linkage path (maxdim=0) and ripser (maxdim=1) give the same H0 features."""
+    base = Config(window=40, step=30, engine="ripser", compute={"executor": "serial"})
+    with_loops = monitor(small_scenario.prices, base.replace(maxdim=1))
+    clusters_only = monitor(small_scenario.prices, base.replace(maxdim=0))
+    h0_columns = [c for c in clusters_only.features.columns if c.startswith("h0_")]
+    np.testing.assert_allclose(clusters_only.features[h0_columns].to_numpy(), with_loops.features[h0_columns].to_numpy(),
+                               rtol=1e-7, equal_nan=True)
+    for end in with_loops.window_ends:
+        row = with_loops.features.loc[end]
+        assert row["h0_n_bars"] == row["n_assets"] - 1
+        heights = _scipy_merge_heights(_window_distance(with_loops, end))
+        assert row["h0_total_persistence"] == pytest.approx(heights.sum(), rel=1e-6)
+
+
+def _window_distance(result: MonitorResult, end: pd.Timestamp) -> np.ndarray:
+    selection = select_assets(result.window_returns(end).to_numpy(), result.config.min_coverage)
+    return correlation_to_distance(correlation_matrix(selection.block, result.config.correlation))
