@@ -10,7 +10,9 @@ others; a summary that stands out from its surrogates carries what the surrogate
 * ``phase`` - multivariate phase randomisation (Prichard and Theiler 1994, Phys. Rev. Lett.
   73:951): the same random phase is added at each frequency to every asset's Fourier transform,
   keeping every auto- and cross-periodogram (so the linear auto- and cross-correlations, in the
-  circular sense) and making the data Gaussian-like;
+  circular sense) and making the data Gaussian-like. By Parseval it keeps the sample covariance
+  exactly, so correlation-distance summaries do not change at all under it (their z-scores are
+  NaN): it is a null for the point-cloud embedding, where the days themselves are the points;
 * ``iaaft`` - iterative amplitude-adjusted Fourier transform, multivariate (Schreiber and
   Schmitz 2000, Physica D 142:346): alternately imposes the original amplitudes with the
   original cross-phases (each asset's phase is its original phase plus a common angle
@@ -189,9 +191,13 @@ class SurrogateTest:
 
     @property
     def zscores(self) -> pd.Series:
-        """(observed - null mean) / null standard deviation (ddof = 1); NaN when the null is constant."""
-        std = self.null.std(ddof=1)
-        return ((self.observed - self.null.mean()) / std.where(std > 0)).rename("z")
+        """(observed - null mean) / null standard deviation (ddof = 1).
+
+        NaN when the null is constant up to rounding (std <= 1e-9 times the null mean's size).
+        """
+        mean, std = self.null.mean(), self.null.std(ddof=1)
+        spread = std.where(std > 1e-9 * np.maximum(mean.abs(), 1e-12))
+        return ((self.observed - mean) / spread).rename("z")
 
     @property
     def pvalues(self) -> pd.Series:
