@@ -16,6 +16,7 @@ window policy in :mod:`riskshape.windows` decides who enters each window.
 from __future__ import annotations
 
 import hashlib
+from collections.abc import Callable
 import os
 import warnings
 from pathlib import Path
@@ -129,22 +130,11 @@ def validate_prices(
 
     values = np.empty(frame.shape, dtype=float)
     for j, column in enumerate(frame.columns):
-        values[:, j] = _parse_column(frame[column], column, source, dates, lines, row_label)
 
-    bad = ~np.isnan(values) & ~np.isfinite(values)
-    if bad.any():
-        i, j = np.argwhere(bad)[0]
-        raise DataError(
-            f"{source}: {row_label} {lines[i]} (date {dates[i].date()}), column '{frame.columns[j]}': "
-            f"infinite price {values[i, j]}; fix or leave the cell empty (missing)"
-        )
-    nonpos = ~np.isnan(values) & (values <= 0)
-    if nonpos.any():
-        i, j = np.argwhere(nonpos)[0]
-        raise DataError(
-            f"{source}: {row_label} {lines[i]} (date {dates[i].date()}), column '{frame.columns[j]}': "
-            f"price {values[i, j]:g} is not positive; prices must be > 0 (leave a cell empty if unknown)"
-        )
+        def where(i: int, name: str = str(column)) -> str:
+            return f"{source}: {row_label} {lines[i]} (date {dates[i].date()}), column '{name}'"
+
+        values[:, j] = _parse_prices(frame[column], where)
 
     result = pd.DataFrame(values, index=pd.DatetimeIndex(dates, name="date"), columns=[str(c) for c in frame.columns])
     result.columns.name = "asset"
@@ -227,6 +217,7 @@ def _parse_dates(column: pd.Series, source: str, lines: np.ndarray, row_label: s
 
 
 def _pivot_long(table: pd.DataFrame, source: str, row_label: str) -> pd.DataFrame:
+    """Long rows to wide; prices are parsed here, so a bad one is reported at its own line."""
     table = table.assign(asset=table["asset"].astype(str).str.strip())
     dup = table.duplicated(subset=["date", "asset"], keep="first")
     if dup.any():
@@ -235,27 +226,46 @@ def _pivot_long(table: pd.DataFrame, source: str, row_label: str) -> pd.DataFram
             f"{source}: {row_label} {row['__line__']}: asset '{row['asset']}' has a second price on "
             f"{row['date'].date()}; keep one price per asset and date"
         )
+    lines, dates, assets = table["__line__"].to_numpy(), table["date"].to_numpy(), table["asset"].to_numpy()
+
+    def where(i: int) -> str:
+        day = pd.Timestamp(dates[i]).date()
+        return f"{source}: {row_label} {lines[i]} (date {day}), asset '{assets[i]}', column 'price'"
+
+    table = table.assign(price=_parse_prices(table["price"], where))
     prices = table.pivot(index="date", columns="asset", values="price")
-    lines = table.groupby("date")["__line__"].min()
-    prices["__line__"] = lines.reindex(prices.index).to_numpy()
+    first_lines = table.groupby("date")["__line__"].min()
+    prices["__line__"] = first_lines.reindex(prices.index).to_numpy()
     prices.columns.name = None
     return prices
 
 
-def _parse_column(
-    column: pd.Series, name: str, source: str, dates: pd.DatetimeIndex, lines: np.ndarray, row_label: str
-) -> np.ndarray:
-    """Parse one asset column to float64; empty cells become NaN, anything else unreadable is an error."""
+def _parse_prices(column: pd.Series, where: Callable[[int], str]) -> np.ndarray:
+    """Parse price cells to float64: empty cells become NaN; text, infinite, zero or negative is an error.
+
+    ``where(i)`` names the place of cell ``i`` (file, line, date, column) for the message.
+    """
     if pd.api.types.is_numeric_dtype(column) and not pd.api.types.is_bool_dtype(column):
-        return column.to_numpy(dtype=float)
-    text = column.astype(object)
-    missing = column.isna().to_numpy() | text.map(lambda v: str(v).strip().lower() in _MISSING).to_numpy()
-    numbers = pd.to_numeric(text.where(~missing, None), errors="coerce").to_numpy(dtype=float)
-    bad = np.isnan(numbers) & ~missing
-    if bad.any():
-        i = int(np.flatnonzero(bad)[0])
+        numbers = column.to_numpy(dtype=float)
+    else:
+        text = column.astype(object)
+        missing = column.isna().to_numpy() | text.map(lambda v: str(v).strip().lower() in _MISSING).to_numpy()
+        numbers = pd.to_numeric(text.where(~missing, None), errors="coerce").to_numpy(dtype=float)
+        bad = np.isnan(numbers) & ~missing
+        if bad.any():
+            i = int(np.flatnonzero(bad)[0])
+            raise DataError(
+                f"{where(i)}: {column.iloc[i]!r} is not a number; write a price like 101.25 or leave the cell empty"
+            )
+    present = ~np.isnan(numbers)
+    infinite = present & ~np.isfinite(numbers)
+    if infinite.any():
+        i = int(np.flatnonzero(infinite)[0])
+        raise DataError(f"{where(i)}: infinite price {numbers[i]}; fix it or leave the cell empty (missing)")
+    nonpositive = present & (numbers <= 0)
+    if nonpositive.any():
+        i = int(np.flatnonzero(nonpositive)[0])
         raise DataError(
-            f"{source}: {row_label} {lines[i]} (date {dates[i].date()}), column '{name}': "
-            f"{column.iloc[i]!r} is not a number; write a price like 101.25 or leave the cell empty"
+            f"{where(i)}: price {numbers[i]:g} is not positive; prices must be > 0 (leave a cell empty if unknown)"
         )
     return numbers
