@@ -6,11 +6,17 @@ from __future__ import annotations
 import uuid
 from collections.abc import Iterator
 
+import dataclasses
+
 import numpy as np
+import pandas as pd
 import psycopg
 import pytest
 from archive_kit import PG_CONNINFO, PG_URL, manifest, postgres_unreachable, walk_prices
 
+from riskshape import Config, monitor
+from riskshape.config import RuleConfig
+from riskshape.monitor import MonitorResult
 from riskshape.store import Run, Store, open_store
 
 
@@ -44,3 +50,25 @@ def run(store: Store, rng: np.random.Generator) -> Run:
     """A portfolio 'Fund North' with one run of small prices."""
     store.create_portfolio("Fund North")
     return store.create_run("Fund North", manifest(), walk_prices(rng))
+
+
+def _rules(features: pd.DataFrame) -> tuple[RuleConfig, ...]:
+    """Rules that fire a few times on this series: a level at its own 80th percentile, a z-score and a
+    trailing quantile (thresholds from the data, so nothing is hard-coded)."""
+    level = float(features["mean_correlation"].quantile(0.8))
+    return (
+        RuleConfig(name="corr_level", summary="mean_correlation", kind="level", threshold=level, min_history=0,
+                   consecutive=2, cooldown=5, severity="critical"),
+        RuleConfig(name="h1_z", summary="h1_total_persistence", kind="zscore", threshold=1.5, lookback=40,
+                   min_history=20, severity="info"),
+        RuleConfig(name="h0_q", summary="h0_wasserstein", kind="quantile", threshold=0.9, clear=0.5, lookback=40,
+                   min_history=20, cooldown=3),
+    )
+
+
+@pytest.fixture(scope="session")
+def computed(small_prices: pd.DataFrame, small_config: Config) -> MonitorResult:
+    """The small scenario monitored under rules that fire (the windows do not depend on the rules)."""
+    plain = monitor(small_prices, small_config)
+    config = small_config.replace(alerts={"rules": [r.model_dump() for r in _rules(plain.features)]})
+    return dataclasses.replace(plain, config=config)

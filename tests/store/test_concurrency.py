@@ -19,9 +19,13 @@ from riskshape.store import Store, verify_chain
 WRITER = Path(__file__).with_name("archive_writer.py")
 
 
-def _writer(url: str, run_id: int, rule: str, count: int, go_file: Path | None = None) -> subprocess.Popen[str]:
+def _writer(url: str, run_id: int, rule: str, count: int, errors: Path, go_file: Path | None = None
+            ) -> subprocess.Popen[str]:
+    """Start a writer; its stderr goes to ``errors`` so stdout is the one pipe (communicate() then reads
+    through the same buffer as readline(), and no line is lost)."""
     args = [sys.executable, str(WRITER), url, str(run_id), rule, str(count)] + ([str(go_file)] if go_file else [])
-    return subprocess.Popen(args, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True, cwd=WRITER.parent)
+    with errors.open("w") as sink:
+        return subprocess.Popen(args, stdout=subprocess.PIPE, stderr=sink, text=True, cwd=WRITER.parent)
 
 
 def _ledger(store: Store) -> dict[tuple[str, int], int]:
@@ -32,8 +36,9 @@ def _ledger(store: Store) -> dict[tuple[str, int], int]:
 
 
 @pytest.mark.timeout(120)
-def test_sigkill_mid_writing_loses_no_committed_alert(store: Store, store_url: str, run) -> None:
-    child = _writer(store_url, run.id, "crash_rule", 2_000)  # far more than it gets to write
+def test_sigkill_mid_writing_loses_no_committed_alert(store: Store, store_url: str, run, tmp_path: Path) -> None:
+    errors = tmp_path / "writer.err"
+    child = _writer(store_url, run.id, "crash_rule", 2_000, errors)  # far more than it gets to write
     assert child.stdout is not None
     committed: list[str] = []
     for line in child.stdout:  # the child prints only after each commit
@@ -41,9 +46,9 @@ def test_sigkill_mid_writing_loses_no_committed_alert(store: Store, store_url: s
         if len(committed) >= 60:
             os.kill(child.pid, signal.SIGKILL)
             break
-    rest, err = child.communicate()
+    rest, _ = child.communicate()
     committed += [line.split() for line in rest.splitlines()]  # printed before the kill landed
-    assert child.returncode == -signal.SIGKILL, err
+    assert child.returncode == -signal.SIGKILL, errors.read_text()
     archived = _ledger(store)
     for kind, record_id, seq in committed:
         assert archived.get((kind, int(record_id))) == int(seq), f"committed {kind} {record_id} lost"
@@ -57,7 +62,8 @@ def test_sigkill_mid_writing_loses_no_committed_alert(store: Store, store_url: s
 def test_two_writers_at_once_never_fork_the_chain(store: Store, store_url: str, run, tmp_path: Path) -> None:
     # Writer 1 is a child process, writer 2 is this test's process; both start on the same signal.
     go = tmp_path / "go"
-    child = _writer(store_url, run.id, "writer_1", 40, go)
+    errors = tmp_path / "writer.err"
+    child = _writer(store_url, run.id, "writer_1", 40, errors, go)
     assert child.stdout is not None and child.stdout.readline().strip() == "ready"
     go.touch()
     mine: list[tuple[str, int, int]] = []
@@ -72,8 +78,8 @@ def test_two_writers_at_once_never_fork_the_chain(store: Store, store_url: str, 
         if n == 1:  # wait for the child's first commit, so the two surely overlap from here on
             first_of_theirs = child.stdout.readline().split()
         time.sleep(0.01)  # leave the other writer a gap, as the child does
-    out, err = child.communicate()
-    assert child.returncode == 0, err  # the child never failed on a lock or a constraint
+    out, _ = child.communicate()
+    assert child.returncode == 0, errors.read_text()  # the child never failed on a lock or a constraint
     theirs = [(kind, int(i), int(seq)) for kind, i, seq in (line.split() for line in [" ".join(first_of_theirs)]
                                                              + out.splitlines())]
     assert len(theirs) == len(mine) == 40 + 8

@@ -1,0 +1,150 @@
+"""The ``audit`` and ``alerts`` commands (on SQLite; the store under them is tested on both backends)."""
+
+from __future__ import annotations
+
+import csv
+import dataclasses
+import io
+import json
+from pathlib import Path
+
+import numpy as np
+import pytest
+import sqlalchemy as sa
+from archive_kit import around_triggers, make_alerts, manifest, walk_prices
+
+from riskshape.caution import CAUTION
+from riskshape.cli import main
+from riskshape.cli.alerts import EXPORT_COLUMNS, neutralise_cell
+from riskshape.store import chain_head, open_store
+
+
+@pytest.fixture
+def archive(tmp_path: Path, rng: np.random.Generator) -> str:
+    """A SQLite archive with 4 alerts (one on a portfolio whose name looks like a formula) and a review."""
+    url = f"sqlite:///{tmp_path / 'cli.sqlite'}"
+    with open_store(url) as store:
+        for name in ("Fund North", "=HYPERLINK(1)"):
+            store.create_portfolio(name)
+            run = store.create_run(name, manifest(), walk_prices(rng))
+            store.append_alerts(make_alerts(rng, 2, portfolio=name, start="2030-03-01"), run.id)
+        store.append_review(1, "escalate", "@Reviewer", "-looks real")
+    return url
+
+
+def _run(capsys: pytest.CaptureFixture[str], *argv: str) -> tuple[object, str, str]:
+    try:
+        status = main(list(argv))
+    except SystemExit as stop:
+        status = stop.code
+    out, err = capsys.readouterr()
+    return status, out, err
+
+
+def test_verify_and_head(archive: str, capsys: pytest.CaptureFixture[str]) -> None:
+    status, out, _ = _run(capsys, "audit", "verify", "--store", archive)
+    assert status in (None, 0) and out.splitlines()[0] == CAUTION and "ok: 5 records verified" in out
+    status, out, _ = _run(capsys, "audit", "head", "--store", archive)
+    head = out.splitlines()[-1]
+    assert head.startswith("5:") and len(head) == 2 + 64
+    status, out, _ = _run(capsys, "audit", "verify", "--store", archive, "--expect-head", head)
+    assert status in (None, 0) and "matches the expected head" in out
+
+
+def test_verify_fails_naming_the_first_bad_record(archive: str, capsys: pytest.CaptureFixture[str]) -> None:
+    with open_store(archive) as store:
+        kept = str(chain_head(store))
+        with around_triggers(store) as connection:
+            connection.execute(sa.text("UPDATE alerts SET rule = 'rule_b' WHERE id = 2"))
+    status, out, _ = _run(capsys, "audit", "verify", "--store", archive)
+    assert status == 1 and out.splitlines()[0] == CAUTION
+    assert "first bad record: seq 2 (alerts id 2)" in out
+    with open_store(archive) as store, around_triggers(store) as connection:
+        connection.execute(sa.text("UPDATE alerts SET rule = 'rule_a' WHERE id = 2"))
+        connection.execute(sa.text("DELETE FROM reviews"))
+        connection.execute(sa.text("DELETE FROM ledger WHERE seq = 5"))
+    assert _run(capsys, "audit", "verify", "--store", archive)[0] in (None, 0)  # the cut tail is invisible alone
+    status, out, _ = _run(capsys, "audit", "verify", "--store", archive, "--expect-head", kept)
+    assert status == 1 and "seq 5" in out and "tail cut" in out
+
+
+def test_user_errors_are_one_line_and_status_2(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    status, _, err = _run(capsys, "audit", "verify", "--store", f"sqlite:///{tmp_path / 'no' / 'x.sqlite'}")
+    assert status == 2 and err.startswith("riskshape: error:") and len(err.strip().splitlines()) == 1
+    status, _, err = _run(capsys, "audit", "verify", "--store", f"sqlite:///{tmp_path / 'a.sqlite'}",
+                          "--expect-head", "12:xyz")
+    assert status == 2 and "COUNT:HASH" in err
+    status, _, err = _run(capsys, "alerts", "show", "77", "--store", f"sqlite:///{tmp_path / 'a.sqlite'}")
+    assert status == 2 and "alert 77 is not in the archive" in err
+
+
+def test_list_show_and_review(archive: str, capsys: pytest.CaptureFixture[str]) -> None:
+    status, out, _ = _run(capsys, "alerts", "list", "--store", archive, "--portfolio", "Fund North")
+    lines = out.splitlines()
+    assert lines[0] == CAUTION and lines[-1] == "1-2 of 2 alert(s)"
+    _, out, _ = _run(capsys, "alerts", "list", "--store", archive, "--unreviewed")
+    assert out.splitlines()[-1] == "1-3 of 3 alert(s)"
+    _, out, _ = _run(capsys, "alerts", "review", "3", "--store", archive, "--action", "dismiss", "--reviewer", "Ana")
+    assert "review 2 of alert 3 recorded (dismiss)" in out
+    _, out, _ = _run(capsys, "alerts", "show", "1", "--store", archive)
+    assert out.splitlines()[0] == CAUTION and "escalate by @Reviewer: -looks real" in out
+    assert "entry_hash" in out and "inputs_hash" in out
+    status, _, err = _run(capsys, "alerts", "review", "3", "--store", archive, "--action", "approve", "--reviewer", "Ana")
+    assert status == 2 and "approve" in err
+
+
+def test_neutralise_cell_follows_owasp_csv_injection_guidance() -> None:
+    # OWASP "CSV Injection": cells beginning with =, +, -, @, tab (0x09) or carriage return (0x0D) are
+    # prefixed with a single quote so a spreadsheet shows them as text.
+    for risky in ("=1+1", "+1", "-1", "@SUM(A1)", "\tx", "\rx"):
+        assert neutralise_cell(risky) == "'" + risky
+    for safe in ("Fund North", "1=1", "", "a-b"):
+        assert neutralise_cell(safe) == safe
+
+
+def test_export_csv(archive: str, capsys: pytest.CaptureFixture[str], tmp_path: Path) -> None:
+    out_file = tmp_path / "alerts.csv"
+    status, out, _ = _run(capsys, "alerts", "export", "--store", archive, "--format", "csv", "--out", str(out_file))
+    assert status in (None, 0) and CAUTION in out
+    text = out_file.read_text(encoding="utf-8")
+    rows = list(csv.reader(io.StringIO(text)))
+    assert rows[0] == [f"# {CAUTION}"] and tuple(rows[1]) == EXPORT_COLUMNS
+    records = [dict(zip(rows[1], r)) for r in rows[2:]]
+    assert [r["id"] for r in records] == ["1", "3", "2", "4"]  # by window end, then id
+    formula = [r for r in records if "HYPERLINK" in r["portfolio"]]
+    assert {r["portfolio"] for r in formula} == {"'=HYPERLINK(1)"}
+    with open_store(archive) as store:
+        first = store.get_alert(1).alert
+    assert records[0]["entry_hash"] == first.entry_hash and float(records[0]["value"]) == first.value
+    assert records[0]["reviews"] == "1" and records[0]["last_review"] == "escalate"
+    status, out, _ = _run(capsys, "alerts", "export", "--store", archive, "--format", "csv", "--from", "2030-03-04")
+    assert [r[0] for r in csv.reader(io.StringIO(out))][2:] == ["2", "4"]
+
+
+def test_export_jsonl_keeps_values_exactly(archive: str, capsys: pytest.CaptureFixture[str]) -> None:
+    status, out, _ = _run(capsys, "alerts", "export", "--store", archive, "--format", "jsonl", "--to", "2030-03-01")
+    lines = [json.loads(line) for line in out.splitlines()]
+    assert lines[0] == {"caution": CAUTION}
+    with open_store(archive) as store:
+        archived = {a.id: a for a in store.list_alerts(limit=None).items}
+    assert [row["id"] for row in lines[1:]] == [1, 3]
+    for row in lines[1:]:
+        alert = archived[row["id"]]
+        assert row["value"] == alert.value and row["window_end"] == alert.window_end.isoformat()
+        assert row["portfolio"] == alert.portfolio and row["prev_hash"] == alert.prev_hash
+        assert set(row) == set(EXPORT_COLUMNS) and set(dataclasses.asdict(alert)) <= set(row)
+
+
+def test_reproduce_command(tmp_path: Path, computed, capsys: pytest.CaptureFixture[str]) -> None:
+    from riskshape.archive import archive_run
+
+    url = f"sqlite:///{tmp_path / 'runs.sqlite'}"
+    with open_store(url) as store:
+        alert = archive_run(store, "Fund Scenario", computed).alerts.added[-1]
+    status, out, _ = _run(capsys, "audit", "reproduce", str(alert.id), "--store", url)
+    assert status in (None, 0) and out.splitlines()[0] == CAUTION
+    assert f"alert {alert.id} reproduced (bit-identical)" in out and "FAIL" not in out
+    with open_store(url) as store, around_triggers(store) as connection:
+        connection.execute(sa.text("UPDATE alerts SET threshold = threshold * 2 WHERE id = :id"), {"id": alert.id})
+    status, out, _ = _run(capsys, "audit", "reproduce", str(alert.id), "--store", url)
+    assert status == 1 and "FAIL threshold" in out and f"alert {alert.id} NOT reproduced: threshold" in out
