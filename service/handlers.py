@@ -99,6 +99,9 @@ async def _http_error(request: Request, err: Exception) -> JSONResponse:
         detail = f"request body exceeds the limit of {limit} bytes; send less data per request"
     elif err.status_code == 404 and detail == "Not Found":
         detail = f"no endpoint at {request.url.path}; see /docs for the API"
+    elif err.status_code == 400 and detail == "There was an error parsing the body":
+        status = 422  # FastAPI's answer to a JSON body that is not UTF-8 text; malformed JSON is a 422 here
+        return _json(request, status, "malformed JSON (the body is not UTF-8 text); send UTF-8 encoded JSON")
     elif err.status_code == 405:
         detail = f"method {request.method} is not allowed on {request.url.path}; see /docs"
     return _json(request, err.status_code, detail, headers=getattr(err, "headers", None))

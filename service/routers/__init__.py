@@ -27,5 +27,5 @@ _DESCRIPTIONS = {
 
 
 def errors(*codes: int) -> dict[int | str, dict[str, Any]]:
-    """The ``responses=`` entries for these error codes (plus 401, 403, 429, 500 common to all keyed routes)."""
-    return {code: {"model": ErrorOut, "description": _DESCRIPTIONS[code]} for code in sorted(set(codes) | {500})}
+    """The ``responses=`` entries for these error codes, plus 422 (any parameter may be invalid) and 500."""
+    return {code: {"model": ErrorOut, "description": _DESCRIPTIONS[code]} for code in sorted(set(codes) | {422, 500})}
