@@ -11,20 +11,30 @@ Conventions (stated here, checked in tests/reference):
   powers of all layers sums the p-th powers of every bar's tent. A single bar gives
   L1 = h^2 and L2 = sqrt(2 h^3 / 3). (gudhi's ``Landscape`` samples tents sqrt(2) times taller.)
 * Wasserstein distance of order p with the L-infinity ground metric (the metric of the stability
-  theorem, Cohen-Steiner et al. 2010): a point's distance to the diagonal is l / 2; solved exactly
-  as an assignment problem (scipy's ``linear_sum_assignment``). persim's ``wasserstein`` uses the
-  L2 ground metric instead, so its values differ from ours;
-* bottleneck distance with the L-infinity ground metric (persim, exact).
+  theorem, Cohen-Steiner et al. 2010): a point's distance to the diagonal is l / 2. persim's
+  ``wasserstein`` uses the L2 ground metric instead, so its values differ from ours;
+* bottleneck distance with the L-infinity ground metric.
+
+How the distances are computed (all exact, differing by float64 rounding only): see
+:mod:`riskshape.matching`; ``tests/speed`` checks every fast path against the plain one.
 """
 
 from __future__ import annotations
 
-import warnings
 from dataclasses import astuple, dataclass, fields
+from typing import Literal
 
 import numpy as np
-from persim import bottleneck as _persim_bottleneck
-from scipy.optimize import linear_sum_assignment
+
+from riskshape.matching import (
+    assignment_wasserstein,
+    certified_bottleneck,
+    gudhi_bottleneck,
+    persim_bottleneck,
+    sorted_bottleneck_is_optimal,
+    sorted_matching_is_optimal,
+    transport_wasserstein,
+)
 
 __all__ = [
     "DiagramSummary",
@@ -100,11 +110,37 @@ def landscape_norm(dgm: np.ndarray, p: float = 1.0) -> float:
     return float((2.0 * np.sum(half ** (p + 1.0)) / (p + 1.0)) ** (1.0 / p))
 
 
-def wasserstein_distance(a: np.ndarray, b: np.ndarray, order_p: float = 1.0) -> float:
+# Diagrams with at most this many points together go to the assignment solver (faster there,
+# measured with benchmarks/run.py); larger ones to optimal transport.
+_ASSIGNMENT_MAX_POINTS = 120
+
+
+def wasserstein_distance(
+    a: np.ndarray,
+    b: np.ndarray,
+    order_p: float = 1.0,
+    method: Literal["auto", "assignment", "transport"] = "auto",
+) -> float:
     """Wasserstein distance of order ``order_p`` between two diagrams, L-infinity ground metric.
 
     Each point may be matched to a point of the other diagram (cost: L-infinity distance) or to
     the diagonal (cost: half its lifetime); the cheapest matching is found exactly.
+
+    Parameters
+    ----------
+    a, b : numpy.ndarray
+        (n, 2) and (m, 2) finite bars.
+    order_p : float
+        Order ``p >= 1``.
+    method : {"auto", "assignment", "transport"}
+        ``auto``: for H0 diagrams (all births 0) of equal size, the sorted matching where its
+        check proves it optimal; otherwise the faster exact solver for the size.
+        ``assignment``: scipy's ``linear_sum_assignment`` (the plain path). ``transport``: POT's
+        network simplex through gudhi. See :mod:`riskshape.matching`.
+
+    Returns
+    -------
+    float
 
     Examples
     --------
@@ -115,23 +151,38 @@ def wasserstein_distance(a: np.ndarray, b: np.ndarray, order_p: float = 1.0) -> 
     n, m = len(a), len(b)
     if n == 0 and m == 0:
         return 0.0
-    to_diag_a = _lifetimes(a) / 2.0
-    to_diag_b = _lifetimes(b) / 2.0
     if n == 0 or m == 0:
-        return float(np.sum(np.concatenate([to_diag_a, to_diag_b]) ** order_p) ** (1.0 / order_p))
-    cross = np.maximum(np.abs(a[:, None, 0] - b[None, :, 0]), np.abs(a[:, None, 1] - b[None, :, 1]))
-    cost = np.zeros((n + m, m + n))
-    cost[:n, :m] = cross**order_p
-    cost[:n, m:] = np.inf
-    cost[n:, :m] = np.inf
-    cost[np.arange(n), m + np.arange(n)] = to_diag_a**order_p
-    cost[n + np.arange(m), np.arange(m)] = to_diag_b**order_p
-    rows, cols = linear_sum_assignment(cost)
-    return float(cost[rows, cols].sum() ** (1.0 / order_p))
+        to_diag = np.concatenate([_lifetimes(a), _lifetimes(b)]) / 2.0
+        return float(np.sum(to_diag**order_p) ** (1.0 / order_p))
+    if method == "auto":
+        if n == m and _births_zero(a) and _births_zero(b):
+            da, db = np.sort(a[:, 1]), np.sort(b[:, 1])
+            if sorted_matching_is_optimal(da, db, order_p):
+                return float(np.sum(np.abs(da - db) ** order_p) ** (1.0 / order_p))
+        method = "assignment" if n + m <= _ASSIGNMENT_MAX_POINTS else "transport"
+    if method == "transport":
+        value = transport_wasserstein(a, b, order_p)
+        if value is not None:
+            return value
+    return assignment_wasserstein(a, b, order_p)
 
 
-def bottleneck_distance(a: np.ndarray, b: np.ndarray) -> float:
-    """Bottleneck distance between two diagrams, L-infinity ground metric (persim, exact).
+def bottleneck_distance(a: np.ndarray, b: np.ndarray, method: Literal["auto", "persim"] = "auto") -> float:
+    """Bottleneck distance between two diagrams, L-infinity ground metric (exact).
+
+    Parameters
+    ----------
+    a, b : numpy.ndarray
+        (n, 2) and (m, 2) finite bars.
+    method : {"auto", "persim"}
+        ``auto``: for H0 diagrams (all births 0) of equal size, the sorted matching where its
+        check proves it optimal; otherwise gudhi's value where a matching certificate confirms
+        it, else persim. ``persim``: persim's exact ``bottleneck`` (the plain path). See
+        :mod:`riskshape.matching`.
+
+    Returns
+    -------
+    float
 
     Examples
     --------
@@ -143,10 +194,19 @@ def bottleneck_distance(a: np.ndarray, b: np.ndarray) -> float:
         return 0.0
     if len(a) == 0 or len(b) == 0:
         return float(np.max(_lifetimes(a if len(a) else b)) / 2.0)
-    with warnings.catch_warnings():
-        # persim warns about points it drops only for infinite deaths; ours are all finite
-        warnings.simplefilter("ignore", UserWarning)
-        return float(_persim_bottleneck(a, b))
+    if method == "auto":
+        if len(a) == len(b) and _births_zero(a) and _births_zero(b):
+            da, db = np.sort(a[:, 1]), np.sort(b[:, 1])
+            if sorted_bottleneck_is_optimal(da, db):
+                return float(np.max(np.abs(da - db)))
+        value = certified_bottleneck(a, b, gudhi_bottleneck(a, b))
+        if value is not None:
+            return value
+    return persim_bottleneck(a, b)
+
+
+def _births_zero(dgm: np.ndarray) -> bool:
+    return bool(np.all(dgm[:, 0] == 0.0))
 
 
 @dataclass(frozen=True)

@@ -1,0 +1,152 @@
+"""Every fast path of the diagram distances equals the plain path.
+
+Plain paths (references no one here wrote): scipy's ``linear_sum_assignment`` on the assignment
+formulation of the Wasserstein distance (every point with its own diagonal copy: the textbook
+reduction, e.g. Edelsbrunner and Harer, Computational Topology, 2010, ch. VIII, from memory) and
+persim's exact ``bottleneck``. Fast paths: the sorted matching of H0 diagrams with its
+optimality check, POT's optimal transport through gudhi, gudhi's bottleneck with a matching
+certificate (riskshape.matching).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+from riskshape.distance import correlation_matrix, correlation_to_distance
+from riskshape.matching import (
+    certified_bottleneck,
+    gudhi_bottleneck,
+    persim_bottleneck,
+    sorted_bottleneck_is_optimal,
+    sorted_matching_is_optimal,
+)
+from riskshape.persistence import compute_diagrams
+from riskshape.summaries import bottleneck_distance, wasserstein_distance
+
+REL = 1e-12
+
+
+def _h0(deaths: np.ndarray) -> np.ndarray:
+    return np.column_stack([np.zeros(len(deaths)), deaths])
+
+
+def _general(rng: np.random.Generator, n: int) -> np.ndarray:
+    birth = rng.uniform(0.0, 1.0, n)
+    return np.column_stack([birth, birth + rng.exponential(0.3, n) + 1e-3])
+
+
+def _consecutive_diagrams(rng: np.random.Generator, n_assets: int, window: int, count: int) -> list[tuple[np.ndarray, ...]]:
+    """Diagrams of consecutive windows of factor-model returns (what the monitor compares)."""
+    days = window + count
+    common = rng.standard_normal(days)[:, None] * rng.uniform(0.4, 1.0, n_assets)
+    groups = rng.integers(0, 5, n_assets)
+    sector = rng.standard_normal((days, 5))[:, groups] * rng.uniform(0.3, 0.9, n_assets)
+    returns = 0.01 * (common + sector + rng.standard_normal((days, n_assets)))
+    return [
+        compute_diagrams(correlation_to_distance(correlation_matrix(returns[k : k + window])), 1)
+        for k in range(count)
+    ]
+
+
+def test_sorted_h0_matching_check_is_exact(rng: np.random.Generator) -> None:
+    """The check accepts the sorted matching exactly when the assignment optimum equals its cost."""
+    accepted = rejected = 0
+    for _ in range(400):
+        n = int(rng.integers(1, 9))
+        da = np.sort(rng.uniform(0.05, 1.5, n))
+        noise = rng.choice([0.02, 0.3, 1.0])
+        db = np.sort(np.clip(da + rng.normal(0.0, noise, n), 1e-3, None))
+        for order in (1.0, 2.0, 1.5):
+            optimum = wasserstein_distance(_h0(da), _h0(db), order, method="assignment") ** order
+            sorted_cost = float(np.sum(np.abs(da - db) ** order))
+            ok = sorted_matching_is_optimal(da, db, order)
+            assert ok == (sorted_cost <= optimum * (1 + 1e-9) + 1e-15)
+            accepted += ok
+            rejected += not ok
+    assert accepted > 100 and rejected > 100  # both branches were exercised
+
+
+def test_h0_wasserstein_fast_equals_assignment(rng: np.random.Generator) -> None:
+    diagrams = _consecutive_diagrams(rng, 40, 30, 12)
+    for dgms_a, dgms_b in zip(diagrams[:-1], diagrams[1:]):
+        for order in (1.0, 2.0):
+            fast = wasserstein_distance(dgms_a[0], dgms_b[0], order)
+            plain = wasserstein_distance(dgms_a[0], dgms_b[0], order, method="assignment")
+            assert fast == pytest.approx(plain, rel=REL, abs=1e-15)
+    # unequal sizes and far-apart diagrams take the general solvers
+    for n, m in [(5, 7), (30, 30), (80, 80)]:
+        a, b = _h0(rng.uniform(0.05, 1.5, n)), _h0(rng.uniform(0.05, 1.5, m))
+        assert wasserstein_distance(a, b) == pytest.approx(wasserstein_distance(a, b, method="assignment"), rel=REL)
+
+
+@pytest.mark.parametrize("order", [1.0, 2.0])
+def test_transport_equals_assignment(rng: np.random.Generator, order: float) -> None:
+    for n, m in [(1, 1), (3, 8), (40, 55), (90, 70), (150, 140)]:
+        a, b = _general(rng, n), _general(rng, m)
+        transport = wasserstein_distance(a, b, order, method="transport")
+        plain = wasserstein_distance(a, b, order, method="assignment")
+        assert transport == pytest.approx(plain, rel=REL)
+        assert wasserstein_distance(a, b, order) == pytest.approx(plain, rel=REL)
+
+
+def test_transport_falls_back_when_pot_stops_early(rng: np.random.Generator, monkeypatch: pytest.MonkeyPatch) -> None:
+    a, b = _general(rng, 90), _general(rng, 80)
+    expected = wasserstein_distance(a, b, method="assignment")
+    monkeypatch.setattr("riskshape.summaries.transport_wasserstein", lambda *args: None)
+    assert wasserstein_distance(a, b) == pytest.approx(expected, rel=REL)
+
+
+def test_bottleneck_fast_equals_persim(rng: np.random.Generator) -> None:
+    pairs = [(_general(rng, n), _general(rng, m)) for n, m in [(1, 1), (2, 6), (12, 12), (40, 35), (120, 110)]]
+    pairs += [(_h0(rng.uniform(0.1, 1.5, n)), _h0(rng.uniform(0.1, 1.5, n))) for n in (3, 20)]
+    diagrams = _consecutive_diagrams(rng, 40, 30, 8)
+    pairs += [(x[k], y[k]) for x, y in zip(diagrams[:-1], diagrams[1:]) for k in (0, 1)]
+    for a, b in pairs:
+        plain = bottleneck_distance(a, b, method="persim")
+        assert bottleneck_distance(a, b) == pytest.approx(plain, rel=REL, abs=1e-15)
+        assert bottleneck_distance(b, a) == pytest.approx(plain, rel=REL, abs=1e-15)
+
+
+def test_sorted_h0_bottleneck_check_is_sound(rng: np.random.Generator) -> None:
+    accepted = 0
+    for _ in range(300):
+        n = int(rng.integers(1, 8))
+        da = np.sort(rng.uniform(0.2, 1.5, n))
+        db = np.sort(np.clip(da + rng.normal(0.0, rng.choice([0.01, 0.5]), n), 1e-3, None))
+        if sorted_bottleneck_is_optimal(da, db):
+            accepted += 1
+            assert float(np.max(np.abs(da - db))) == pytest.approx(persim_bottleneck(_h0(da), _h0(db)), rel=REL)
+    assert accepted > 50
+
+
+def test_certificate_rejects_a_wrong_gudhi_value_and_persim_decides() -> None:
+    """An H0 input on which gudhi 3.13's bottleneck_distance returns a too large value.
+
+    Found by a random search here; the exact value is 0.53296614, reached by matching the
+    largest deaths (1.30570901 - 0.77274287) and sending the other points to the diagonal
+    (worked by hand: the next deaths 1.06516128 and 1.05283394 can only go to the diagonal at
+    0.5326 and 0.5264, or to 0.77274287 which is taken). persim agrees.
+    """
+    a = _h0(np.array([0.29227411, 0.32884407, 0.35055734, 0.77274287]))
+    b = _h0(np.array([0.92292489, 1.05283394, 1.06516128, 1.30570901]))
+    exact = persim_bottleneck(a, b)
+    assert exact == pytest.approx(1.30570901 - 0.77274287, abs=1e-12)
+    assert bottleneck_distance(a, b) == pytest.approx(exact, rel=REL)
+    assert certified_bottleneck(a, b, exact) == pytest.approx(exact, rel=REL)
+    claimed = gudhi_bottleneck(a, b)
+    if claimed != pytest.approx(exact, rel=1e-9):
+        assert certified_bottleneck(a, b, claimed) is None
+
+
+def test_certificate_accepts_only_the_exact_value(rng: np.random.Generator) -> None:
+    for n, m in [(3, 4), (20, 25), (60, 60)]:
+        a, b = _general(rng, n), _general(rng, m)
+        exact = persim_bottleneck(a, b)
+        assert certified_bottleneck(a, b, exact) == pytest.approx(exact, rel=REL)
+        # any other candidate value (a pair cost or a diagonal cost) is refused
+        cross = np.maximum(np.abs(a[:, None, 0] - b[None, :, 0]), np.abs(a[:, None, 1] - b[None, :, 1]))
+        others = np.unique(cross)
+        for wrong in (others[others < exact - 1e-9][-1:], others[others > exact + 1e-9][:1]):
+            for value in wrong:
+                assert certified_bottleneck(a, b, float(value)) is None
