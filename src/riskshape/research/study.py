@@ -45,10 +45,11 @@ from riskshape.alerts.model import Firing
 from riskshape.alerts.rules import evaluate_rule
 from riskshape.baselines import TRADING_DAYS_PER_YEAR
 from riskshape.config import RuleConfig
-from riskshape.errors import ConfigError, DataError
+from riskshape.errors import ConfigError
 from riskshape.research.events import DrawdownEvents
+from riskshape.research.labels import event_labels, event_positions, positions
 
-__all__ = ["EventStudy", "event_labels", "event_study", "study_table", "default_rule", "ALERT_OUTCOMES"]
+__all__ = ["EventStudy", "event_labels", "event_study", "study_table", "default_rule", "ALERT_OUTCOMES"]  # event_labels: from labels
 
 ALERT_OUTCOMES: tuple[str, ...] = ("true", "false", "in_event", "unknown")
 Alerts = RuleConfig | Sequence[Firing] | pd.DatetimeIndex | None
@@ -178,67 +179,6 @@ def _ratio(num: float, den: float) -> float:
     return float(num) / float(den) if den else float("nan")
 
 
-def _positions(index: pd.DatetimeIndex, calendar: pd.DatetimeIndex, what: str) -> np.ndarray:
-    pos = calendar.get_indexer(index)
-    if (pos < 0).any():
-        bad = index[pos < 0][0]
-        raise DataError(
-            f"{what}: date {bad.date()} is not a trading day of the events' calendar "
-            f"({calendar[0].date()} .. {calendar[-1].date()}); build the events from the same prices"
-        )
-    return pos
-
-
-def _event_positions(events: DrawdownEvents) -> tuple[np.ndarray, np.ndarray]:
-    cal = events.calendar
-    starts = _positions(pd.DatetimeIndex(events.table["start"]), cal, "event start")
-    troughs = _positions(pd.DatetimeIndex(events.table["trough"]), cal, "event trough")
-    return starts, troughs
-
-
-def event_labels(
-    index: pd.DatetimeIndex,
-    events: DrawdownEvents,
-    horizon: int,
-    *,
-    exclude_in_event: bool = True,
-    post_event_days: int = 0,
-) -> pd.Series:
-    """Label of each window end: 1.0 when an event starts within the next ``horizon`` days.
-
-    Parameters
-    ----------
-    index : pandas.DatetimeIndex
-        Window ends (days of ``events.calendar``).
-    events : DrawdownEvents
-    horizon : int
-        ``H``, trading days (>= 1).
-    exclude_in_event : bool
-        Leave out (NaN) the window ends from an event's start to its trough.
-    post_event_days : int
-        With ``exclude_in_event``, also leave out this many trading days after each trough.
-
-    Returns
-    -------
-    pandas.Series
-        1.0, 0.0 or NaN (unknown or left out), indexed like ``index``, named ``label``.
-    """
-    if horizon < 1:
-        raise ConfigError(f"horizon must be at least 1 trading day, got {horizon}")
-    cal = events.calendar
-    pos = _positions(pd.DatetimeIndex(index), cal, "signal")
-    starts, troughs = _event_positions(events)
-    ahead = starts[None, :] - pos[:, None]
-    positive = ((ahead > 0) & (ahead <= horizon)).any(axis=1)
-    labels = np.where(positive, 1.0, 0.0)
-    labels[~positive & (pos + horizon > len(cal) - 1)] = np.nan
-    if exclude_in_event:
-        ends = troughs + post_event_days
-        inside = ((pos[:, None] >= starts[None, :]) & (pos[:, None] <= ends[None, :])).any(axis=1)
-        labels[inside] = np.nan
-    return pd.Series(labels, index=index, name="label")
-
-
 def default_rule(summary: str, direction: Literal["above", "below"] = "above") -> RuleConfig:
     """The rule :func:`study_table` uses when none is given: the 95 % (or 5 %) trailing quantile.
 
@@ -315,7 +255,7 @@ def event_study(
     name = str(signal.name)
     values = signal.astype(float)
     cal = events.calendar
-    pos = _positions(pd.DatetimeIndex(values.index), cal, f"signal '{name}'")
+    pos = positions(pd.DatetimeIndex(values.index), cal, f"signal '{name}'")
     labels = event_labels(
         values.index, events, horizon, exclude_in_event=exclude_in_event, post_event_days=post_event_days
     )
@@ -325,8 +265,8 @@ def event_study(
     auc = float(roc_auc_score(y, score[usable].to_numpy())) if len(np.unique(y)) == 2 else float("nan")
 
     alert_dates = _alert_dates(values, alerts, direction)
-    alert_pos = _positions(alert_dates, cal, f"alerts on '{name}'")
-    starts, troughs = _event_positions(events)
+    alert_pos = positions(alert_dates, cal, f"alerts on '{name}'")
+    starts, troughs = event_positions(events)
     outcomes = _alert_outcomes(alert_pos, starts, troughs, horizon, len(cal))
     alert_table = pd.DataFrame({"window_end": alert_dates, "outcome": outcomes})
 

@@ -33,7 +33,7 @@ from sklearn.preprocessing import StandardScaler
 
 from riskshape.errors import ConfigError
 from riskshape.research.events import drawdown_events
-from riskshape.research.study import event_labels
+from riskshape.research.labels import event_labels
 
 __all__ = ["WalkForward", "walk_forward"]
 
