@@ -115,7 +115,8 @@ def archive_run(store: Store, portfolio: str, result: MonitorResult, config: Con
     run = store.create_run(portfolio, manifest, result.prices)
     features = store.write_features(run.id, result.features)
     dims = range(config.maxdim + 1)
-    diagrams = store.write_diagrams(run.id, ((end, k, result.diagram(end, k)) for end in result.window_ends for k in dims))
+    bars = ((end, k, result.diagram(end, k)) for end in result.window_ends for k in dims)
+    diagrams = store.write_diagrams(run.id, bars)
     stamp = (raised_at or datetime.now(timezone.utc)).astimezone(timezone.utc)
     alerts = [
         Alert(portfolio=portfolio, firing=f, raised_at=stamp, config_hash=manifest.config_hash,
@@ -129,7 +130,8 @@ def _close(archived: float, recomputed: float) -> bool:
     return math.isclose(archived, recomputed, rel_tol=VALUE_RTOL, abs_tol=VALUE_ATOL)
 
 
-def _checks_for(alert: AlertRecord, config: Config, result: MonitorResult | None, failure: str | None) -> ReproduceReport:
+def _checks_for(alert: AlertRecord, config: Config, result: MonitorResult | None,
+                failure: str | None) -> ReproduceReport:
     checks: list[Check] = []
     rule = next((r for r in config.alerts.rules if r.name == alert.rule), None)
     checks.append(Check("rule in the run's configuration", rule is not None, alert.rule,
@@ -145,7 +147,8 @@ def _checks_for(alert: AlertRecord, config: Config, result: MonitorResult | None
     checks.append(Check("decision", firing is not None, "fires", "fires" if firing is not None else "does not fire"))
     exact = False
     if firing is not None:
-        for name, archived, again in (("value", alert.value, firing.value), ("threshold", alert.threshold, firing.threshold)):
+        pairs = (("value", alert.value, firing.value), ("threshold", alert.threshold, firing.threshold))
+        for name, archived, again in pairs:
             checks.append(Check(name, _close(archived, again), repr(archived), repr(again)))
         exact = firing.value == alert.value and firing.threshold == alert.threshold
         for name in ("summary", "kind", "severity"):
@@ -155,7 +158,8 @@ def _checks_for(alert: AlertRecord, config: Config, result: MonitorResult | None
     return ReproduceReport(alert.id, ok=ok, exact=ok and exact, checks=tuple(checks))
 
 
-def reproduce_alerts(store: Store, alert_ids: Sequence[int], compute: ComputeConfig | None = None) -> tuple[ReproduceReport, ...]:
+def reproduce_alerts(store: Store, alert_ids: Sequence[int],
+                     compute: ComputeConfig | None = None) -> tuple[ReproduceReport, ...]:
     """Reproduce several alerts, recomputing each run once (up to its latest alert's window).
 
     Parameters

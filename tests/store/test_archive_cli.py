@@ -89,7 +89,8 @@ def test_list_show_and_review(archive: str, capsys: pytest.CaptureFixture[str]) 
     _, out, _ = _run(capsys, "alerts", "show", "1", "--store", archive)
     assert out.splitlines()[0] == CAUTION and "escalate by @Reviewer: -looks real" in out
     assert "entry_hash" in out and "inputs_hash" in out
-    status, _, err = _run(capsys, "alerts", "review", "3", "--store", archive, "--action", "approve", "--reviewer", "Ana")
+    status, _, err = _run(capsys, "alerts", "review", "3", "--store", archive, "--action", "approve",
+                          "--reviewer", "Ana")
     assert status == 2 and "approve" in err
 
 

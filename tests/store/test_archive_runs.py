@@ -2,8 +2,6 @@
 
 from __future__ import annotations
 
-import dataclasses
-
 import numpy as np
 import pandas as pd
 import pytest
@@ -95,7 +93,8 @@ def test_reproduce_notices_a_changed_value(store: Store, computed: MonitorResult
     assert not verify_chain(store).ok
 
 
-def test_archive_refuses_a_configuration_the_result_was_not_computed_with(store: Store, computed: MonitorResult) -> None:
+def test_archive_refuses_a_configuration_the_result_was_not_computed_with(store: Store,
+                                                                         computed: MonitorResult) -> None:
     from riskshape.errors import ConfigError
 
     with pytest.raises(ConfigError, match="not the one the result was computed with"):

@@ -31,7 +31,8 @@ def _writer(url: str, run_id: int, rule: str, count: int, errors: Path, go_file:
 def _ledger(store: Store) -> dict[tuple[str, int], int]:
     """(table, id) -> seq of every archived alert and review."""
     with store.engine.connect() as connection:
-        rows = connection.execute(sa.text("SELECT 'alert', id, seq FROM alerts UNION ALL SELECT 'review', id, seq FROM reviews"))
+        rows = connection.execute(sa.text("SELECT 'alert', id, seq FROM alerts "
+                                          "UNION ALL SELECT 'review', id, seq FROM reviews"))
         return {(kind, int(i)): int(seq) for kind, i, seq in rows}
 
 

@@ -255,7 +255,8 @@ def test_a_fork_is_refused_by_unique_constraints(store: Store, run, rng: np.rand
         with pytest.raises(sa.exc.IntegrityError):
             with connection.begin():  # a second record claiming the genesis as its predecessor
                 connection.execute(sa.text("INSERT INTO ledger (seq, kind, prev_hash, entry_hash) "
-                                           "VALUES (2, 'alert', :prev, :own)"), {"prev": first.prev_hash, "own": "f" * 64})
+                                           "VALUES (2, 'alert', :prev, :own)"),
+                                   {"prev": first.prev_hash, "own": "f" * 64})
 
 
 def test_api_keys(store: Store) -> None:

@@ -137,7 +137,8 @@ def _forged(ledger: Store) -> dict[str, object]:
 def test_a_forged_record_with_a_made_up_hash_is_caught(ledger: Store) -> None:
     forged = {**_forged(ledger), "entry_hash": "ab" * 32}
     with around_triggers(ledger) as connection:  # plain INSERTs: the triggers would not stop them anyway
-        connection.execute(sa.insert(schema.ledger).values(seq=forged["seq"], kind="alert", prev_hash=forged["prev_hash"],
+        connection.execute(sa.insert(schema.ledger).values(seq=forged["seq"], kind="alert",
+                                                           prev_hash=forged["prev_hash"],
                                                            entry_hash=forged["entry_hash"]))
         connection.execute(sa.insert(schema.alerts).values(**forged))
     report = verify_chain(ledger)

@@ -72,8 +72,8 @@ def list_alerts(store_url: str, portfolio: str | None, since: str | None, until:
     with open_store(store_url) as store:
         page = store.list_alerts(portfolio=portfolio, since=since, until=until, severity=severity or None, rule=rule,
                                  reviewed=reviewed, limit=limit, offset=offset)
-        header = f"{'id':>6}  {'window_end':<10}  {'portfolio':<16}  {'rule':<24}  {'severity':<8}  {'value':>12}  {'threshold':>12}"
-        click.echo(header)
+        click.echo(f"{'id':>6}  {'window_end':<10}  {'portfolio':<16}  {'rule':<24}  {'severity':<8}  "
+                   f"{'value':>12}  {'threshold':>12}")
         for a in page.items:
             click.echo(f"{a.id:>6}  {a.window_end.isoformat():<10}  {a.portfolio[:16]:<16}  {a.rule[:24]:<24}  "
                        f"{a.severity:<8}  {a.value:>12.6g}  {a.threshold:>12.6g}")
@@ -89,13 +89,14 @@ def show(alert_id: int, store_url: str) -> None:
     click.echo(CAUTION)
     with open_store(store_url) as store:
         detail = store.get_alert(alert_id)
-    for name in ("id", "window_end") + tuple(f for f in ALERT_FIELDS if f not in ("id", "window_end")) + ("entry_hash",):
+    for name in EXPORT_COLUMNS[:-2]:
         click.echo(f"{name:<16} {_text(getattr(detail.alert, name))}")
     if not detail.reviews:
         click.echo("reviews          none")
     for review in detail.reviews:
         comment = f": {review.comment}" if review.comment else ""
-        click.echo(f"review {review.id:<9} {review.created_at.isoformat()} {review.action} by {review.reviewer}{comment}")
+        stamp = review.created_at.isoformat()
+        click.echo(f"review {review.id:<9} {stamp} {review.action} by {review.reviewer}{comment}")
 
 
 @alerts.command()

@@ -33,6 +33,7 @@ def verify(store_url: str, expect_head: str | None) -> None:
     if report.ok:
         suffix = " and matches the expected head" if expect_head else ""
         click.echo(f"ok: {report.checked} records verified{suffix}; head {report.head}")
+        click.echo(f"merkle root (RFC 6962) of the {report.checked} records: {report.merkle_root}")
         return
     click.echo(f"FAILED: first bad record: {report.first_bad}")
     click.echo(f"{report.checked} records before it verified (up to head {report.head})")

@@ -127,7 +127,8 @@ def create_run(engine: Engine, portfolio: str, manifest: RunManifest, prices: pd
             "portfolio_id": pid, "created_at": now, "config_json": config_json, "config_hash": manifest.config_hash,
             "input_hash": manifest.input_hash, "package_version": manifest.package_version, "source": manifest.source,
             "first_date": min(dates) if dates else None, "last_date": max(dates) if dates else None,
-            "n_dates": len(dates), "assets_json": json.dumps(assets), "prices_through_id": max_price_id(connection, pid),
+            "n_dates": len(dates), "assets_json": json.dumps(assets),
+            "prices_through_id": max_price_id(connection, pid),
             "prices_added": written.added, "corrections_added": written.corrections,
         }  # fmt: skip
         run_id = connection.execute(sa.insert(t.runs).values(**values)).inserted_primary_key

@@ -21,6 +21,7 @@ from sqlalchemy.engine import Connection
 from riskshape.errors import AuditError
 from riskshape.store import schema as t
 from riskshape.store.canonical import entry_hash
+from riskshape.store.merkle import merkle_root
 from riskshape.store.records import GENESIS_HASH, BadRecord, Head, VerifyReport
 
 __all__ = ["parse_head", "verify_ledger", "ledger_summary"]
@@ -41,7 +42,8 @@ def parse_head(text: str) -> tuple[int | None, str]:
     match = _HEAD.match(text.strip().lower())
     if match is None:
         raise AuditError(
-            f"expected head {text!r} is neither HASH nor COUNT:HASH (64 hex digits, as printed by 'riskshape audit head')"
+            f"expected head {text!r} is neither HASH nor COUNT:HASH "
+            "(64 hex digits, as printed by 'riskshape audit head')"
         )
     return (int(match.group(1)) if match.group(1) is not None else None), match.group(2)
 
@@ -57,7 +59,10 @@ def ledger_summary(connection: Connection) -> tuple[int, int]:
     return min(lows), max(highs)
 
 
-def _chunks(connection: Connection, low: int, high: int) -> Iterator[tuple[int, dict[int, Any], dict[int, list[tuple[str, Any]]]]]:
+Records = dict[int, list[tuple[str, Any]]]
+
+
+def _chunks(connection: Connection, low: int, high: int) -> Iterator[tuple[int, dict[int, Any], Records]]:
     for start in range(low, high + 1, CHUNK):
         stop = min(start + CHUNK - 1, high)
         entries = {int(r.seq): r for r in connection.execute(
@@ -107,35 +112,42 @@ def verify_ledger(connection: Connection, expect_head: str | None = None) -> Ver
     low, high = ledger_summary(connection)
     prev, checked = GENESIS_HASH, 0
     hashes_at: dict[int, str] = {}
+    leaves: list[bytes] = []
     for seq, entries, records in _chunks(connection, low, high):
         problem, prev = _check(seq, entries.get(seq), records.get(seq, []), prev)
         if problem is not None:
-            return VerifyReport(ok=False, checked=checked, head=Head(checked, prev), first_bad=problem)
+            return VerifyReport(ok=False, checked=checked, head=Head(checked, prev), first_bad=problem,
+                                merkle_root=merkle_root(leaves))
         checked += 1
+        leaves.append(bytes.fromhex(prev))
         if expected is not None and expected[0] is None and prev == expected[1]:
             hashes_at[seq] = prev
         elif expected is not None and expected[0] == seq:
             hashes_at[seq] = prev
     head = Head(checked, prev)
+    root = merkle_root(leaves)
     if expected is not None:
         problem = _against(expected, head, hashes_at)
         if problem is not None:
-            return VerifyReport(ok=False, checked=checked, head=head, first_bad=problem)
-    return VerifyReport(ok=True, checked=checked, head=head, first_bad=None)
+            return VerifyReport(ok=False, checked=checked, head=head, first_bad=problem, merkle_root=root)
+    return VerifyReport(ok=True, checked=checked, head=head, first_bad=None, merkle_root=root)
 
 
 def _against(expected: tuple[int | None, str], head: Head, hashes_at: dict[int, str]) -> BadRecord | None:
     count, wanted = expected
+    hashes_at = {0: GENESIS_HASH, **hashes_at}  # the empty ledger's head is the genesis hash
     if count is None:
         if wanted in hashes_at.values():
             return None
-        return BadRecord(head.count + 1, "ledger", None, f"the expected head hash {wanted} is not in the archive "
-                                                          f"({head.count} records): records cut off the tail, or another archive")
+        return BadRecord(head.count + 1, "ledger", None,
+                         f"the expected head hash {wanted} is not in the archive ({head.count} records): "
+                         "records cut off the tail, or another archive")
     if head.count < count:
-        return BadRecord(head.count + 1, "ledger", None, f"the archive holds {head.count} records but the expected head "
-                                                          f"has {count}: the last {count - head.count} record(s) are missing "
-                                                          "(tail cut)")
+        return BadRecord(head.count + 1, "ledger", None,
+                         f"the archive holds {head.count} records but the expected head has {count}: "
+                         f"the last {count - head.count} record(s) are missing (tail cut)")
     if hashes_at.get(count) != wanted:
-        return BadRecord(count, "ledger", None, f"record {count} has hash {hashes_at.get(count)}, the expected head says "
-                                                f"{wanted}: the history up to the head was rewritten")
+        return BadRecord(count, "ledger", None,
+                         f"record {count} has hash {hashes_at.get(count)}, the expected head says {wanted}: "
+                         "the history up to the head was rewritten")
     return None

@@ -306,3 +306,5 @@ class VerifyReport:
     checked: int
     head: Head
     first_bad: BadRecord | None
+    merkle_root: str
+    """RFC 6962 Merkle Tree Hash of the entry hashes of the records checked (see :mod:`riskshape.store.merkle`)."""

@@ -136,7 +136,8 @@ def write_diagrams(engine: Engine, run_id: int, diagrams: Iterable[tuple[object,
         held = {
             (r.window_end, int(r.dim)): bytes(r.bars)
             for r in connection.execute(
-                sa.select(d.c.window_end, d.c.dim, d.c.bars).where(d.c.portfolio_id == pid, d.c.config_hash == config_hash)
+                sa.select(d.c.window_end, d.c.dim, d.c.bars)
+                .where(d.c.portfolio_id == pid, d.c.config_hash == config_hash)
             )
         }
         rows = [{"portfolio_id": pid, "config_hash": config_hash, "window_end": e, "dim": k, "run_id": run_id,

@@ -10,7 +10,7 @@ from __future__ import annotations
 import functools
 from collections.abc import Callable, Iterable, Sequence
 from datetime import datetime, timezone
-from typing import Any, ParamSpec, TypeVar
+from typing import ParamSpec, TypeVar
 
 import numpy as np
 import pandas as pd
@@ -164,10 +164,12 @@ class Store:
                 if run.portfolio != portfolio:
                     raise StoreError(f"run {as_of_run} belongs to portfolio {run.portfolio!r}, not {portfolio!r}")
                 through = run.prices_through_id
-            return pricebook.read_prices(connection, pid, first, last, None if assets is None else list(assets), through)
+            columns = None if assets is None else list(assets)
+            return pricebook.read_prices(connection, pid, first, last, columns, through)
 
     @_database_errors
-    def list_corrections(self, portfolio: str, *, start: object = None, end: object = None) -> tuple[PriceCorrection, ...]:
+    def list_corrections(self, portfolio: str, *, start: object = None,
+                         end: object = None) -> tuple[PriceCorrection, ...]:
         """Every corrected price cell (revision > 0) with the price it replaced, by date and asset."""
         first = None if start is None else ledger.to_date(start, "start")
         last = None if end is None else ledger.to_date(end, "end")
