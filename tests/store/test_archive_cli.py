@@ -68,13 +68,18 @@ def test_verify_fails_naming_the_first_bad_record(archive: str, capsys: pytest.C
     assert status == 1 and "seq 5" in out and "tail cut" in out
 
 
-def test_user_errors_are_one_line_and_status_2(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+def test_user_errors_are_one_line_and_status_2(archive: str, tmp_path: Path,
+                                               capsys: pytest.CaptureFixture[str]) -> None:
     status, _, err = _run(capsys, "audit", "verify", "--store", f"sqlite:///{tmp_path / 'no' / 'x.sqlite'}")
     assert status == 2 and err.startswith("riskshape: error:") and len(err.strip().splitlines()) == 1
-    status, _, err = _run(capsys, "audit", "verify", "--store", f"sqlite:///{tmp_path / 'a.sqlite'}",
-                          "--expect-head", "12:xyz")
+    status, _, err = _run(capsys, "audit", "verify", "--store", archive, "--expect-head", "12:xyz")
     assert status == 2 and "COUNT:HASH" in err
-    status, _, err = _run(capsys, "alerts", "show", "77", "--store", f"sqlite:///{tmp_path / 'a.sqlite'}")
+    status, _, err = _run(capsys, "alerts", "list", "--store", f"sqlite:///{tmp_path / 'typo.sqlite'}")
+    assert status == 2 and "no archive at" in err and not (tmp_path / "typo.sqlite").exists()
+
+
+def test_an_unknown_alert_is_a_user_error(archive: str, capsys: pytest.CaptureFixture[str]) -> None:
+    status, _, err = _run(capsys, "alerts", "show", "77", "--store", archive)
     assert status == 2 and "alert 77 is not in the archive" in err
 
 

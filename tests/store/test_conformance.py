@@ -286,3 +286,11 @@ def test_bad_urls_are_store_errors(tmp_path) -> None:
         open_store("postgresql+psycopg2://postgres@127.0.0.1/test")
     with pytest.raises(StoreError, match="cannot be read"):
         open_store("not a url")
+
+
+def test_open_without_create_refuses_a_missing_archive(store_url: str) -> None:
+    with pytest.raises(StoreError, match="no archive at"):
+        open_store(store_url, create=False)
+    open_store(store_url).close()
+    with open_store(store_url, create=False) as existing:
+        assert existing.list_portfolios() == ()

@@ -69,7 +69,7 @@ def list_alerts(store_url: str, portfolio: str | None, since: str | None, until:
                 severity: tuple[str, ...], rule: str | None, reviewed: bool | None, limit: int, offset: int) -> None:
     """List archived alerts, oldest window first."""
     click.echo(CAUTION)
-    with open_store(store_url) as store:
+    with open_store(store_url, create=False) as store:
         page = store.list_alerts(portfolio=portfolio, since=since, until=until, severity=severity or None, rule=rule,
                                  reviewed=reviewed, limit=limit, offset=offset)
         click.echo(f"{'id':>6}  {'window_end':<10}  {'portfolio':<16}  {'rule':<24}  {'severity':<8}  "
@@ -87,7 +87,7 @@ def list_alerts(store_url: str, portfolio: str | None, since: str | None, until:
 def show(alert_id: int, store_url: str) -> None:
     """Show one alert with every archived field and its reviews."""
     click.echo(CAUTION)
-    with open_store(store_url) as store:
+    with open_store(store_url, create=False) as store:
         detail = store.get_alert(alert_id)
     for name in EXPORT_COLUMNS[:-2]:
         click.echo(f"{name:<16} {_text(getattr(detail.alert, name))}")
@@ -109,7 +109,7 @@ def show(alert_id: int, store_url: str) -> None:
 def review(alert_id: int, store_url: str, action: str, reviewer: str, comment: str) -> None:
     """Append a review of ALERT_ID (the alert itself never changes)."""
     click.echo(CAUTION)
-    with open_store(store_url) as store:
+    with open_store(store_url, create=False) as store:
         record = store.append_review(alert_id, action, reviewer, comment)
     click.echo(f"review {record.id} of alert {alert_id} recorded ({record.action}); ledger seq {record.seq}, "
                f"hash {record.entry_hash}")
@@ -130,7 +130,7 @@ def export(store_url: str, fmt: str, start: str | None, end: str | None, portfol
     CSV text cells that a spreadsheet would run as a formula are prefixed with an apostrophe;
     JSON Lines keeps every value exactly as archived.
     """
-    with open_store(store_url) as store:
+    with open_store(store_url, create=False) as store:
         page = store.list_alerts(portfolio=portfolio, since=start, until=end, limit=None)
         rows = _rows(store, page.items)
     buffer = io.StringIO()

@@ -28,7 +28,7 @@ def audit() -> None:
 def verify(store_url: str, expect_head: str | None) -> None:
     """Recompute every hash of the ledger; exit 1 naming the first record that does not match."""
     click.echo(CAUTION)
-    with open_store(store_url) as store:
+    with open_store(store_url, create=False) as store:
         report = verify_chain(store, expect_head=expect_head)
     if report.ok:
         suffix = " and matches the expected head" if expect_head else ""
@@ -45,7 +45,7 @@ def verify(store_url: str, expect_head: str | None) -> None:
 def head(store_url: str) -> None:
     """Print COUNT:HASH of the ledger's last record, to keep somewhere else for 'verify --expect-head'."""
     click.echo(CAUTION)
-    with open_store(store_url) as store:
+    with open_store(store_url, create=False) as store:
         click.echo(str(chain_head(store)))
 
 
@@ -59,7 +59,7 @@ def reproduce(alert_id: int, store_url: str, executor: str) -> None:
     from riskshape.archive import reproduce_alert  # the engine loads only for this command
 
     click.echo(CAUTION)
-    with open_store(store_url) as store:
+    with open_store(store_url, create=False) as store:
         report = reproduce_alert(store, alert_id, compute=ComputeConfig(executor=executor))
     width = max(len(c.name) for c in report.checks)
     for check in report.checks:

@@ -29,7 +29,8 @@ from sqlalchemy.exc import ArgumentError, NoSuchModuleError
 
 from riskshape.errors import StoreError
 
-__all__ = ["create_archive_engine", "write_transaction", "read_transaction", "upgrade", "schema_revision"]
+__all__ = ["create_archive_engine", "write_transaction", "read_transaction", "upgrade", "schema_revision",
+           "archive_exists"]
 
 WRITE_OPTION = "riskshape_write"
 BUSY_TIMEOUT_MS = 30_000
@@ -123,6 +124,17 @@ def read_transaction(engine: Engine) -> Iterator[Connection]:
     """A read transaction (one consistent snapshot on SQLite; statement snapshots on PostgreSQL)."""
     with engine.connect() as connection, connection.begin():
         yield connection
+
+
+def archive_exists(engine: Engine) -> bool:
+    """Whether the database already holds an archive (a SQLite file with the schema, or a PostgreSQL
+    schema with the archive's migration table), without creating anything."""
+    if engine.dialect.name == "sqlite":
+        database = engine.url.database or ""
+        if not Path(database).expanduser().is_file():
+            return False
+    with read_transaction(engine) as connection:
+        return schema_revision(connection) is not None
 
 
 def _alembic_config() -> AlembicConfig:

@@ -21,7 +21,13 @@ from riskshape.alerts.model import Alert
 from riskshape.errors import ConflictError, StoreError
 from riskshape.store import catalog, keys, ledger, pricebook, series
 from riskshape.store.chain import verify_ledger
-from riskshape.store.engine import create_archive_engine, read_transaction, upgrade, write_transaction
+from riskshape.store.engine import (
+    archive_exists,
+    create_archive_engine,
+    read_transaction,
+    upgrade,
+    write_transaction,
+)
 from riskshape.store.records import (
     AlertAppend,
     AlertDetail,
@@ -274,7 +280,7 @@ class Store:
         return keys.list_api_keys(self.engine)
 
 
-def open_store(url: str) -> Store:
+def open_store(url: str, *, create: bool = True) -> Store:
     """Open (creating or upgrading its schema) the archive at ``url``.
 
     Parameters
@@ -282,6 +288,9 @@ def open_store(url: str) -> Store:
     url : str
         ``sqlite:///path/to/archive.sqlite`` or ``postgresql+psycopg://user@host:5432/database``
         (a ``?options=-csearch_path%3Dschema`` query selects a PostgreSQL schema).
+    create : bool
+        With False, a missing archive (no SQLite file, or a database without the archive's
+        schema) is an error instead of being created: for commands that only read.
 
     Returns
     -------
@@ -295,6 +304,9 @@ def open_store(url: str) -> Store:
     engine = create_archive_engine(url)
     shown = engine.url.render_as_string(hide_password=True)
     try:
+        if not create and not archive_exists(engine):
+            engine.dispose()
+            raise StoreError(f"no archive at {shown}; check the URL (an archive is created by writing a run into it)")
         revision = upgrade(engine)
     except sa.exc.SQLAlchemyError as err:
         engine.dispose()
