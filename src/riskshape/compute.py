@@ -1,9 +1,14 @@
 """Executors: where batches of windows are computed. Every executor gives the same results.
 
 * ``serial``: in this process;
-* ``process``: a local process pool, one process per core by default, BLAS pinned to one thread
-  in each worker (two BLAS threads per process were seen to stall small products);
-* ``dask``: an existing Dask distributed cluster, given by its scheduler address.
+* ``process``: a local process pool, one process per core available to this process by default,
+  BLAS pinned to one thread in each worker (two BLAS threads per process were seen to stall
+  small products). Workers are forked where that is safe, after the parent has imported the
+  libraries the work needs (``preload``), so no worker pays for importing them again: those
+  imports (giotto-ph and POT pull in scikit-learn) take about a second each, as long as a
+  small run itself; with another start method the same preload runs in each worker instead;
+* ``dask``: an existing Dask distributed cluster, given by its scheduler address; each worker
+  process pins its BLAS to one thread on its first job.
 """
 
 from __future__ import annotations
@@ -18,7 +23,7 @@ from typing import Any, Protocol, TypeVar
 from riskshape.config import ComputeConfig
 from riskshape.errors import ConfigError
 
-__all__ = ["Executor", "SerialExecutor", "ProcessExecutor", "DaskExecutor", "make_executor"]
+__all__ = ["Executor", "SerialExecutor", "ProcessExecutor", "DaskExecutor", "make_executor", "available_cores"]
 
 T = TypeVar("T")
 
@@ -52,6 +57,19 @@ def _pin_blas() -> None:
     threadpool_limits(1)
 
 
+def _start_worker(preload: Callable[[], None] | None) -> None:
+    _pin_blas()
+    if preload is not None:
+        preload()
+
+
+def available_cores() -> int:
+    """Cores this process may run on (its CPU affinity where the OS tells it, else the CPU count)."""
+    if hasattr(os, "sched_getaffinity"):
+        return max(1, len(os.sched_getaffinity(0)))
+    return os.cpu_count() or 1
+
+
 def _start_method() -> str:
     """``fork`` where it is safe and available (fast start), else ``forkserver`` or ``spawn``."""
     methods = multiprocessing.get_all_start_methods()
@@ -61,16 +79,34 @@ def _start_method() -> str:
 
 
 class ProcessExecutor:
-    """A local process pool, BLAS pinned to one thread per worker."""
+    """A local process pool, BLAS pinned to one thread per worker.
 
-    def __init__(self, workers: int = 0) -> None:
-        self.workers = workers or os.cpu_count() or 1
+    Parameters
+    ----------
+    workers : int
+        Processes; 0 means one per available core.
+    preload : callable, optional
+        Imports the work needs, run before the workers start (see the module notes); must be
+        picklable (a module-level function or a ``functools.partial`` of one).
+    """
+
+    def __init__(self, workers: int = 0, preload: Callable[[], None] | None = None) -> None:
+        self.workers = workers or available_cores()
+        self.preload = preload
         self._pool: ProcessPoolExecutor | None = None
 
     def map(self, fn: Callable[..., T], jobs: Sequence[tuple[Any, ...]]) -> Iterator[T]:
         if self._pool is None:
-            context = multiprocessing.get_context(_start_method())
-            self._pool = ProcessPoolExecutor(self.workers, mp_context=context, initializer=_pin_blas)
+            method = _start_method()
+            if method == "fork" and self.preload is not None:
+                self.preload()  # the forked workers inherit the imported modules
+            worker_preload = None if method == "fork" else self.preload
+            self._pool = ProcessPoolExecutor(
+                self.workers,
+                mp_context=multiprocessing.get_context(method),
+                initializer=_start_worker,
+                initargs=(worker_preload,),
+            )
         futures = [self._pool.submit(fn, *job) for job in jobs]
         for future in futures:
             yield future.result()
@@ -100,7 +136,7 @@ class DaskExecutor:
         self.client = client
 
     def map(self, fn: Callable[..., T], jobs: Sequence[tuple[Any, ...]]) -> Iterator[T]:
-        futures = [self.client.submit(fn, *job, pure=False) for job in jobs]
+        futures = [self.client.submit(_pinned_call, fn, *job, pure=False) for job in jobs]
         for future in futures:
             yield future.result()
 
@@ -109,13 +145,29 @@ class DaskExecutor:
             self.client.close()
 
 
-def make_executor(compute: ComputeConfig, n_jobs: int) -> Executor:
-    """The executor a configuration asks for; serial when there is only one job to run."""
-    if compute.executor == "serial" or (compute.executor == "process" and n_jobs <= 1):
+_PINNED = False
+
+
+def _pinned_call(fn: Callable[..., T], *args: Any) -> T:
+    """Run ``fn(*args)`` with BLAS pinned to one thread in this (worker) process."""
+    global _PINNED
+    if not _PINNED:
+        _pin_blas()
+        _PINNED = True
+    return fn(*args)
+
+
+def make_executor(compute: ComputeConfig, n_jobs: int, preload: Callable[[], None] | None = None) -> Executor:
+    """The executor a configuration asks for; serial when there is only one job to run.
+
+    ``preload`` is handed to a local process pool (see :class:`ProcessExecutor`).
+    """
+    if compute.executor == "dask":
+        return DaskExecutor(compute.scheduler)
+    workers = min(compute.workers or available_cores(), n_jobs)
+    if compute.executor == "serial" or workers <= 1:
         return SerialExecutor()
-    if compute.executor == "process":
-        return ProcessExecutor(min(compute.workers or os.cpu_count() or 1, n_jobs))
-    return DaskExecutor(compute.scheduler)
+    return ProcessExecutor(workers, preload=preload)
 
 
 def chunk(items: Sequence[T], size: int) -> Iterable[Sequence[T]]:

@@ -47,7 +47,10 @@ def correlation_to_distance(corr: np.ndarray) -> np.ndarray:
     >>> correlation_to_distance(np.array([[1.0, -1.0], [-1.0, 1.0]])).tolist()
     [[0.0, 2.0], [2.0, 0.0]]
     """
-    dist = np.sqrt(np.clip(2.0 * (1.0 - corr), 0.0, 4.0))
+    dist = 1.0 - corr
+    dist *= 2.0
+    np.clip(dist, 0.0, 4.0, out=dist)
+    np.sqrt(dist, out=dist)
     np.fill_diagonal(dist, 0.0)
     return dist
 

@@ -8,7 +8,7 @@ from __future__ import annotations
 
 from collections.abc import Callable
 from dataclasses import dataclass, field
-from functools import cached_property
+from functools import cached_property, partial
 
 import numpy as np
 import pandas as pd
@@ -20,7 +20,7 @@ from riskshape.errors import DataError
 from riskshape.prices import hash_prices, validate_prices
 from riskshape.returns import to_returns
 from riskshape.summaries import DISTANCE_NAMES, SUMMARY_NAMES, summarize_diagram
-from riskshape.window import WindowResult, WindowSettings, compute_batch
+from riskshape.window import WindowResult, WindowSettings, compute_batch, first_row_needed, preload
 from riskshape.windows import window_end_positions
 
 __all__ = ["monitor", "MonitorResult", "feature_columns"]
@@ -228,6 +228,7 @@ def settings_of(config: Config) -> WindowSettings:
         engine=config.engine,
         embedding=config.embedding,
         standardize_cloud=config.standardize_cloud,
+        step=config.step,
     )
 
 
@@ -250,11 +251,11 @@ def _compute_windows(
     for b, batch in enumerate(batches):
         lead_in = 1 if b > 0 else 0  # the window before the batch, for its diagrams
         batch_ends = all_ends[batch[0] - lead_in : batch[-1] + 1]
-        first_row = int(batch_ends[0]) - config.window + 1
+        first_row = first_row_needed(int(batch_ends[0]), settings)
         rows = values[first_row : int(batch_ends[-1]) + 1]
-        jobs.append((rows, batch_ends - first_row, settings, previous if b == 0 else None))
+        jobs.append((rows, batch_ends - first_row, settings, previous if b == 0 else None, first_row))
     own = executor is None
-    runner = executor or make_executor(config.compute, len(jobs))
+    runner = executor or make_executor(config.compute, len(jobs), preload=partial(preload, settings, values.shape[1]))
     results: list[WindowResult] = []
     try:
         for b, batch_results in enumerate(runner.map(compute_batch, jobs)):

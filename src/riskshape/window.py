@@ -1,6 +1,9 @@
 """One window, end to end: returns block -> admitted assets -> distance -> diagrams.
 
 This is the unit of work the executors ship to workers; it is pure (no I/O, no globals).
+:func:`compute_window` is the plain path for one window; :func:`compute_batch` computes
+consecutive windows and takes the correlation from running sums where that changes nothing
+beyond rounding (:mod:`riskshape.rolling`).
 """
 
 from __future__ import annotations
@@ -13,15 +16,28 @@ from scipy.spatial.distance import pdist, squareform
 
 from riskshape.distance import correlation_matrix, correlation_to_distance, mean_offdiagonal
 from riskshape.persistence import EMPTY_DIAGRAM, compute_diagrams
+from riskshape.rolling import RollingMoments, is_rebuild_point
 from riskshape.summaries import bottleneck_distance, wasserstein_distance
-from riskshape.windows import select_assets
+from riskshape.windows import Selection, select_assets
 
-__all__ = ["WindowSettings", "WindowResult", "compute_window", "compute_batch", "diagram_distances"]
+__all__ = [
+    "WindowSettings",
+    "WindowResult",
+    "compute_window",
+    "compute_batch",
+    "diagram_distances",
+    "first_row_needed",
+    "preload",
+]
 
 
 @dataclass(frozen=True)
 class WindowSettings:
-    """The part of :class:`riskshape.Config` a worker needs (small, picklable)."""
+    """The part of :class:`riskshape.Config` a worker needs (small, picklable).
+
+    ``rolling`` (not a configuration key: it never changes a result beyond rounding) lets
+    :func:`compute_batch` take correlations from running sums; ``False`` forces the plain path.
+    """
 
     window: int
     min_coverage: float
@@ -31,13 +47,18 @@ class WindowSettings:
     engine: Literal["auto", "ripser", "giotto"]
     embedding: Literal["correlation", "point_cloud"]
     standardize_cloud: bool
+    step: int = 1
+    rolling: bool = True
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, init=False)
 class WindowResult:
     """What one window gives.
 
-    Attributes
+    Diagrams are stored compactly, all dimensions in one float32 array (lossless: their values
+    are float32 rounded already; a diagram that is not is kept in float64).
+
+    Parameters
     ----------
     used : numpy.ndarray
         Column positions of the admitted assets.
@@ -55,12 +76,48 @@ class WindowResult:
     used: np.ndarray
     left_out: tuple[tuple[int, str], ...]
     mean_correlation: float
-    diagrams: tuple[np.ndarray, ...]
+    bars: np.ndarray
+    sizes: tuple[int, ...]
     distances: np.ndarray
+
+    def __init__(
+        self,
+        used: np.ndarray,
+        left_out: tuple[tuple[int, str], ...],
+        mean_correlation: float,
+        diagrams: tuple[np.ndarray, ...],
+        distances: np.ndarray,
+    ) -> None:
+        bars = np.concatenate([np.asarray(d, dtype=float).reshape(-1, 2) for d in diagrams]) if diagrams else EMPTY_DIAGRAM
+        compact = bars.astype(np.float32)
+        if np.array_equal(compact, bars):
+            bars = compact
+        for name, value in (
+            ("used", used),
+            ("left_out", left_out),
+            ("mean_correlation", mean_correlation),
+            ("bars", bars),
+            ("sizes", tuple(len(d) for d in diagrams)),
+            ("distances", distances),
+        ):
+            object.__setattr__(self, name, value)
+
+    @property
+    def diagrams(self) -> tuple[np.ndarray, ...]:
+        """H0..Hmaxdim finite bars, each an (n, 2) float64 array."""
+        bounds = np.cumsum((0,) + self.sizes)
+        return tuple(self.bars[lo:hi].astype(float) for lo, hi in zip(bounds[:-1], bounds[1:]))
+
+    def with_distances(self, distances: np.ndarray) -> "WindowResult":
+        """A copy with ``distances`` set."""
+        copy = object.__new__(WindowResult)
+        copy.__dict__.update(self.__dict__)
+        object.__setattr__(copy, "distances", distances)
+        return copy
 
 
 def compute_window(block: np.ndarray, settings: WindowSettings) -> WindowResult:
-    """Diagrams and correlation level of one window of returns.
+    """Diagrams and correlation level of one window of returns (the plain path).
 
     Parameters
     ----------
@@ -73,13 +130,17 @@ def compute_window(block: np.ndarray, settings: WindowSettings) -> WindowResult:
     WindowResult
         With ``distances`` all NaN (see :func:`compute_batch`).
     """
-    selection = select_assets(block, settings.min_coverage)
-    n_used = len(selection.used)
+    return _from_selection(select_assets(block, settings.min_coverage), settings, None)
+
+
+def _from_selection(selection: Selection, settings: WindowSettings, corr: np.ndarray | None) -> WindowResult:
+    """A window's result from its admitted assets; ``corr`` is their correlation if known already."""
     nan_distances = np.full((settings.maxdim + 1, 2), np.nan)
-    if n_used < 2:
+    if len(selection.used) < 2:
         empty = tuple(EMPTY_DIAGRAM for _ in range(settings.maxdim + 1))
         return WindowResult(selection.used, selection.left_out, float("nan"), empty, nan_distances)
-    corr = correlation_matrix(selection.block, settings.correlation)
+    if corr is None:
+        corr = correlation_matrix(selection.block, settings.correlation)
     if settings.embedding == "point_cloud":
         points = selection.block
         if settings.standardize_cloud:
@@ -103,35 +164,130 @@ def compute_batch(
     ends: np.ndarray,
     settings: WindowSettings,
     previous: tuple[np.ndarray, ...] | None = None,
+    row_offset: int = 0,
 ) -> list[WindowResult]:
     """Compute consecutive windows over a slice of the returns table.
 
     Parameters
     ----------
     rows : numpy.ndarray
-        Returns rows covering every window of the batch (row 0 = first row of the first window).
+        Returns rows covering every window of the batch (row 0 = first row of the first window,
+        or earlier).
     ends : numpy.ndarray
         Window end positions relative to ``rows``, ascending.
     settings : WindowSettings
     previous : tuple of numpy.ndarray, optional
         Diagrams of the window before the batch, if any (for the first distance).
+    row_offset : int
+        Position of ``rows[0]`` in the returns table. With ``settings.rolling`` the running sums
+        are rebuilt at fixed positions of that table (:mod:`riskshape.rolling`), so results do
+        not depend on how windows are split into batches provided ``rows`` reaches back to the
+        last rebuild point (as :func:`riskshape.monitor.monitor` arranges).
 
     Returns
     -------
     list of WindowResult
         One per end, with distances to the previous window filled in.
     """
+    # one memory layout whatever the caller passes (a view of a Fortran-ordered table, or the
+    # C-ordered copy a worker unpickles), so the floating-point reductions run in one order
+    rows = np.ascontiguousarray(rows, dtype=float)
+    rolling = _Rolling(rows, settings, row_offset) if _rolling_applies(settings) else None
     results: list[WindowResult] = []
+    last_used: np.ndarray | None = None
     for end in ends:
-        result = compute_window(rows[end - settings.window + 1 : end + 1], settings)
+        end = int(end)
+        block = rows[end - settings.window + 1 : end + 1]
+        selection = select_assets(block, settings.min_coverage)
+        if last_used is not None and np.array_equal(selection.used, last_used):
+            # share one array between windows with the same assets (pickled once per batch)
+            selection = Selection(last_used, selection.block, selection.left_out)
+        last_used = selection.used
+        corr = rolling.correlation(end, selection.used) if rolling is not None else None
+        result = _from_selection(selection, settings, corr)
         if previous is not None:
-            result = WindowResult(
-                result.used,
-                result.left_out,
-                result.mean_correlation,
-                result.diagrams,
-                diagram_distances(previous, result.diagrams, settings.order_p),
-            )
+            result = result.with_distances(diagram_distances(previous, result.diagrams, settings.order_p))
         results.append(result)
         previous = result.diagrams
     return results
+
+
+def first_row_needed(end: int, settings: WindowSettings) -> int:
+    """First returns row :func:`compute_batch` needs for a batch whose first window ends at row ``end``.
+
+    The window's first row, or with running sums the first row of the rebuild point before it
+    (:func:`riskshape.rolling.is_rebuild_point`), whichever is earlier.
+    """
+    start = end - settings.window + 1
+    if not _rolling_applies(settings) or (end - (settings.window - 1)) % settings.step:
+        return start
+    index = (end - (settings.window - 1)) // settings.step
+    while not is_rebuild_point(index):
+        index -= 1
+    return min(start, index * settings.step)
+
+
+def preload(settings: WindowSettings, n_assets: int) -> None:
+    """Import the libraries the windows of these settings will need (before forking workers).
+
+    giotto-ph where it is the engine; gudhi and POT (optimal transport) when H1 diagrams are
+    expected to be large enough for the transport solver (more than about 60 assets).
+    """
+    from riskshape.persistence import resolve_engine
+
+    if settings.maxdim >= 1 and resolve_engine(settings.engine) == "giotto":
+        import gph  # noqa: F401
+    if settings.maxdim >= 1:
+        import gudhi  # noqa: F401
+    if settings.maxdim >= 1 and n_assets > 60:
+        import gudhi.wasserstein  # noqa: F401
+
+
+def _rolling_applies(settings: WindowSettings) -> bool:
+    """Running sums pay when a slide changes few rows and the estimator is Pearson's."""
+    return settings.rolling and settings.correlation == "pearson" and 2 * settings.step < settings.window
+
+
+class _Rolling:
+    """Running sums for the windows of one batch, rebuilt at fixed positions of the returns table."""
+
+    def __init__(self, rows: np.ndarray, settings: WindowSettings, row_offset: int) -> None:
+        self.rows = rows
+        self.window = settings.window
+        self.step = settings.step
+        self.offset = row_offset
+        self.moments: RollingMoments | None = None
+        self.end = -1  # relative end of the window the moments describe
+
+    def _index(self, end: int) -> int:
+        return (end + self.offset - (self.window - 1)) // self.step
+
+    def _rebuild_end(self, end: int) -> int:
+        """Relative end of the rebuild point at or before the window ending at ``end``."""
+        index = self._index(end)
+        while not is_rebuild_point(index):
+            index -= 1
+        return index * self.step + self.window - 1 - self.offset
+
+    def correlation(self, end: int, used: np.ndarray) -> np.ndarray | None:
+        """Correlation of ``used`` in the window ending at ``end`` from running sums, or None.
+
+        None when the window is off the step grid, when the rebuild point lies before ``rows``,
+        or when an admitted asset misses a return there (the coverage policy imputed it).
+        """
+        if (end + self.offset - (self.window - 1)) % self.step:
+            return None
+        rebuild = self._rebuild_end(end)
+        if rebuild - self.window + 1 < 0:
+            self.moments = None
+            return None
+        if self.moments is None or not rebuild <= self.end <= end:
+            self.moments = RollingMoments(self.rows[rebuild - self.window + 1 : rebuild + 1])
+            self.end = rebuild
+        while self.end < end:
+            first = self.end - self.window + 1
+            self.moments.slide(self.rows[first : first + self.step], self.rows[self.end + 1 : self.end + 1 + self.step])
+            self.end += self.step
+        if not self.moments.complete(used):
+            return None
+        return self.moments.correlation(used)

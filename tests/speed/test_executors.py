@@ -1,0 +1,112 @@
+"""Every executor gives the serial result, bit for bit.
+
+The local process pool (forked workers, BLAS pinned, giotto-ph with one thread) and a Dask
+cluster (a LocalCluster of worker processes, reached by its scheduler address through the
+configuration and through ``riskshape run --executor dask --scheduler``) only change where
+windows are computed.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+import pytest
+from click.testing import CliRunner
+
+from riskshape import Config, MonitorResult, monitor
+from riskshape.cli import cli
+from riskshape.compute import ProcessExecutor, SerialExecutor, make_executor
+from riskshape.config import ComputeConfig
+
+
+def _prices(small_prices: pd.DataFrame) -> pd.DataFrame:
+    return small_prices.iloc[:140]
+
+
+def _config(**compute: object) -> Config:
+    # engine "auto": giotto-ph where installed, as by default
+    return Config(window=30, maxdim=1, compute={"batch_windows": 16, **compute})
+
+
+def _assert_same(a: MonitorResult, b: MonitorResult) -> None:
+    pd.testing.assert_frame_equal(a.features, b.features, check_exact=True)
+    pd.testing.assert_frame_equal(a.left_out, b.left_out)
+    for end in a.window_ends:
+        assert a.assets(end) == b.assets(end)
+        for dim in (0, 1):
+            np.testing.assert_array_equal(a.diagram(end, dim), b.diagram(end, dim))
+
+
+@pytest.fixture(scope="module")
+def serial(small_prices: pd.DataFrame) -> MonitorResult:
+    return monitor(_prices(small_prices), _config(executor="serial"))
+
+
+def test_process_pool_equals_serial(small_prices: pd.DataFrame, serial: MonitorResult) -> None:
+    pooled = monitor(_prices(small_prices), _config(executor="process", workers=2))
+    _assert_same(pooled, serial)
+
+
+def test_process_pool_is_the_default_and_sized_to_the_cores() -> None:
+    assert Config().compute.executor == "process"
+    executor = make_executor(ComputeConfig(), n_jobs=1000)
+    try:
+        cores = len(__import__("os").sched_getaffinity(0))
+        if cores > 1:
+            assert isinstance(executor, ProcessExecutor) and executor.workers == cores
+        else:
+            assert isinstance(executor, SerialExecutor)
+    finally:
+        executor.close()
+    # one job never starts a pool
+    assert isinstance(make_executor(ComputeConfig(), n_jobs=1), SerialExecutor)
+
+
+def _pool_blas_threads() -> int:
+    from threadpoolctl import threadpool_info
+
+    return max((pool["num_threads"] for pool in threadpool_info()), default=1)
+
+
+def test_pool_workers_run_blas_on_one_thread() -> None:
+    executor = ProcessExecutor(2)
+    try:
+        assert list(executor.map(_pool_blas_threads, [(), ()])) == [1, 1]
+    finally:
+        executor.close()
+
+
+@pytest.fixture(scope="module")
+def cluster() -> object:
+    distributed = pytest.importorskip("distributed")
+    with distributed.LocalCluster(
+        n_workers=2, threads_per_worker=1, processes=True, dashboard_address=None, silence_logs=50
+    ) as local:
+        yield local
+
+
+def test_dask_cluster_equals_serial(small_prices: pd.DataFrame, serial: MonitorResult, cluster: object) -> None:
+    address = cluster.scheduler_address  # type: ignore[attr-defined]
+    remote = monitor(_prices(small_prices), _config(executor="dask", scheduler=address))
+    _assert_same(remote, serial)
+
+
+def test_cli_run_on_a_dask_cluster_equals_serial(small_prices: pd.DataFrame, cluster: object, tmp_path: Path) -> None:
+    prices_csv = tmp_path / "prices.csv"
+    _prices(small_prices).rename_axis("date").to_csv(prices_csv)
+    config_toml = tmp_path / "config.toml"
+    config_toml.write_text("[monitor]\nwindow = 30\nmaxdim = 1\n\n[compute]\nbatch_windows = 16\n")
+    runner = CliRunner()
+    outputs = {}
+    for name, options in {
+        "serial": ["--executor", "serial"],
+        "dask": ["--executor", "dask", "--scheduler", cluster.scheduler_address],  # type: ignore[attr-defined]
+    }.items():
+        out = tmp_path / name
+        done = runner.invoke(cli, ["run", "--prices", str(prices_csv), "--config", str(config_toml), "--out", str(out), *options])
+        assert done.exit_code == 0, done.output
+        outputs[name] = out
+    features = {name: pd.read_parquet(out / "features.parquet") for name, out in outputs.items()}
+    pd.testing.assert_frame_equal(features["dask"], features["serial"], check_exact=True)
