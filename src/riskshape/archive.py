@@ -77,6 +77,10 @@ def archive_run(store: Store, portfolio: str, result: MonitorResult, config: Con
                 source: str | None = None, raised_at: datetime | None = None) -> RunReport:
     """Write a monitoring run into the archive and append the alerts its rules raise.
 
+    Idempotent: windows already archived for this configuration keep their features and diagrams
+    (features are compared and differences counted; diagrams of such windows are not even looked
+    up), alerts already archived are not added again.
+
     Parameters
     ----------
     store : Store
@@ -112,11 +116,14 @@ def archive_run(store: Store, portfolio: str, result: MonitorResult, config: Con
     store.ensure_portfolio(portfolio)
     manifest = RunManifest(config=config.to_mapping(), config_hash=config.hash(), input_hash=result.input_hash,
                            package_version=result.package_version, source=source)
+    held = set(store.window_ends(portfolio, manifest.config_hash))
     run = store.create_run(portfolio, manifest, result.prices)
     features = store.write_features(run.id, result.features)
     dims = range(config.maxdim + 1)
-    bars = ((end, k, result.diagram(end, k)) for end in result.window_ends for k in dims)
-    diagrams = store.write_diagrams(run.id, bars)
+    fresh = [end for end in result.window_ends if end.date() not in held]
+    written = store.write_diagrams(run.id, ((end, k, result.diagram(end, k)) for end in fresh for k in dims))
+    skipped = (len(result.window_ends) - len(fresh)) * len(dims)  # archived already: kept, not compared
+    diagrams = WriteCount(added=written.added, existing=written.existing + skipped, differing=written.differing)
     stamp = (raised_at or datetime.now(timezone.utc)).astimezone(timezone.utc)
     alerts = [
         Alert(portfolio=portfolio, firing=f, raised_at=stamp, config_hash=manifest.config_hash,

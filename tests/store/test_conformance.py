@@ -115,6 +115,11 @@ def test_run_manifest(store: Store, rng: np.random.Generator) -> None:
     assert (run.first_date, run.last_date, run.n_dates) == (prices.index[0].date(), prices.index[-1].date(), 12)
     assert run.assets == tuple(prices.columns)
     assert store.list_runs("Fund West") == (run,)
+    assert store.latest_run("Fund West") == run
+    later = store.create_run("Fund West", manifest(config_hash="b" * 64), prices)
+    assert store.latest_run("Fund West") == later and store.list_runs("Fund West") == (run, later)
+    store.create_portfolio("Fund Empty")
+    assert store.latest_run("Fund Empty") is None
     with pytest.raises(StoreError, match="config_hash"):
         store.create_run("Fund West", manifest(config_hash="not-a-hash"), prices)
     with pytest.raises(NotFoundError):
@@ -131,6 +136,8 @@ def test_features_idempotent_paged_and_typed(store: Store, run, rng: np.random.G
     changed = features.copy()
     changed.iloc[-1, 1] += 0.5
     assert dataclasses.astuple(store.write_features(run.id, changed)) == (0, 24, 1)  # kept as archived
+    assert store.window_ends("Fund North") == tuple(e.date() for e in ends)
+    assert store.window_ends("Fund North", config_hash="e" * 64) == ()
     whole = store.read_features("Fund North").frame
     pd.testing.assert_frame_equal(whole, features, check_freq=False)
     assert whole["n_assets"].dtype == np.int64

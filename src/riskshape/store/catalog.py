@@ -19,7 +19,7 @@ from riskshape.store.pricebook import append_prices, max_price_id, validated
 from riskshape.store.records import Portfolio, PriceWrite, Run, RunManifest
 
 __all__ = ["check_name", "portfolio_id", "create_portfolio", "ensure_portfolio", "get_portfolio", "list_portfolios",
-           "create_run", "get_run", "list_runs"]
+           "create_run", "get_run", "latest_run", "list_runs"]
 
 _HEX64 = re.compile(r"^[0-9a-f]{64}$")
 
@@ -144,6 +144,16 @@ def get_run(engine: Engine, run_id: int) -> Run:
     if row is None:
         raise NotFoundError(f"run {run_id} is not in the archive")
     return _run(row)
+
+
+def latest_run(engine: Engine, portfolio: str) -> Run | None:
+    """The portfolio's most recent run, or None if it has none (NotFoundError if no such portfolio)."""
+    with read_transaction(engine) as connection:
+        portfolio_id(connection, portfolio)
+        row = connection.execute(
+            _run_query().where(t.portfolios.c.name == portfolio).order_by(t.runs.c.id.desc()).limit(1)
+        ).first()
+    return None if row is None else _run(row)
 
 
 def list_runs(engine: Engine, portfolio: str | None = None) -> tuple[Run, ...]:

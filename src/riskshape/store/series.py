@@ -26,7 +26,7 @@ from riskshape.store.ledger import to_date
 from riskshape.store.pricebook import INDEX_UNIT
 from riskshape.store.records import Diagram, FeaturesPage, WriteCount
 
-__all__ = ["write_features", "read_features", "write_diagrams", "read_diagram", "latest_config_hash"]
+__all__ = ["write_features", "read_features", "window_ends", "write_diagrams", "read_diagram", "latest_config_hash"]
 
 BAR_DTYPE = np.dtype("<f4")
 
@@ -80,6 +80,16 @@ def write_features(engine: Engine, run_id: int, features: pd.DataFrame) -> Write
         if rows:
             connection.execute(sa.insert(f), rows)
     return WriteCount(added=len(rows), existing=len(ends) - len(rows) - differing, differing=differing)
+
+
+def window_ends(engine: Engine, portfolio: str, config_hash: str | None = None) -> tuple[date, ...]:
+    """Window ends with archived features, ascending. See :meth:`riskshape.store.Store.window_ends`."""
+    f = t.features
+    with read_transaction(engine) as connection:
+        pid = portfolio_id(connection, portfolio)
+        chosen = config_hash or latest_config_hash(connection, pid)
+        query = sa.select(f.c.window_end).where(f.c.portfolio_id == pid, f.c.config_hash == chosen)
+        return tuple(connection.execute(query.order_by(f.c.window_end)).scalars())
 
 
 def read_features(engine: Engine, portfolio: str, *, start: object = None, end: object = None,

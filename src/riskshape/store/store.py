@@ -9,7 +9,7 @@ from __future__ import annotations
 
 import functools
 from collections.abc import Callable, Iterable, Sequence
-from datetime import datetime, timezone
+from datetime import date, datetime, timezone
 from typing import ParamSpec, TypeVar
 
 import numpy as np
@@ -197,6 +197,11 @@ class Store:
         return catalog.get_run(self.engine, run_id)
 
     @_database_errors
+    def latest_run(self, portfolio: str) -> Run | None:
+        """The portfolio's most recent run, or None. Raises :class:`NotFoundError` for an unknown portfolio."""
+        return catalog.latest_run(self.engine, portfolio)
+
+    @_database_errors
     def list_runs(self, portfolio: str | None = None) -> tuple[Run, ...]:
         """Runs, oldest first (of one portfolio, or all)."""
         return catalog.list_runs(self.engine, portfolio)
@@ -206,6 +211,11 @@ class Store:
     def write_features(self, run_id: int, features: pd.DataFrame) -> WriteCount:
         """Archive ``MonitorResult.features`` for a run; idempotent by (portfolio, window_end, config_hash)."""
         return series.write_features(self.engine, run_id, features)
+
+    @_database_errors
+    def window_ends(self, portfolio: str, config_hash: str | None = None) -> tuple[date, ...]:
+        """Window ends whose features are archived (for ``config_hash``, default the latest run's), ascending."""
+        return series.window_ends(self.engine, portfolio, config_hash)
 
     @_database_errors
     def read_features(self, portfolio: str, *, start: object = None, end: object = None,
