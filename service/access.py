@@ -12,18 +12,13 @@ import json
 from dataclasses import dataclass
 from datetime import date
 
-import pandas as pd
-
 from riskshape.alerts.rules import RuleState, rule_states
 from riskshape.caution import CAUTION
 from riskshape.cli.alerts import EXPORT_COLUMNS, neutralise_cell
-from riskshape.config import Config
-from riskshape.errors import DataError
 from riskshape.store import AlertRecord, FeaturesPage, Head, Store, chain_head
-from service.ingest import portfolio_config
+from service.snapshots import Snapshots
 
-__all__ = ["LatestState", "latest_state", "series_page", "known_columns", "store_status", "export_alerts",
-           "frame_rows"]
+__all__ = ["LatestState", "latest_state", "series_page", "store_status", "export_alerts"]
 
 
 @dataclass(frozen=True)
@@ -39,7 +34,7 @@ class LatestState:
     active_alerts: tuple[AlertRecord, ...]
 
 
-def latest_state(store: Store, portfolio: str, default: Config) -> LatestState:
+def latest_state(store: Store, portfolio: str, snapshots: Snapshots) -> LatestState:
     """The latest state of ``portfolio`` (its last archived window under its latest configuration).
 
     Active alerts are the archived alerts whose rule is still active -- fired and not cleared --
@@ -50,47 +45,36 @@ def latest_state(store: Store, portfolio: str, default: Config) -> LatestState:
     NotFoundError
         If the portfolio does not exist.
     """
-    store.get_portfolio(portfolio)
-    config, run = portfolio_config(store, portfolio, default)
-    if run is None:
-        return LatestState(portfolio, None, 0, None, {}, (), ())
-    page = store.read_features(portfolio, config_hash=run.config_hash)
-    frame = page.frame
-    if frame.empty:
-        return LatestState(portfolio, run.config_hash, 0, None, {}, (), ())
-    rules = tuple(r for r in config.alerts.rules if r.summary in frame.columns)
+    snapshot = snapshots.get(store, portfolio)
+    run, frame = snapshot.run, snapshot.frame
+    if run is None or frame.empty:
+        return LatestState(portfolio, None if run is None else run.config_hash, 0, None, {}, (), ())
+    head = chain_head(store).count
+    held = snapshot.latest.get(head)
+    if isinstance(held, LatestState):
+        return held
+    rules = tuple(r for r in snapshot.config.alerts.rules if r.summary in frame.columns)
     states = rule_states(frame, rules) if rules else ()
     active: list[AlertRecord] = []
     for state in states:
         if state.active and state.active_since is not None:
-            found = store.list_alerts(portfolio=portfolio, rule=state.rule, since=state.active_since.date(),
-                                      until=state.active_since.date(), limit=None).items
+            day = state.active_since.date()
+            found = store.list_alerts(portfolio=portfolio, rule=state.rule, since=day, until=day, limit=None).items
             active.extend(a for a in found if a.config_hash == run.config_hash)
     last = frame.iloc[-1]
-    return LatestState(
-        portfolio=portfolio, config_hash=run.config_hash, n_windows=page.total,
+    made = LatestState(
+        portfolio=portfolio, config_hash=run.config_hash, n_windows=len(frame),
         window_end=frame.index[-1].date(), values={str(k): float(v) for k, v in last.items()},
         rules=states, active_alerts=tuple(active),
     )  # fmt: skip
+    snapshot.latest = {head: made}
+    return made
 
 
-def known_columns(store: Store, portfolio: str) -> list[str]:
-    """The summary columns archived for the portfolio's latest configuration (empty before its first window)."""
-    return list(store.read_features(portfolio, limit=1).frame.columns)
-
-
-def series_page(store: Store, portfolio: str, *, start: date | None, end: date | None, columns: list[str] | None,
-                limit: int, offset: int) -> FeaturesPage:
+def series_page(store: Store, portfolio: str, snapshots: Snapshots, *, start: date | None, end: date | None,
+                columns: list[str] | None, limit: int, offset: int) -> FeaturesPage:
     """A page of the summaries series; an unknown summary name is a DataError naming the known ones."""
-    store.get_portfolio(portfolio)
-    if columns:
-        known = known_columns(store, portfolio)
-        unknown = [c for c in columns if c not in known]
-        if unknown and known:
-            raise DataError(f"query 'summaries': no summary {unknown[0]!r}; archived summaries are {', '.join(known)}")
-        if unknown:
-            columns = None
-    return store.read_features(portfolio, start=start, end=end, columns=columns, limit=limit, offset=offset)
+    return snapshots.get(store, portfolio).page(start=start, end=end, columns=columns, limit=limit, offset=offset)
 
 
 def store_status(store: Store) -> Head:
@@ -132,8 +116,3 @@ def export_alerts(store: Store, fmt: str, *, since: date | None, until: date | N
         for row in rows:
             buffer.write(json.dumps(row, ensure_ascii=False, allow_nan=False) + "\n")
     return buffer.getvalue()
-
-
-def frame_rows(frame: pd.DataFrame) -> list[tuple[date, list[float]]]:
-    """The rows of a features frame as (window end, values)."""
-    return [(stamp.date(), [float(v) for v in values]) for stamp, values in zip(frame.index, frame.to_numpy(dtype=float))]

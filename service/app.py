@@ -30,6 +30,7 @@ from service.logs import LOGGER_NAME, stamp_request_ids
 from service.metrics import ServiceMetrics
 from service.middleware import CAUTION_HEADER, CAUTION_HEADER_VALUE, RequestContextMiddleware
 from service.ratelimit import RateLimiter
+from service.snapshots import Snapshots
 from service.routers import alerts, audit, diagrams, export, health, metrics, portfolios, prices, reviews, series
 from service.schemas import PricesIn
 
@@ -89,6 +90,7 @@ def create_app(settings: ServiceSettings | None = None) -> FastAPI:
     context = ServiceContext(
         settings=settings, config=config, metrics=service_metrics,
         limiter=RateLimiter(settings.rate_limit_per_minute, settings.rate_limit_burst), ingestor=Ingestor(config),
+        snapshots=Snapshots(config),
     )  # fmt: skip
 
     @asynccontextmanager

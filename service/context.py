@@ -1,5 +1,5 @@
 """What one app holds while it runs: settings, the open archive, the default configuration, the rate
-limiter, the metrics and the ingest engine. Made by ``create_app``, kept on ``app.state.context``."""
+limiter, the metrics, the ingest engine and the snapshots pollers read. Made by ``create_app``, kept on ``app.state.context``."""
 
 from __future__ import annotations
 
@@ -10,6 +10,7 @@ from riskshape.store import Store
 from service.ingest import Ingestor
 from service.metrics import ServiceMetrics
 from service.ratelimit import RateLimiter
+from service.snapshots import Snapshots
 
 __all__ = ["ServiceContext"]
 
@@ -23,5 +24,6 @@ class ServiceContext:
     metrics: ServiceMetrics
     limiter: RateLimiter
     ingestor: Ingestor
+    snapshots: Snapshots
     store: Store | None = None
     store_error: str | None = None

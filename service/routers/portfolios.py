@@ -35,7 +35,7 @@ def make_router(settings: ServiceSettings) -> APIRouter:
     @router.get("/{name}/latest", response_model=LatestOut, responses=errors(401, 403, 404, 429))
     def latest(name: PortfolioName, caller: ReaderDep, store: StoreDep, context: ContextDep) -> LatestOut:
         """The last window: its summaries, where each alert rule stands, and the alerts still active."""
-        state = access.latest_state(store, name, context.config)
+        state = access.latest_state(store, name, context.snapshots)
         return LatestOut(
             portfolio=state.portfolio, config_hash=state.config_hash, n_windows=state.n_windows,
             window_end=state.window_end, values={k: finite_or_none(v) for k, v in state.values.items()},

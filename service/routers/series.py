@@ -7,7 +7,7 @@ from fastapi import APIRouter, Query
 
 from riskshape.config import ServiceSettings
 from service import access
-from service.deps import ReaderDep, StoreDep
+from service.deps import ContextDep, ReaderDep, StoreDep
 from service.routers import API_PREFIX, MAX_ID, errors
 from service.routers.portfolios import PortfolioName
 from service.schemas import SeriesOut, SeriesRow, finite_or_none
@@ -24,6 +24,7 @@ def make_router(settings: ServiceSettings) -> APIRouter:
         name: PortfolioName,
         caller: ReaderDep,
         store: StoreDep,
+        context: ContextDep,
         start: Annotated[date | None, Query(description="first window end (inclusive)")] = None,
         end: Annotated[date | None, Query(description="last window end (inclusive)")] = None,
         summaries: Annotated[list[str] | None, Query(description="summaries to return (repeat); default all")] = None,
@@ -31,7 +32,7 @@ def make_router(settings: ServiceSettings) -> APIRouter:
         offset: Annotated[int, Query(ge=0, le=MAX_ID, description="windows to skip")] = 0,
     ) -> SeriesOut:
         """Per-window summaries under the portfolio's latest configuration, oldest window first."""
-        page = access.series_page(store, name, start=start, end=end, columns=summaries, limit=limit, offset=offset)
+        page = access.series_page(store, name, context.snapshots, start=start, end=end, columns=summaries, limit=limit, offset=offset)
         rows = [SeriesRow(window_end=stamp.date(), values=[finite_or_none(v) for v in values])
                 for stamp, values in zip(page.frame.index, page.frame.to_numpy(dtype=float))]
         following = offset + len(rows)

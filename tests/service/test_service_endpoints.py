@@ -58,6 +58,15 @@ def test_portfolios_create_list_and_conflict(client: TestClient, auth: Auth) -> 
     assert [p["name"] for p in listed["items"]] == ["beta"]
 
 
+def test_a_portfolio_without_windows_has_an_empty_series_and_state(client: TestClient, auth: Auth) -> None:
+    assert client.post("/v1/portfolios", json={"name": "empty"}, headers=auth("admin")).status_code == 201
+    page = cautioned(client.get("/v1/portfolios/empty/series", params={"start": "2031-01-01", "end": "2031-12-31"},
+                                headers=auth("reader")))
+    assert page["total"] == 0 and page["rows"] == [] and page["next_offset"] is None
+    state = cautioned(client.get("/v1/portfolios/empty/latest", headers=auth("reader")))
+    assert state["n_windows"] == 0 and state["window_end"] is None and state["active_alerts"] == []
+
+
 def test_ingest_reports_the_windows_it_computed(loaded: dict, batch) -> None:
     assert loaded["windows_added"] == len(batch.window_ends)
     assert loaded["first_window"] == str(batch.window_ends[0].date())

@@ -47,6 +47,11 @@ def test_day_by_day_equals_one_batch(client: TestClient, auth: Auth, scenario_pr
         expected_new = 1 if day >= config.window else 0  # one new window a day once the first is complete
         assert body["windows_added"] == expected_new, (day, body)
         windows_added += body["windows_added"]
+        if day % 5 == 0:  # pollers in between see every window archived so far (no stale snapshot)
+            latest = cautioned(client.get("/v1/portfolios/daily/latest", headers=auth("reader")))
+            assert latest["n_windows"] == windows_added
+            if windows_added:
+                assert latest["window_end"] == str(prices.index[day].date())
     assert windows_added == len(batch.window_ends)
 
     page, rows = _all_pages(client, auth, "/v1/portfolios/daily/series", "rows")

@@ -1,0 +1,164 @@
+"""Load benchmark of the HTTP service: concurrent pollers of the latest state and the series.
+
+Starts ``riskshape serve`` (uvicorn, one worker) on 127.0.0.1 at a free port over a fresh SQLite
+archive, ingests a fictional portfolio (riskshape.scenario), then runs N pollers (httpx async
+clients) that alternate ``GET /v1/portfolios/{name}/latest`` and ``GET .../series?limit=100``
+for a bounded time and a bounded number of requests. Prints requests/s and p50/p99 latency per
+endpoint and overall. Loopback only; nothing leaves the machine.
+
+    python benchmarks/service_load.py --pollers 8 --seconds 10
+
+riskshape is a decision aid, not investment advice; these are figures of the software, not of any market.
+"""
+
+from __future__ import annotations
+
+import argparse
+import asyncio
+import os
+import socket
+import subprocess
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+import httpx
+import numpy as np
+
+from riskshape.caution import CAUTION
+from riskshape.scenario import generate_scenario
+from riskshape.store import open_store
+
+CONFIG = """
+[monitor]
+window = {window}
+
+[compute]
+executor = "serial"
+"""
+
+
+def free_port() -> int:
+    with socket.socket(socket.AF_INET, socket.SOCK_STREAM) as sock:
+        sock.bind(("127.0.0.1", 0))
+        return int(sock.getsockname()[1])
+
+
+def start_server(folder: Path, url: str, window: int) -> tuple[subprocess.Popen[bytes], str]:
+    config = folder / "bench.toml"
+    config.write_text(CONFIG.format(window=window), encoding="utf-8")
+    port = free_port()
+    env = {**os.environ, "RISKSHAPE_RATE_LIMIT_PER_MINUTE": "100000000", "RISKSHAPE_RATE_LIMIT_BURST": "100000000",
+           "RISKSHAPE_LOG_LEVEL": "warning"}
+    command = [sys.executable, "-m", "riskshape", "serve", "--store", url, "--host", "127.0.0.1", "--port", str(port),
+               "--config", str(config)]
+    process = subprocess.Popen(command, stdout=subprocess.DEVNULL, stderr=(folder / "server.log").open("wb"), env=env)
+    base = f"http://127.0.0.1:{port}"
+    deadline = time.monotonic() + 60
+    while time.monotonic() < deadline:
+        try:
+            if httpx.get(f"{base}/v1/health", timeout=2).status_code == 200:
+                return process, base
+        except httpx.TransportError:
+            pass
+        if process.poll() is not None:
+            break
+        time.sleep(0.2)
+    process.terminate()
+    raise SystemExit(f"the server did not start; see {folder / 'server.log'}")
+
+
+async def poller(client: httpx.AsyncClient, paths: list[str], stop_at: float, budget: list[int],
+                 samples: dict[str, list[float]], errors: list[int]) -> None:
+    i = 0
+    while time.perf_counter() < stop_at and budget[0] > 0:
+        budget[0] -= 1
+        path = paths[i % len(paths)]
+        i += 1
+        started = time.perf_counter()
+        response = await client.get(path)
+        elapsed = time.perf_counter() - started
+        if response.status_code != 200:
+            errors.append(response.status_code)
+        samples[path].append(elapsed)
+
+
+async def run_load(base: str, token: str, portfolio: str, pollers: int, seconds: float, max_requests: int) -> tuple[dict, float, list]:
+    paths = [f"/v1/portfolios/{portfolio}/latest", f"/v1/portfolios/{portfolio}/series?limit=100"]
+    samples: dict[str, list[float]] = {p: [] for p in paths}
+    errors: list[int] = []
+    budget = [max_requests]
+    limits = httpx.Limits(max_connections=pollers, max_keepalive_connections=pollers)
+    async with httpx.AsyncClient(base_url=base, headers={"X-Riskshape-Key": token}, limits=limits, timeout=60) as client:
+        for path in paths:  # warm up (the first latest state reads the series once)
+            (await client.get(path)).raise_for_status()
+        started = time.perf_counter()
+        await asyncio.gather(*(poller(client, paths, started + seconds, budget, samples, errors) for _ in range(pollers)))
+        wall = time.perf_counter() - started
+    return samples, wall, errors
+
+
+def describe(name: str, values: list[float], wall: float) -> str:
+    ms = np.asarray(values) * 1000
+    return (f"{name:<44} {len(ms):>7} req  {len(ms) / wall:>8.1f} req/s  p50 {np.percentile(ms, 50):>7.2f} ms  "
+            f"p99 {np.percentile(ms, 99):>7.2f} ms")
+
+
+def main() -> None:
+    parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
+    parser.add_argument("--pollers", type=int, default=8, help="concurrent pollers (default 8)")
+    parser.add_argument("--seconds", type=float, default=10.0, help="polling time, at most (default 10)")
+    parser.add_argument("--max-requests", type=int, default=50_000, help="requests, at most (default 50000)")
+    parser.add_argument("--days", type=int, default=500, help="return days of the portfolio (default 500)")
+    parser.add_argument("--assets-per-sector", type=int, default=4, help="assets per sector, 6 sectors (default 4)")
+    parser.add_argument("--window", type=int, default=60, help="window length (default 60)")
+    args = parser.parse_args()
+    if not (1 <= args.pollers <= 256 and 0 < args.seconds <= 300 and 1 <= args.max_requests <= 1_000_000):
+        raise SystemExit("keep it bounded: 1-256 pollers, at most 300 s and 1,000,000 requests")
+
+    with tempfile.TemporaryDirectory(prefix="riskshape-load-") as tmp:
+        folder = Path(tmp)
+        url = f"sqlite:///{folder / 'archive.sqlite'}"
+        with open_store(url) as store:
+            token = store.create_api_key("load-benchmark", "admin").token
+        process, base = start_server(folder, url, args.window)
+        try:
+            prices = generate_scenario(seed=7, n_days=args.days, assets_per_sector=args.assets_per_sector).prices
+            headers = {"X-Riskshape-Key": token}
+            httpx.post(f"{base}/v1/portfolios", json={"name": "load"}, headers=headers, timeout=60).raise_for_status()
+            started = time.perf_counter()
+            ingest = httpx.post(f"{base}/v1/portfolios/load/prices", headers={**headers, "Content-Type": "text/csv"},
+                                content=prices.to_csv(index_label="date", date_format="%Y-%m-%d").encode(), timeout=600)
+            ingest.raise_for_status()
+            ingest_seconds = time.perf_counter() - started
+            windows = ingest.json()["windows_added"]
+            next_day = prices.index[-1] + np.timedelta64(1, "D")
+            last = prices.iloc[[-1]].set_axis([next_day]) * 1.001
+            started = time.perf_counter()
+            one_day = httpx.post(f"{base}/v1/portfolios/load/prices", headers={**headers, "Content-Type": "text/csv"},
+                                 content=last.to_csv(index_label="date", date_format="%Y-%m-%d").encode(), timeout=600)
+            one_day.raise_for_status()
+            day_seconds = time.perf_counter() - started
+
+            samples, wall, errors = asyncio.run(run_load(base, token, "load", args.pollers, args.seconds,
+                                                         args.max_requests))
+        finally:
+            process.terminate()
+            process.wait(timeout=30)
+
+    print(CAUTION)
+    print(f"portfolio: {prices.shape[1]} assets, {len(prices)} dates, window {args.window}: {windows} windows")
+    print(f"ingest of the whole history in one CSV body: {ingest_seconds:.2f} s; of one more day: {day_seconds:.3f} s "
+          f"({one_day.json()['windows_added']} window computed)")
+    print(f"{args.pollers} pollers for {wall:.1f} s on 127.0.0.1 (uvicorn, 1 worker, SQLite), {os.cpu_count()} CPU(s)")
+    everything = [v for values in samples.values() for v in values]
+    for path, values in samples.items():
+        print(describe("GET " + path, values, wall))
+    print(describe("all", everything, wall))
+    if errors:
+        print(f"non-200 answers: {len(errors)} ({sorted(set(errors))})")
+
+
+if __name__ == "__main__":
+    main()
