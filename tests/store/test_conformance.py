@@ -5,6 +5,7 @@ from __future__ import annotations
 import dataclasses
 import hashlib
 import json
+import sqlite3
 from datetime import timezone
 
 import numpy as np
@@ -301,3 +302,31 @@ def test_open_without_create_refuses_a_missing_archive(store_url: str) -> None:
     open_store(store_url).close()
     with open_store(store_url, create=False) as existing:
         assert existing.list_portfolios() == ()
+
+
+def test_a_write_transaction_holds_the_lock_before_reading(store: Store) -> None:
+    # While a write transaction is open (and has read nothing yet), no other writer may start.
+    from riskshape.store.engine import LOCK_KEY, write_transaction
+
+    with write_transaction(store.engine):
+        with store.engine.connect() as other:
+            if store.dialect == "sqlite":
+                raw = other.connection.driver_connection
+                raw.execute("PRAGMA busy_timeout = 0")
+                with pytest.raises(sqlite3.OperationalError, match="locked"):
+                    raw.execute("BEGIN IMMEDIATE")
+                raw.execute("PRAGMA busy_timeout = 30000")
+            else:
+                got = other.execute(sa.text("SELECT pg_try_advisory_xact_lock(:k, hashtext(current_schema()))"),
+                                    {"k": LOCK_KEY}).scalar_one()
+                other.rollback()
+                assert got is False
+    with store.engine.connect() as other:  # released at the end of the transaction
+        if store.dialect == "sqlite":
+            raw = other.connection.driver_connection
+            raw.execute("BEGIN IMMEDIATE")
+            raw.execute("ROLLBACK")
+        else:
+            assert other.execute(sa.text("SELECT pg_try_advisory_xact_lock(:k, hashtext(current_schema()))"),
+                                 {"k": LOCK_KEY}).scalar_one() is True
+            other.rollback()
