@@ -330,3 +330,9 @@ def test_a_write_transaction_holds_the_lock_before_reading(store: Store) -> None
             assert other.execute(sa.text("SELECT pg_try_advisory_xact_lock(:k, hashtext(current_schema()))"),
                                  {"k": LOCK_KEY}).scalar_one() is True
             other.rollback()
+
+
+def test_an_unreachable_database_is_one_line_store_error() -> None:
+    with pytest.raises(StoreError, match="cannot open the archive") as caught:
+        open_store("postgresql+psycopg://postgres@127.0.0.1:1/test?connect_timeout=2")
+    assert "\n" not in str(caught.value)

@@ -53,6 +53,11 @@ P = ParamSpec("P")
 R = TypeVar("R")
 
 
+def _one_line(err: BaseException) -> str:
+    """The driver's message of a database error on one line."""
+    return " ".join(str(getattr(err, "orig", None) or err).split())
+
+
 def _database_errors(method: Callable[P, R]) -> Callable[P, R]:
     """Turn SQLAlchemy errors into riskshape's StoreError / ConflictError, naming the operation."""
 
@@ -61,10 +66,9 @@ def _database_errors(method: Callable[P, R]) -> Callable[P, R]:
         try:
             return method(*args, **kwargs)
         except sa.exc.IntegrityError as err:
-            raise ConflictError(f"{method.__name__}: the archive refused the write ({err.orig})") from None
+            raise ConflictError(f"{method.__name__}: the archive refused the write ({_one_line(err)})") from None
         except sa.exc.SQLAlchemyError as err:
-            detail = getattr(err, "orig", None) or err
-            raise StoreError(f"{method.__name__}: database error ({detail})") from None
+            raise StoreError(f"{method.__name__}: database error ({_one_line(err)})") from None
 
     return wrapper
 
@@ -320,7 +324,7 @@ def open_store(url: str, *, create: bool = True) -> Store:
         revision = upgrade(engine)
     except sa.exc.SQLAlchemyError as err:
         engine.dispose()
-        raise StoreError(f"cannot open the archive {shown}: {getattr(err, 'orig', None) or err}") from None
+        raise StoreError(f"cannot open the archive {shown}: {_one_line(err)}") from None
     return Store(engine, shown, revision)
 
 
