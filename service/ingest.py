@@ -63,12 +63,8 @@ class IngestReport:
 
 
 def latest_run(store: Store, portfolio: str) -> Run | None:
-    """The portfolio's most recent run, or None.
-
-    (Reads every run of the portfolio; a ``Store.latest_run`` would read one.)
-    """
-    runs = store.list_runs(portfolio)
-    return runs[-1] if runs else None
+    """The portfolio's most recent run, or None (NotFoundError for an unknown portfolio)."""
+    return store.latest_run(portfolio)
 
 
 def portfolio_config(store: Store, portfolio: str, default: Config) -> tuple[Config, Run | None]:
@@ -201,7 +197,7 @@ class Ingestor:
                     f"{len(plan.table)} date(s) archived; the first window needs {config.window + 1}",
                 )
             expected = len(window_end_positions(n_returns, config.window, config.step))
-            archived = store.read_features(portfolio, limit=0, config_hash=config.hash()).total
+            archived = len(store.window_ends(portfolio, config.hash()))
             if not len(plan.fresh) and not plan.corrections and archived >= expected:
                 return IngestReport(portfolio, 0, 0, plan.unchanged, 0, 0, 0, None, None, (), None,
                                     "nothing new: every price was already archived with the same value")

@@ -69,7 +69,6 @@ class Snapshots:
         NotFoundError
             If the portfolio does not exist.
         """
-        store.get_portfolio(portfolio)
         run = latest_run(store, portfolio)
         with self._lock:
             held = self._held.get(portfolio)
