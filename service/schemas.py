@@ -233,6 +233,8 @@ class IngestOut(Cautioned):
     corrections: int = Field(description="price cells archived as corrections (new revisions)")
     unchanged: int = Field(description="price cells already archived with the same price")
     windows_added: int = Field(description="windows computed and archived by this request")
+    windows_differing: int = Field(description="archived windows that corrected prices would change (they keep "
+                                   "their archived values)")
     first_window: date | None
     last_window: date | None
     alerts: list[AlertOut] = Field(description="alerts raised by this request")

@@ -65,7 +65,8 @@ def _json_body(raw: bytes) -> PricesIn:
 def _ingest_out(report: IngestReport) -> IngestOut:
     return IngestOut(
         portfolio=report.portfolio, prices_added=report.prices_added, corrections=report.corrections,
-        unchanged=report.unchanged, windows_added=report.windows_added, first_window=report.first_window,
+        unchanged=report.unchanged, windows_added=report.windows_added,
+        windows_differing=report.windows_differing, first_window=report.first_window,
         last_window=report.last_window, alerts=[alert_out(a) for a in report.alerts], run_id=report.run_id,
         note=report.note,
     )  # fmt: skip

@@ -75,6 +75,33 @@ def test_ingest_reports_the_windows_it_computed(loaded: dict, batch) -> None:
     assert loaded["run_id"] is not None
 
 
+def test_a_correction_inside_the_windows_is_archived_and_used_from_then_on(
+    client: TestClient, auth: Auth, loaded: dict, batch, scenario_prices: pd.DataFrame
+) -> None:
+    prices = scenario_prices.iloc[:N_FIRST + 1].sort_index(axis=1)
+    revised = prices.copy()
+    day, asset = prices.index[30], str(prices.columns[0])
+    revised.loc[day, asset] *= 1.05
+    body = wide_rows(revised.loc[[day]])
+    refused = client.post("/v1/portfolios/alpha/prices", json=body, headers=auth("ingest"))
+    assert refused.status_code == 409 and asset in cautioned(refused)["detail"]
+    fixed = cautioned(client.post("/v1/portfolios/alpha/prices", json=body, params={"correction": True},
+                                  headers=auth("ingest")))
+    assert fixed["corrections"] == 1 and fixed["windows_added"] == 0
+    # the windows holding that day's returns (day 30 and the next, up to the window length) would change
+    assert fixed["windows_differing"] == sum(1 for end in batch.window_ends
+                                             if prices.index[30] <= end <= prices.index[min(30 + 20, N_FIRST - 1)])
+    archived = cautioned(client.get("/v1/portfolios/alpha/series", params={"start": str(day.date()), "limit": 1},
+                                    headers=auth("reader")))
+    assert archived["rows"][0]["values"][2] == batch.features.loc[day, "mean_correlation"]  # kept as archived
+    following = cautioned(client.post("/v1/portfolios/alpha/prices", json=wide_rows(revised.iloc[[N_FIRST]]),
+                                      headers=auth("ingest")))
+    assert following["windows_added"] == 1
+    expected = monitor(revised, batch.config).features.iloc[-1]  # the new window sees the corrected history
+    got = cautioned(client.get("/v1/portfolios/alpha/latest", headers=auth("reader")))["values"]
+    assert got["mean_correlation"] == expected["mean_correlation"] and got["h1_entropy"] == expected["h1_entropy"]
+
+
 def test_latest_state_is_the_last_window_of_the_batch(client: TestClient, auth: Auth, loaded: dict, batch) -> None:
     body = cautioned(client.get("/v1/portfolios/alpha/latest", headers=auth("reader")))
     last = batch.features.iloc[-1]

@@ -1,0 +1,63 @@
+"""The service over the real PostgreSQL server (127.0.0.1:5432, database 'test', a fresh schema):
+ingest, poll, review and verify, as on SQLite. Skipped with the reason when the server is unreachable."""
+
+from __future__ import annotations
+
+import uuid
+from collections.abc import Iterator
+
+import psycopg
+import pytest
+from fastapi.testclient import TestClient
+from service_kit import cautioned, csv_body, write_config
+
+from riskshape.config import ServiceSettings
+from riskshape.scenario import generate_scenario
+from riskshape.store import open_store
+from service import create_app
+
+PG_CONNINFO = "host=127.0.0.1 port=5432 user=postgres dbname=test connect_timeout=3"
+PG_URL = "postgresql+psycopg://postgres@127.0.0.1:5432/test"
+
+pytestmark = pytest.mark.postgres
+
+
+@pytest.fixture
+def pg_url() -> Iterator[str]:
+    try:
+        with psycopg.connect(PG_CONNINFO) as conn:
+            conn.execute("SELECT 1")
+    except psycopg.Error as err:
+        pytest.skip(f"PostgreSQL at 127.0.0.1:5432 (database 'test') is unreachable: {err}")
+    schema = f"rs_service_{uuid.uuid4().hex[:12]}"
+    with psycopg.connect(PG_CONNINFO, autocommit=True) as conn:
+        conn.execute(f'CREATE SCHEMA "{schema}"')
+    try:
+        yield f"{PG_URL}?options=-csearch_path%3D{schema}"
+    finally:
+        with psycopg.connect(PG_CONNINFO, autocommit=True) as conn:
+            conn.execute(f'DROP SCHEMA "{schema}" CASCADE')
+
+
+def test_ingest_poll_review_verify_on_postgresql(pg_url: str, tmp_path) -> None:
+    with open_store(pg_url) as store:
+        admin = {"X-Riskshape-Key": store.create_api_key("pg-admin", "admin").token}
+    settings = ServiceSettings(store_url=pg_url, config_path=str(write_config(tmp_path)))
+    prices = generate_scenario(seed=5, n_days=40, assets_per_sector=4).prices
+    with TestClient(create_app(settings)) as client:
+        health = cautioned(client.get("/v1/health"))
+        assert health["store"]["dialect"] == "postgresql"
+        assert client.post("/v1/portfolios", json={"name": "pg"}, headers=admin).status_code == 201
+        ingested = cautioned(client.post("/v1/portfolios/pg/prices", content=csv_body(prices),
+                                         headers={**admin, "Content-Type": "text/csv"}))
+        assert ingested["windows_added"] == len(prices) - 20 and ingested["alerts"]  # returns - window + 1
+        again = cautioned(client.post("/v1/portfolios/pg/prices", content=csv_body(prices),
+                                      headers={**admin, "Content-Type": "text/csv"}))
+        assert again["windows_added"] == 0 and again["alerts"] == []
+        latest = cautioned(client.get("/v1/portfolios/pg/latest", headers=admin))
+        assert latest["window_end"] == str(prices.index[-1].date())
+        alert_id = ingested["alerts"][0]["id"]
+        review = client.post(f"/v1/alerts/{alert_id}/reviews", json={"action": "dismiss"}, headers=admin)
+        assert review.status_code == 201 and review.json()["review"]["reviewer"] == "pg-admin"
+        verified = cautioned(client.get("/v1/audit/verify", headers=admin))
+        assert verified["ok"] and verified["checked"] == len(ingested["alerts"]) + 1
