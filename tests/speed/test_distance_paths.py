@@ -4,8 +4,8 @@ Plain paths (references no one here wrote): scipy's ``linear_sum_assignment`` on
 formulation of the Wasserstein distance (every point with its own diagonal copy: the textbook
 reduction, e.g. Edelsbrunner and Harer, Computational Topology, 2010, ch. VIII, from memory) and
 persim's exact ``bottleneck``. Fast paths: the sorted matching of H0 diagrams with its
-optimality check, POT's optimal transport through gudhi, gudhi's bottleneck with a matching
-certificate (riskshape.matching).
+optimality check, POT's optimal transport through gudhi, the bottleneck as the smallest
+threshold with a bipartite matching (riskshape.matching).
 """
 
 from __future__ import annotations
@@ -13,13 +13,13 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
+from riskshape import matching
 from riskshape.distance import correlation_matrix, correlation_to_distance
 from riskshape.matching import (
-    certified_bottleneck,
-    gudhi_bottleneck,
     persim_bottleneck,
     sorted_bottleneck_is_optimal,
     sorted_matching_is_optimal,
+    threshold_bottleneck,
 )
 from riskshape.persistence import compute_diagrams
 from riskshape.summaries import bottleneck_distance, wasserstein_distance
@@ -120,33 +120,41 @@ def test_sorted_h0_bottleneck_check_is_sound(rng: np.random.Generator) -> None:
     assert accepted > 50
 
 
-def test_certificate_rejects_a_wrong_gudhi_value_and_persim_decides() -> None:
-    """An H0 input on which gudhi 3.13's bottleneck_distance returns a too large value.
+def test_threshold_bottleneck_equals_persim(rng: np.random.Generator, monkeypatch: pytest.MonkeyPatch) -> None:
+    """Both branches: the lower bound is the answer, or the bisection over candidates runs."""
+    checks = []
+    original = matching._matching_exists
 
-    Found by a random search here; the exact value is 0.53296614, reached by matching the
-    largest deaths (1.30570901 - 0.77274287) and sending the other points to the diagonal
-    (worked by hand: the next deaths 1.06516128 and 1.05283394 can only go to the diagonal at
-    0.5326 and 0.5264, or to 0.77274287 which is taken). persim agrees.
+    def counted(*args: np.ndarray) -> bool:
+        checks.append(1)
+        return original(*args)
+
+    monkeypatch.setattr(matching, "_matching_exists", counted)
+    per_pair = []
+    for n, m in [(1, 1), (1, 6), (5, 4), (20, 25), (60, 60), (150, 140)]:
+        for _ in range(4):
+            a, b = _general(rng, n), _general(rng, m)
+            checks.clear()
+            assert threshold_bottleneck(a, b) == pytest.approx(persim_bottleneck(a, b), rel=REL, abs=1e-15)
+            per_pair.append(len(checks))
+    assert min(per_pair) == 1 and max(per_pair) > 1
+    diagrams = _consecutive_diagrams(rng, 60, 30, 6)
+    for x, y in zip(diagrams[:-1], diagrams[1:]):
+        assert threshold_bottleneck(x[1], y[1]) == pytest.approx(persim_bottleneck(x[1], y[1]), rel=REL, abs=1e-15)
+
+
+def test_an_input_where_gudhi_errs() -> None:
+    """An H0 input on which gudhi 3.13's ``bottleneck_distance`` returns a too large value.
+
+    Found by a random search here; the exact value is 1.30570901 - 0.77274287 = 0.53296614,
+    reached by matching the largest deaths and sending every other point to the diagonal
+    (worked by hand: 1.06516128 and 1.05283394 can only go to the diagonal, at 0.5326 and
+    0.5264, or to 0.77274287, which is taken). persim agrees; so must we.
     """
     a = _h0(np.array([0.29227411, 0.32884407, 0.35055734, 0.77274287]))
     b = _h0(np.array([0.92292489, 1.05283394, 1.06516128, 1.30570901]))
-    exact = persim_bottleneck(a, b)
-    assert exact == pytest.approx(1.30570901 - 0.77274287, abs=1e-12)
-    assert bottleneck_distance(a, b) == pytest.approx(exact, rel=REL)
-    assert certified_bottleneck(a, b, exact) == pytest.approx(exact, rel=REL)
-    claimed = gudhi_bottleneck(a, b)
-    if claimed != pytest.approx(exact, rel=1e-9):
-        assert certified_bottleneck(a, b, claimed) is None
-
-
-def test_certificate_accepts_only_the_exact_value(rng: np.random.Generator) -> None:
-    for n, m in [(3, 4), (20, 25), (60, 60)]:
-        a, b = _general(rng, n), _general(rng, m)
-        exact = persim_bottleneck(a, b)
-        assert certified_bottleneck(a, b, exact) == pytest.approx(exact, rel=REL)
-        # any other candidate value (a pair cost or a diagonal cost) is refused
-        cross = np.maximum(np.abs(a[:, None, 0] - b[None, :, 0]), np.abs(a[:, None, 1] - b[None, :, 1]))
-        others = np.unique(cross)
-        for wrong in (others[others < exact - 1e-9][-1:], others[others > exact + 1e-9][:1]):
-            for value in wrong:
-                assert certified_bottleneck(a, b, float(value)) is None
+    exact = 1.30570901 - 0.77274287
+    assert persim_bottleneck(a, b) == pytest.approx(exact, abs=1e-12)
+    assert bottleneck_distance(a, b) == pytest.approx(exact, abs=1e-12)
+    assert bottleneck_distance(b, a) == pytest.approx(exact, abs=1e-12)
+    assert threshold_bottleneck(a, b) == pytest.approx(exact, abs=1e-12)
