@@ -59,7 +59,7 @@ def run_demo(
     seed: int = 7,
     config: Config | None = None,
     progress: Callable[[int, int], None] | None = None,
-    archive: bool = False,
+    archive: bool = True,
 ) -> DemoReport:
     """Run the demo scenario end to end.
 
@@ -86,7 +86,7 @@ def run_demo(
     config = config or Config()
     scenario = generate_scenario(seed=seed)
     result = monitor(scenario.prices, config, progress=progress)
-    files = write_run(result, out / "run", source="riskshape.scenario.generate_scenario(seed=%d)" % seed)
+    files = write_run(result, out / "run", source=f"generate_scenario(seed={seed})")
     prices_csv = out / "prices.csv"
     scenario.prices.to_csv(prices_csv)
     firings = tuple(evaluate_rules(result.features, config.alerts.rules))
@@ -104,11 +104,8 @@ def run_demo(
         from riskshape.store import open_store
 
         store_url = f"sqlite:///{(out / 'riskshape.sqlite').resolve()}"
-        store = open_store(store_url)
-        try:
-            archive_run(store, "demo", result, config)
-        finally:
-            store.close()
+        with open_store(store_url) as store:
+            archive_run(store, "demo", result, config, source=f"generate_scenario(seed={seed})")
     return DemoReport(
         scenario=scenario,
         result=result,

@@ -6,12 +6,14 @@ from pathlib import Path
 
 import click
 
+from riskshape.archive import archive_run
 from riskshape.caution import CAUTION
 from riskshape.cli.progress import progress_bar
 from riskshape.config import Config
 from riskshape.monitor import monitor
 from riskshape.output import write_run
 from riskshape.prices import read_prices
+from riskshape.store import open_store
 
 __all__ = ["run", "load_config"]
 
@@ -30,8 +32,12 @@ def load_config(path: Path | None) -> Config:
 @click.option("--executor", type=click.Choice(["serial", "process", "dask"]), default=None,
               help="Where windows are computed (overrides [compute] executor).")
 @click.option("--scheduler", default=None, help="Dask scheduler address, with --executor dask.")
-def run(prices_path: Path, config_path: Path | None, out_dir: Path, executor: str | None, scheduler: str | None) -> None:
-    """Compute rolling persistence summaries of a price table."""
+@click.option("--store", "store_url", default=None,
+              help="Archive URL (sqlite:///FILE or postgresql+psycopg://...); default: OUT/riskshape.sqlite.")
+@click.option("--portfolio", default=None, help="Portfolio name in the archive; default: the prices file's stem.")
+def run(prices_path: Path, config_path: Path | None, out_dir: Path, executor: str | None, scheduler: str | None,
+        store_url: str | None, portfolio: str | None) -> None:
+    """Compute rolling persistence summaries of a price table, archive them and raise alerts."""
     config = load_config(config_path)
     if executor or scheduler:
         compute = config.compute.model_dump()
@@ -41,10 +47,15 @@ def run(prices_path: Path, config_path: Path | None, out_dir: Path, executor: st
     with progress_bar("windows") as tick:
         result = monitor(prices, config, progress=tick)
     files = write_run(result, out_dir, source=str(prices_path))
+    store_url = store_url or f"sqlite:///{(out_dir / 'riskshape.sqlite').resolve()}"
+    with open_store(store_url) as store:
+        archived = archive_run(store, portfolio or prices_path.stem, result, source=str(prices_path))
     click.echo(f"{len(result.window_ends)} windows of {prices.shape[1]} assets "
                f"({result.window_ends[0].date()} to {result.window_ends[-1].date()})")
     click.echo(f"features:  {files.features_csv}  ({files.features_parquet.name})")
     click.echo(f"diagrams:  {files.diagrams}")
     click.echo(f"left out:  {files.left_out}")
     click.echo(f"manifest:  {files.manifest}")
+    click.echo(f"archive:   {store_url} (portfolio '{archived.run.portfolio}', run {archived.run.id}): "
+               f"{len(archived.alerts.added)} new alert(s), {archived.alerts.existing} already archived")
     click.echo(CAUTION)
