@@ -182,3 +182,12 @@ def test_rate_limit_answers_429_with_retry_after(make_settings: Callable[..., Se
 def test_unknown_route_and_method(client: TestClient, auth: Auth) -> None:
     refused(client.get("/v1/nothing-here", headers=auth("reader")), 404, "/v1/nothing-here")
     refused(client.delete("/v1/portfolios", headers=auth("admin")), 405, "DELETE")
+
+
+def test_an_archive_that_cannot_be_opened_is_reported_not_hidden(tmp_path, keys: dict[str, str]) -> None:
+    settings = ServiceSettings(store_url=f"sqlite:///{tmp_path / 'missing-folder' / 'a.sqlite'}")
+    with TestClient(create_app(settings)) as client:
+        health = client.get("/v1/health")
+        body = cautioned(health)
+        assert health.status_code == 503 and body["status"] == "degraded" and "missing-folder" in body["store"]["detail"]
+        refused(client.get("/v1/portfolios", headers={"X-Riskshape-Key": keys["reader"]}), 503, "not open")
