@@ -22,7 +22,7 @@ import riskshape
 from riskshape import CAUTION, Config, DataQualityWarning, MonitorResult, monitor, read_prices
 from riskshape.cli import main
 
-OUTPUTS = {"features.csv", "features.parquet", "diagrams.parquet", "left_out.csv", "manifest.json"}
+OUTPUTS = {"features.csv", "features.parquet", "diagrams.parquet", "left_out.csv", "manifest.json", "riskshape.sqlite"}
 
 
 def _config_file(folder: Path, window: int = 20, extra: str = "", name: str = "riskshape.toml") -> Path:

@@ -10,6 +10,7 @@ from riskshape.archive import archive_run
 from riskshape.caution import CAUTION
 from riskshape.cli.progress import progress_bar
 from riskshape.config import Config
+from riskshape.errors import DataError
 from riskshape.monitor import monitor
 from riskshape.output import write_run
 from riskshape.prices import read_prices
@@ -44,9 +45,12 @@ def run(prices_path: Path, config_path: Path | None, out_dir: Path, executor: st
         compute.update({k: v for k, v in {"executor": executor, "scheduler": scheduler}.items() if v})
         config = config.replace(compute=compute)
     prices = read_prices(prices_path, min_rows=config.window + 1)
+    if out_dir.exists() and not out_dir.is_dir():
+        raise DataError(f"--out {out_dir}: exists and is not a folder; give a folder path")
     with progress_bar("windows") as tick:
         result = monitor(prices, config, progress=tick)
     files = write_run(result, out_dir, source=str(prices_path))
+    # the archive is written once the run folder is complete
     store_url = store_url or f"sqlite:///{(out_dir / 'riskshape.sqlite').resolve()}"
     with open_store(store_url) as store:
         archived = archive_run(store, portfolio or prices_path.stem, result, source=str(prices_path))
