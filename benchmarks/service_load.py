@@ -84,17 +84,20 @@ async def poller(client: httpx.AsyncClient, paths: list[str], stop_at: float, bu
         samples[path].append(elapsed)
 
 
-async def run_load(base: str, token: str, portfolio: str, pollers: int, seconds: float, max_requests: int) -> tuple[dict, float, list]:
+async def run_load(base: str, token: str, portfolio: str, pollers: int, seconds: float,
+                   max_requests: int) -> tuple[dict[str, list[float]], float, list[int]]:
     paths = [f"/v1/portfolios/{portfolio}/latest", f"/v1/portfolios/{portfolio}/series?limit=100"]
     samples: dict[str, list[float]] = {p: [] for p in paths}
     errors: list[int] = []
     budget = [max_requests]
     limits = httpx.Limits(max_connections=pollers, max_keepalive_connections=pollers)
-    async with httpx.AsyncClient(base_url=base, headers={"X-Riskshape-Key": token}, limits=limits, timeout=60) as client:
+    headers = {"X-Riskshape-Key": token}
+    async with httpx.AsyncClient(base_url=base, headers=headers, limits=limits, timeout=60) as client:
         for path in paths:  # warm up (the first latest state reads the series once)
             (await client.get(path)).raise_for_status()
         started = time.perf_counter()
-        await asyncio.gather(*(poller(client, paths, started + seconds, budget, samples, errors) for _ in range(pollers)))
+        stop_at = started + seconds
+        await asyncio.gather(*(poller(client, paths, stop_at, budget, samples, errors) for _ in range(pollers)))
         wall = time.perf_counter() - started
     return samples, wall, errors
 

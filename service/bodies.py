@@ -59,7 +59,9 @@ def table_from_json(body: PricesIn) -> tuple[pd.DataFrame, str]:
     for row in body.wide:
         for name in row.prices:
             if name.strip().lower() == "date":
-                raise DataError(f"{JSON_SOURCE}: an asset may not be called {name!r} (the name of the date field); rename it")
+                raise DataError(
+                    f"{JSON_SOURCE}: an asset may not be called {name!r} (the name of the date field); rename it"
+                )
             assets.setdefault(name, None)
     nan = float("nan")
     columns = {name: [nan if (v := r.prices.get(name)) is None else float(v) for r in body.wide] for name in assets}

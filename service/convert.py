@@ -29,8 +29,9 @@ def provenance_out(alert: AlertRecord) -> ProvenanceOut:
 def review_out(review: ReviewRecord) -> ReviewOut:
     """An archived review."""
     return ReviewOut(
-        id=review.id, alert_id=review.alert_id, action=review.action, reviewer=review.reviewer,  # type: ignore[arg-type]
-        comment=review.comment, created_at=review.created_at, seq=review.seq, entry_hash=review.entry_hash,
+        id=review.id, alert_id=review.alert_id, action=review.action,  # type: ignore[arg-type]
+        reviewer=review.reviewer, comment=review.comment, created_at=review.created_at, seq=review.seq,
+        entry_hash=review.entry_hash,
     )  # fmt: skip
 
 

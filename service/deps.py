@@ -65,7 +65,8 @@ def authenticate(request: Request, context: ContextDep, token: Annotated[str | N
     try:
         role = Role(key.role)
     except ValueError:
-        raise HTTPException(status_code=403, detail=f"the key's role {key.role!r} is not one this service knows") from None
+        raise HTTPException(status_code=403,
+                            detail=f"the key's role {key.role!r} is not one this service knows") from None
     caller = Caller(key_id=key.key_id, role=role, owner=key.owner)
     request.scope.setdefault("state", {})["caller"] = caller
     decision = context.limiter.take(key.key_id)

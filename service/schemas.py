@@ -85,8 +85,8 @@ class PortfolioList(Cautioned):
 
 
 class PortfolioIn(_Input):
-    name: str = Field(min_length=1, max_length=200, pattern=r"^[^\s\x00-\x1f\x7f](?:[^\x00-\x1f\x7f]*[^\s\x00-\x1f\x7f])?$",
-                      description="1 to 200 printable characters, no surrounding spaces")
+    name: str = Field(min_length=1, max_length=200, pattern=r"^[A-Za-z0-9](?:[A-Za-z0-9 ._-]{0,198}[A-Za-z0-9._-])?$",
+                      description="1 to 200 letters, digits, spaces, '.', '_' or '-'; starts with a letter or digit")
 
 
 class PortfolioCreated(Cautioned):

@@ -24,7 +24,8 @@ def make_router(settings: ServiceSettings) -> APIRouter:
     @router.get("", response_model=PortfolioList, responses=errors(401, 403, 429))
     def list_portfolios(caller: ReaderDep, store: StoreDep) -> PortfolioList:
         """Every portfolio, by name."""
-        return PortfolioList(items=[PortfolioOut(name=p.name, created_at=p.created_at) for p in store.list_portfolios()])
+        found = store.list_portfolios()
+        return PortfolioList(items=[PortfolioOut(name=p.name, created_at=p.created_at) for p in found])
 
     @router.post("", response_model=PortfolioCreated, status_code=201, responses=errors(401, 403, 409, 413, 422, 429))
     def create_portfolio(body: PortfolioIn, caller: AdminDep, store: StoreDep) -> PortfolioCreated:

@@ -32,7 +32,8 @@ def make_router(settings: ServiceSettings) -> APIRouter:
         offset: Annotated[int, Query(ge=0, le=MAX_ID, description="windows to skip")] = 0,
     ) -> SeriesOut:
         """Per-window summaries under the portfolio's latest configuration, oldest window first."""
-        page = access.series_page(store, name, context.snapshots, start=start, end=end, columns=summaries, limit=limit, offset=offset)
+        page = access.series_page(store, name, context.snapshots, start=start, end=end, columns=summaries,
+                                  limit=limit, offset=offset)
         rows = [SeriesRow(window_end=stamp.date(), values=[finite_or_none(v) for v in values])
                 for stamp, values in zip(page.frame.index, page.frame.to_numpy(dtype=float))]
         following = offset + len(rows)

@@ -15,7 +15,7 @@ from fastapi.testclient import TestClient
 from prometheus_client.parser import text_string_to_metric_families
 from service_kit import cautioned, csv_body, long_rows, wide_rows
 
-from riskshape import Config, monitor
+from riskshape import monitor
 from riskshape.archive import reproduce_alert
 from riskshape.caution import CAUTION
 from riskshape.store import open_store
