@@ -64,3 +64,27 @@ def test_day_by_day_equals_one_batch(client: TestClient, auth: Auth, scenario_pr
     got = sorted((a["rule"], a["window_end"], a["value"], a["threshold"], a["severity"]) for a in alerts)
     want = sorted((f.rule, str(f.window_end.date()), f.value, f.threshold, f.severity) for f in firings)
     assert got == want
+
+
+def test_a_portfolio_archived_elsewhere_is_continued_one_day_at_a_time(
+    client: TestClient, auth: Auth, scenario_prices: pd.DataFrame, store_url: str
+) -> None:
+    """A portfolio archived by the library directly (as ``riskshape run --store`` does), in its file's
+    asset order, then fed by the service: the service rebuilds its result once from the archive and
+    adds only the new windows, equal to a batch over all the days."""
+    from riskshape.archive import archive_run
+    from riskshape.store import open_store
+
+    config = client.app.state.context.config  # type: ignore[attr-defined]
+    prices = scenario_prices.iloc[:40]  # the scenario's own (unsorted) asset order
+    with open_store(store_url) as store:
+        archive_run(store, "elsewhere", monitor(prices.iloc[:35], config), source="a file")
+    for day in range(35, 40):
+        body = cautioned(client.post("/v1/portfolios/elsewhere/prices", json=wide_rows(prices.iloc[[day]]),
+                                     headers=auth("ingest")))
+        assert body["windows_added"] == 1 and body["prices_added"] == prices.shape[1]
+    batch = monitor(prices, config)
+    page, rows = _all_pages(client, auth, "/v1/portfolios/elsewhere/series", "rows")
+    assert [r["window_end"] for r in rows] == [str(d.date()) for d in batch.window_ends]
+    got = np.array([[np.nan if v is None else v for v in r["values"]] for r in rows], dtype=float)
+    np.testing.assert_array_equal(got, batch.features.to_numpy(dtype=float))
