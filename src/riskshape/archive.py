@@ -23,6 +23,7 @@ from riskshape.alerts.model import Alert
 from riskshape.alerts.rules import evaluate_rules, recheck_firing
 from riskshape.config import ComputeConfig, Config
 from riskshape.errors import ConfigError, RiskshapeError
+from riskshape.explain.archived import explanation_json
 from riskshape.monitor import MonitorResult, monitor
 from riskshape.prices import hash_prices
 from riskshape.store import AlertAppend, AlertRecord, Run, RunManifest, Store, WriteCount
@@ -74,7 +75,7 @@ class ReproduceReport:
 
 
 def archive_run(store: Store, portfolio: str, result: MonitorResult, config: Config | None = None, *,
-                source: str | None = None, raised_at: datetime | None = None) -> RunReport:
+                source: str | None = None, raised_at: datetime | None = None, explain: bool = True) -> RunReport:
     """Write a monitoring run into the archive and append the alerts its rules raise.
 
     Idempotent: windows already archived for this configuration keep their features and diagrams
@@ -95,6 +96,8 @@ def archive_run(store: Store, portfolio: str, result: MonitorResult, config: Con
         Where the prices came from, kept in the manifest.
     raised_at : datetime, optional
         When the alerts are raised (UTC); defaults to now.
+    explain : bool
+        Archive each new alert's explanation (:mod:`riskshape.explain`) inside its record.
 
     Returns
     -------
@@ -125,12 +128,20 @@ def archive_run(store: Store, portfolio: str, result: MonitorResult, config: Con
     skipped = (len(result.window_ends) - len(fresh)) * len(dims)  # archived already: kept, not compared
     diagrams = WriteCount(added=written.added, existing=written.existing + skipped, differing=written.differing)
     stamp = (raised_at or datetime.now(timezone.utc)).astimezone(timezone.utc)
+    archived = {(a.rule, a.window_end) for a in store.list_alerts(portfolio=portfolio, limit=None).items
+                if a.config_hash == manifest.config_hash}
+    firings = evaluate_rules(result.features, config.alerts.rules)
+    new = [f for f in firings if (f.rule, f.window_end.date()) not in archived]
     alerts = [
         Alert(portfolio=portfolio, firing=f, raised_at=stamp, config_hash=manifest.config_hash,
-              inputs_hash=result.window_inputs_hash(f.window_end), package_version=result.package_version)
-        for f in evaluate_rules(result.features, config.alerts.rules)
+              inputs_hash=result.window_inputs_hash(f.window_end), package_version=result.package_version,
+              explanation=explanation_json(result, f) if explain else None)
+        for f in new
     ]
-    return RunReport(run=run, features=features, diagrams=diagrams, alerts=store.append_alerts(alerts, run.id))
+    appended = store.append_alerts(alerts, run.id)
+    already = appended.existing + len(firings) - len(new)  # found archived before explaining them
+    return RunReport(run=run, features=features, diagrams=diagrams,
+                     alerts=AlertAppend(added=appended.added, existing=already))
 
 
 def _close(archived: float, recomputed: float) -> bool:

@@ -31,6 +31,8 @@ def ledger(store: Store, run, rng: np.random.Generator) -> Store:
 
 def _changed(value: object) -> object:
     """The value with one small change of its stored form."""
+    if value is None:  # an empty optional field (an alert without explanation) filled in later
+        return "{}"
     if isinstance(value, bool):
         return not value
     if isinstance(value, int):

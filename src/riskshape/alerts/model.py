@@ -57,6 +57,9 @@ class Alert:
         Hash of the exact returns block of the window (``MonitorResult.window_inputs_hash``).
     package_version : str
         ``riskshape.__version__`` that computed it.
+    explanation : str or None
+        Canonical JSON of the alert's explanation (:mod:`riskshape.explain`), archived inside the
+        alert's hash-chained record; None where none was made.
     """
 
     portfolio: str
@@ -65,3 +68,4 @@ class Alert:
     config_hash: str
     inputs_hash: str
     package_version: str
+    explanation: str | None = None

@@ -13,6 +13,7 @@ import click
 
 from riskshape.caution import CAUTION
 from riskshape.cli.audit import STORE_OPTION
+from riskshape.explain.archived import explanation_text
 from riskshape.store import REVIEW_ACTIONS, AlertRecord, Store, open_store
 from riskshape.store.canonical import ALERT_FIELDS
 
@@ -90,7 +91,12 @@ def show(alert_id: int, store_url: str) -> None:
     with open_store(store_url, create=False) as store:
         detail = store.get_alert(alert_id)
     for name in EXPORT_COLUMNS[:-2]:
+        if name == "explanation":
+            continue  # printed as text below
         click.echo(f"{name:<16} {_text(getattr(detail.alert, name))}")
+    click.echo("explanation")
+    for line in explanation_text(detail.alert.explanation).splitlines():
+        click.echo(f"  {line}")
     if not detail.reviews:
         click.echo("reviews          none")
     for review in detail.reviews:

@@ -124,6 +124,7 @@ def append_alerts(engine: Engine, alerts: Sequence[Alert], run_id: int) -> Alert
                 "value": float(f.value), "threshold": float(f.threshold), "severity": f.severity,
                 "raised_at": alert.raised_at.astimezone(timezone.utc), "config_hash": alert.config_hash,
                 "inputs_hash": alert.inputs_hash, "package_version": alert.package_version, "run_id": run_id,
+                "explanation": alert.explanation,
             }  # fmt: skip
             row["entry_hash"] = prev = entry_hash("alerts", row)
             rows.append(row)

@@ -189,6 +189,7 @@ class AlertRecord:
     inputs_hash: str
     package_version: str
     run_id: int
+    explanation: str | None
 
     def to_alert(self) -> Alert:
         """The :class:`riskshape.alerts.model.Alert` this record archives."""
@@ -208,6 +209,7 @@ class AlertRecord:
             config_hash=self.config_hash,
             inputs_hash=self.inputs_hash,
             package_version=self.package_version,
+            explanation=self.explanation,
         )
 
 

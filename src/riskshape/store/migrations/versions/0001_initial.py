@@ -110,6 +110,7 @@ def upgrade() -> None:
         sa.Column("inputs_hash", HASH, nullable=False),
         sa.Column("package_version", sa.String(64), nullable=False),
         sa.Column("run_id", sa.Integer, sa.ForeignKey("runs.id"), nullable=False),
+        sa.Column("explanation", sa.Text, nullable=True),
         sa.UniqueConstraint("portfolio_id", "rule", "window_end", "config_hash", name="uq_alerts_firing"),
     )
     op.create_table(
