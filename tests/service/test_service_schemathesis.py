@@ -1,4 +1,5 @@
-"""A schemathesis run over the app's own OpenAPI schema: no 5xx, no response that breaks the schema.
+"""A schemathesis run over the app's own OpenAPI schema: no 5xx, no response that breaks the schema,
+and the caution on every response (a check of our own).
 
 Bounded: a few examples per operation (hypothesis settings below), on an archive with one
 portfolio already holding windows and alerts, as an admin (every endpoint allowed).
@@ -23,13 +24,25 @@ from schemathesis.specs.openapi.checks import (
 )
 from service_kit import csv_body, write_config
 
+from riskshape.caution import CAUTION
 from riskshape.config import ServiceSettings
 from riskshape.scenario import generate_scenario
 from riskshape.store import open_store
 from service import create_app
 
+
+@schemathesis.check
+def caution_everywhere(ctx: schemathesis.CheckContext, response: schemathesis.Response, case: schemathesis.Case) -> None:
+    """Every response carries the caution header, and every JSON object body the caution field."""
+    assert response.headers.get("x-riskshape-caution") == ["not investment advice"], response.headers
+    if case.path != "/openapi.json" and "application/json" in (response.headers.get("content-type") or [""])[0]:
+        body = response.json()
+        if isinstance(body, dict):
+            assert body.get("caution") == CAUTION, body
+
+
 CHECKS = [not_a_server_error, status_code_conformance, content_type_conformance, response_schema_conformance,
-          response_headers_conformance]
+          response_headers_conformance, caution_everywhere]
 ADMIN_TOKEN: dict[str, str] = {}
 
 
