@@ -31,6 +31,7 @@ __all__ = ["RequestContextMiddleware", "CAUTION_HEADER", "CAUTION_HEADER_VALUE",
 CAUTION_HEADER = "X-Riskshape-Caution"
 CAUTION_HEADER_VALUE = "not investment advice"
 REQUEST_ID_HEADER = "X-Request-Id"
+_METHODS = frozenset({"GET", "HEAD", "POST", "PUT", "PATCH", "DELETE", "OPTIONS"})
 _GOOD_ID = re.compile(r"^[A-Za-z0-9._-]{1,64}$")
 log = logging.getLogger(LOGGER_NAME)
 
@@ -105,6 +106,7 @@ class RequestContextMiddleware:
             elapsed = time.perf_counter() - started
             route = _route_label(scope)
             method = str(scope.get("method", "-"))
+            method = method if method in _METHODS else "other"  # bounded label values
             self.metrics.requests.labels(method, route, str(status["code"])).inc()
             self.metrics.latency.labels(method, route).observe(elapsed)
             caller = scope.get("state", {}).get("caller")
