@@ -1,5 +1,8 @@
 """FastAPI dependencies as ``Annotated`` aliases: the archive, the caller's key and role, paging.
 
+The dependencies that only look things up are ``async`` (they run on the event loop, no thread
+hop); the key check reads the archive and runs in the thread pool like the endpoints.
+
 ``ReaderDep``, ``IngestDep``, ``ReviewerDep`` and ``AdminDep`` authenticate the
 ``X-Riskshape-Key`` header, check the role (401 without a valid key, 403 for the wrong role) and
 spend one token of the key's rate limit (429 with ``Retry-After`` when empty).
@@ -7,7 +10,7 @@ spend one token of the key's rate limit (429 with ``Retry-After`` when empty).
 
 from __future__ import annotations
 
-from collections.abc import Callable
+from collections.abc import Awaitable, Callable
 from typing import Annotated
 
 from fastapi import Depends, HTTPException, Request, Security
@@ -25,7 +28,7 @@ _key_header = APIKeyHeader(
 )
 
 
-def get_context(request: Request) -> ServiceContext:
+async def get_context(request: Request) -> ServiceContext:
     """The app's :class:`ServiceContext`."""
     context: ServiceContext = request.app.state.context
     return context
@@ -34,11 +37,15 @@ def get_context(request: Request) -> ServiceContext:
 ContextDep = Annotated[ServiceContext, Depends(get_context)]
 
 
-def get_store(context: ContextDep) -> Store:
-    """The open archive; 503 if it could not be opened at start-up."""
+def _open_store(context: ServiceContext) -> Store:
     if context.store is None:
         raise HTTPException(status_code=503, detail=f"the archive is not open ({context.store_error}); see /v1/health")
     return context.store
+
+
+async def get_store(context: ContextDep) -> Store:
+    """The open archive; 503 if it could not be opened at start-up."""
+    return _open_store(context)
 
 
 StoreDep = Annotated[Store, Depends(get_store)]
@@ -57,7 +64,7 @@ def authenticate(request: Request, context: ContextDep, token: Annotated[str | N
                 "send the key in the header, and revoke a key that was sent in a URL"
             )
         raise _unauthorized(f"missing API key; send it in the {KEY_HEADER} header")
-    key = get_store(context).lookup_api_key(token)
+    key = _open_store(context).lookup_api_key(token)
     if key is None:
         raise _unauthorized(f"the key in {KEY_HEADER} is not valid; check it or ask an admin for a new one")
     if key.revoked:
@@ -84,10 +91,10 @@ def authenticate(request: Request, context: ContextDep, token: Annotated[str | N
 KeyDep = Annotated[Caller, Depends(authenticate)]
 
 
-def requires(permission: Permission) -> Callable[[Caller], Caller]:
+def requires(permission: Permission) -> Callable[[Caller], Awaitable[Caller]]:
     """A dependency that lets through the callers whose role grants ``permission`` (403 otherwise)."""
 
-    def check(caller: KeyDep) -> Caller:
+    async def check(caller: KeyDep) -> Caller:
         if not may(caller.role, permission):
             allowed = ", ".join(r.value for r in Role if may(r, permission))
             raise HTTPException(
