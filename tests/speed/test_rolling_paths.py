@@ -127,3 +127,11 @@ def test_a_result_holds_diagrams_not_matrices(small_prices: pd.DataFrame) -> Non
         arrays = [v for v in vars(window).values() if isinstance(v, np.ndarray)]
         assert all(a.ndim <= 2 and a.size < n_assets * n_assets for a in arrays if a is not window.bars)
         assert window.bars.shape[1] == 2
+
+
+def test_summary_tuple_follows_the_column_names(rng: np.random.Generator) -> None:
+    from riskshape.summaries import SUMMARY_NAMES, summarize_diagram
+
+    births = rng.uniform(0.0, 1.0, 5)
+    summary = summarize_diagram(np.column_stack([births, births + rng.uniform(0.1, 0.5, 5)]))
+    assert summary.as_tuple() == tuple(getattr(summary, name) for name in SUMMARY_NAMES)

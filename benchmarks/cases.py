@@ -1,0 +1,358 @@
+"""The benchmark cases: each returns rows of measured values.
+
+Every case runs the things it compares in the same process, on the same data, one after the
+other. Wall time (``time.perf_counter``) is what a user waits; CPU time (``getrusage`` of this
+process and of its finished workers) is the work done, which other processes on a shared
+machine do not inflate: a ratio of CPU times holds when the machine is busy, a ratio of wall
+times only when it is not. Stage times (persistence, diagram distances) are CPU times from
+wrappers placed around the two functions :func:`riskshape.window.compute_batch` calls for
+them, in serial runs only.
+"""
+
+from __future__ import annotations
+
+import resource
+import statistics
+import time
+import warnings
+from collections.abc import Callable, Iterator
+from contextlib import contextmanager
+from dataclasses import dataclass, field
+from functools import partial
+from typing import Any
+
+import numpy as np
+import pandas as pd
+from threadpoolctl import threadpool_limits
+
+import riskshape.window as window_module
+from benchmarks.data import factor_prices, factor_returns
+from riskshape import Config, monitor
+from riskshape.compute import ProcessExecutor, available_cores
+from riskshape.distance import correlation_matrix, correlation_to_distance
+from riskshape.matching import assignment_wasserstein, persim_bottleneck
+from riskshape.monitor import _compute_windows, settings_of
+from riskshape.persistence import compute_diagrams
+from riskshape.returns import to_returns
+from riskshape.summaries import bottleneck_distance, wasserstein_distance
+from riskshape.window import compute_batch, preload
+from riskshape.windows import window_end_positions
+
+__all__ = ["Row", "CASES"]
+
+
+@dataclass
+class Row:
+    """One line of a section's table."""
+
+    case: str
+    values: dict[str, Any] = field(default_factory=dict)
+
+
+@dataclass
+class StageClock:
+    """CPU seconds spent in persistence and in diagram distances."""
+
+    persistence: float = 0.0
+    distances: float = 0.0
+    h1_bars: list[int] = field(default_factory=list)
+
+
+@contextmanager
+def stage_clock() -> Iterator[StageClock]:
+    """Time (CPU) the persistence and distance calls of serial work done inside the block."""
+    clock = StageClock()
+    diagrams_fn, distances_fn = window_module.compute_diagrams, window_module.diagram_distances
+
+    def timed_diagrams(*args: Any, **kwargs: Any) -> tuple[np.ndarray, ...]:
+        start = time.process_time()
+        out = diagrams_fn(*args, **kwargs)
+        clock.persistence += time.process_time() - start
+        if len(out) > 1:
+            clock.h1_bars.append(len(out[1]))
+        return out
+
+    def timed_distances(*args: Any, **kwargs: Any) -> np.ndarray:
+        start = time.process_time()
+        out = distances_fn(*args, **kwargs)
+        clock.distances += time.process_time() - start
+        return out
+
+    window_module.compute_diagrams, window_module.diagram_distances = timed_diagrams, timed_distances
+    try:
+        yield clock
+    finally:
+        window_module.compute_diagrams, window_module.diagram_distances = diagrams_fn, distances_fn
+
+
+@dataclass
+class Span:
+    """Wall and CPU seconds of a block; CPU counts this process and its finished children."""
+
+    wall: float = 0.0
+    cpu: float = 0.0
+
+
+@contextmanager
+def span() -> Iterator[Span]:
+    """Measure the wall and CPU time of the block."""
+    out = Span()
+    wall, cpu = time.perf_counter(), _cpu_seconds()
+    try:
+        yield out
+    finally:
+        out.wall, out.cpu = time.perf_counter() - wall, _cpu_seconds() - cpu
+
+
+def _serial(config: Config) -> Config:
+    return config.replace(compute={"executor": "serial"})
+
+
+def _warm_up() -> None:
+    """Import every library once (imports would otherwise land in the first timing)."""
+    settings = settings_of(Config(window=20, maxdim=1))
+    preload(settings, 100)
+    returns = factor_returns(25, 80, seed=99)
+    compute_batch(returns, np.arange(19, 25), settings)
+
+
+def per_window_cost(quick: bool) -> list[Row]:
+    """Serial CPU cost of one window against the number of assets and the window length (H0 and H1).
+
+    CPU time (``time.process_time``), not wall time, so that other processes on the machine do
+    not inflate it; BLAS pinned to one thread, as in the workers.
+    """
+    _warm_up()
+    counts = {20: 40, 50: 30, 100: 20, 200: 10, 500: 5, 1000: 3}
+    grid = [(n, w) for n in counts for w in (60, 250)] + [(100, w) for w in (20, 120, 500)]
+    rows = []
+    for n_assets, window in sorted(grid, key=lambda c: (c[1] != 60 and c[1] != 250, c[0], c[1])):
+        count = max(2, counts[n_assets] // (3 if quick else 1))
+        returns = factor_returns(window + count, n_assets, seed=n_assets + window)
+        settings = settings_of(Config(window=window, maxdim=1))
+        ends = np.arange(window - 1, window + count)
+        with threadpool_limits(1), stage_clock() as clock, span() as spent:
+            compute_batch(returns, ends, settings)
+        total = spent.cpu
+        per = 1e3 / len(ends)
+        other = total - clock.persistence - clock.distances
+        rows.append(
+            Row(
+                f"{n_assets} assets, window {window}",
+                {
+                    "CPU ms/window": total * per,
+                    "persistence": clock.persistence * per,
+                    "distances": clock.distances * per,
+                    "other": other * per,
+                    "other share": other / total,
+                    "H1 bars": statistics.mean(clock.h1_bars),
+                    "wall ms/window": spent.wall * per,
+                },
+            )
+        )
+    return rows
+
+
+def _naive_loop(returns: np.ndarray, window: int, maxdim: int) -> int:
+    """What a user would write with numpy, ripser and persim: one window at a time."""
+    from persim import bottleneck, wasserstein
+    from ripser import ripser
+
+    previous = None
+    for end in range(window - 1, len(returns)):
+        corr = np.corrcoef(returns[end - window + 1 : end + 1], rowvar=False)
+        dist = np.sqrt(np.clip(2.0 * (1.0 - corr), 0.0, None))
+        dgms = [d[np.isfinite(d[:, 1])] for d in ripser(dist, maxdim=maxdim, distance_matrix=True)["dgms"]]
+        lifetimes = [d[:, 1] - d[:, 0] for d in dgms]
+        _ = [(life.sum(), -(life / life.sum() * np.log(life / life.sum())).sum()) for life in lifetimes if len(life)]
+        if previous is not None:
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore")
+                _ = [(wasserstein(a, b), bottleneck(a, b)) for a, b in zip(previous, dgms)]
+        previous = dgms
+    return len(returns) - window + 1
+
+
+def naive_loop_vs_riskshape(quick: bool) -> list[Row]:
+    """100 assets, window 60, step 1, H0 and H1: the naive loop against riskshape, same data."""
+    _warm_up()
+    n_windows, window, n_assets = (120 if quick else 400), 60, 100
+    prices = factor_prices(window + n_windows, n_assets, seed=1)
+    returns = to_returns(prices).to_numpy()
+    config = Config(window=window, maxdim=1)
+
+    with threadpool_limits(1), span() as naive:
+        done = _naive_loop(returns, window, 1)
+    with span() as pooled:
+        _ = monitor(prices, config).features
+    with stage_clock() as clock, span() as serial:
+        serial_result = monitor(prices, _serial(config))
+        _ = serial_result.features
+    other = serial.cpu - clock.persistence - clock.distances
+    # same bars as ripser on the last window (a check that the comparison is like for like)
+    from ripser import ripser
+
+    last = window_end_positions(len(returns), window, 1)[-1]
+    corr = correlation_matrix(returns[last - window + 1 : last + 1])
+    reference = ripser(correlation_to_distance(corr), maxdim=1, distance_matrix=True)["dgms"][1]
+    assert len(reference) == len(serial_result.diagram(serial_result.window_ends[-1], 1))
+    return [
+        _timed_row("naive loop (numpy corrcoef, ripser, persim), 1 process", done, naive, None),
+        _timed_row(f"riskshape, {available_cores()} processes (default)", done, pooled, naive),
+        _timed_row("riskshape, serial", done, serial, naive, {"other share": other / serial.cpu}),
+    ]
+
+
+def _timed_row(label: str, windows: int, spent: Span, baseline: Span | None, extra: dict[str, float] | None = None) -> Row:
+    values: dict[str, float] = {"windows": windows, "wall s": spent.wall, "CPU s": spent.cpu,
+                                "wall ms/window": 1e3 * spent.wall / windows}
+    if baseline is not None:
+        values["speed-up (wall)"] = baseline.wall / spent.wall
+        values["CPU ratio"] = baseline.cpu / spent.cpu
+    values.update(extra or {})
+    return Row(label, values)
+
+
+def h0_vs_ripser(quick: bool) -> list[Row]:
+    """H0-only monitoring of 500 assets against ripser at maxdim 0 (correlation and distance included)."""
+    from ripser import ripser
+
+    _warm_up()
+    n_windows, window, n_assets = (60 if quick else 200), 250, 500
+    prices = factor_prices(window + n_windows, n_assets, seed=2)
+    returns = to_returns(prices).to_numpy()
+    with threadpool_limits(1), span() as plain:
+        for end in range(window - 1, len(returns)):
+            corr = np.corrcoef(returns[end - window + 1 : end + 1], rowvar=False)
+            ripser(np.sqrt(np.clip(2.0 * (1.0 - corr), 0.0, None)), maxdim=0, distance_matrix=True)
+    with span() as ours:
+        _ = monitor(prices, Config(window=window, maxdim=0)).features
+    return [
+        _timed_row("ripser maxdim 0 (with numpy corrcoef), 1 process", n_windows, plain, None),
+        _timed_row(f"riskshape maxdim 0 with distances and summaries, {available_cores()} processes",
+                   n_windows, ours, plain),
+    ]
+
+
+def one_day_update(quick: bool) -> list[Row]:
+    """Latency of adding one day to a monitored 100-asset portfolio (two years of history)."""
+    _warm_up()
+    days, window, n_assets, n_updates = 504, 60, 100, (5 if quick else 20)
+    prices = factor_prices(days + n_updates, n_assets, seed=3)
+    result = monitor(prices.iloc[: days + 1], Config(window=window, maxdim=1))
+    _ = result.features
+    updates, features = [], []
+    for day in range(days + 1, days + 1 + n_updates):
+        with span() as spent:
+            result = result.update(prices.iloc[[day]])
+        updates.append(spent)
+        with span() as spent:
+            _ = result.features
+        features.append(spent)
+
+    def summary(spans: list[Span]) -> dict[str, float]:
+        return {"median wall ms": 1e3 * statistics.median(s.wall for s in spans),
+                "max wall ms": 1e3 * max(s.wall for s in spans),
+                "median CPU ms": 1e3 * statistics.median(s.cpu for s in spans)}
+
+    return [
+        Row(f"update(one day), {len(result.window_ends)} windows held", summary(updates)),
+        Row("then .features (rebuilt over all windows)", summary(features)),
+    ]
+
+
+def _cpu_seconds() -> float:
+    own, children = resource.getrusage(resource.RUSAGE_SELF), resource.getrusage(resource.RUSAGE_CHILDREN)
+    return own.ru_utime + own.ru_stime + children.ru_utime + children.ru_stime
+
+
+def executor_run(variant: str, quick: bool) -> dict[str, float]:
+    """The demo scenario (48 assets, about 1,240 windows, H0 and H1) on one executor; run it in a fresh process.
+
+    ``variant``: ``serial``; ``pool`` (the default process pool: the parent imports the
+    engine's libraries before forking); ``pool-no-preload`` (each worker imports them itself, as
+    before: giotto-ph pulls in scikit-learn, about a second per process). Imports inside the
+    run are timed (a fresh process has not made them yet), as a user's first run would pay them.
+    """
+    from riskshape.scenario import generate_scenario
+
+    prices = generate_scenario(n_days=500 if quick else None).prices
+    config = Config()
+    returns = to_returns(prices, config.returns).to_numpy()
+    ends = window_end_positions(len(returns), config.window, config.step)
+    settings = settings_of(config)
+    with span() as spent:
+        if variant == "serial":
+            _compute_windows(returns, ends, _serial(config), None, None)
+        else:
+            loader = partial(preload, settings, prices.shape[1]) if variant == "pool" else None
+            executor = ProcessExecutor(available_cores(), preload=loader)
+            try:
+                _compute_windows(returns, ends, config, None, None, executor)
+            finally:
+                executor.close()  # joins the workers, so their CPU time counts as this process's children
+    return {"windows": float(len(ends)), "wall s": spent.wall, "CPU s": spent.cpu}
+
+
+def distance_solvers(quick: bool) -> list[Row]:
+    """Plain against fast exact distances on diagrams of consecutive windows (ms per call)."""
+    _warm_up()
+    rows = []
+    for n_assets, window in [(100, 60), (500, 250)]:
+        returns = factor_returns(window + 1, n_assets, seed=4)
+        a, b = (compute_diagrams(correlation_to_distance(correlation_matrix(returns[k : k + window])), 1) for k in (0, 1))
+        repeats = 2 if quick else 5
+        for dim in (0, 1):
+            x, y = a[dim], b[dim]
+            timings = {
+                "W plain (scipy assignment)": _best(lambda: assignment_wasserstein(x, y, 1.0), repeats),
+                "W fast": _best(lambda: wasserstein_distance(x, y, 1.0), repeats),
+                "B plain (persim)": _best(lambda: persim_bottleneck(x, y), repeats),
+                "B fast": _best(lambda: bottleneck_distance(x, y), repeats),
+            }
+            assert abs(wasserstein_distance(x, y) - assignment_wasserstein(x, y, 1.0)) < 1e-9
+            assert abs(bottleneck_distance(x, y) - persim_bottleneck(x, y)) < 1e-12
+            rows.append(Row(f"H{dim}, {n_assets} assets, window {window} ({len(x)} bars)", timings))
+    return rows
+
+
+def _best(fn: Callable[[], object], repeats: int) -> float:
+    best = np.inf
+    for _ in range(repeats):
+        start = time.perf_counter()
+        fn()
+        best = min(best, time.perf_counter() - start)
+    return 1e3 * best
+
+
+def large_run(n_windows: int, n_assets: int, window: int) -> dict[str, float]:
+    """One monitor run, in a fresh process: wall time and peak resident memory."""
+    prices = factor_prices(window + n_windows, n_assets, seed=5)
+    with span() as spent:
+        result = monitor(prices, Config(window=window, maxdim=1))
+        features = result.features
+    kib = 1024.0  # ru_maxrss is in KiB on Linux
+    return {
+        "windows": float(len(features)),
+        "wall s": spent.wall,
+        "CPU s": spent.cpu,
+        "parent peak MiB": resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / kib,
+        "largest worker peak MiB": resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss / kib,
+        "prices MiB": prices.memory_usage(deep=True).sum() / 2**20,
+        "all correlation matrices would take GiB": len(features) * n_assets * n_assets * 8 / 2**30,
+        "diagram storage MiB": sum(w.bars.nbytes for w in result.windows) / 2**20,
+    }
+
+
+CASES: dict[str, Callable[[bool], list[Row]]] = {
+    "per-window cost": per_window_cost,
+    "naive loop against riskshape": naive_loop_vs_riskshape,
+    "H0 only against ripser maxdim 0": h0_vs_ripser,
+    "one-day update": one_day_update,
+    "distance solvers": distance_solvers,
+}
+
+
+def frame(rows: list[Row]) -> pd.DataFrame:
+    """A section's rows as a table."""
+    return pd.DataFrame([row.values for row in rows], index=[row.case for row in rows])
