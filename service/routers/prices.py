@@ -86,7 +86,23 @@ def make_router(settings: ServiceSettings) -> APIRouter:
         correction: Annotated[bool, Query(description="archive prices that differ from archived ones as "
                                           "corrections (otherwise they are refused with 409)")] = False,
     ) -> IngestOut:
-        """Archive prices, compute only the new windows, evaluate the alert rules; idempotent."""
+        """Archive prices, compute only the new windows, evaluate the alert rules; idempotent.
+
+        Body: JSON `{"rows": [{"date", "asset", "price"}, ...]}` (long) or `{"wide": [{"date", "prices":
+        {asset: price}}, ...]}`, or CSV text (`Content-Type: text/csv`, wide `date,A,B,...` or long
+        `date,asset,price`). Dates in order, oldest first; a missing price is null (JSON) or an empty cell.
+
+        - Days after the last archived one are added, and the windows they complete computed and archived;
+          the alert rules are evaluated and new alerts returned.
+        - Sending the same prices again adds nothing (no prices, windows, runs or alerts).
+        - A price that differs from the archived one for a day already archived is refused with 409, unless
+          `correction=true`: then it is archived as a correction (both revisions kept), and windows are
+          computed from the corrected history from now on; archived windows and alerts are never rewritten
+          (`windows_differing` counts those the correction would change).
+        - A date inside the archived history that was never archived is refused (422): windows count
+          trading days. An asset the portfolio does not have is refused (422); a new portfolio's assets
+          are those of its first prices, in name order.
+        """
         media = _media_type(request)
         raw = await request.body()
         if media == "application/json" or media.endswith("+json"):
