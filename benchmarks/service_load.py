@@ -70,25 +70,29 @@ def start_server(folder: Path, url: str, window: int) -> tuple[subprocess.Popen[
 
 
 async def poller(client: httpx.AsyncClient, paths: list[str], stop_at: float, budget: list[int],
-                 samples: dict[str, list[float]], errors: list[int]) -> None:
+                 samples: dict[str, list[float]], errors: list[str]) -> None:
     i = 0
     while time.perf_counter() < stop_at and budget[0] > 0:
         budget[0] -= 1
         path = paths[i % len(paths)]
         i += 1
         started = time.perf_counter()
-        response = await client.get(path)
+        try:
+            response = await client.get(path)
+        except httpx.TransportError as err:  # counted, not fatal: the figures say how many
+            errors.append(type(err).__name__)
+            continue
         elapsed = time.perf_counter() - started
         if response.status_code != 200:
-            errors.append(response.status_code)
+            errors.append(str(response.status_code))
         samples[path].append(elapsed)
 
 
 async def run_load(base: str, token: str, portfolio: str, pollers: int, seconds: float,
-                   max_requests: int) -> tuple[dict[str, list[float]], float, list[int]]:
+                   max_requests: int) -> tuple[dict[str, list[float]], float, list[str]]:
     paths = [f"/v1/portfolios/{portfolio}/latest", f"/v1/portfolios/{portfolio}/series?limit=100"]
     samples: dict[str, list[float]] = {p: [] for p in paths}
-    errors: list[int] = []
+    errors: list[str] = []
     budget = [max_requests]
     limits = httpx.Limits(max_connections=pollers, max_keepalive_connections=pollers)
     headers = {"X-Riskshape-Key": token}
@@ -146,6 +150,7 @@ def main() -> None:
 
             samples, wall, errors = asyncio.run(run_load(base, token, "load", args.pollers, args.seconds,
                                                          args.max_requests))
+            server_log = (folder / "server.log").read_text(errors="replace")
         finally:
             process.terminate()
             process.wait(timeout=30)
@@ -160,7 +165,8 @@ def main() -> None:
         print(describe("GET " + path, values, wall))
     print(describe("all", everything, wall))
     if errors:
-        print(f"non-200 answers: {len(errors)} ({sorted(set(errors))})")
+        print(f"failed requests: {len(errors)} ({', '.join(sorted(set(errors)))}); server log tail:")
+        print(server_log[-2000:])
 
 
 if __name__ == "__main__":
