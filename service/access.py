@@ -6,19 +6,14 @@ says so) so that pointing at the archive later changes one function.
 
 from __future__ import annotations
 
-import csv
-import io
-import json
 from dataclasses import dataclass
 from datetime import date
 
 from riskshape.alerts.rules import RuleState, rule_states
-from riskshape.caution import CAUTION
-from riskshape.cli.alerts import EXPORT_COLUMNS, neutralise_cell
 from riskshape.store import AlertRecord, FeaturesPage, Head, Store, chain_head
 from service.snapshots import Snapshots
 
-__all__ = ["LatestState", "latest_state", "series_page", "store_status", "export_alerts"]
+__all__ = ["LatestState", "latest_state", "series_page", "store_status"]
 
 
 @dataclass(frozen=True)
@@ -80,39 +75,3 @@ def series_page(store: Store, portfolio: str, snapshots: Snapshots, *, start: da
 def store_status(store: Store) -> Head:
     """A cheap round trip to the archive (its ledger head); raises StoreError when it cannot be read."""
     return chain_head(store)
-
-
-# -- export (stand-in: the CLI renders the same export in riskshape.cli.alerts with a private helper; a
-# library function both could call would replace this) ----------------------------------------------
-def _export_row(store: Store, alert: AlertRecord) -> dict[str, object]:
-    reviews = store.get_alert(alert.id).reviews
-    row: dict[str, object] = {}
-    for name in EXPORT_COLUMNS:
-        if hasattr(alert, name):
-            value = getattr(alert, name)
-            row[name] = value.isoformat() if isinstance(value, date) else value
-    row["reviews"] = len(reviews)
-    row["last_review"] = reviews[-1].action if reviews else ""
-    return {name: row[name] for name in EXPORT_COLUMNS}
-
-
-def export_alerts(store: Store, fmt: str, *, since: date | None, until: date | None,
-                  portfolio: str | None) -> str:
-    """Alerts for review as CSV or JSON Lines, the caution first; CSV text cells neutralised."""
-    if portfolio is not None:
-        store.get_portfolio(portfolio)
-    rows = [_export_row(store, a) for a in store.list_alerts(portfolio=portfolio, since=since, until=until,
-                                                              limit=None).items]
-    buffer = io.StringIO()
-    if fmt == "csv":
-        writer = csv.writer(buffer, lineterminator="\n")
-        writer.writerow([f"# {CAUTION}"])
-        writer.writerow(EXPORT_COLUMNS)
-        for row in rows:
-            writer.writerow([neutralise_cell(v) if isinstance(v, str) else repr(v) if isinstance(v, float) else v
-                             for v in row.values()])
-    else:
-        buffer.write(json.dumps({"caution": CAUTION}) + "\n")
-        for row in rows:
-            buffer.write(json.dumps(row, ensure_ascii=False, allow_nan=False) + "\n")
-    return buffer.getvalue()

@@ -10,7 +10,7 @@ from fastapi.responses import Response
 from starlette.concurrency import run_in_threadpool
 
 from riskshape.config import ServiceSettings
-from service.access import export_alerts
+from riskshape.export import export_alerts
 from service.deps import ReviewerDep, StoreDep
 from service.routers import API_PREFIX, errors
 

@@ -15,7 +15,7 @@ from archive_kit import around_triggers, make_alerts, manifest, walk_prices
 
 from riskshape.caution import CAUTION
 from riskshape.cli import main
-from riskshape.cli.alerts import EXPORT_COLUMNS, neutralise_cell
+from riskshape.export import EXPORT_COLUMNS, neutralise_cell
 from riskshape.store import chain_head, open_store
 
 

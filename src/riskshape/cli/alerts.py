@@ -2,54 +2,17 @@
 
 from __future__ import annotations
 
-import csv
-import io
-import json
-from datetime import date, datetime
 from pathlib import Path
-from typing import Any
 
 import click
 
 from riskshape.caution import CAUTION
 from riskshape.cli.audit import STORE_OPTION
 from riskshape.explain.archived import explanation_text
-from riskshape.store import REVIEW_ACTIONS, AlertRecord, Store, open_store
-from riskshape.store.canonical import ALERT_FIELDS
+from riskshape.export import EXPORT_COLUMNS, export_alerts
+from riskshape.store import REVIEW_ACTIONS, open_store
 
-__all__ = ["alerts", "neutralise_cell", "EXPORT_COLUMNS"]
-
-EXPORT_COLUMNS = ("id", "window_end") + tuple(f for f in ALERT_FIELDS if f not in ("id", "window_end")) + (
-    "entry_hash", "reviews", "last_review")
-"""Columns of an export: id and window end first, then every stored alert field, its hashes and review status."""
-
-_RISKY_FIRST = ("=", "+", "-", "@", "\t", "\r")
-
-
-def neutralise_cell(text: str) -> str:
-    """Make a text cell inert in spreadsheets: a cell starting with =, +, -, @, tab or carriage return
-    gets a leading apostrophe (OWASP "CSV Injection" guidance)."""
-    return "'" + text if text.startswith(_RISKY_FIRST) else text
-
-
-def _text(value: object) -> object:
-    if isinstance(value, datetime):
-        return value.isoformat()
-    if isinstance(value, date):
-        return value.isoformat()
-    return value
-
-
-def _rows(store: Store, alerts: tuple[AlertRecord, ...]) -> list[dict[str, Any]]:
-    out = []
-    for alert in alerts:
-        reviews = store.get_alert(alert.id).reviews
-        row = {name: _text(getattr(alert, name)) for name in EXPORT_COLUMNS if hasattr(alert, name)}
-        row["reviews"] = len(reviews)
-        row["last_review"] = reviews[-1].action if reviews else ""
-        out.append({name: row[name] for name in EXPORT_COLUMNS})
-    return out
-
+__all__ = ["alerts"]
 
 @click.group()
 def alerts() -> None:
@@ -93,7 +56,8 @@ def show(alert_id: int, store_url: str) -> None:
     for name in EXPORT_COLUMNS[:-2]:
         if name == "explanation":
             continue  # printed as text below
-        click.echo(f"{name:<16} {_text(getattr(detail.alert, name))}")
+        value = getattr(detail.alert, name)
+        click.echo(f"{name:<16} {value.isoformat() if hasattr(value, 'isoformat') else value}")
     click.echo("explanation")
     for line in explanation_text(detail.alert.explanation).splitlines():
         click.echo(f"  {line}")
@@ -137,23 +101,10 @@ def export(store_url: str, fmt: str, start: str | None, end: str | None, portfol
     JSON Lines keeps every value exactly as archived.
     """
     with open_store(store_url, create=False) as store:
-        page = store.list_alerts(portfolio=portfolio, since=start, until=end, limit=None)
-        rows = _rows(store, page.items)
-    buffer = io.StringIO()
-    if fmt == "csv":
-        writer = csv.writer(buffer, lineterminator="\n")
-        writer.writerow([f"# {CAUTION}"])
-        writer.writerow(EXPORT_COLUMNS)
-        for row in rows:
-            writer.writerow([neutralise_cell(v) if isinstance(v, str) else repr(v) if isinstance(v, float) else v
-                             for v in row.values()])
-    else:
-        buffer.write(json.dumps({"caution": CAUTION}) + "\n")
-        for row in rows:
-            buffer.write(json.dumps(row, ensure_ascii=False, allow_nan=False) + "\n")
+        text = export_alerts(store, fmt, since=start, until=end, portfolio=portfolio)  # type: ignore[arg-type]
     if out_path is None:
-        click.echo(buffer.getvalue(), nl=False)
+        click.echo(text, nl=False)
         return
-    out_path.write_text(buffer.getvalue(), encoding="utf-8")
+    out_path.write_text(text, encoding="utf-8")
     click.echo(CAUTION)
-    click.echo(f"{len(rows)} alert(s) written to {out_path}")
+    click.echo(f"alerts for review written to {out_path}")
