@@ -131,6 +131,10 @@ class ReviewOut(BaseModel):
 class AlertDetailOut(Cautioned):
     alert: AlertOut
     provenance: ProvenanceOut
+    explanation: dict[str, Any] | None = Field(
+        None, description="why it fired: clusters that merged or split (H0), loops and their assets (H1); "
+        "archived inside the alert's hash-chained record (null where none was archived)")
+    explanation_text: str = Field(description="the explanation as plain text")
     reviews: list[ReviewOut]
 
 

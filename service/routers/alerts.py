@@ -6,6 +6,7 @@ from typing import Annotated, Literal
 from fastapi import APIRouter, Path, Query
 
 from riskshape.config import ServiceSettings
+from riskshape.explain.archived import explanation_object, explanation_text
 from service.convert import alert_out, provenance_out, review_out
 from service.deps import ReaderDep, StoreDep
 from service.routers import API_PREFIX, MAX_ID, errors
@@ -46,6 +47,8 @@ def make_router(settings: ServiceSettings) -> APIRouter:
         """One alert, where it came from (configuration, inputs, version, run, chain), and its reviews."""
         detail = store.get_alert(alert_id)
         return AlertDetailOut(alert=alert_out(detail.alert), provenance=provenance_out(detail.alert),
+                              explanation=explanation_object(detail.alert.explanation),
+                              explanation_text=explanation_text(detail.alert.explanation),
                               reviews=[review_out(r) for r in detail.reviews])
 
     return router
