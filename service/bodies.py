@@ -15,7 +15,7 @@ import io
 import pandas as pd
 
 from riskshape.errors import DataError
-from riskshape.prices import validate_prices
+from riskshape.prices import csv_table, validate_prices
 from service.schemas import PricesIn
 
 __all__ = ["table_from_json", "table_from_csv", "validated_prices", "JSON_SOURCE", "CSV_SOURCE"]
@@ -84,7 +84,7 @@ def table_from_csv(raw: bytes) -> pd.DataFrame:
     if not text.strip():
         raise DataError(f"{CSV_SOURCE}: empty; send a header line (date, then one column per asset) and data lines")
     try:
-        table = pd.read_csv(io.StringIO(text), dtype=str, keep_default_na=False, skipinitialspace=True)
+        table = csv_table(io.StringIO(text))
     except (pd.errors.ParserError, pd.errors.EmptyDataError, csv.Error, ValueError) as err:
         message = " ".join(str(err).split())
         raise DataError(f"{CSV_SOURCE}: malformed CSV ({message}); use one header line and the same number of "

@@ -20,13 +20,14 @@ from collections.abc import Callable
 import os
 import warnings
 from pathlib import Path
+from typing import IO
 
 import numpy as np
 import pandas as pd
 
 from riskshape.errors import DataError, DataQualityWarning
 
-__all__ = ["read_prices", "validate_prices", "hash_prices", "MIN_ASSETS"]
+__all__ = ["read_prices", "validate_prices", "csv_table", "hash_prices", "MIN_ASSETS"]
 
 MIN_ASSETS = 3
 _MISSING = {"", "na", "nan", "null", "none", "n/a", "#n/a"}
@@ -59,11 +60,7 @@ def read_prices(source: str | os.PathLike[str], min_rows: int = 2) -> pd.DataFra
         raise DataError(f"{path}: no such file; give the path of a CSV or Parquet price table")
     try:
         if suffix == ".csv":
-            # header=None: pandas would rename a repeated name ("A.1") or a blank one ("Unnamed: 2")
-            # and hide both from validation, so the header row is taken as written
-            cells = pd.read_csv(path, dtype=str, keep_default_na=False, skipinitialspace=True, header=None)
-            raw = cells.iloc[1:].reset_index(drop=True)
-            raw.columns = [str(c).strip() for c in cells.iloc[0]]
+            raw = csv_table(path)
             first_line = 2  # line 1 holds the header
         elif suffix in {".parquet", ".pq"}:
             raw = pd.read_parquet(path)
@@ -76,6 +73,23 @@ def read_prices(source: str | os.PathLike[str], min_rows: int = 2) -> pd.DataFra
         raise DataError(f"{path}: cannot read it as {suffix[1:]} ({' '.join(str(err).split())})") from None
     label = "line" if suffix == ".csv" else "row"
     return validate_prices(raw, source=str(path), min_rows=min_rows, first_line=first_line, row_label=label)
+
+
+def csv_table(source: str | os.PathLike[str] | IO[str]) -> pd.DataFrame:
+    """The cells of a CSV price table as text, its header row taken exactly as written.
+
+    pandas would rename a repeated column name ("A.1") or a blank one ("Unnamed: 2") and hide both
+    from validation, so the header row is read as a data row and applied here.
+
+    Raises
+    ------
+    pandas.errors.ParserError, pandas.errors.EmptyDataError, ValueError
+        If the text is not well-formed CSV (callers turn these into a DataError naming the source).
+    """
+    cells = pd.read_csv(source, dtype=str, keep_default_na=False, skipinitialspace=True, header=None)
+    raw = cells.iloc[1:].reset_index(drop=True)
+    raw.columns = [str(c).strip() for c in cells.iloc[0]]
+    return raw
 
 
 def validate_prices(

@@ -67,6 +67,8 @@ def test_json_that_does_not_fit_the_schema(client: TestClient, auth: Auth, portf
     (b"date,A,B,C\n2031-01-02,1,-2,3\n", ("column 'B'", "not positive")),
     (b"date,A,B,C\n2031-13-02,1,2,3\n", ("line 2", "2031-13-02")),
     (b"date,A,B\n2031-01-02,1,2\n", ("at least 3",)),
+    (b"date,A,A,B\n2031-01-02,1,2,3\n", ("'A' appears twice",)),
+    (b"date,A,,B\n2031-01-02,1,2,3\n", ("no name",)),
 ])  # fmt: skip
 def test_malformed_or_invalid_csv(client: TestClient, auth: Auth, portfolio: str, text: bytes, words: tuple) -> None:
     refused(post_prices(client, auth, text, csv=True), 422, *words)
