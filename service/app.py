@@ -24,6 +24,7 @@ from riskshape.config import Config, ServiceSettings
 from riskshape.errors import RiskshapeError
 from riskshape.store import open_store
 from service.context import ServiceContext
+from service.docs import mount_docs
 from service.handlers import install_handlers
 from service.ingest import Ingestor
 from service.logs import LOGGER_NAME, stamp_request_ids
@@ -110,7 +111,8 @@ def create_app(settings: ServiceSettings | None = None) -> FastAPI:
                 context.store = None
 
     app = FastAPI(title="riskshape", version=__version__, description=DESCRIPTION, lifespan=lifespan,
-                  docs_url="/docs", redoc_url=None, openapi_url="/openapi.json")
+                  docs_url=None, redoc_url=None, openapi_url="/openapi.json")
+    mount_docs(app)
     app.state.context = context
     install_handlers(app)
     for module in ROUTERS:

@@ -111,3 +111,13 @@ def test_the_matrix_matches_the_documented_roles() -> None:
 def test_public_endpoints_need_no_key(world: World, path: str) -> None:
     response = world.client.get(path)
     assert response.status_code == 200 and response.headers["X-Riskshape-Caution"] == "not investment advice"
+
+
+def test_docs_load_their_scripts_from_the_service_itself(world: World) -> None:
+    # Offline use: the docs page must not depend on a CDN; every script and style it names is served here.
+    page = world.client.get("/docs").text
+    assert "https://" not in page and "http://" not in page
+    for asset in ("/docs-assets/swagger-ui-bundle.js", "/docs-assets/swagger-ui.css"):
+        assert asset in page
+        response = world.client.get(asset)
+        assert response.status_code == 200 and len(response.content) > 10_000
