@@ -29,8 +29,9 @@ point's cost to the diagonal is half its lifetime.
   diagonal cost exceeds t, and by the Mendelsohn-Dulmage theorem one covering the forced points
   of each diagram separately suffices. The search starts at a lower bound (every point needs a
   partner or the diagonal: t >= max over points of min(nearest cost, diagonal cost)), which is
-  the answer in most consecutive windows, and otherwise bisects the sorted candidates above
-  it. gudhi's ``bottleneck_distance`` is not used: it is known to return a too large value on
+  the answer in most consecutive windows (three in four H1 pairs at 100 assets, window 60);
+  otherwise the answer tends to lie far above it, and the sorted candidates above it are
+  bisected. gudhi's ``bottleneck_distance`` is not used: it is known to return a too large value on
   some inputs (GUDHI/gudhi-devel pull request 1367, merged after gudhi 3.13; tests/speed holds
   one such input). persim's exact ``bottleneck`` is the plain path.
 """
@@ -183,15 +184,7 @@ def threshold_bottleneck(a: np.ndarray, b: np.ndarray) -> float:
     upper = max(float(diag_a.max()), float(diag_b.max()))  # everything to the diagonal: feasible
     values = np.concatenate([cross.ravel(), diag_a, diag_b])
     candidates = np.unique(values[(values > lower) & (values <= upper)])
-    # the answer is usually a few candidates above the lower bound: gallop, then bisect
     lo, hi = 0, len(candidates) - 1  # candidates[hi] is feasible
-    probe = 0
-    while probe < hi:
-        if feasible(float(candidates[probe])):
-            hi = probe
-            break
-        lo = probe + 1
-        probe = 2 * probe + 1
     while lo < hi:
         mid = (lo + hi) // 2
         if feasible(float(candidates[mid])):

@@ -14,13 +14,20 @@ import numpy as np
 import pandas as pd
 
 from riskshape._version import __version__
-from riskshape.compute import Executor, chunk, make_executor
+from riskshape.compute import Executor, make_executor
 from riskshape.config import Config
 from riskshape.errors import DataError
 from riskshape.prices import hash_prices, validate_prices
 from riskshape.returns import to_returns
 from riskshape.summaries import DISTANCE_NAMES, SUMMARY_NAMES, summarize_diagram
-from riskshape.window import WindowResult, WindowSettings, compute_batch, first_row_needed, preload
+from riskshape.window import (
+    WindowResult,
+    WindowSettings,
+    compute_batch,
+    diagram_distances,
+    first_row_needed,
+    preload,
+)
 from riskshape.windows import window_end_positions
 
 __all__ = ["monitor", "MonitorResult", "feature_columns"]
@@ -240,29 +247,48 @@ def _compute_windows(
     progress: ProgressFn | None,
     executor: Executor | None = None,
 ) -> list[WindowResult]:
-    """Windows ending at ``ends``; batches after the first recompute their predecessor for its diagrams."""
+    """Windows ending at ``ends``, computed in batches by the configured executor.
+
+    Each batch computes its windows' diagrams and the distances between them; the distance
+    from a batch's first window to the window before it is computed here, from the previous
+    batch's last diagrams, as results arrive (no window is computed twice). Batches are made
+    small enough to keep every worker of a pool busy (at least four per worker, at least 16
+    windows each); results do not depend on the batching.
+    """
     if len(ends) == 0:
         return []
     settings = settings_of(config)
-    positions = np.arange(len(ends))
-    batches = list(chunk(positions, config.compute.batch_windows))
     all_ends = np.asarray(ends)
+    size = config.compute.batch_windows
+    own = executor is None
+    runner = executor or make_executor(
+        config.compute, -(-len(all_ends) // size), preload=partial(preload, settings, values.shape[1])
+    )
+    size = _balanced_batch_size(len(all_ends), size, getattr(runner, "workers", 1))
     jobs = []
-    for b, batch in enumerate(batches):
-        lead_in = 1 if b > 0 else 0  # the window before the batch, for its diagrams
-        batch_ends = all_ends[batch[0] - lead_in : batch[-1] + 1]
+    for start in range(0, len(all_ends), size):
+        batch_ends = all_ends[start : start + size]
         first_row = first_row_needed(int(batch_ends[0]), settings)
         rows = values[first_row : int(batch_ends[-1]) + 1]
-        jobs.append((rows, batch_ends - first_row, settings, previous if b == 0 else None, first_row))
-    own = executor is None
-    runner = executor or make_executor(config.compute, len(jobs), preload=partial(preload, settings, values.shape[1]))
+        jobs.append((rows, batch_ends - first_row, settings, previous if start == 0 else None, first_row))
     results: list[WindowResult] = []
     try:
         for b, batch_results in enumerate(runner.map(compute_batch, jobs)):
-            results.extend(batch_results[1:] if b > 0 else batch_results)
+            if b > 0:
+                first = batch_results[0]
+                link = diagram_distances(results[-1].diagrams, first.diagrams, settings.order_p)
+                batch_results = [first.with_distances(link), *batch_results[1:]]
+            results.extend(batch_results)
             if progress is not None:
                 progress(len(results), len(ends))
     finally:
         if own:
             runner.close()
     return results
+
+
+def _balanced_batch_size(n_windows: int, size: int, workers: int) -> int:
+    """``size``, made smaller when that leaves fewer than four batches per worker (not below 16)."""
+    if workers <= 1:
+        return size
+    return max(1, min(size, max(16, -(-n_windows // (4 * workers)))))

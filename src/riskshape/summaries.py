@@ -73,7 +73,10 @@ def persistent_entropy(dgm: np.ndarray) -> float:
     >>> round(persistent_entropy(np.array([[0.0, 1.0], [0.0, 1.0]])), 6)  # log 2
     0.693147
     """
-    life = _lifetimes(dgm)
+    return _entropy(_lifetimes(dgm))
+
+
+def _entropy(life: np.ndarray) -> float:
     total = life.sum()
     if total <= 0:
         return 0.0
@@ -101,7 +104,10 @@ def landscape_norm(dgm: np.ndarray, p: float = 1.0) -> float:
     >>> landscape_norm(np.array([[0.0, 2.0]]), 1)  # tent of half-width 1: area 1
     1.0
     """
-    half = _lifetimes(dgm) / 2.0
+    return _landscape_norm(_lifetimes(dgm) / 2.0, p)
+
+
+def _landscape_norm(half: np.ndarray, p: float) -> float:
     if len(half) == 0:
         return 0.0
     if np.isinf(p):
@@ -229,10 +235,12 @@ DISTANCE_NAMES: tuple[str, ...] = ("wasserstein", "bottleneck")
 
 def summarize_diagram(dgm: np.ndarray) -> DiagramSummary:
     """All per-diagram summaries of one diagram."""
+    life = _lifetimes(dgm)  # once for all summaries (same arithmetic as the functions above)
+    half = life / 2.0
     return DiagramSummary(
         n_bars=int(len(dgm)),
-        total_persistence=total_persistence(dgm),
-        entropy=persistent_entropy(dgm),
-        landscape_l1=landscape_norm(dgm, 1.0),
-        landscape_l2=landscape_norm(dgm, 2.0),
+        total_persistence=float(life.sum()),
+        entropy=_entropy(life),
+        landscape_l1=_landscape_norm(half, 1.0),
+        landscape_l2=_landscape_norm(half, 2.0),
     )

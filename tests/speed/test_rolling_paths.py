@@ -129,9 +129,19 @@ def test_a_result_holds_diagrams_not_matrices(small_prices: pd.DataFrame) -> Non
         assert window.bars.shape[1] == 2
 
 
-def test_summary_tuple_follows_the_column_names(rng: np.random.Generator) -> None:
-    from riskshape.summaries import SUMMARY_NAMES, summarize_diagram
+def test_summaries_at_once_equal_the_functions_one_by_one(rng: np.random.Generator) -> None:
+    from riskshape.summaries import (
+        SUMMARY_NAMES,
+        landscape_norm,
+        persistent_entropy,
+        summarize_diagram,
+        total_persistence,
+    )
 
     births = rng.uniform(0.0, 1.0, 5)
-    summary = summarize_diagram(np.column_stack([births, births + rng.uniform(0.1, 0.5, 5)]))
-    assert summary.as_tuple() == tuple(getattr(summary, name) for name in SUMMARY_NAMES)
+    for dgm in (np.column_stack([births, births + rng.uniform(0.1, 0.5, 5)]), np.empty((0, 2))):
+        summary = summarize_diagram(dgm)
+        assert summary.as_tuple() == tuple(getattr(summary, name) for name in SUMMARY_NAMES)
+        assert summary.as_tuple() == (
+            len(dgm), total_persistence(dgm), persistent_entropy(dgm), landscape_norm(dgm, 1.0), landscape_norm(dgm, 2.0)
+        )
