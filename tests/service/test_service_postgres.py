@@ -3,12 +3,11 @@ ingest, poll, review and verify, as on SQLite. Skipped with the reason when the 
 
 from __future__ import annotations
 
-import uuid
 from collections.abc import Iterator
 
-import psycopg
 import pytest
 from fastapi.testclient import TestClient
+from postgres_kit import fresh_schema_url
 from service_kit import cautioned, csv_body, write_config
 
 from riskshape.config import ServiceSettings
@@ -16,27 +15,13 @@ from riskshape.scenario import generate_scenario
 from riskshape.store import open_store
 from service import create_app
 
-PG_CONNINFO = "host=127.0.0.1 port=5432 user=postgres dbname=test connect_timeout=3"
-PG_URL = "postgresql+psycopg://postgres@127.0.0.1:5432/test"
-
 pytestmark = pytest.mark.postgres
 
 
 @pytest.fixture
 def pg_url() -> Iterator[str]:
-    try:
-        with psycopg.connect(PG_CONNINFO) as conn:
-            conn.execute("SELECT 1")
-    except psycopg.Error as err:
-        pytest.skip(f"PostgreSQL at 127.0.0.1:5432 (database 'test') is unreachable: {err}")
-    schema = f"rs_service_{uuid.uuid4().hex[:12]}"
-    with psycopg.connect(PG_CONNINFO, autocommit=True) as conn:
-        conn.execute(f'CREATE SCHEMA "{schema}"')
-    try:
-        yield f"{PG_URL}?options=-csearch_path%3D{schema}"
-    finally:
-        with psycopg.connect(PG_CONNINFO, autocommit=True) as conn:
-            conn.execute(f'DROP SCHEMA "{schema}" CASCADE')
+    with fresh_schema_url("rs_service") as url:
+        yield url
 
 
 def test_ingest_poll_review_verify_on_postgresql(pg_url: str, tmp_path) -> None:

@@ -16,21 +16,7 @@ from riskshape.alerts.model import Alert, Firing
 from riskshape.store import RunManifest, Store
 from riskshape.store.schema import APPEND_ONLY_TABLES
 
-PG_CONNINFO = "host=127.0.0.1 port=5432 user=postgres dbname=test connect_timeout=3"
-PG_URL = "postgresql+psycopg://postgres@127.0.0.1:5432/test"
-_pg_reason: list[str] = []
-
-
-def postgres_unreachable() -> str | None:
-    """Why PostgreSQL cannot be used (None when it can); asked once per session."""
-    if not _pg_reason:
-        try:
-            with psycopg.connect(PG_CONNINFO) as conn:
-                conn.execute("SELECT 1")
-            _pg_reason.append("")
-        except psycopg.Error as err:
-            _pg_reason.append(f"PostgreSQL at 127.0.0.1:5432 (database 'test') is unreachable: {err}".strip())
-    return _pg_reason[0] or None
+from postgres_kit import PG_CONNINFO, PG_URL, postgres_unreachable  # noqa: F401 (re-exported)
 
 
 def walk_prices(rng: np.random.Generator, n_days: int = 30, assets: tuple[str, ...] = ("AQA", "BRB", "CSC", "DTD"),

@@ -3,16 +3,15 @@ PostgreSQL server (a fresh schema per test, dropped afterwards; skipped when unr
 
 from __future__ import annotations
 
-import uuid
 from collections.abc import Iterator
 
 import dataclasses
 
 import numpy as np
 import pandas as pd
-import psycopg
 import pytest
-from archive_kit import PG_CONNINFO, PG_URL, manifest, postgres_unreachable, walk_prices
+from archive_kit import manifest, walk_prices
+from postgres_kit import fresh_schema_url
 
 from riskshape import Config, monitor
 from riskshape.config import RuleConfig
@@ -26,17 +25,8 @@ def store_url(request: pytest.FixtureRequest, tmp_path) -> Iterator[str]:
     if request.param == "sqlite":
         yield f"sqlite:///{tmp_path / 'archive.sqlite'}"
         return
-    reason = postgres_unreachable()
-    if reason:
-        pytest.skip(reason)
-    schema = f"rs_test_{uuid.uuid4().hex[:12]}"
-    with psycopg.connect(PG_CONNINFO, autocommit=True) as conn:
-        conn.execute(f'CREATE SCHEMA "{schema}"')
-    try:
-        yield f"{PG_URL}?options=-csearch_path%3D{schema}"
-    finally:
-        with psycopg.connect(PG_CONNINFO, autocommit=True) as conn:
-            conn.execute(f'DROP SCHEMA "{schema}" CASCADE')
+    with fresh_schema_url("rs_test") as url:
+        yield url
 
 
 @pytest.fixture

@@ -24,8 +24,11 @@ def _writer(url: str, run_id: int, rule: str, count: int, errors: Path, go_file:
     """Start a writer; its stderr goes to ``errors`` so stdout is the one pipe (communicate() then reads
     through the same buffer as readline(), and no line is lost)."""
     args = [sys.executable, str(WRITER), url, str(run_id), rule, str(count)] + ([str(go_file)] if go_file else [])
+    # the writer imports the test kits (tests/store and tests/) like the tests do
+    kits = os.pathsep.join([str(WRITER.parent), str(WRITER.parent.parent), os.environ.get("PYTHONPATH", "")])
     with errors.open("w") as sink:
-        return subprocess.Popen(args, stdout=subprocess.PIPE, stderr=sink, text=True, cwd=WRITER.parent)
+        return subprocess.Popen(args, stdout=subprocess.PIPE, stderr=sink, text=True, cwd=WRITER.parent,
+                                env={**os.environ, "PYTHONPATH": kits})
 
 
 def _ledger(store: Store) -> dict[tuple[str, int], int]:
