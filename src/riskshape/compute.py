@@ -147,10 +147,10 @@ class DaskExecutor:
     def workers(self) -> int:
         """Threads across the cluster's workers (jobs it runs at once)."""
         try:
-            info = self.client.scheduler_info()
+            threads = self.client.nthreads()
         except (OSError, TimeoutError):  # pragma: no cover - a cluster gone away
             return 1
-        return max(1, sum(worker.get("nthreads", 1) for worker in info.get("workers", {}).values()))
+        return max(1, sum(threads.values()))
 
     def map(self, fn: Callable[..., T], jobs: Sequence[tuple[Any, ...]]) -> Iterator[T]:
         futures = [self.client.submit(_pinned_call, fn, *job, pure=False) for job in jobs]

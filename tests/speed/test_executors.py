@@ -8,6 +8,7 @@ windows are computed.
 
 from __future__ import annotations
 
+import os
 from pathlib import Path
 
 import numpy as np
@@ -17,7 +18,7 @@ from click.testing import CliRunner
 
 from riskshape import Config, MonitorResult, monitor
 from riskshape.cli import cli
-from riskshape.compute import ProcessExecutor, SerialExecutor, make_executor
+from riskshape.compute import DaskExecutor, ProcessExecutor, SerialExecutor, make_executor
 from riskshape.config import ComputeConfig
 
 
@@ -53,7 +54,7 @@ def test_process_pool_is_the_default_and_sized_to_the_cores() -> None:
     assert Config().compute.executor == "process"
     executor = make_executor(ComputeConfig(), n_jobs=1000)
     try:
-        cores = len(__import__("os").sched_getaffinity(0))
+        cores = len(os.sched_getaffinity(0))
         if cores > 1:
             assert isinstance(executor, ProcessExecutor) and executor.workers == cores
         else:
@@ -110,3 +111,9 @@ def test_cli_run_on_a_dask_cluster_equals_serial(small_prices: pd.DataFrame, clu
         outputs[name] = out
     features = {name: pd.read_parquet(out / "features.parquet") for name, out in outputs.items()}
     pd.testing.assert_frame_equal(features["dask"], features["serial"], check_exact=True)
+
+
+def test_dask_executor_counts_the_cluster_threads(cluster: object) -> None:
+    distributed = pytest.importorskip("distributed")
+    with distributed.Client(cluster.scheduler_address) as client:  # type: ignore[attr-defined]
+        assert DaskExecutor(client=client).workers == 2  # two worker processes of one thread
