@@ -142,13 +142,20 @@ def validate_prices(
             "to measure the shape of dependence; add assets"
         )
 
-    values = np.empty(frame.shape, dtype=float)
-    for j, column in enumerate(frame.columns):
+    def where_in(name: str) -> Callable[[int], str]:
+        return lambda i: f"{source}: {row_label} {lines[i]} (date {dates[i].date()}), column '{name}'"
 
-        def where(i: int, name: str = str(column)) -> str:
-            return f"{source}: {row_label} {lines[i]} (date {dates[i].date()}), column '{name}'"
-
-        values[:, j] = _parse_prices(frame[column], where)
+    numeric = all(pd.api.types.is_numeric_dtype(t) and not pd.api.types.is_bool_dtype(t) for t in frame.dtypes)
+    if numeric:  # checked as one array; a bad column is parsed alone for its message
+        values = frame.to_numpy(dtype=float)
+        with np.errstate(invalid="ignore"):
+            bad = ~np.isnan(values) & ~(np.isfinite(values) & (values > 0))
+        for j in np.flatnonzero(bad.any(axis=0))[:1]:
+            _parse_prices(frame.iloc[:, j], where_in(str(frame.columns[j])))
+    else:
+        values = np.empty(frame.shape, dtype=float)
+        for j, column in enumerate(frame.columns):
+            values[:, j] = _parse_prices(frame[column], where_in(str(column)))
 
     result = pd.DataFrame(values, index=pd.DatetimeIndex(dates, name="date"), columns=[str(c) for c in frame.columns])
     result.columns.name = "asset"

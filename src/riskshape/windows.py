@@ -88,21 +88,23 @@ def select_assets(block: np.ndarray, min_coverage: float) -> Selection:
     window = block.shape[0]
     needed = math.ceil(min_coverage * window - 1e-9)
     present = ~np.isnan(block)
+    if present.all():  # the common case: no gaps, so only the variance test can leave an asset out
+        flat = (block == block[0]).all(axis=0)
+        if not flat.any():
+            return Selection(used=np.arange(block.shape[1]), block=np.ascontiguousarray(block, dtype=float),
+                             left_out=())
     counts = present.sum(axis=0)
     with np.errstate(invalid="ignore"):
-        spread = np.nanmax(np.where(present, block, -np.inf), axis=0) - np.nanmin(np.where(present, block, np.inf), axis=0)
-    left_out: list[tuple[int, str]] = []
-    used: list[int] = []
-    for j in range(block.shape[1]):
-        if counts[j] < needed:
-            left_out.append((j, f"coverage {counts[j]}/{window} < {needed}"))
-        elif not spread[j] > 0.0:
-            left_out.append((j, "zero variance"))
-        else:
-            used.append(j)
-    used_arr = np.asarray(used, dtype=np.int64)
+        spread = np.max(np.where(present, block, -np.inf), axis=0) - np.min(np.where(present, block, np.inf), axis=0)
+    short = counts < needed
+    flat = ~short & ~(spread > 0.0)
+    left_out = tuple(
+        (int(j), f"coverage {counts[j]}/{window} < {needed}" if short[j] else "zero variance")
+        for j in np.flatnonzero(short | flat)
+    )
+    used_arr = np.flatnonzero(~(short | flat)).astype(np.int64)
     sub = block[:, used_arr]
     if not present[:, used_arr].all():
         means = np.nanmean(sub, axis=0)
         sub = np.where(np.isnan(sub), means, sub)
-    return Selection(used=used_arr, block=np.ascontiguousarray(sub, dtype=float), left_out=tuple(left_out))
+    return Selection(used=used_arr, block=np.ascontiguousarray(sub, dtype=float), left_out=left_out)
