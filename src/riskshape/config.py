@@ -76,7 +76,7 @@ class ComputeConfig(_Frozen):
     executor: Literal["serial", "process", "dask"] = "process"
     workers: int = Field(0, ge=0, description="processes for the local pool; 0 means one per core")
     scheduler: str | None = Field(None, description="Dask scheduler address, e.g. tcp://10.0.0.5:8786")
-    batch_windows: int = Field(64, ge=1, description="windows sent to a worker at once")
+    batch_windows: int = Field(64, ge=1, description="most windows sent to a worker at once (smaller batches keep every worker busy)")
 
 
 class RuleConfig(_Frozen):

@@ -8,7 +8,10 @@ Conventions of each library (read from their documentation and source, gudhi 3.x
   metric L^internal_p, so ``internal_p=inf`` is the L-infinity metric of the stability theorem
   (Cohen-Steiner, Edelsbrunner, Harer, Mileyko 2010); solved with POT's exact optimal transport;
 * gudhi.bottleneck_distance(X, Y): L-infinity ground metric, exact up to the smallest positive
-  double by default;
+  double by default -- but gudhi 3.13 returns too large a value on some inputs (fixed upstream after
+  3.13, gudhi-devel pull request 1367), so bottleneck values are checked against persim instead;
+* persim.bottleneck(X, Y): L-infinity ground metric, exact (bipartite matching over the candidate
+  values), an implementation independent of ours;
 * persim.wasserstein(X, Y): order 1 with the Euclidean (L2) ground metric, so a point's distance to
   the diagonal is (death - birth) / sqrt(2). It is *not* our convention; the contrast test shows it.
 """
@@ -19,6 +22,7 @@ import gudhi
 import numpy as np
 import pytest
 from gudhi.wasserstein import wasserstein_distance as gudhi_wasserstein
+from persim import bottleneck as persim_bottleneck
 from persim import wasserstein as persim_wasserstein
 
 from riskshape.summaries import bottleneck_distance, wasserstein_distance
@@ -51,9 +55,11 @@ def test_wasserstein_matches_gudhi_linf_ground_metric(rng: np.random.Generator, 
         assert wasserstein_distance(b, a, order) == pytest.approx(expected, rel=1e-9, abs=1e-12)
 
 
-def test_bottleneck_matches_gudhi(rng: np.random.Generator) -> None:
+def test_bottleneck_matches_persim(rng: np.random.Generator) -> None:
     for a, b in _pairs(rng):
-        expected = gudhi.bottleneck_distance(a, b)
+        if len(a) == 0 or len(b) == 0:
+            continue  # persim needs points on both sides; the empty cases are checked by hand below
+        expected = persim_bottleneck(a, b)
         assert bottleneck_distance(a, b) == pytest.approx(expected, rel=1e-9, abs=1e-12)
         assert bottleneck_distance(b, a) == pytest.approx(expected, rel=1e-9, abs=1e-12)
 
