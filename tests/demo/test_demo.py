@@ -74,3 +74,18 @@ def test_demo_alerts_near_the_stress_episode(demo_run: tuple[Path, subprocess.Co
     dates = pd.to_datetime([line.split()[0] for line in done.stdout.splitlines() if line.startswith("  20")])
     gaps = (dates - start).days
     assert np.any((gaps >= -60) & (gaps <= 20)), done.stdout
+
+
+def test_every_demo_alert_reproduces_from_the_archive(demo_run: tuple[Path, subprocess.CompletedProcess[str]]) -> None:
+    # The archive keeps the prices and the configuration: each alert is recomputed from them alone.
+    from riskshape.archive import reproduce_alerts
+    from riskshape.store import open_store, verify_chain
+
+    out, _ = demo_run
+    with open_store(f"sqlite:///{out / 'riskshape.sqlite'}", create=False) as store:
+        ids = [a.id for a in store.list_alerts(limit=None).items]
+        assert ids
+        reports = reproduce_alerts(store, ids)
+        assert verify_chain(store).ok
+    assert len(reports) == len(ids)
+    assert all(report.ok for report in reports), [c for r in reports for c in r.failed]
