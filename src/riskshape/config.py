@@ -13,10 +13,11 @@ import hashlib
 import json
 import os
 import sys
+from contextvars import ContextVar
 from functools import lru_cache
 from importlib import resources
 from pathlib import Path
-from typing import Any, Literal, Mapping
+from typing import Any, Callable, Literal, Mapping
 
 from pydantic import BaseModel, ConfigDict, Field, ValidationError, model_validator
 
@@ -32,7 +33,9 @@ __all__ = ["Config", "ComputeConfig", "AlertsConfig", "RuleConfig", "ServiceSett
 Severity = Literal["info", "warning", "critical"]
 
 
-def format_validation_error(err: ValidationError, where: str, prefix: str = "") -> str:
+def format_validation_error(
+    err: ValidationError, where: str, prefix: str = "", key_name: Callable[[tuple[Any, ...]], str] | None = None
+) -> str:
     """Turn a pydantic error into one message per bad field, each naming the key and the value received.
 
     Parameters
@@ -43,6 +46,8 @@ def format_validation_error(err: ValidationError, where: str, prefix: str = "") 
         What was being read (a file name, or ``"Config(...)"``).
     prefix : str
         Prepended to each key path, e.g. ``"monitor."``.
+    key_name : callable, optional
+        Turns a pydantic location into the key's name as written (default: dotted path).
 
     Returns
     -------
@@ -51,7 +56,8 @@ def format_validation_error(err: ValidationError, where: str, prefix: str = "") 
     """
     lines = []
     for problem in err.errors():
-        key = prefix + ".".join(str(p) for p in problem["loc"])
+        loc = tuple(problem["loc"])
+        key = prefix + (key_name(loc) if key_name else ".".join(str(p) for p in loc))
         got = problem.get("input")
         if problem["type"] == "extra_forbidden":
             lines.append(f"{where}: unknown key '{key}'; remove it or check its spelling (see config/default.toml)")
@@ -60,14 +66,43 @@ def format_validation_error(err: ValidationError, where: str, prefix: str = "") 
     return "\n".join(lines)
 
 
+# How deep the construction of nested sections is (pydantic runs a custom __init__ for nested models
+# too): only the outermost turns pydantic's error into a ConfigError, so nested errors keep their
+# full key path; and what is being read, for the message.
+_DEPTH: ContextVar[int] = ContextVar("riskshape_config_depth", default=0)
+_WHERE: ContextVar[str | None] = ContextVar("riskshape_config_where", default=None)
+
+
 class _Frozen(BaseModel):
     model_config = ConfigDict(frozen=True, extra="forbid")
 
     def __init__(self, **data: Any) -> None:
+        token = _DEPTH.set(_DEPTH.get() + 1)
         try:
             super().__init__(**data)
         except ValidationError as err:
-            raise ConfigError(format_validation_error(err, f"{type(self).__name__}(...)")) from None
+            if _DEPTH.get() > 1:
+                raise
+            where = _WHERE.get()
+            if where is None:
+                raise ConfigError(format_validation_error(err, f"{type(self).__name__}(...)")) from None
+            raise ConfigError(format_validation_error(err, where, key_name=self._file_key)) from None
+        finally:
+            _DEPTH.reset(token)
+
+    @staticmethod
+    def _file_key(loc: tuple[Any, ...]) -> str:
+        """How a field is named in a file (Config moves its own fields under [monitor])."""
+        return ".".join(str(p) for p in loc)
+
+    @classmethod
+    def _build(cls, data: Mapping[str, Any], where: str) -> Any:
+        """Construct from a mapping read from ``where`` (a file, the environment); errors name it."""
+        token = _WHERE.set(where)
+        try:
+            return cls(**data)
+        finally:
+            _WHERE.reset(token)
 
 
 class ComputeConfig(_Frozen):
@@ -220,10 +255,13 @@ class Config(_Frozen):
         for section in ("compute", "alerts"):
             if section in data:
                 flat[section] = data[section]
-        try:
-            return cls.model_validate(flat)
-        except ValidationError as err:
-            raise ConfigError(format_validation_error(err, where, prefix="")) from None
+        built: Config = cls._build(flat, where)
+        return built
+
+    @staticmethod
+    def _file_key(loc: tuple[Any, ...]) -> str:
+        dotted = ".".join(str(p) for p in loc)
+        return dotted if not loc or loc[0] in ("compute", "alerts") else f"monitor.{dotted}"
 
     def to_mapping(self) -> dict[str, Any]:
         """The nested mapping :meth:`from_mapping` reads (round-trips)."""
@@ -286,7 +324,5 @@ class ServiceSettings(_Frozen):
             if key in env:
                 data[name] = env[key]
         data.update({k: v for k, v in overrides.items() if v is not None})
-        try:
-            return cls.model_validate(data)
-        except ValidationError as err:
-            raise ConfigError(format_validation_error(err, "environment (RISKSHAPE_*)")) from None
+        built: ServiceSettings = cls._build(data, "environment (RISKSHAPE_*)")
+        return built
