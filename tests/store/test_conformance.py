@@ -288,12 +288,14 @@ def test_api_keys(store: Store) -> None:
 def test_bad_urls_are_store_errors(tmp_path) -> None:
     with pytest.raises(StoreError, match="does not exist"):
         open_store(f"sqlite:///{tmp_path / 'missing' / 'a.sqlite'}")
-    with pytest.raises(StoreError, match="not supported"):
+    with pytest.raises(StoreError, match="not a supported database"):
         open_store("mysql://localhost/db")
     with pytest.raises(StoreError, match="psycopg"):
         open_store("postgresql+psycopg2://postgres@127.0.0.1/test")
     with pytest.raises(StoreError, match="cannot be read"):
         open_store("not a url")
+    with pytest.raises(StoreError, match="'foo' is not a supported database"):  # no SQLAlchemy dialect at all
+        open_store("foo://bar")
 
 
 def test_open_without_create_refuses_a_missing_archive(store_url: str) -> None:

@@ -60,7 +60,10 @@ def create_archive_engine(url: str) -> Engine:
         parsed = make_url(url)
     except ArgumentError:
         raise StoreError(f"store URL {url!r} cannot be read; {URL_HELP}") from None
-    backend, driver = parsed.get_backend_name(), parsed.get_driver_name()
+    backend = parsed.get_backend_name()
+    if backend not in ("sqlite", "postgresql"):
+        raise StoreError(f"store URL {url!r}: {backend!r} is not a supported database; {URL_HELP}")
+    driver = parsed.get_driver_name()
     if backend == "sqlite":
         if driver != "pysqlite":
             raise StoreError(f"store URL {url!r}: SQLite driver {driver!r} is not supported; {URL_HELP}")
