@@ -72,7 +72,7 @@ class Snapshots:
         run = latest_run(store, portfolio)
         with self._lock:
             held = self._held.get(portfolio)
-        if held is not None and (held.run is None) == (run is None) and (run is None or held.run.id == run.id):
+        if held is not None and _same_run(held.run, run):
             return held
         if run is None:
             made = Snapshot(None, self.default_config, pd.DataFrame(index=pd.DatetimeIndex([], name="window_end")))
@@ -85,3 +85,10 @@ class Snapshots:
             while len(self._held) > self.size:
                 self._held.popitem(last=False)
         return made
+
+
+def _same_run(held: Run | None, latest: Run | None) -> bool:
+    """True when both are None (no run yet) or both are the same run."""
+    if held is None or latest is None:
+        return held is None and latest is None
+    return held.id == latest.id

@@ -80,6 +80,8 @@ def run_demo(
     -------
     DemoReport
     """
+    from matplotlib.figure import Figure
+
     from riskshape import plots
 
     out = Path(out_dir)
@@ -97,7 +99,9 @@ def run_demo(
     summaries_plot, _ = plots.save_figure(summaries_fig, out / "summaries")
     diagram_ax = plots.plot_diagram([result.diagram(stress_end, d) for d in range(config.maxdim + 1)])
     diagram_ax.set_title(f"Vietoris-Rips diagram, window ending {stress_end.date()} (stress)", fontsize=9)
-    diagram_plot, _ = plots.save_figure(diagram_ax.figure, out / "stress_diagram")
+    diagram_fig = diagram_ax.figure
+    assert isinstance(diagram_fig, Figure), "plot_diagram without ax draws on a new top-level Figure"
+    diagram_plot, _ = plots.save_figure(diagram_fig, out / "stress_diagram")
     store_url = None
     if archive:
         from riskshape.archive import archive_run

@@ -8,14 +8,15 @@ function); :func:`save_figure` writes PNG and SVG.
 
 from __future__ import annotations
 
-from collections.abc import Sequence
+from collections.abc import Mapping, Sequence
 from pathlib import Path
+from typing import TypeVar
 
 import numpy as np
 import pandas as pd
 from matplotlib.axes import Axes
 from matplotlib.backends.backend_agg import FigureCanvasAgg
-from matplotlib.figure import Figure
+from matplotlib.figure import Figure, SubFigure
 from matplotlib.layout_engine import ConstrainedLayoutEngine
 from persim.landscapes import PersLandscapeApprox
 from scipy.cluster.hierarchy import dendrogram, leaves_list, linkage
@@ -45,14 +46,15 @@ __all__ = [
 
 _CAUTION_GID = "riskshape-caution"
 _DIM_COLORS = ("tab:blue", "tab:orange", "tab:green")
+_FigureT = TypeVar("_FigureT", bound="Figure | SubFigure")
 
 
-def add_caution(fig: Figure) -> Figure:
+def add_caution(fig: _FigureT) -> _FigureT:
     """Put the caution in small print at the bottom right of ``fig`` (once).
 
     Returns
     -------
-    matplotlib.figure.Figure
+    matplotlib.figure.Figure or matplotlib.figure.SubFigure
         The same figure.
     """
     if not any(text.get_gid() == _CAUTION_GID for text in fig.texts):
@@ -69,7 +71,7 @@ def new_axes(ax: Axes | None = None, figsize: tuple[float, float] = (7.0, 4.0)) 
         fig = Figure(figsize=figsize, layout="constrained")
         FigureCanvasAgg(fig)
         ax = fig.add_subplot()
-    add_caution(ax.figure)  # type: ignore[arg-type]
+    add_caution(ax.figure)
     return ax
 
 
@@ -144,7 +146,7 @@ def plot_summaries(
     features: pd.DataFrame,
     columns: Sequence[str],
     *,
-    alerts: dict[str, Sequence[Firing] | pd.DatetimeIndex] | None = None,
+    alerts: Mapping[str, Sequence[Firing] | pd.DatetimeIndex] | None = None,
     events: DrawdownEvents | None = None,
     regimes: pd.DataFrame | None = None,
 ) -> Figure:
@@ -178,9 +180,10 @@ def plot_barcode(diagrams: Sequence[np.ndarray], *, ax: Axes | None = None) -> A
     ax = new_axes(ax, (5.0, 4.5))
     y = 0
     for k, dgm in enumerate(diagrams):
-        order = np.argsort(dgm[:, 0] - dgm[:, 1]) if len(dgm) else []
+        order = np.argsort(dgm[:, 0] - dgm[:, 1]) if len(dgm) else np.empty(0, dtype=np.intp)
         for i, j in enumerate(order):
-            ax.hlines(y, dgm[j, 0], dgm[j, 1], color=_DIM_COLORS[k % 3], lw=1.5, label=f"H{k}" if i == 0 else None)
+            # "" (hlines' default) keeps all but the first bar of a dimension out of the legend
+            ax.hlines(y, dgm[j, 0], dgm[j, 1], color=_DIM_COLORS[k % 3], lw=1.5, label=f"H{k}" if i == 0 else "")
             y += 1
         y += 2
     ax.set_yticks([])
@@ -223,7 +226,7 @@ def plot_correlation_heatmap(corr: np.ndarray, labels: Sequence[str], *, ax: Axe
     ax = new_axes(ax, (6.0, 5.0))
     order = leaves_list(_single_linkage(corr)) if len(labels) > 1 else np.arange(len(labels))
     image = ax.imshow(corr[np.ix_(order, order)], vmin=-1.0, vmax=1.0, cmap="RdBu_r")
-    names = [labels[i] for i in order]
+    names = [labels[int(i)] for i in order]
     ax.set_xticks(range(len(names)), names, rotation=90, fontsize=5)
     ax.set_yticks(range(len(names)), names, fontsize=5)
     ax.figure.colorbar(image, ax=ax, shrink=0.8, label="correlation")
@@ -249,5 +252,5 @@ def plot_window(result: MonitorResult, window_end: object) -> Figure:
     plot_landscape(diagrams[dim], dim=dim, ax=fig.add_subplot(grid[0, 2]))
     plot_dendrogram(corr, labels, ax=fig.add_subplot(grid[1, :2]))
     plot_correlation_heatmap(corr, labels, ax=fig.add_subplot(grid[1, 2]))
-    fig.suptitle(f"window ending {pd.Timestamp(window_end).date()} ({len(labels)} assets)")  # type: ignore[arg-type]
+    fig.suptitle(f"window ending {pd.Timestamp(window_end).date()} ({len(labels)} assets)")
     return add_caution(fig)

@@ -153,11 +153,12 @@ def collect_review(store: Store, since: object, until: object, *, portfolio: str
     alerts = []
     for d in details:
         archived = archived_explanation(d.alert)
+        item: tuple[Explanation | None, Source, str]
         if archived is not None:
             item = (archived, "archived", "archived with the alert, inside the hash chain")
         else:
             item = recomputed.get(d.alert.id, (None, "unavailable", "not archived with the alert (not recomputed)"))
-        alerts.append(ReportedAlert(d.alert, d.reviews, *item))  # type: ignore[arg-type]
+        alerts.append(ReportedAlert(d.alert, d.reviews, *item))
     names = [portfolio] if portfolio is not None else [p.name for p in store.list_portfolios()]
     series = []
     runs: list[Run] = []

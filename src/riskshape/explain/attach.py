@@ -135,13 +135,13 @@ def explain_alert(
     want_loops = dim != 0 and result.config.maxdim >= 1
     clusters = loops = None
     if want_clusters:
-        earlier = _compared_position(result, position, compare)
-        previous = window_geometry(result, result.window_ends[earlier]) if earlier is not None else None
+        compared = _compared_position(result, position, compare)
+        previous = window_geometry(result, result.window_ends[compared]) if compared is not None else None
         clusters = explain_clusters(current, previous, scale, n_pairs)
     if want_loops:
         count = min(lookback, position)
-        earlier = _EarlierWindows(result, position, count)
-        loops = explain_loops(current, earlier, n_loops=n_loops, min_overlap=min_overlap,
+        history = _EarlierWindows(result, position, count)
+        loops = explain_loops(current, history, n_loops=n_loops, min_overlap=min_overlap,
                               reaches_first_window=count == position)
     return Explanation(summary=summary, window_end=current.window_end, clusters=clusters, loops=loops)
 

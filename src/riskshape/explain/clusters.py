@@ -150,9 +150,9 @@ def match_clusters(before: Sequence[Members], after: Sequence[Members]) -> tuple
         if len(sources) > 1:
             events.append(ClusterEvent("merge", tuple(before[i] for i in sources), (after[j],)))
     split_from: dict[int, list[int]] = defaultdict(list)
-    for j, i in enumerate(predecessor):
-        if i is not None:
-            split_from[i].append(j)
+    for j, source in enumerate(predecessor):
+        if source is not None:
+            split_from[source].append(j)
     for i, parts in split_from.items():
         if len(parts) > 1:
             events.append(ClusterEvent("split", (before[i],), tuple(after[j] for j in parts)))

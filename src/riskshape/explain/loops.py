@@ -78,7 +78,7 @@ def canonical_cycle(points: list[int]) -> tuple[int, ...]:
     return tuple(rotated)
 
 
-def _path(distance32: np.ndarray, scale: float, banned: np.ndarray, source: int, target: int) -> list[int] | None:
+def _path(distance32: np.ndarray, scale: np.float32, banned: np.ndarray, source: int, target: int) -> list[int] | None:
     """Shortest path source -> target over edges of length <= scale that are not banned."""
     weights = np.where((distance32 <= scale) & ~banned, distance32.astype(float) ** 2, np.inf)
     np.fill_diagonal(weights, np.inf)

@@ -147,7 +147,7 @@ def drawdown_events(wealth: pd.Series, min_depth: float, max_duration: int | Non
     edges = np.diff(np.concatenate([[0], deep.astype(np.int8), [0]]))
     spans: list[tuple[int, int]] = []  # (start, trough) positions
     for first, stop in zip(np.flatnonzero(edges == 1), np.flatnonzero(edges == -1)):
-        trough = first + int(np.argmin(values[first:stop]))
+        trough = int(first) + int(np.argmin(values[first:stop]))
         lo = 0 if max_duration is None else max(0, trough - max_duration + 1)
         start = _last_argmax(values[lo : trough + 1]) + lo
         if spans and start <= spans[-1][1]:

@@ -34,7 +34,7 @@ from __future__ import annotations
 
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
-from typing import Literal
+from typing import Literal, TypeAlias
 
 import numpy as np
 import pandas as pd
@@ -52,7 +52,7 @@ from riskshape.research.labels import event_labels, event_positions, positions
 __all__ = ["EventStudy", "event_labels", "event_study", "study_table", "default_rule", "ALERT_OUTCOMES"]  # event_labels: from labels
 
 ALERT_OUTCOMES: tuple[str, ...] = ("true", "false", "in_event", "unknown")
-Alerts = RuleConfig | Sequence[Firing] | pd.DatetimeIndex | None
+Alerts: TypeAlias = RuleConfig | Sequence[Firing] | pd.DatetimeIndex | None
 
 
 @dataclass(frozen=True)

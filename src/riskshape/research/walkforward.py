@@ -144,8 +144,9 @@ def walk_forward(
         )
     calendar = pd.DatetimeIndex(wealth.index)
     final_events = drawdown_events(wealth, min_depth, max_duration)
-    label_options = {"exclude_in_event": exclude_in_event, "post_event_days": post_event_days}
-    final_labels = event_labels(features.index, final_events, horizon, **label_options)
+    final_labels = event_labels(
+        features.index, final_events, horizon, exclude_in_event=exclude_in_event, post_event_days=post_event_days
+    )
     bounds = np.linspace(min_train, n_rows, n_folds + 1).round().astype(int)
     fold_rows, predictions = [], []
     for k in range(n_folds):
@@ -154,7 +155,9 @@ def walk_forward(
         known_events = drawdown_events(wealth.iloc[: now + 1], min_depth, max_duration)
         past = features.iloc[: bounds[k]]
         past = past[past.index <= calendar[now]]
-        train_labels = event_labels(past.index, known_events, horizon, **label_options)
+        train_labels = event_labels(
+            past.index, known_events, horizon, exclude_in_event=exclude_in_event, post_event_days=post_event_days
+        )
         out = pd.DataFrame({"fold": k, "label": final_labels.loc[test.index]}, index=test.index)
         row: dict[str, object] = {
             "fold": k,

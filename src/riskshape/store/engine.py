@@ -172,6 +172,10 @@ def upgrade(engine: Engine) -> str:
     config = _alembic_config()
     script = ScriptDirectory.from_config(config)
     head = script.get_current_head()
+    if head is None:
+        raise StoreError(
+            f"riskshape's schema migrations have no head revision (looked in {script.dir}); reinstall riskshape"
+        )
     with read_transaction(engine) as connection:
         current = schema_revision(connection)
     if current == head:
@@ -184,5 +188,4 @@ def upgrade(engine: Engine) -> str:
     with write_transaction(engine) as connection:
         config.attributes["connection"] = connection
         command.upgrade(config, "head")
-    assert head is not None
     return head

@@ -43,7 +43,7 @@ def to_date(value: object, what: str) -> date:
     if isinstance(value, date) and not isinstance(value, datetime):
         return value
     try:
-        stamp = pd.Timestamp(value)  # type: ignore[arg-type]
+        stamp = pd.Timestamp(value)
     except (ValueError, TypeError):
         raise StoreError(f"{what}: cannot read {value!r} as a date; write it as YYYY-MM-DD") from None
     if stamp is pd.NaT or stamp != stamp.normalize():
@@ -66,17 +66,17 @@ def _next_id(connection: Connection, table: sa.Table) -> int:
 def _check_alert(alert: Alert, n: int) -> None:
     where = f"alert {n} ({alert.firing.rule} at {alert.firing.window_end})"
     f = alert.firing
-    for name, value in (("value", f.value), ("threshold", f.threshold)):
-        if not isinstance(value, (int, float)) or not math.isfinite(float(value)):
-            raise StoreError(f"{where}: {name} must be a finite number, got {value!r}")
-    for name, value, limit in (("rule", f.rule, 80), ("summary", f.summary, 80), ("kind", f.kind, 16),
+    for name, number in (("value", f.value), ("threshold", f.threshold)):
+        if not isinstance(number, (int, float)) or not math.isfinite(float(number)):
+            raise StoreError(f"{where}: {name} must be a finite number, got {number!r}")
+    for name, text, limit in (("rule", f.rule, 80), ("summary", f.summary, 80), ("kind", f.kind, 16),
                                ("severity", f.severity, 16), ("portfolio", alert.portfolio, 200),
                                ("package_version", alert.package_version, 64)):
-        if not isinstance(value, str) or not value or len(value) > limit:
-            raise StoreError(f"{where}: {name} must be a non-empty string of at most {limit} characters, got {value!r}")
-    for name, value in (("config_hash", alert.config_hash), ("inputs_hash", alert.inputs_hash)):
-        if not isinstance(value, str) or not _HEX64.match(value):
-            raise StoreError(f"{where}: {name} must be 64 lowercase hex digits (SHA-256), got {value!r}")
+        if not isinstance(text, str) or not text or len(text) > limit:
+            raise StoreError(f"{where}: {name} must be a non-empty string of at most {limit} characters, got {text!r}")
+    for name, digest in (("config_hash", alert.config_hash), ("inputs_hash", alert.inputs_hash)):
+        if not isinstance(digest, str) or not _HEX64.match(digest):
+            raise StoreError(f"{where}: {name} must be 64 lowercase hex digits (SHA-256), got {digest!r}")
     if not isinstance(alert.raised_at, datetime) or alert.raised_at.tzinfo is None:
         raise StoreError(f"{where}: raised_at must be a timezone-aware datetime, got {alert.raised_at!r}")
 

@@ -96,6 +96,7 @@ def _bulk_insert(connection: Connection, portfolio_id: int, rows: list[tuple[dat
     if not rows:
         return
     columns = "portfolio_id, date, asset, price, revision, recorded_at"
+    params: list[tuple[object, ...]]
     if connection.dialect.name == "sqlite":
         stamp: object = now.astimezone(timezone.utc).strftime("%Y-%m-%d %H:%M:%S.%f")
         params = [(portfolio_id, d.isoformat(), a, p, r, stamp) for d, a, p, r in rows]
