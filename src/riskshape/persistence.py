@@ -12,8 +12,9 @@ diagram does not depend on how the points are numbered: the numbering only break
 simplices of equal diameter, which changes the pairing of zero-length bars (dropped here) and
 never a bar's values. It changes how much work ripser's reduction does: its apparent and
 emergent pairs depend on the numbering. Measured on correlation distances (synthetic factor
-model, one thread): 15% to 50% less persistence time from 100 to 500 assets, windows of 60 and
-250 days; ``tests/speed`` checks the bars against ripser on the original numbering.
+model, giotto-ph, one thread, old and new order on the same matrices): 20% less persistence time
+at 100 assets and window 60, 13% at 500 assets and window 250; ``tests/speed`` checks the bars
+against ripser on the original numbering.
 
 Conventions: every diagram holds only finite bars; the one infinite H0 bar (the component
 that never dies) is dropped, as are bars of zero length. Values are float32 rounded, returned
