@@ -24,6 +24,7 @@ __all__ = [
     "WindowSettings",
     "WindowResult",
     "compute_window",
+    "embedding_distance",
     "compute_batch",
     "diagram_distances",
     "first_row_needed",
@@ -141,15 +142,40 @@ def _from_selection(selection: Selection, settings: WindowSettings, corr: np.nda
         return WindowResult(selection.used, selection.left_out, float("nan"), empty, nan_distances)
     if corr is None:
         corr = correlation_matrix(selection.block, settings.correlation)
-    if settings.embedding == "point_cloud":
-        points = selection.block
-        if settings.standardize_cloud:
-            points = (points - points.mean(axis=0)) / points.std(axis=0)
-        distance = squareform(pdist(points))
-    else:
-        distance = correlation_to_distance(corr)
+    distance = embedding_distance(selection.block, corr, settings.embedding, settings.standardize_cloud)
     diagrams = compute_diagrams(distance, settings.maxdim, settings.engine)
     return WindowResult(selection.used, selection.left_out, mean_offdiagonal(corr), diagrams, nan_distances)
+
+
+def embedding_distance(
+    block: np.ndarray,
+    corr: np.ndarray,
+    embedding: Literal["correlation", "point_cloud"],
+    standardize_cloud: bool,
+) -> np.ndarray:
+    """The distance matrix whose Vietoris-Rips filtration gives a window's diagrams.
+
+    Parameters
+    ----------
+    block : numpy.ndarray
+        (days, assets) returns of the admitted assets, complete.
+    corr : numpy.ndarray
+        Their correlation matrix.
+    embedding : {"correlation", "point_cloud"}
+        ``correlation``: between assets, sqrt(2 (1 - rho)); ``point_cloud``: Euclidean between days.
+    standardize_cloud : bool
+        For ``point_cloud``: each asset's returns scaled to zero mean and unit variance first.
+
+    Returns
+    -------
+    numpy.ndarray
+    """
+    if embedding == "point_cloud":
+        points = block
+        if standardize_cloud:
+            points = (points - points.mean(axis=0)) / points.std(axis=0)
+        return squareform(pdist(points))
+    return correlation_to_distance(corr)
 
 
 def diagram_distances(previous: tuple[np.ndarray, ...], current: tuple[np.ndarray, ...], order_p: float) -> np.ndarray:

@@ -2,9 +2,9 @@
 
 The engine keeps only diagrams; explanations need the assets, their correlations and the
 distance matrix the diagrams came from. :func:`window_geometry` rebuilds them from
-``MonitorResult.window_returns`` with the same building blocks and settings
+``MonitorResult.window_returns`` with the engine's own building blocks and settings
 (:func:`riskshape.windows.select_assets`, :func:`riskshape.distance.correlation_matrix`,
-:func:`riskshape.distance.correlation_to_distance`, or the standardised point cloud).
+:func:`riskshape.window.embedding_distance`).
 """
 
 from __future__ import annotations
@@ -14,11 +14,11 @@ from datetime import date
 
 import numpy as np
 import pandas as pd
-from scipy.spatial.distance import pdist, squareform
 
 from riskshape.distance import correlation_matrix, correlation_to_distance
 from riskshape.errors import DataError
 from riskshape.monitor import MonitorResult
+from riskshape.window import embedding_distance
 from riskshape.windows import select_assets
 
 __all__ = ["WindowGeometry", "window_geometry", "as_date"]
@@ -92,8 +92,6 @@ def window_geometry(result: MonitorResult, window_end: object) -> WindowGeometry
     asset_distance = correlation_to_distance(corr)
     if config.embedding != "point_cloud":
         return WindowGeometry(end, used, corr, asset_distance, used, asset_distance)
-    cloud = block
-    if config.standardize_cloud:
-        cloud = (cloud - cloud.mean(axis=0)) / cloud.std(axis=0)
     days = tuple(d.date().isoformat() for d in pd.DatetimeIndex(frame.index))
-    return WindowGeometry(end, used, corr, asset_distance, days, squareform(pdist(cloud)))
+    distance = embedding_distance(block, corr, config.embedding, config.standardize_cloud)
+    return WindowGeometry(end, used, corr, asset_distance, days, distance)
