@@ -28,7 +28,8 @@ if sys.version_info >= (3, 11):
 else:  # pragma: no cover - exercised on Python 3.10 only
     import tomli as tomllib
 
-__all__ = ["Config", "ComputeConfig", "AlertsConfig", "RuleConfig", "ServiceSettings", "format_validation_error", "default_rules"]
+__all__ = ["Config", "ComputeConfig", "AlertsConfig", "RuleConfig", "ServiceSettings", "format_validation_error", "default_rules",
+           "store_url_from_env"]
 
 Severity = Literal["info", "warning", "critical"]
 
@@ -281,6 +282,12 @@ class Config(_Frozen):
         payload = self.model_dump(mode="json", exclude={"compute"})
         text = json.dumps(payload, sort_keys=True, separators=(",", ":"), allow_nan=False)
         return hashlib.sha256(text.encode("utf-8")).hexdigest()
+
+
+def store_url_from_env(environ: Mapping[str, str] | None = None) -> str | None:
+    """The archive URL in ``RISKSHAPE_STORE_URL``, if set (the CLI's default for ``--store``)."""
+    env = os.environ if environ is None else environ
+    return env.get("RISKSHAPE_STORE_URL") or None
 
 
 class ServiceSettings(_Frozen):

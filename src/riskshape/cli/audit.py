@@ -5,14 +5,22 @@ from __future__ import annotations
 import click
 
 from riskshape.caution import CAUTION
-from riskshape.config import ComputeConfig
+from riskshape.config import ComputeConfig, store_url_from_env
 from riskshape.store import chain_head, open_store, verify_chain
 
 __all__ = ["audit", "STORE_OPTION"]
 
+def _store_url(ctx: click.Context, param: click.Parameter, value: str | None) -> str:
+    url = value or store_url_from_env()
+    if not url:
+        raise click.UsageError("--store is required (or set RISKSHAPE_STORE_URL)", ctx=ctx)
+    return url
+
+
 STORE_OPTION = click.option(
-    "--store", "store_url", required=True, envvar="RISKSHAPE_STORE_URL", show_envvar=True,
-    help="Archive URL: sqlite:///path/to/archive.sqlite or postgresql+psycopg://user@host:5432/db.",
+    "--store", "store_url", default=None, callback=_store_url,
+    help="Archive URL: sqlite:///path/to/archive.sqlite or postgresql+psycopg://user@host:5432/db "
+         "(default: RISKSHAPE_STORE_URL).",
 )
 
 

@@ -7,6 +7,7 @@ from pathlib import Path
 import click
 
 from riskshape.caution import CAUTION
+from riskshape.cli.audit import STORE_OPTION
 from riskshape.report import collect_review, write_report
 from riskshape.store import open_store
 
@@ -14,8 +15,7 @@ __all__ = ["report"]
 
 
 @click.command()
-@click.option("--store", "store_url", required=True, envvar="RISKSHAPE_STORE_URL",
-              help="Archive URL, e.g. sqlite:///archive.sqlite (or RISKSHAPE_STORE_URL).")
+@STORE_OPTION
 @click.option("--from", "since", required=True, help="First window end of the period (YYYY-MM-DD).")
 @click.option("--to", "until", required=True, help="Last window end of the period (YYYY-MM-DD).")
 @click.option("--out", "out", type=click.Path(path_type=Path, dir_okay=False), required=True,
