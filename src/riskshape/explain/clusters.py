@@ -119,6 +119,15 @@ def clusters_at(distance: np.ndarray, names: Sequence[str], scale: float) -> tup
     return tuple(sorted((tuple(g) for g in groups.values()), key=lambda g: (-len(g), order[g[0]])))
 
 
+def _grouped_by_target(targets: Sequence[int | None]) -> dict[int, list[int]]:
+    """Positions grouped by the target each maps to (positions mapping to None are left out)."""
+    groups: dict[int, list[int]] = defaultdict(list)
+    for position, target in enumerate(targets):
+        if target is not None:
+            groups[target].append(position)
+    return groups
+
+
 def _majority(sources: Sequence[set[str]], targets: Sequence[set[str]]) -> list[int | None]:
     """For each source set, the target holding more than half of its members (or None)."""
     found: list[int | None] = []
@@ -142,18 +151,10 @@ def match_clusters(before: Sequence[Members], after: Sequence[Members]) -> tuple
     successor = _majority(prev_sets, next_sets)
     predecessor = _majority(next_sets, prev_sets)
     events: list[ClusterEvent] = []
-    merged_into: dict[int, list[int]] = defaultdict(list)
-    for i, j in enumerate(successor):
-        if j is not None:
-            merged_into[j].append(i)
-    for j, sources in merged_into.items():
+    for j, sources in _grouped_by_target(successor).items():
         if len(sources) > 1:
             events.append(ClusterEvent("merge", tuple(before[i] for i in sources), (after[j],)))
-    split_from: dict[int, list[int]] = defaultdict(list)
-    for j, source in enumerate(predecessor):
-        if source is not None:
-            split_from[source].append(j)
-    for i, parts in split_from.items():
+    for i, parts in _grouped_by_target(predecessor).items():
         if len(parts) > 1:
             events.append(ClusterEvent("split", (before[i],), tuple(after[j] for j in parts)))
     events.sort(key=lambda e: (-sum(len(c) for c in e.before + e.after), e.kind))
