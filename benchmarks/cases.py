@@ -111,7 +111,7 @@ def _serial(config: Config) -> Config:
 def _warm_up() -> None:
     """Import every library once (imports would otherwise land in the first timing)."""
     settings = settings_of(Config(window=20, maxdim=1))
-    preload(settings, 100)
+    preload(settings)
     returns = factor_returns(25, 80, seed=99)
     compute_batch(returns, np.arange(19, 25), settings)
 
@@ -309,7 +309,7 @@ def executor_run(variant: str, quick: bool) -> dict[str, float]:
         if variant == "serial":
             _compute_windows(returns, ends, _serial(config), None, None)
         else:
-            loader = partial(preload, settings, prices.shape[1]) if variant == "pool" else None
+            loader = partial(preload, settings) if variant == "pool" else None
             executor = ProcessExecutor(available_cores(), preload=loader)
             try:
                 _compute_windows(returns, ends, config, None, None, executor)

@@ -15,12 +15,20 @@ point's cost to the diagonal is half its lifetime.
   matching minimises the largest difference among perfect matchings of reals (a classical
   exchange argument), and no point gains by going to the diagonal when the largest pair cost
   does not exceed every point's cost to the diagonal (:func:`sorted_bottleneck_is_optimal`).
-* **Assignment problem** (scipy's ``linear_sum_assignment``) on the (n + m) square cost matrix
-  where every point has its own diagonal copy: the plain Wasserstein path, also the fastest for
-  small diagrams.
-* **Optimal transport** with the diagonal as one extra point of mass (gudhi's
-  ``wasserstein_distance``, POT's exact network simplex): faster for larger diagrams. When POT
-  stops at its iteration limit (it warns) the assignment solver is used instead.
+* **Assignment problem, plain** (scipy's ``linear_sum_assignment``) on the (n + m) square cost
+  matrix where every point has its own diagonal copy: the textbook formulation, kept as the
+  reference the fast paths are checked against.
+* **Assignment problem, reduced** (the fast path): the smaller diagram's n points are the rows;
+  the columns are the other diagram's m points and n diagonal slots, slot i open to row i only.
+  Every row is assigned, so every partial matching of the two diagrams is one assignment and
+  back: a row on its slot goes to the diagonal, a column left free is a point of the other
+  diagram that goes to the diagonal. Charging each pair (x, y) its cost minus y's cost to the
+  diagonal makes the assignment cost differ from the matching cost by a constant (the sum of
+  the other diagram's costs to the diagonal), so the optimal assignment is an optimal matching;
+  its cost is then summed from the matching itself, with no cancellation. An n x (m + n) matrix
+  instead of (n + m) x (n + m): 2x to 3x faster than POT's network simplex (through gudhi) on the
+  H1 diagrams of consecutive windows (0.25 against 0.52 ms at 100 assets and window 60, 1.9
+  against 5.5 ms at 500 assets and window 250), 3x to 8x faster than the square matrix.
 * **Bottleneck by thresholds.** The bottleneck distance is the smallest candidate value t (a
   pair cost or a diagonal cost) at which a matching of cost at most t exists (the classical
   reduction to bipartite matching, Efrat, Itai and Katz 2001, from memory). Existence at t is a
@@ -49,7 +57,7 @@ __all__ = [
     "sorted_matching_is_optimal",
     "sorted_bottleneck_is_optimal",
     "assignment_wasserstein",
-    "transport_wasserstein",
+    "reduced_assignment_wasserstein",
     "threshold_bottleneck",
     "persim_bottleneck",
 ]
@@ -103,8 +111,15 @@ def sorted_bottleneck_is_optimal(da: np.ndarray, db: np.ndarray) -> bool:
     return bool(np.max(np.abs(da - db)) <= min(float(da[0]), float(db[0])) / 2.0)
 
 
+def _pair_costs(a: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """(n, m) L-infinity distances between the points of two diagrams."""
+    return np.maximum(np.abs(a[:, None, 0] - b[None, :, 0]), np.abs(a[:, None, 1] - b[None, :, 1]))
+
+
 def assignment_wasserstein(a: np.ndarray, b: np.ndarray, order_p: float) -> float:
-    """Wasserstein-p distance of two non-empty diagrams by the assignment problem (scipy).
+    """Wasserstein-p distance of two non-empty diagrams by the square assignment problem (scipy).
+
+    The plain path (see the module notes).
 
     Parameters
     ----------
@@ -117,9 +132,8 @@ def assignment_wasserstein(a: np.ndarray, b: np.ndarray, order_p: float) -> floa
     float
     """
     n, m = len(a), len(b)
-    cross = np.maximum(np.abs(a[:, None, 0] - b[None, :, 0]), np.abs(a[:, None, 1] - b[None, :, 1]))
     cost = np.zeros((n + m, m + n))
-    cost[:n, :m] = cross**order_p
+    cost[:n, :m] = _pair_costs(a, b) ** order_p
     cost[:n, m:] = np.inf
     cost[n:, :m] = np.inf
     cost[np.arange(n), m + np.arange(n)] = _half_lifetimes(a) ** order_p
@@ -128,22 +142,36 @@ def assignment_wasserstein(a: np.ndarray, b: np.ndarray, order_p: float) -> floa
     return float(cost[rows, cols].sum() ** (1.0 / order_p))
 
 
-def transport_wasserstein(a: np.ndarray, b: np.ndarray, order_p: float) -> float | None:
-    """Wasserstein-p distance by POT's exact optimal transport (through gudhi).
+def reduced_assignment_wasserstein(a: np.ndarray, b: np.ndarray, order_p: float) -> float:
+    """Wasserstein-p distance of two non-empty diagrams by the reduced assignment problem (scipy).
+
+    The fast path (see the module notes): an n x (m + n) matrix, n the smaller diagram's size.
+
+    Parameters
+    ----------
+    a, b : numpy.ndarray
+        (n, 2) and (m, 2) finite bars, n, m >= 1.
+    order_p : float
 
     Returns
     -------
-    float or None
-        None when POT stops at its iteration limit before optimality (it then warns).
+    float
     """
-    from gudhi.wasserstein import wasserstein_distance as gudhi_wasserstein
-
-    with warnings.catch_warnings(record=True) as caught:
-        warnings.simplefilter("always")
-        value = float(gudhi_wasserstein(a, b, order=order_p, internal_p=np.inf))
-    if any(issubclass(w.category, UserWarning) for w in caught):
-        return None
-    return value
+    if len(a) > len(b):
+        a, b = b, a
+    n, m = len(a), len(b)
+    pair = _pair_costs(a, b) ** order_p
+    diag_a = _half_lifetimes(a) ** order_p
+    diag_b = _half_lifetimes(b) ** order_p
+    cost = np.full((n, m + n), np.inf)
+    cost[:, :m] = pair - diag_b
+    cost[np.arange(n), m + np.arange(n)] = diag_a
+    rows, cols = linear_sum_assignment(cost)
+    paired = cols < m
+    free_b = np.ones(m, dtype=bool)
+    free_b[cols[paired]] = False
+    total = pair[rows[paired], cols[paired]].sum() + diag_a[rows[~paired]].sum() + diag_b[free_b].sum()
+    return float(total ** (1.0 / order_p))
 
 
 def persim_bottleneck(a: np.ndarray, b: np.ndarray) -> float:
@@ -169,7 +197,7 @@ def threshold_bottleneck(a: np.ndarray, b: np.ndarray) -> float:
     float
         A pair cost or a diagonal cost, exactly (see the module notes).
     """
-    cross = np.maximum(np.abs(a[:, None, 0] - b[None, :, 0]), np.abs(a[:, None, 1] - b[None, :, 1]))
+    cross = _pair_costs(a, b)
     diag_a, diag_b = _half_lifetimes(a), _half_lifetimes(b)
 
     def feasible(t: float) -> bool:

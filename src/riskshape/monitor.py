@@ -262,7 +262,7 @@ def _compute_windows(
     size = config.compute.batch_windows
     own = executor is None
     runner = executor or make_executor(
-        config.compute, -(-len(all_ends) // size), preload=partial(preload, settings, values.shape[1])
+        config.compute, -(-len(all_ends) // size), preload=partial(preload, settings)
     )
     size = _balanced_batch_size(len(all_ends), size, getattr(runner, "workers", 1))
     jobs = []

@@ -253,20 +253,15 @@ def first_row_needed(end: int, settings: WindowSettings) -> int:
     return min(start, index * settings.step)
 
 
-def preload(settings: WindowSettings, n_assets: int) -> None:
+def preload(settings: WindowSettings) -> None:
     """Import the libraries the windows of these settings will need (before forking workers).
 
-    giotto-ph where it is the engine; gudhi and POT (optimal transport) when H1 diagrams are
-    expected to be large enough for the transport solver (more than about 60 assets).
+    giotto-ph where it is the Rips engine (it imports scikit-learn: about a second).
     """
     from riskshape.persistence import resolve_engine
 
     if settings.maxdim >= 1 and resolve_engine(settings.engine) == "giotto":
         import gph  # noqa: F401
-    if settings.maxdim >= 1:
-        import gudhi  # noqa: F401
-    if settings.maxdim >= 1 and n_assets > 60:
-        import gudhi.wasserstein  # noqa: F401
 
 
 def _rolling_applies(settings: WindowSettings) -> bool:

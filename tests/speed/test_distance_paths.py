@@ -3,8 +3,9 @@
 Plain paths (references no one here wrote): scipy's ``linear_sum_assignment`` on the assignment
 formulation of the Wasserstein distance (every point with its own diagonal copy: the textbook
 reduction, e.g. Edelsbrunner and Harer, Computational Topology, 2010, ch. VIII, from memory) and
-persim's exact ``bottleneck``. Fast paths: the sorted matching of H0 diagrams with its
-optimality check, POT's optimal transport through gudhi, the bottleneck as the smallest
+persim's exact ``bottleneck``; POT's exact network simplex (through gudhi) as a second, outside
+solver for the reduced assignment. Fast paths: the sorted matching of H0 diagrams with its
+optimality check, the reduced (rectangular) assignment problem, the bottleneck as the smallest
 threshold with a bipartite matching (riskshape.matching).
 """
 
@@ -16,7 +17,9 @@ import pytest
 from riskshape import matching
 from riskshape.distance import correlation_matrix, correlation_to_distance
 from riskshape.matching import (
+    assignment_wasserstein,
     persim_bottleneck,
+    reduced_assignment_wasserstein,
     sorted_bottleneck_is_optimal,
     sorted_matching_is_optimal,
     threshold_bottleneck,
@@ -80,21 +83,40 @@ def test_h0_wasserstein_fast_equals_assignment(rng: np.random.Generator) -> None
         assert wasserstein_distance(a, b) == pytest.approx(wasserstein_distance(a, b, method="assignment"), rel=REL)
 
 
-@pytest.mark.parametrize("order", [1.0, 2.0])
-def test_transport_equals_assignment(rng: np.random.Generator, order: float) -> None:
-    for n, m in [(1, 1), (3, 8), (40, 55), (90, 70), (150, 140)]:
+@pytest.mark.parametrize("order", [1.0, 2.0, 1.5])
+def test_reduced_assignment_equals_square_assignment(rng: np.random.Generator, order: float) -> None:
+    """Either diagram the smaller, one-point diagrams, and pairs far apart (all to the diagonal)."""
+    shapes = [(1, 1), (1, 6), (6, 1), (3, 8), (40, 55), (90, 70), (150, 140)]
+    for n, m in shapes:
         a, b = _general(rng, n), _general(rng, m)
-        transport = wasserstein_distance(a, b, order, method="transport")
         plain = wasserstein_distance(a, b, order, method="assignment")
-        assert transport == pytest.approx(plain, rel=REL)
+        assert reduced_assignment_wasserstein(a, b, order) == pytest.approx(plain, rel=REL)
+        assert reduced_assignment_wasserstein(b, a, order) == pytest.approx(plain, rel=REL)
         assert wasserstein_distance(a, b, order) == pytest.approx(plain, rel=REL)
+        far = b + 50.0
+        assert reduced_assignment_wasserstein(a, far, order) == pytest.approx(
+            wasserstein_distance(a, far, order, method="assignment"), rel=REL
+        )
 
 
-def test_transport_falls_back_when_pot_stops_early(rng: np.random.Generator, monkeypatch: pytest.MonkeyPatch) -> None:
-    a, b = _general(rng, 90), _general(rng, 80)
-    expected = wasserstein_distance(a, b, method="assignment")
-    monkeypatch.setattr("riskshape.summaries.transport_wasserstein", lambda *args: None)
-    assert wasserstein_distance(a, b) == pytest.approx(expected, rel=REL)
+def test_reduced_assignment_on_consecutive_windows_equals_pot(rng: np.random.Generator) -> None:
+    """H1 diagrams of consecutive windows: equal to the square assignment and to POT (gudhi)."""
+    from gudhi.wasserstein import wasserstein_distance as gudhi_wasserstein
+
+    diagrams = _consecutive_diagrams(rng, 60, 40, 6)
+    for dgms_a, dgms_b in zip(diagrams[:-1], diagrams[1:]):
+        a, b = dgms_a[1], dgms_b[1]
+        assert len(a) > 5 and len(b) > 5  # non-trivial H1 diagrams
+        for order in (1.0, 2.0):
+            fast = reduced_assignment_wasserstein(a, b, order)
+            assert fast == pytest.approx(assignment_wasserstein(a, b, order), rel=REL)
+            assert fast == pytest.approx(gudhi_wasserstein(a, b, order=order, internal_p=np.inf), rel=1e-9)
+
+
+def test_reduced_assignment_of_a_diagram_with_itself_is_zero(rng: np.random.Generator) -> None:
+    a = _general(rng, 30)
+    assert reduced_assignment_wasserstein(a, a.copy(), 1.0) == 0.0
+    assert reduced_assignment_wasserstein(a, a.copy(), 2.0) == 0.0
 
 
 def test_bottleneck_fast_equals_persim(rng: np.random.Generator) -> None:
