@@ -5,7 +5,7 @@
   BLAS pinned to one thread in each worker (two BLAS threads per process were seen to stall
   small products). Workers are forked where that is safe, after the parent has imported the
   libraries the work needs (``preload``), so no worker pays for importing them again: those
-  imports (giotto-ph and POT pull in scikit-learn) take about a second each, as long as a
+  imports (giotto-ph pulls in scikit-learn) take about a second, as long as a
   small run itself; with another start method the same preload runs in each worker instead;
 * ``dask``: an existing Dask distributed cluster, given by its scheduler address; each worker
   process pins its BLAS to one thread on its first job.
@@ -65,8 +65,9 @@ def _pin_blas() -> None:
     threadpool_limits(1)
 
 
-def _start_worker(preload: Callable[[], None] | None) -> None:
-    _pin_blas()
+def _start_worker(preload: Callable[[], None] | None, pin: bool) -> None:
+    if pin:
+        _pin_blas()
     if preload is not None:
         preload()
 
@@ -106,18 +107,26 @@ class ProcessExecutor:
     def map(self, fn: Callable[..., T], jobs: Sequence[tuple[Any, ...]]) -> Iterator[T]:
         if self._pool is None:
             method = _start_method()
-            if method == "fork" and self.preload is not None:
+            forked = method == "fork"
+            if forked and self.preload is not None:
                 self.preload()  # the forked workers inherit the imported modules
-            worker_preload = None if method == "fork" else self.preload
             self._pool = ProcessPoolExecutor(
                 self.workers,
                 mp_context=multiprocessing.get_context(method),
                 initializer=_start_worker,
-                initargs=(worker_preload,),
+                initargs=(None if forked else self.preload, not forked),
             )
-        futures = [self._pool.submit(fn, *job) for job in jobs]
-        for future in futures:
-            yield future.result()
+        from threadpoolctl import threadpool_limits
+
+        # BLAS stays pinned in this process while the workers run, so that forked workers
+        # inherit one BLAS thread and never pin it themselves: pinning in a forked child, or
+        # unpinning here, starts BLAS threads that spin for about 70 ms on a core a worker needs
+        # (the first batch of each worker took 0.25 s instead of 0.14 s, 100 assets, window 60,
+        # 2 cores).
+        with threadpool_limits(1):
+            futures = [self._pool.submit(fn, *job) for job in jobs]  # the first submit forks
+            for future in futures:
+                yield future.result()
 
     def close(self) -> None:
         if self._pool is not None:
