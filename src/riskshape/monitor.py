@@ -19,7 +19,7 @@ from riskshape.config import Config
 from riskshape.errors import DataError
 from riskshape.prices import hash_prices, validate_prices
 from riskshape.returns import to_returns
-from riskshape.summaries import DISTANCE_NAMES, SUMMARY_NAMES, summarize_diagram
+from riskshape.summaries import DISTANCE_NAMES, SUMMARY_NAMES
 from riskshape.window import (
     WindowResult,
     WindowSettings,
@@ -61,13 +61,12 @@ class MonitorResult:
     @cached_property
     def features(self) -> pd.DataFrame:
         """One row per window end: ``n_assets``, ``n_left_out``, ``mean_correlation``, ``h{k}_*``."""
-        rows = []
-        for result in self.windows:
-            row: list[float] = [len(result.used), len(result.left_out), result.mean_correlation]
-            for k, dgm in enumerate(result.diagrams):
-                row += list(summarize_diagram(dgm).as_tuple()) + list(result.distances[k])
-            rows.append(row)
-        frame = pd.DataFrame(rows, index=self.window_ends, columns=feature_columns(self.config.maxdim), dtype=float)
+        columns = feature_columns(self.config.maxdim)
+        head = np.array([(len(r.used), len(r.left_out), r.mean_correlation) for r in self.windows], dtype=float)
+        # per window, dimension by dimension: the summaries, then the distances (the column order)
+        per_dim = [np.hstack([r.summaries, r.distances]).ravel() for r in self.windows]
+        values = np.column_stack([head.reshape(-1, 3), np.array(per_dim, dtype=float).reshape(len(head), -1)])
+        frame = pd.DataFrame(values.reshape(-1, len(columns)), index=self.window_ends, columns=columns)
         int_columns = ["n_assets", "n_left_out"] + [f"h{k}_n_bars" for k in range(self.config.maxdim + 1)]
         return frame.astype({c: "int64" for c in int_columns})
 

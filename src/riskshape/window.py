@@ -17,7 +17,7 @@ from scipy.spatial.distance import pdist, squareform
 from riskshape.distance import correlation_matrix, correlation_to_distance, mean_offdiagonal
 from riskshape.persistence import EMPTY_DIAGRAM, compute_diagrams
 from riskshape.rolling import RollingMoments, is_rebuild_point
-from riskshape.summaries import bottleneck_distance, wasserstein_distance
+from riskshape.summaries import SUMMARY_NAMES, bottleneck_distance, summarize_diagram, wasserstein_distance
 from riskshape.windows import Selection, select_assets
 
 __all__ = [
@@ -72,6 +72,12 @@ class WindowResult:
     distances : numpy.ndarray
         (maxdim + 1, 2) Wasserstein and bottleneck distance of each dimension's diagram to the
         previous window's; NaN where there is no previous window.
+
+    Attributes
+    ----------
+    summaries : numpy.ndarray
+        (maxdim + 1, len(SUMMARY_NAMES)) per-diagram summaries
+        (:func:`riskshape.summaries.summarize_diagram`), computed with the diagrams (in the worker).
     """
 
     used: np.ndarray
@@ -79,6 +85,7 @@ class WindowResult:
     mean_correlation: float
     bars: np.ndarray
     sizes: tuple[int, ...]
+    summaries: np.ndarray
     distances: np.ndarray
 
     def __init__(
@@ -93,12 +100,14 @@ class WindowResult:
         compact = bars.astype(np.float32)
         if np.array_equal(compact, bars):
             bars = compact
+        summaries = np.array([summarize_diagram(d).as_tuple() for d in diagrams], dtype=float)
         for name, value in (
             ("used", used),
             ("left_out", left_out),
             ("mean_correlation", mean_correlation),
             ("bars", bars),
             ("sizes", tuple(len(d) for d in diagrams)),
+            ("summaries", summaries.reshape(len(diagrams), len(SUMMARY_NAMES))),
             ("distances", distances),
         ):
             object.__setattr__(self, name, value)
