@@ -93,9 +93,16 @@ class Span:
     cpu: float = 0.0
 
 
+# Releasing a BLAS pin (leaving threadpool_limits) wakes OpenBLAS threads that then spin for
+# about 0.1 s; a span waits that long first, so one measured block's tail does not land in the
+# next block's time on a 2-core machine (seen: 50 ms of a 0.65 s run).
+SETTLE_SECONDS = 0.3
+
+
 @contextmanager
 def span() -> Iterator[Span]:
-    """Measure the wall and CPU time of the block."""
+    """Measure the wall and CPU time of the block (after :data:`SETTLE_SECONDS` of rest)."""
+    time.sleep(SETTLE_SECONDS)
     out = Span()
     wall, cpu = time.perf_counter(), _cpu_seconds()
     try:
