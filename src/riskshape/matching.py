@@ -41,9 +41,10 @@ point's cost to the diagonal is half its lifetime.
   the answer in most consecutive windows (three in four H1 pairs at 100 assets, window 60);
   otherwise the sorted candidates above it are bisected. A pair whose cost exceeds both its
   points' diagonal costs is never needed (both points can go to the diagonal instead), so its
-  cost is no candidate: 20% fewer matchings to test. gudhi's ``bottleneck_distance`` is not used: it is known to return a too large value on
-  some inputs (GUDHI/gudhi-devel pull request 1367, merged after gudhi 3.13; tests/speed holds
-  one such input). persim's exact ``bottleneck`` is the plain path.
+  cost is no candidate: 20% fewer matchings to test. gudhi's ``bottleneck_distance`` is not
+  used: it is known to return a too large value on some inputs (GUDHI/gudhi-devel pull request
+  1367, merged after gudhi 3.13; tests/speed holds one such input). persim's exact
+  ``bottleneck`` is the plain path.
 """
 
 from __future__ import annotations
