@@ -66,10 +66,10 @@ def _pin_blas() -> None:
 
 
 def _start_worker(preload: Callable[[], None] | None, pin: bool) -> None:
+    if preload is not None:
+        preload()  # first: the libraries it loads are then pinned too
     if pin:
         _pin_blas()
-    if preload is not None:
-        preload()
 
 
 def available_cores() -> int:

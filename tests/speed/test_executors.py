@@ -79,6 +79,27 @@ def test_pool_workers_run_blas_on_one_thread() -> None:
         executor.close()
 
 
+def test_spawned_workers_pin_blas_themselves(monkeypatch: pytest.MonkeyPatch) -> None:
+    """Where fork is not used, each worker pins BLAS itself (forked workers inherit the parent's pin)."""
+    from functools import partial
+
+    from threadpoolctl import threadpool_info
+
+    from riskshape.monitor import settings_of
+    from riskshape.window import preload
+
+    monkeypatch.setattr("riskshape.compute._start_method", lambda: "spawn")
+    executor = ProcessExecutor(2, preload=partial(preload, settings_of(Config(window=30, maxdim=1))))
+    try:
+        infos = list(executor.map(threadpool_info, [(), ()]))
+    finally:
+        executor.close()
+    for info in infos:
+        blas = [pool for pool in info if pool["user_api"] == "blas"]
+        assert blas, "numpy's BLAS is loaded in the worker"
+        assert all(pool["num_threads"] == 1 for pool in blas)
+
+
 @pytest.fixture(scope="module")
 def cluster() -> object:
     distributed = pytest.importorskip("distributed")
