@@ -160,6 +160,27 @@ def per_window_cost(quick: bool) -> list[Row]:
     return rows
 
 
+def calibration_ms() -> float:
+    """Wall ms of one fixed reference computation (ripser, H0 and H1, a fixed 100-asset window).
+
+    Taken at the start and at the end of a run: on a calm machine both are about the same, and
+    about what benchmarks/README.md gives with its figures; a larger or drifting value says the
+    machine was slowed by other work while the figures were measured.
+    """
+    from ripser import ripser
+
+    returns = factor_returns(60, 100, seed=7)
+    dist = correlation_to_distance(correlation_matrix(returns))
+    best = np.inf
+    with threadpool_limits(1):
+        for _ in range(5):
+            start = time.perf_counter()
+            for _ in range(10):
+                ripser(dist, maxdim=1, distance_matrix=True)
+            best = min(best, (time.perf_counter() - start) / 10)
+    return 1e3 * best
+
+
 def _naive_loop(returns: np.ndarray, window: int, maxdim: int) -> int:
     """What a user would write with numpy, ripser and persim: one window at a time."""
     from persim import bottleneck, wasserstein

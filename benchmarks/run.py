@@ -120,6 +120,7 @@ def main(argv: list[str] | None = None) -> int:
     if unknown:
         parser.error(f"unknown section(s) {sorted(unknown)}; choose from {', '.join(SECTIONS)}")
     machine = _machine()
+    machine["calibration ms at the start (ripser, fixed window, best of 5)"] = round(cases.calibration_ms(), 2)
     lines = ["riskshape benchmarks" + ("  [QUICK MODE: sizes scaled down, figures are not the reference ones]" if args.quick else "")]
     lines += [f"  {key}: {value}" for key, value in machine.items()]
     print("\n".join(lines), flush=True)
@@ -140,7 +141,11 @@ def main(argv: list[str] | None = None) -> int:
         lines.append(text)
         report["sections"][name] = {"title": title, "rows": {row.case: row.values for row in rows}}  # type: ignore[index]
     machine["load average at the end"] = os.getloadavg()
-    footer = f"\ntotal {time.perf_counter() - started:.0f} s; load average at the end {machine['load average at the end']}"
+    machine["calibration ms at the end"] = round(cases.calibration_ms(), 2)
+    footer = (
+        f"\ntotal {time.perf_counter() - started:.0f} s; load average at the end {machine['load average at the end']}; "
+        f"calibration ms at the end {machine['calibration ms at the end']}"
+    )
     print(footer)
     lines.append(footer)
     args.out.mkdir(parents=True, exist_ok=True)
