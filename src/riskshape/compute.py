@@ -18,6 +18,7 @@ import os
 import threading
 from collections.abc import Callable, Iterable, Iterator, Sequence
 from concurrent.futures import ProcessPoolExecutor
+from contextlib import nullcontext
 from typing import Any, Protocol, TypeVar
 
 from riskshape.config import ComputeConfig
@@ -51,7 +52,8 @@ class SerialExecutor:
     def map(self, fn: Callable[..., T], jobs: Sequence[tuple[Any, ...]]) -> Iterator[T]:
         from threadpoolctl import threadpool_limits
 
-        with threadpool_limits(1):
+        # in a worker, BLAS is pinned for good already; pinning again would wake its threads
+        with nullcontext() if _BLAS_PINNED else threadpool_limits(1):
             for job in jobs:
                 yield fn(*job)
 
@@ -59,17 +61,26 @@ class SerialExecutor:
         return None
 
 
+# True in a worker process whose BLAS is pinned to one thread for its whole life (by itself, or
+# inherited from the parent that forked it)
+_BLAS_PINNED = False
+
+
 def _pin_blas() -> None:
+    global _BLAS_PINNED
     from threadpoolctl import threadpool_limits
 
     threadpool_limits(1)
+    _BLAS_PINNED = True
 
 
 def _start_worker(preload: Callable[[], None] | None, pin: bool) -> None:
+    global _BLAS_PINNED
     if preload is not None:
         preload()  # first: the libraries it loads are then pinned too
     if pin:
         _pin_blas()
+    _BLAS_PINNED = True
 
 
 def available_cores() -> int:
@@ -171,15 +182,10 @@ class DaskExecutor:
             self.client.close()
 
 
-_PINNED = False
-
-
 def _pinned_call(fn: Callable[..., T], *args: Any) -> T:
     """Run ``fn(*args)`` with BLAS pinned to one thread in this (worker) process."""
-    global _PINNED
-    if not _PINNED:
+    if not _BLAS_PINNED:
         _pin_blas()
-        _PINNED = True
     return fn(*args)
 
 
