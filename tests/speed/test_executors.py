@@ -100,6 +100,37 @@ def test_spawned_workers_pin_blas_themselves(monkeypatch: pytest.MonkeyPatch) ->
         assert all(pool["num_threads"] == 1 for pool in blas)
 
 
+_BLAS_AFTER_A_RUN = """
+import numpy  # noqa: F401 (loads BLAS)
+from threadpoolctl import threadpool_info
+from riskshape.compute import SerialExecutor, keep_blas_pinned
+def blas_threads():
+    return max(p["num_threads"] for p in threadpool_info() if p["user_api"] == "blas")
+if {keep}:
+    keep_blas_pinned()
+before = blas_threads()
+inside = list(SerialExecutor().map(blas_threads, [()]))[0]
+print(before, inside, blas_threads())
+"""
+
+
+@pytest.mark.parametrize("keep", [False, True])
+def test_blas_is_pinned_while_windows_run_and_for_good_where_asked(keep: bool) -> None:
+    """A caller's process gets its BLAS threads back after a run; riskshape's own processes keep one.
+
+    In a fresh process each: the pin is process-wide state.
+    """
+    import subprocess
+    import sys
+
+    done = subprocess.run(
+        [sys.executable, "-c", _BLAS_AFTER_A_RUN.format(keep=keep)], capture_output=True, text=True, check=True
+    )
+    before, inside, after = (int(x) for x in done.stdout.split())
+    assert inside == 1
+    assert after == (1 if keep else before)
+
+
 @pytest.fixture(scope="module")
 def cluster() -> object:
     distributed = pytest.importorskip("distributed")

@@ -63,6 +63,9 @@ def cli() -> None:
 
 def main(argv: list[str] | None = None) -> Any:
     """Entry point: run the CLI, turning riskshape's own errors into one line and exit status 2."""
+    from riskshape.compute import keep_blas_pinned
+
+    keep_blas_pinned()  # this process is riskshape's own (see keep_blas_pinned)
     try:
         return cli.main(args=argv, prog_name="riskshape", standalone_mode=False)
     except click.exceptions.Abort:
