@@ -65,8 +65,10 @@ class MonitorResult:
         head = np.array([(len(r.used), len(r.left_out), r.mean_correlation) for r in self.windows], dtype=float)
         # per window, dimension by dimension: the summaries, then the distances (the column order)
         per_dim = [np.hstack([r.summaries, r.distances]).ravel() for r in self.windows]
-        values = np.column_stack([head.reshape(-1, 3), np.array(per_dim, dtype=float).reshape(len(head), -1)])
-        frame = pd.DataFrame(values.reshape(-1, len(columns)), index=self.window_ends, columns=columns)
+        values = np.column_stack(
+            [head.reshape(-1, 3), np.array(per_dim, dtype=float).reshape(len(head), len(columns) - 3)]
+        )
+        frame = pd.DataFrame(values, index=self.window_ends, columns=columns)
         int_columns = ["n_assets", "n_left_out"] + [f"h{k}_n_bars" for k in range(self.config.maxdim + 1)]
         return frame.astype({c: "int64" for c in int_columns})
 

@@ -29,9 +29,9 @@ import numpy as np
 from riskshape.matching import (
     assignment_wasserstein,
     persim_bottleneck,
+    reduced_assignment_wasserstein,
     sorted_bottleneck_is_optimal,
     sorted_matching_is_optimal,
-    reduced_assignment_wasserstein,
     threshold_bottleneck,
 )
 
