@@ -4,9 +4,13 @@ Starts ``riskshape serve`` (uvicorn, one worker) on 127.0.0.1 at a free port ove
 archive, ingests a fictional portfolio (riskshape.scenario), then runs N pollers (httpx async
 clients) that alternate ``GET /v1/portfolios/{name}/latest`` and ``GET .../series?limit=100``
 for a bounded time and a bounded number of requests. Prints requests/s and p50/p99 latency per
-endpoint and overall. Loopback only; nothing leaves the machine.
+endpoint and overall. With ``--feed N`` it also measures a daily feed: N more portfolios (each
+its own fictional scenario), each given its history, then one new day posted to every one of
+them in turn; it prints the time per portfolio and for the whole feed. Loopback only; nothing
+leaves the machine.
 
     python benchmarks/service_load.py --pollers 8 --seconds 10
+    python benchmarks/service_load.py --pollers 8 --seconds 10 --feed 20
 
 riskshape is a decision aid, not investment advice; these are figures of the software, not of any market.
 """
@@ -106,6 +110,33 @@ async def run_load(base: str, token: str, portfolio: str, pollers: int, seconds:
     return samples, wall, errors
 
 
+def _csv(frame: "object") -> bytes:
+    return frame.to_csv(index_label="date", date_format="%Y-%m-%d").encode()  # type: ignore[attr-defined]
+
+
+def daily_feed(base: str, headers: dict[str, str], portfolios: int, days: int, assets_per_sector: int) -> list[float]:
+    """Seconds to post one new day to each of ``portfolios`` portfolios that hold ``days`` days."""
+    csv_headers = {**headers, "Content-Type": "text/csv"}
+    names, next_days = [], []
+    for k in range(portfolios):
+        prices = generate_scenario(seed=100 + k, n_days=days + 1, assets_per_sector=assets_per_sector).prices
+        name = f"feed-{k:03d}"
+        httpx.post(f"{base}/v1/portfolios", json={"name": name}, headers=headers, timeout=60).raise_for_status()
+        httpx.post(f"{base}/v1/portfolios/{name}/prices", headers=csv_headers, content=_csv(prices.iloc[:-1]),
+                   timeout=600).raise_for_status()
+        names.append(name)
+        next_days.append(prices.iloc[[-1]])
+    seconds = []
+    for name, day in zip(names, next_days):
+        started = time.perf_counter()
+        response = httpx.post(f"{base}/v1/portfolios/{name}/prices", headers=csv_headers, content=_csv(day), timeout=600)
+        response.raise_for_status()
+        seconds.append(time.perf_counter() - started)
+        if response.json()["windows_added"] != 1:
+            raise SystemExit(f"daily feed: {name} added {response.json()['windows_added']} windows, expected 1")
+    return seconds
+
+
 def describe(name: str, values: list[float], wall: float) -> str:
     ms = np.asarray(values) * 1000
     return (f"{name:<44} {len(ms):>7} req  {len(ms) / wall:>8.1f} req/s  p50 {np.percentile(ms, 50):>7.2f} ms  "
@@ -120,6 +151,7 @@ def main() -> None:
     parser.add_argument("--days", type=int, default=500, help="return days of the portfolio (default 500)")
     parser.add_argument("--assets-per-sector", type=int, default=4, help="assets per sector, 6 sectors (default 4)")
     parser.add_argument("--window", type=int, default=60, help="window length (default 60)")
+    parser.add_argument("--feed", type=int, default=0, help="portfolios of the daily-feed measurement (default 0: none)")
     args = parser.parse_args()
     if not (1 <= args.pollers <= 256 and 0 < args.seconds <= 300 and 1 <= args.max_requests <= 1_000_000):
         raise SystemExit("keep it bounded: 1-256 pollers, at most 300 s and 1,000,000 requests")
@@ -150,6 +182,7 @@ def main() -> None:
 
             samples, wall, errors = asyncio.run(run_load(base, token, "load", args.pollers, args.seconds,
                                                          args.max_requests))
+            feed = daily_feed(base, headers, args.feed, args.days, args.assets_per_sector) if args.feed else []
             server_log = (folder / "server.log").read_text(errors="replace")
         finally:
             process.terminate()
@@ -164,6 +197,11 @@ def main() -> None:
     for path, values in samples.items():
         print(describe("GET " + path, values, wall))
     print(describe("all", everything, wall))
+    if feed:
+        ms = np.asarray(feed) * 1000
+        print(f"daily feed: one new day posted to each of {len(feed)} portfolios ({prices.shape[1]} assets, {len(prices)} "
+              f"dates held each) in {sum(feed):.2f} s: p50 {np.percentile(ms, 50):.0f} ms, "
+              f"max {ms.max():.0f} ms per portfolio (1 window computed and archived each)")
     if errors:
         print(f"failed requests: {len(errors)} ({', '.join(sorted(set(errors)))}); server log tail:")
         print(server_log[-2000:])

@@ -48,7 +48,8 @@ def _latest(connection: Connection, portfolio_id: int, start: date | None, end: 
         query = query.where(p.c.asset.in_(assets))
     if through_id is not None:
         query = query.where(p.c.id <= through_id)
-    rows = connection.execute(query).all()
+    # plain tuples: pandas probes each SQLAlchemy Row for attributes it lacks, 10x slower
+    rows = [tuple(row) for row in connection.execute(query).all()]
     table = pd.DataFrame(rows, columns=["id", "date", "asset", "price", "revision"])
     if table.empty:
         return table
