@@ -90,7 +90,8 @@ def create_app(settings: ServiceSettings | None = None) -> FastAPI:
     service_metrics = ServiceMetrics()
     context = ServiceContext(
         settings=settings, config=config, metrics=service_metrics,
-        limiter=RateLimiter(settings.rate_limit_per_minute, settings.rate_limit_burst), ingestor=Ingestor(config),
+        limiter=RateLimiter(settings.rate_limit_per_minute, settings.rate_limit_burst),
+        ingestor=Ingestor(config, settings.result_cache_size),
         snapshots=Snapshots(config),
     )  # fmt: skip
 

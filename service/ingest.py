@@ -146,10 +146,11 @@ class Ingestor:
     default_config : Config
         Configuration of a portfolio before its first run.
     cache_size : int
-        Portfolios whose result is kept in memory (least recently used dropped first).
+        Portfolios whose result is kept in memory (least recently used dropped first; see
+        :class:`riskshape.config.ServiceSettings`).
     """
 
-    def __init__(self, default_config: Config, cache_size: int = 16) -> None:
+    def __init__(self, default_config: Config, cache_size: int = 128) -> None:
         self.default_config = default_config
         self.cache_size = cache_size
         self._results: OrderedDict[str, MonitorResult] = OrderedDict()

@@ -311,6 +311,12 @@ class ServiceSettings(_Frozen):
         with runs keeps the configuration of its latest run.
     log_level : str
         Level of the service's JSON logs.
+    result_cache_size : int
+        Portfolios whose latest result the service keeps in memory, so that a new day computes
+        only the windows it completes; the least recently fed beyond it is recomputed from the
+        archive at its next ingest (0.5 s instead of 0.03 s for 24 assets and two years). A result
+        holds the portfolio's prices, returns and float32 diagrams: a few MB for 100 assets and two
+        years (1.5 MB pickled), about 75 MB for 500 assets and 20 years.
     """
 
     store_url: str = "sqlite:///riskshape.sqlite"
@@ -320,6 +326,7 @@ class ServiceSettings(_Frozen):
     rate_limit_burst: int = Field(60, ge=1)
     config_path: str | None = None
     log_level: Literal["debug", "info", "warning", "error"] = "info"
+    result_cache_size: int = Field(128, ge=0)
 
     @classmethod
     def from_env(cls, environ: Mapping[str, str] | None = None, **overrides: Any) -> "ServiceSettings":

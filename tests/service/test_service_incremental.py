@@ -15,6 +15,7 @@ from service_kit import cautioned, wide_rows
 
 from riskshape import monitor
 from riskshape.alerts import evaluate_rules
+from riskshape.config import ServiceSettings
 
 Auth = Callable[[str], dict[str, str]]
 N_DAYS = 48  # price dates: 28 windows of 20 returns
@@ -88,3 +89,33 @@ def test_a_portfolio_archived_elsewhere_is_continued_one_day_at_a_time(
     assert [r["window_end"] for r in rows] == [str(d.date()) for d in batch.window_ends]
     got = np.array([[np.nan if v is None else v for v in r["values"]] for r in rows], dtype=float)
     np.testing.assert_array_equal(got, batch.features.to_numpy(dtype=float))
+
+
+def test_without_cached_results_each_day_is_recomputed_from_the_archive_alike(
+    make_settings: Callable[..., object], auth: Auth, scenario_prices: pd.DataFrame
+) -> None:
+    """RISKSHAPE_RESULT_CACHE_SIZE=0: no result stays in memory, every new day rebuilds the result from
+    the archive; two portfolios fed in turn get the batch's summaries all the same."""
+    from service import create_app
+
+    env = {f"RISKSHAPE_{k.upper()}": str(v) for k, v in make_settings().model_dump().items() if v is not None}
+    settings = ServiceSettings.from_env({**env, "RISKSHAPE_RESULT_CACHE_SIZE": "0"})
+    assert settings.result_cache_size == 0
+    prices = scenario_prices.iloc[:32].sort_index(axis=1)
+    with TestClient(create_app(settings)) as client:
+        config = client.app.state.context.config  # type: ignore[attr-defined]
+        ingestor = client.app.state.context.ingestor  # type: ignore[attr-defined]
+        for name in ("first", "second"):
+            assert client.post("/v1/portfolios", json={"name": name}, headers=auth("admin")).status_code == 201
+            cautioned(client.post(f"/v1/portfolios/{name}/prices", json=wide_rows(prices.iloc[:28]), headers=auth("ingest")))
+        for day in range(28, 32):
+            for name in ("first", "second"):
+                body = cautioned(client.post(f"/v1/portfolios/{name}/prices", json=wide_rows(prices.iloc[[day]]),
+                                             headers=auth("ingest")))
+                assert body["windows_added"] == 1
+                assert ingestor._cached(name) is None  # nothing kept: the next day recomputes
+        batch = monitor(prices, config)
+        for name in ("first", "second"):
+            _, rows = _all_pages(client, auth, f"/v1/portfolios/{name}/series", "rows")
+            got = np.array([[np.nan if v is None else v for v in r["values"]] for r in rows], dtype=float)
+            np.testing.assert_array_equal(got, batch.features.to_numpy(dtype=float))
