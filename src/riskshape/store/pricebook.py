@@ -38,24 +38,53 @@ def _long(frame: pd.DataFrame) -> pd.DataFrame:
 
 def _latest(connection: Connection, portfolio_id: int, start: date | None, end: date | None,
             assets: list[str] | None, through_id: int | None) -> pd.DataFrame:
-    p = t.prices
-    query = sa.select(p.c.id, p.c.date, p.c.asset, p.c.price, p.c.revision).where(p.c.portfolio_id == portfolio_id)
+    """Latest revision of each cell, as rows (id, date, asset, price, revision), dates as ``datetime.date``.
+
+    Read through the driver's own cursor: building a SQLAlchemy row per result row took three
+    times the driver's fetch (0.25 s against 0.09 s for 128,000 cells on SQLite), and a day's
+    ingest reads a portfolio's whole history. Parameters are passed in the driver's own style,
+    as :func:`_bulk_insert` does.
+    """
+    sqlite = connection.dialect.name == "sqlite"
+    mark = "?" if sqlite else "%s"
+
+    def day(value: date) -> object:  # the column's stored form: ISO text on SQLite, a date elsewhere
+        plain = pd.Timestamp(value).date()
+        return plain.isoformat() if sqlite else plain
+
+    clauses: list[str] = [f"portfolio_id = {mark}"]
+    params: list[object] = [portfolio_id]
     if start is not None:
-        query = query.where(p.c.date >= start)
+        clauses.append(f"date >= {mark}")
+        params.append(day(start))
     if end is not None:
-        query = query.where(p.c.date <= end)
+        clauses.append(f"date <= {mark}")
+        params.append(day(end))
     if assets is not None:
-        query = query.where(p.c.asset.in_(assets))
+        if not assets:
+            return pd.DataFrame(columns=_LATEST_COLUMNS)
+        clauses.append(f"asset IN ({', '.join([mark] * len(assets))})")
+        params.extend(assets)
     if through_id is not None:
-        query = query.where(p.c.id <= through_id)
-    # plain tuples: pandas probes each SQLAlchemy Row for attributes it lacks, 10x slower
-    rows = [tuple(row) for row in connection.execute(query).all()]
-    table = pd.DataFrame(rows, columns=["id", "date", "asset", "price", "revision"])
+        clauses.append(f"id <= {mark}")
+        params.append(through_id)
+    sql = f"SELECT {', '.join(_LATEST_COLUMNS)} FROM {t.prices.name} WHERE {' AND '.join(clauses)}"
+    cursor = connection.connection.cursor()
+    try:
+        cursor.execute(sql, tuple(params))
+        rows = cursor.fetchall()
+    finally:
+        cursor.close()
+    table = pd.DataFrame(rows, columns=_LATEST_COLUMNS)
     if table.empty:
         return table
+    table["date"] = pd.to_datetime(table["date"]).dt.date
     table["price"] = table["price"].astype(float)
     table = table.sort_values(["date", "asset", "revision"])
     return table.drop_duplicates(["date", "asset"], keep="last")
+
+
+_LATEST_COLUMNS = ["id", "date", "asset", "price", "revision"]
 
 
 def validated(prices: pd.DataFrame, source: str) -> pd.DataFrame:
