@@ -36,6 +36,9 @@ def _long(frame: pd.DataFrame) -> pd.DataFrame:
     return wide.reset_index().melt(id_vars="date", var_name="asset", value_name="price")
 
 
+_LATEST_COLUMNS = ["id", "date", "asset", "price", "revision"]
+
+
 def _latest(connection: Connection, portfolio_id: int, start: date | None, end: date | None,
             assets: list[str] | None, through_id: int | None) -> pd.DataFrame:
     """Latest revision of each cell, as rows (id, date, asset, price, revision), dates as ``datetime.date``.
@@ -82,9 +85,6 @@ def _latest(connection: Connection, portfolio_id: int, start: date | None, end: 
     table["price"] = table["price"].astype(float)
     table = table.sort_values(["date", "asset", "revision"])
     return table.drop_duplicates(["date", "asset"], keep="last")
-
-
-_LATEST_COLUMNS = ["id", "date", "asset", "price", "revision"]
 
 
 def validated(prices: pd.DataFrame, source: str) -> pd.DataFrame:
