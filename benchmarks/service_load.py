@@ -29,6 +29,7 @@ from pathlib import Path
 
 import httpx
 import numpy as np
+import pandas as pd
 
 from riskshape.caution import CAUTION
 from riskshape.scenario import generate_scenario
@@ -110,8 +111,9 @@ async def run_load(base: str, token: str, portfolio: str, pollers: int, seconds:
     return samples, wall, errors
 
 
-def _csv(frame: "object") -> bytes:
-    return frame.to_csv(index_label="date", date_format="%Y-%m-%d").encode()  # type: ignore[attr-defined]
+def _csv(frame: pd.DataFrame) -> bytes:
+    """A wide price table as the CSV body the prices endpoint takes."""
+    return frame.to_csv(index_label="date", date_format="%Y-%m-%d").encode()
 
 
 def daily_feed(base: str, headers: dict[str, str], portfolios: int, days: int, assets_per_sector: int) -> list[float]:
@@ -153,8 +155,9 @@ def main() -> None:
     parser.add_argument("--window", type=int, default=60, help="window length (default 60)")
     parser.add_argument("--feed", type=int, default=0, help="portfolios of the daily-feed measurement (default 0: none)")
     args = parser.parse_args()
-    if not (1 <= args.pollers <= 256 and 0 < args.seconds <= 300 and 1 <= args.max_requests <= 1_000_000):
-        raise SystemExit("keep it bounded: 1-256 pollers, at most 300 s and 1,000,000 requests")
+    if not (1 <= args.pollers <= 256 and 0 < args.seconds <= 300 and 1 <= args.max_requests <= 1_000_000
+            and 0 <= args.feed <= 1000):
+        raise SystemExit("keep it bounded: 1-256 pollers, at most 300 s, 1,000,000 requests and 1,000 feed portfolios")
 
     with tempfile.TemporaryDirectory(prefix="riskshape-load-") as tmp:
         folder = Path(tmp)
@@ -168,7 +171,7 @@ def main() -> None:
             httpx.post(f"{base}/v1/portfolios", json={"name": "load"}, headers=headers, timeout=60).raise_for_status()
             started = time.perf_counter()
             ingest = httpx.post(f"{base}/v1/portfolios/load/prices", headers={**headers, "Content-Type": "text/csv"},
-                                content=prices.to_csv(index_label="date", date_format="%Y-%m-%d").encode(), timeout=600)
+                                content=_csv(prices), timeout=600)
             ingest.raise_for_status()
             ingest_seconds = time.perf_counter() - started
             windows = ingest.json()["windows_added"]
@@ -176,7 +179,7 @@ def main() -> None:
             last = prices.iloc[[-1]].set_axis([next_day]) * 1.001
             started = time.perf_counter()
             one_day = httpx.post(f"{base}/v1/portfolios/load/prices", headers={**headers, "Content-Type": "text/csv"},
-                                 content=last.to_csv(index_label="date", date_format="%Y-%m-%d").encode(), timeout=600)
+                                 content=_csv(last), timeout=600)
             one_day.raise_for_status()
             day_seconds = time.perf_counter() - started
 
