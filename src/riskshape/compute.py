@@ -114,7 +114,8 @@ def _start_worker(preload: Callable[[], None] | None, pin: bool) -> None:
         preload()  # first: the libraries it loads are then pinned too
     if pin:
         _pin_blas()
-    _BLAS_PINNED = True  # pinned just now, or inherited from the parent that forked this worker
+    else:
+        _BLAS_PINNED = True  # inherited from the parent that forked this worker
 
 
 def available_cores() -> int:
