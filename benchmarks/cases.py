@@ -5,7 +5,7 @@ other. Wall time (``time.perf_counter``) is what a user waits; CPU time (``getru
 process and of its finished workers) is the work done, which other processes on a shared
 machine do not inflate: a ratio of CPU times holds when the machine is busy, a ratio of wall
 times only when it is not. Stage times (persistence, diagram distances) are CPU times from
-wrappers placed around the two functions :func:`riskshape.window.compute_batch` calls for
+wrappers placed around the two functions :func:`riskshape.compute.batch.compute_batch` calls for
 them, in serial runs only.
 """
 
@@ -25,18 +25,18 @@ import numpy as np
 import pandas as pd
 from threadpoolctl import threadpool_limits
 
-import riskshape.window as window_module
+import riskshape.compute.batch as window_module
 from benchmarks.data import factor_prices, factor_returns
 from riskshape import Config, monitor
-from riskshape.compute import ProcessExecutor, available_cores
-from riskshape.distance import correlation_matrix, correlation_to_distance
-from riskshape.matching import assignment_wasserstein, persim_bottleneck
-from riskshape.monitor import _compute_windows, settings_of
-from riskshape.persistence import compute_diagrams
-from riskshape.returns import to_returns
-from riskshape.summaries import bottleneck_distance, wasserstein_distance
-from riskshape.window import compute_batch, preload
-from riskshape.windows import window_end_positions
+from riskshape.compute.executors import ProcessExecutor, available_cores
+from riskshape.compute.distance import correlation_matrix, correlation_to_distance
+from riskshape.compute.matching import assignment_wasserstein, persim_bottleneck
+from riskshape.compute.monitor import _compute_windows, settings_of
+from riskshape.compute.persistence import compute_diagrams
+from riskshape.compute.returns import to_returns
+from riskshape.compute.summaries import bottleneck_distance, wasserstein_distance
+from riskshape.compute.batch import compute_batch, preload
+from riskshape.compute.windows import window_end_positions
 
 __all__ = ["Row", "CASES"]
 
@@ -264,7 +264,7 @@ def h0_vs_ripser(quick: bool) -> list[Row]:
     """
     from ripser import ripser
 
-    from riskshape.persistence import h0_from_single_linkage
+    from riskshape.compute.persistence import h0_from_single_linkage
 
     _warm_up()
     n_windows, window, n_assets = (60 if quick else 400), 250, 500
@@ -339,7 +339,7 @@ def executor_run(variant: str, quick: bool) -> dict[str, float]:
     before: giotto-ph pulls in scikit-learn, about a second per process). Imports inside the
     run are timed (a fresh process has not made them yet), as a user's first run would pay them.
     """
-    from riskshape.scenario import generate_scenario
+    from riskshape.demo.scenario import generate_scenario
 
     prices = generate_scenario(n_days=500 if quick else None).prices
     config = Config()

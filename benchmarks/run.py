@@ -85,8 +85,8 @@ def large_section(quick: bool) -> list[cases.Row]:
 def _machine() -> dict[str, object]:
     import numpy
     import riskshape
-    from riskshape.compute import available_cores
-    from riskshape.persistence import resolve_engine
+    from riskshape.compute.executors import available_cores
+    from riskshape.compute.persistence import resolve_engine
 
     return {
         "date": datetime.now(timezone.utc).isoformat(timespec="seconds"),

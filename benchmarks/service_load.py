@@ -1,7 +1,7 @@
 """Load benchmark of the HTTP service: concurrent pollers of the latest state and the series.
 
 Starts ``riskshape serve`` (uvicorn, one worker) on 127.0.0.1 at a free port over a fresh SQLite
-archive, ingests a fictional portfolio (riskshape.scenario), then runs N pollers (httpx async
+archive, ingests a fictional portfolio (riskshape.demo.scenario), then runs N pollers (httpx async
 clients) that alternate ``GET /v1/portfolios/{name}/latest`` and ``GET .../series?limit=100``
 for a bounded time and a bounded number of requests. Prints requests/s and p50/p99 latency per
 endpoint and overall. With ``--feed N`` it also measures a daily feed: N more portfolios (each
@@ -32,7 +32,7 @@ import numpy as np
 import pandas as pd
 
 from riskshape.caution import CAUTION
-from riskshape.scenario import generate_scenario
+from riskshape.demo.scenario import generate_scenario
 from riskshape.store import open_store
 
 CONFIG = """

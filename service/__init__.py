@@ -1,5 +1,5 @@
 """riskshape's HTTP service (FastAPI): ``create_app(settings)``. A decision aid, not investment advice."""
 
-from service.app import create_app
+from riskshape_service.app import create_app
 
 __all__ = ["create_app"]

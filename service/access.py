@@ -11,7 +11,7 @@ from datetime import date
 
 from riskshape.alerts.rules import RuleState, rule_states
 from riskshape.store import AlertRecord, FeaturesPage, Head, Store, chain_head
-from service.snapshots import Snapshots
+from riskshape_service.snapshots import Snapshots
 
 __all__ = ["LatestState", "latest_state", "series_page", "store_status"]
 

@@ -3,7 +3,7 @@
 Layers, outermost first: the request middleware (request id, caution header, access log,
 metrics, last-resort 500, early 413 for a declared oversize body); Starlette's streaming body
 limit (413 for chunked uploads too, counted as the bytes arrive); the error handlers of
-:mod:`service.handlers`; the routers under ``/v1`` (and ``/metrics``). OpenAPI at
+:mod:`riskshape_service.handlers`; the routers under ``/v1`` (and ``/metrics``). OpenAPI at
 ``/openapi.json``, interactive docs at ``/docs``.
 """
 
@@ -23,17 +23,17 @@ from riskshape.caution import CAUTION
 from riskshape.config import Config, ServiceSettings
 from riskshape.errors import RiskshapeError
 from riskshape.store import open_store
-from service.context import ServiceContext
-from service.docs import mount_docs
-from service.handlers import install_handlers
-from service.ingest import Ingestor
-from service.logs import LOGGER_NAME, stamp_request_ids
-from service.metrics import ServiceMetrics
-from service.middleware import CAUTION_HEADER, CAUTION_HEADER_VALUE, RequestContextMiddleware
-from service.ratelimit import RateLimiter
-from service.snapshots import Snapshots
-from service.routers import alerts, audit, diagrams, export, health, metrics, portfolios, prices, reviews, series
-from service.schemas import PricesIn
+from riskshape_service.context import ServiceContext
+from riskshape_service.docs import mount_docs
+from riskshape_service.handlers import install_handlers
+from riskshape_service.ingest import Ingestor
+from riskshape_service.logs import LOGGER_NAME, stamp_request_ids
+from riskshape_service.metrics import ServiceMetrics
+from riskshape_service.middleware import CAUTION_HEADER, CAUTION_HEADER_VALUE, RequestContextMiddleware
+from riskshape_service.ratelimit import RateLimiter
+from riskshape_service.snapshots import Snapshots
+from riskshape_service.routers import alerts, audit, diagrams, export, health, metrics, portfolios, prices, reviews, series
+from riskshape_service.schemas import PricesIn
 
 __all__ = ["create_app"]
 

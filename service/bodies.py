@@ -16,7 +16,7 @@ import pandas as pd
 
 from riskshape.errors import DataError
 from riskshape.prices import csv_table, validate_prices
-from service.schemas import PricesIn
+from riskshape_service.schemas import PricesIn
 
 __all__ = ["table_from_json", "table_from_csv", "validated_prices", "JSON_SOURCE", "CSV_SOURCE"]
 

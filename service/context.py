@@ -8,10 +8,10 @@ from dataclasses import dataclass
 
 from riskshape.config import Config, ServiceSettings
 from riskshape.store import Store
-from service.ingest import Ingestor
-from service.metrics import ServiceMetrics
-from service.ratelimit import RateLimiter
-from service.snapshots import Snapshots
+from riskshape_service.ingest import Ingestor
+from riskshape_service.metrics import ServiceMetrics
+from riskshape_service.ratelimit import RateLimiter
+from riskshape_service.snapshots import Snapshots
 
 __all__ = ["ServiceContext"]
 

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from riskshape.alerts.rules import RuleState
 from riskshape.store import AlertRecord, ReviewRecord
-from service.schemas import AlertOut, ProvenanceOut, ReviewOut, RuleStateOut, finite_or_none
+from riskshape_service.schemas import AlertOut, ProvenanceOut, ReviewOut, RuleStateOut, finite_or_none
 
 __all__ = ["alert_out", "provenance_out", "review_out", "rule_state_out"]
 

@@ -17,8 +17,8 @@ from fastapi import Depends, HTTPException, Request, Security
 from fastapi.security import APIKeyHeader
 
 from riskshape.store import Store
-from service.auth import KEY_HEADER, URL_KEY_NAMES, Caller, Permission, Role, may
-from service.context import ServiceContext
+from riskshape_service.auth import KEY_HEADER, URL_KEY_NAMES, Caller, Permission, Role, may
+from riskshape_service.context import ServiceContext
 
 __all__ = ["ContextDep", "StoreDep", "KeyDep", "ReaderDep", "IngestDep", "ReviewerDep", "AdminDep", "requires"]
 

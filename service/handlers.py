@@ -32,8 +32,8 @@ from riskshape.errors import (
     NotFoundError,
     RiskshapeError,
 )
-from service.logs import LOGGER_NAME
-from service.middleware import error_body, request_id_of
+from riskshape_service.logs import LOGGER_NAME
+from riskshape_service.middleware import error_body, request_id_of
 
 __all__ = ["install_handlers", "status_of", "describe_validation"]
 

@@ -37,9 +37,9 @@ import pandas as pd
 from riskshape.archive import archive_run
 from riskshape.config import Config
 from riskshape.errors import ConflictError, DataError
-from riskshape.monitor import MonitorResult, monitor
+from riskshape.compute.monitor import MonitorResult, monitor
 from riskshape.store import AlertRecord, Run, Store
-from riskshape.windows import window_end_positions
+from riskshape.compute.windows import window_end_positions
 
 __all__ = ["Ingestor", "IngestReport", "portfolio_config"]
 

@@ -22,8 +22,8 @@ from starlette.datastructures import Headers
 from starlette.types import ASGIApp, Message, Receive, Scope, Send
 
 from riskshape.caution import CAUTION
-from service.logs import LOGGER_NAME, REQUEST_ID
-from service.metrics import ServiceMetrics
+from riskshape_service.logs import LOGGER_NAME, REQUEST_ID
+from riskshape_service.metrics import ServiceMetrics
 
 __all__ = ["RequestContextMiddleware", "CAUTION_HEADER", "CAUTION_HEADER_VALUE", "REQUEST_ID_HEADER",
            "request_id_of", "error_body"]

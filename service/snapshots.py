@@ -20,7 +20,7 @@ import pandas as pd
 from riskshape.config import Config
 from riskshape.errors import DataError
 from riskshape.store import FeaturesPage, Run, Store
-from service.ingest import latest_run
+from riskshape_service.ingest import latest_run
 
 __all__ = ["Snapshot", "Snapshots"]
 

@@ -17,7 +17,7 @@ import pandas as pd
 import pytest
 
 from riskshape import Config
-from riskshape.scenario import Scenario, generate_scenario
+from riskshape.demo.scenario import Scenario, generate_scenario
 
 
 def pytest_configure(config: pytest.Config) -> None:

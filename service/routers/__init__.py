@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from typing import Any
 
-from service.schemas import ErrorOut
+from riskshape_service.schemas import ErrorOut
 
 __all__ = ["errors", "MAX_ID", "API_PREFIX"]
 

@@ -9,9 +9,9 @@ from starlette.concurrency import run_in_threadpool
 
 from riskshape.config import ServiceSettings
 from riskshape.store import Head, chain_head, verify_chain
-from service.deps import ReviewerDep, StoreDep
-from service.routers import API_PREFIX, errors
-from service.schemas import BadRecordOut, ChainHead, HeadOut, VerifyOut
+from riskshape_service.deps import ReviewerDep, StoreDep
+from riskshape_service.routers import API_PREFIX, errors
+from riskshape_service.schemas import BadRecordOut, ChainHead, HeadOut, VerifyOut
 
 __all__ = ["make_router"]
 

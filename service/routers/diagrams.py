@@ -8,10 +8,10 @@ from typing import Annotated
 from fastapi import APIRouter, Path, Query
 
 from riskshape.config import ServiceSettings
-from service.deps import ReaderDep, StoreDep
-from service.routers import API_PREFIX, errors
-from service.routers.portfolios import PortfolioName
-from service.schemas import DiagramOut
+from riskshape_service.deps import ReaderDep, StoreDep
+from riskshape_service.routers import API_PREFIX, errors
+from riskshape_service.routers.portfolios import PortfolioName
+from riskshape_service.schemas import DiagramOut
 
 __all__ = ["make_router"]
 

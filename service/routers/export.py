@@ -10,9 +10,9 @@ from fastapi.responses import Response
 from starlette.concurrency import run_in_threadpool
 
 from riskshape.config import ServiceSettings
-from riskshape.export import export_alerts
-from service.deps import ReviewerDep, StoreDep
-from service.routers import API_PREFIX, errors
+from riskshape.outputs.export import export_alerts
+from riskshape_service.deps import ReviewerDep, StoreDep
+from riskshape_service.routers import API_PREFIX, errors
 
 __all__ = ["make_router", "MEDIA_TYPES"]
 

@@ -8,10 +8,10 @@ from fastapi.responses import JSONResponse
 from riskshape._version import __version__
 from riskshape.config import ServiceSettings
 from riskshape.errors import RiskshapeError
-from service.access import store_status
-from service.deps import ContextDep
-from service.routers import API_PREFIX, errors
-from service.schemas import HealthOut, StoreStatus
+from riskshape_service.access import store_status
+from riskshape_service.deps import ContextDep
+from riskshape_service.routers import API_PREFIX, errors
+from riskshape_service.schemas import HealthOut, StoreStatus
 
 __all__ = ["make_router"]
 

@@ -6,9 +6,9 @@ from fastapi import APIRouter
 from fastapi.responses import Response
 
 from riskshape.config import ServiceSettings
-from service.deps import ContextDep, ReaderDep
-from service.metrics import CONTENT_TYPE_LATEST
-from service.routers import errors
+from riskshape_service.deps import ContextDep, ReaderDep
+from riskshape_service.metrics import CONTENT_TYPE_LATEST
+from riskshape_service.routers import errors
 
 __all__ = ["make_router"]
 

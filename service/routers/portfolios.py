@@ -7,11 +7,11 @@ from typing import Annotated
 from fastapi import APIRouter, Path
 
 from riskshape.config import ServiceSettings
-from service import access
-from service.convert import alert_out, rule_state_out
-from service.deps import AdminDep, ContextDep, ReaderDep, StoreDep
-from service.routers import API_PREFIX, errors
-from service.schemas import LatestOut, PortfolioCreated, PortfolioIn, PortfolioList, PortfolioOut, finite_or_none
+from riskshape_service import access
+from riskshape_service.convert import alert_out, rule_state_out
+from riskshape_service.deps import AdminDep, ContextDep, ReaderDep, StoreDep
+from riskshape_service.routers import API_PREFIX, errors
+from riskshape_service.schemas import LatestOut, PortfolioCreated, PortfolioIn, PortfolioList, PortfolioOut, finite_or_none
 
 __all__ = ["make_router", "PortfolioName"]
 

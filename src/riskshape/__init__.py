@@ -16,7 +16,7 @@ from riskshape.errors import (
     RiskshapeError,
     StoreError,
 )
-from riskshape.monitor import MonitorResult, monitor
+from riskshape.compute.monitor import MonitorResult, monitor
 from riskshape.prices import read_prices
 
 __all__ = [

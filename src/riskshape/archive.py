@@ -24,7 +24,7 @@ from riskshape.alerts.rules import evaluate_rules, recheck_firing
 from riskshape.config import ComputeConfig, Config
 from riskshape.errors import ConfigError, RiskshapeError
 from riskshape.explain.archived import explanation_json
-from riskshape.monitor import MonitorResult, monitor
+from riskshape.compute.monitor import MonitorResult, monitor
 from riskshape.prices import hash_prices
 from riskshape.store import AlertAppend, AlertRecord, Run, RunManifest, Store, WriteCount
 

@@ -10,7 +10,7 @@ unparseable dates, duplicate dates, non-numeric cells, zero or negative prices, 
 values, duplicate asset names, fewer than 3 assets, and (given ``min_rows``) fewer rows than
 one window needs. Unsorted dates are sorted with a :class:`~riskshape.errors.DataQualityWarning`.
 Empty cells are missing prices, which are normal (late listings, delistings, holidays): the
-window policy in :mod:`riskshape.windows` decides who enters each window.
+window policy in :mod:`riskshape.compute.windows` decides who enters each window.
 """
 
 from __future__ import annotations

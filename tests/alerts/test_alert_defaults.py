@@ -5,7 +5,7 @@ from __future__ import annotations
 from pathlib import Path
 
 from riskshape.config import Config, RuleConfig
-from riskshape.monitor import feature_columns
+from riskshape.compute.monitor import feature_columns
 
 DEFAULT_TOML = Path(__file__).resolve().parents[2] / "config" / "default.toml"
 

@@ -1,6 +1,6 @@
 """The demo end to end, as the README's first command runs it.
 
-The scenario's regimes are known (riskshape.scenario), so the checks below compare what the
+The scenario's regimes are known (riskshape.demo.scenario), so the checks below compare what the
 pipeline reports with that ground truth, which the pipeline never sees.
 """
 
@@ -51,7 +51,7 @@ def test_demo_plots_are_drawn(demo_run: tuple[Path, subprocess.CompletedProcess[
 def test_demo_summaries_follow_the_known_regimes(demo_run: tuple[Path, subprocess.CompletedProcess[str]]) -> None:
     # Ground truth: the scenario's stress regime loads every asset on one common factor, so windows
     # inside it must show higher mean correlation and shorter H0 bars (clusters merged) than calm ones.
-    from riskshape.scenario import generate_scenario
+    from riskshape.demo.scenario import generate_scenario
 
     out, _ = demo_run
     regimes = generate_scenario(seed=7).regimes.set_index("name")
@@ -67,7 +67,7 @@ def test_demo_summaries_follow_the_known_regimes(demo_run: tuple[Path, subproces
 
 def test_demo_alerts_near_the_stress_episode(demo_run: tuple[Path, subprocess.CompletedProcess[str]]) -> None:
     # At least one alert in the 60 days before the stress regime starts or its first 20 days.
-    from riskshape.scenario import generate_scenario
+    from riskshape.demo.scenario import generate_scenario
 
     _, done = demo_run
     start = generate_scenario(seed=7).stress[0]

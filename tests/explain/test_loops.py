@@ -11,7 +11,7 @@ from scipy.spatial.distance import pdist, squareform
 from riskshape import Config, monitor
 from riskshape.explain import explain_alert
 from riskshape.explain.loops import canonical_cycle, cycle_from_cocycle, representative_cycles, track_loop
-from riskshape.scenario import generate_scenario
+from riskshape.demo.scenario import generate_scenario
 
 
 def circle_points(rng: np.random.Generator, n: int, jitter: float) -> tuple[np.ndarray, np.ndarray]:
@@ -70,7 +70,7 @@ def test_cycle_pairs_with_its_cocycle(rng: np.random.Generator) -> None:
 @pytest.mark.parametrize("seed", [3, 7, 8])
 def test_cycle_follows_the_scenario_ring(seed: int) -> None:
     # Ground truth: in the scenario's rewired regime each ring asset shares a factor with each neighbour
-    # in scenario.ring order (riskshape.scenario). One window spanning the regime keeps sampling noise low.
+    # in scenario.ring order (riskshape.demo.scenario). One window spanning the regime keeps sampling noise low.
     scenario = generate_scenario(seed=seed)
     start = scenario.regimes.set_index("name").loc["rewired", "start"]
     prices = scenario.prices.loc[start - pd.offsets.BDay(1) :]

@@ -21,7 +21,7 @@ import numpy as np
 import pytest
 from scipy.spatial.distance import pdist, squareform
 
-from riskshape.persistence import compute_diagrams
+from riskshape.compute.persistence import compute_diagrams
 
 
 def _circle_distance(n: int, radius: float) -> np.ndarray:

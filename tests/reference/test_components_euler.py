@@ -24,7 +24,7 @@ from ripser import ripser
 from scipy.sparse.csgraph import connected_components
 from scipy.spatial.distance import pdist, squareform
 
-from riskshape.persistence import compute_diagrams
+from riskshape.compute.persistence import compute_diagrams
 
 
 def _alive(dgm: np.ndarray, r: float) -> int:

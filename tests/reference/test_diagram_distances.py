@@ -2,7 +2,7 @@
 
 Conventions of each library (read from their documentation and source, gudhi 3.x, persim 0.4):
 
-* ours (riskshape.summaries): Wasserstein of order p with the L-infinity ground metric, a point's
+* ours (riskshape.compute.summaries): Wasserstein of order p with the L-infinity ground metric, a point's
   distance to the diagonal being (death - birth) / 2; bottleneck with the L-infinity ground metric;
 * gudhi.wasserstein.wasserstein_distance(X, Y, order=p, internal_p=inf): order ``order``, ground
   metric L^internal_p, so ``internal_p=inf`` is the L-infinity metric of the stability theorem
@@ -25,7 +25,7 @@ from gudhi.wasserstein import wasserstein_distance as gudhi_wasserstein
 from persim import bottleneck as persim_bottleneck
 from persim import wasserstein as persim_wasserstein
 
-from riskshape.summaries import bottleneck_distance, wasserstein_distance
+from riskshape.compute.summaries import bottleneck_distance, wasserstein_distance
 
 
 def _random_diagram(rng: np.random.Generator, n: int, h0: bool = False) -> np.ndarray:

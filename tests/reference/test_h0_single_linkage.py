@@ -17,10 +17,10 @@ from scipy.cluster.hierarchy import linkage
 from scipy.spatial.distance import pdist, squareform
 
 from riskshape import Config, MonitorResult, monitor
-from riskshape.distance import correlation_matrix, correlation_to_distance
-from riskshape.persistence import compute_diagrams
-from riskshape.scenario import Scenario
-from riskshape.windows import select_assets
+from riskshape.compute.distance import correlation_matrix, correlation_to_distance
+from riskshape.compute.persistence import compute_diagrams
+from riskshape.demo.scenario import Scenario
+from riskshape.compute.windows import select_assets
 
 
 def _scipy_merge_heights(distance: np.ndarray) -> np.ndarray:

@@ -23,7 +23,7 @@ import pytest
 from persim.landscapes import PersLandscapeExact
 from scipy.integrate import trapezoid
 
-from riskshape.summaries import landscape_norm
+from riskshape.compute.summaries import landscape_norm
 
 
 def _layers_on_grid(dgm: np.ndarray, grid: np.ndarray) -> np.ndarray:

@@ -17,7 +17,7 @@ import numpy as np
 import pytest
 from scipy.spatial.distance import pdist, squareform
 
-from riskshape.persistence import compute_diagrams
+from riskshape.compute.persistence import compute_diagrams
 
 
 def _gudhi_diagrams(distance: np.ndarray, maxdim: int) -> list[np.ndarray]:

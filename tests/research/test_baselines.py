@@ -16,7 +16,7 @@ import pytest
 from scipy.spatial.distance import mahalanobis
 
 from riskshape import monitor
-from riskshape.baselines import (
+from riskshape.research.baselines import (
     BASELINE_COLUMNS,
     absorption_ratio,
     compute_baselines,

@@ -1,6 +1,6 @@
 """Event study: definitions by hand, AUC against the Mann-Whitney U statistic, and the demo.
 
-The demo scenario (riskshape.scenario) knows its regimes; its stress episode is the ground truth.
+The demo scenario (riskshape.demo.scenario) knows its regimes; its stress episode is the ground truth.
 """
 
 from __future__ import annotations
@@ -17,8 +17,8 @@ from riskshape.errors import DataError
 from riskshape.research.events import DrawdownEvents, equal_weight_wealth, events_from_periods, portfolio_drawdown_events
 from riskshape.research.study import event_labels, event_study, study_table
 from riskshape.research.surrogates import surrogate
-from riskshape.returns import to_returns
-from riskshape.scenario import generate_scenario
+from riskshape.compute.returns import to_returns
+from riskshape.demo.scenario import generate_scenario
 
 CAL = pd.bdate_range("2030-01-01", periods=60)
 

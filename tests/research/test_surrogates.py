@@ -14,7 +14,7 @@ import pytest
 
 from riskshape import Config, monitor
 from riskshape.errors import ConfigError, DataError
-from riskshape.monitor import settings_of
+from riskshape.compute.monitor import settings_of
 from riskshape.research.surrogates import (
     METHODS,
     WindowSummaries,

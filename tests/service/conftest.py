@@ -10,12 +10,12 @@ import pandas as pd
 import pytest
 from fastapi import FastAPI
 from fastapi.testclient import TestClient
-from service_kit import ROLES, write_config
+from tests.kit.service import ROLES, write_config
 
 from riskshape.config import ServiceSettings
-from riskshape.scenario import generate_scenario
+from riskshape.demo.scenario import generate_scenario
 from riskshape.store import open_store
-from service import create_app
+from riskshape_service import create_app
 
 
 @pytest.fixture(scope="session")

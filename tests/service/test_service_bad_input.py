@@ -9,11 +9,11 @@ from collections.abc import Callable, Iterator
 import pandas as pd
 import pytest
 from fastapi.testclient import TestClient
-from service_kit import cautioned, csv_body, long_rows, wide_rows
+from tests.kit.service import cautioned, csv_body, long_rows, wide_rows
 
 from riskshape.config import ServiceSettings
 from riskshape.store import open_store
-from service import create_app
+from riskshape_service import create_app
 
 Auth = Callable[[str], dict[str, str]]
 CSV = {"Content-Type": "text/csv"}

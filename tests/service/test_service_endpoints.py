@@ -13,13 +13,13 @@ import pandas as pd
 import pytest
 from fastapi.testclient import TestClient
 from prometheus_client.parser import text_string_to_metric_families
-from service_kit import cautioned, csv_body, long_rows, wide_rows
+from tests.kit.service import cautioned, csv_body, long_rows, wide_rows
 
 from riskshape import monitor
 from riskshape.archive import reproduce_alert
 from riskshape.caution import CAUTION
 from riskshape.store import open_store
-from service.logs import JsonFormatter
+from riskshape_service.logs import JsonFormatter
 
 Auth = Callable[[str], dict[str, str]]
 N_FIRST = 45  # price dates ingested by the `loaded` fixture

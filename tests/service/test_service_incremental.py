@@ -11,7 +11,7 @@ from collections.abc import Callable
 import numpy as np
 import pandas as pd
 from fastapi.testclient import TestClient
-from service_kit import cautioned, wide_rows
+from tests.kit.service import cautioned, wide_rows
 
 from riskshape import monitor
 from riskshape.alerts import evaluate_rules
@@ -96,7 +96,7 @@ def test_without_cached_results_each_day_is_recomputed_from_the_archive_alike(
 ) -> None:
     """RISKSHAPE_RESULT_CACHE_SIZE=0: no result stays in memory, every new day rebuilds the result from
     the archive; two portfolios fed in turn get the batch's summaries all the same."""
-    from service import create_app
+    from riskshape_service import create_app
 
     env = {f"RISKSHAPE_{k.upper()}": str(v) for k, v in make_settings().model_dump().items() if v is not None}
     settings = ServiceSettings.from_env({**env, "RISKSHAPE_RESULT_CACHE_SIZE": "0"})

@@ -7,13 +7,13 @@ from collections.abc import Iterator
 
 import pytest
 from fastapi.testclient import TestClient
-from postgres_kit import fresh_schema_url
-from service_kit import cautioned, csv_body, write_config
+from tests.kit.postgres import fresh_schema_url
+from tests.kit.service import cautioned, csv_body, write_config
 
 from riskshape.config import ServiceSettings
-from riskshape.scenario import generate_scenario
+from riskshape.demo.scenario import generate_scenario
 from riskshape.store import open_store
-from service import create_app
+from riskshape_service import create_app
 
 pytestmark = pytest.mark.postgres
 

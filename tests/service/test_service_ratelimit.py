@@ -8,7 +8,7 @@ from __future__ import annotations
 
 import pytest
 
-from service.ratelimit import RateLimiter
+from riskshape_service.ratelimit import RateLimiter
 
 
 class Clock:

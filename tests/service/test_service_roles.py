@@ -14,13 +14,13 @@ from pathlib import Path
 
 import pytest
 from fastapi.testclient import TestClient
-from service_kit import ROLES, cautioned, csv_body, write_config
+from tests.kit.service import ROLES, cautioned, csv_body, write_config
 
 from riskshape.config import ServiceSettings
-from riskshape.scenario import generate_scenario
+from riskshape.demo.scenario import generate_scenario
 from riskshape.store import open_store
-from service import create_app
-from service.auth import Permission, Role, may
+from riskshape_service import create_app
+from riskshape_service.auth import Permission, Role, may
 
 
 @dataclass(frozen=True)

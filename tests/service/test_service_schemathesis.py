@@ -22,13 +22,13 @@ from schemathesis.specs.openapi.checks import (
     response_schema_conformance,
     status_code_conformance,
 )
-from service_kit import csv_body, write_config
+from tests.kit.service import csv_body, write_config
 
 from riskshape.caution import CAUTION
 from riskshape.config import ServiceSettings
-from riskshape.scenario import generate_scenario
+from riskshape.demo.scenario import generate_scenario
 from riskshape.store import open_store
-from service import create_app
+from riskshape_service import create_app
 
 
 @schemathesis.check

@@ -16,10 +16,10 @@ from pathlib import Path
 import httpx
 import pytest
 from click.testing import CliRunner
-from service_kit import cautioned, csv_body, write_config
+from tests.kit.service import cautioned, csv_body, write_config
 
 from riskshape.cli import cli
-from riskshape.scenario import generate_scenario
+from riskshape.demo.scenario import generate_scenario
 
 STARTUP_SECONDS = 60  # a bound on waiting for the server, not a speed requirement
 

@@ -10,12 +10,12 @@ import dataclasses
 import numpy as np
 import pandas as pd
 import pytest
-from archive_kit import manifest, walk_prices
-from postgres_kit import fresh_schema_url
+from tests.kit.archive import manifest, walk_prices
+from tests.kit.postgres import fresh_schema_url
 
 from riskshape import Config, monitor
 from riskshape.config import RuleConfig
-from riskshape.monitor import MonitorResult
+from riskshape.compute.monitor import MonitorResult
 from riskshape.store import Run, Store, open_store
 
 

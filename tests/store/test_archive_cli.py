@@ -11,11 +11,11 @@ from pathlib import Path
 import numpy as np
 import pytest
 import sqlalchemy as sa
-from archive_kit import around_triggers, make_alerts, manifest, walk_prices
+from tests.kit.archive import around_triggers, make_alerts, manifest, walk_prices
 
 from riskshape.caution import CAUTION
 from riskshape.cli import main
-from riskshape.export import EXPORT_COLUMNS, neutralise_cell
+from riskshape.outputs.export import EXPORT_COLUMNS, neutralise_cell
 from riskshape.store import chain_head, open_store
 
 

@@ -6,11 +6,11 @@ import numpy as np
 import pandas as pd
 import pytest
 import sqlalchemy as sa
-from archive_kit import around_triggers
+from tests.kit.archive import around_triggers
 
 from riskshape import monitor
 from riskshape.archive import archive_run, reproduce_alert, reproduce_alerts
-from riskshape.monitor import MonitorResult
+from riskshape.compute.monitor import MonitorResult
 from riskshape.store import Store, verify_chain
 
 

@@ -12,23 +12,24 @@ from pathlib import Path
 import numpy as np
 import pytest
 import sqlalchemy as sa
-from archive_kit import make_alerts
+from tests.kit.archive import make_alerts
 
 from riskshape.store import Store, verify_chain
 
-WRITER = Path(__file__).with_name("archive_writer.py")
+REPO = Path(__file__).resolve().parents[2]  # the writer runs as ``python -m tests.kit.archive_writer`` from here
 
 
 def _writer(url: str, run_id: int, rule: str, count: int, errors: Path, go_file: Path | None = None
             ) -> subprocess.Popen[str]:
     """Start a writer; its stderr goes to ``errors`` so stdout is the one pipe (communicate() then reads
     through the same buffer as readline(), and no line is lost)."""
-    args = [sys.executable, str(WRITER), url, str(run_id), rule, str(count)] + ([str(go_file)] if go_file else [])
-    # the writer imports the test kits (tests/store and tests/) like the tests do
-    kits = os.pathsep.join([str(WRITER.parent), str(WRITER.parent.parent), os.environ.get("PYTHONPATH", "")])
+    args = [sys.executable, "-m", "tests.kit.archive_writer", url, str(run_id), rule, str(count)]
+    args += [str(go_file)] if go_file else []
+    # the writer imports the test kits as the tests do: the tests package from the repository's root
+    path = os.pathsep.join([str(REPO), os.environ.get("PYTHONPATH", "")])
     with errors.open("w") as sink:
-        return subprocess.Popen(args, stdout=subprocess.PIPE, stderr=sink, text=True, cwd=WRITER.parent,
-                                env={**os.environ, "PYTHONPATH": kits})
+        return subprocess.Popen(args, stdout=subprocess.PIPE, stderr=sink, text=True, cwd=REPO,
+                                env={**os.environ, "PYTHONPATH": path})
 
 
 def _ledger(store: Store) -> dict[tuple[str, int], int]:

@@ -19,7 +19,7 @@ from riskshape.errors import ConflictError, DataError, NotFoundError, StoreError
 from riskshape.store import GENESIS_HASH, Store, open_store, verify_chain
 from riskshape.store.schema import APPEND_ONLY_TABLES, metadata
 
-from archive_kit import make_alerts, manifest, walk_prices
+from tests.kit.archive import make_alerts, manifest, walk_prices
 
 
 def test_schema_from_migrations_matches_the_models(store: Store) -> None:
@@ -308,7 +308,7 @@ def test_open_without_create_refuses_a_missing_archive(store_url: str) -> None:
 
 def test_a_write_transaction_holds_the_lock_before_reading(store: Store) -> None:
     # While a write transaction is open (and has read nothing yet), no other writer may start.
-    from riskshape.store.engine import LOCK_KEY, write_transaction
+    from riskshape.store.database import LOCK_KEY, write_transaction
 
     with write_transaction(store.engine):
         with store.engine.connect() as other:

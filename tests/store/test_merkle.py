@@ -5,7 +5,7 @@ from __future__ import annotations
 import hashlib
 
 import numpy as np
-from archive_kit import make_alerts
+from tests.kit.archive import make_alerts
 
 from riskshape.store import Store, verify_chain
 from riskshape.store.merkle import merkle_root

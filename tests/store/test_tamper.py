@@ -13,7 +13,7 @@ import datetime as dt
 import numpy as np
 import pytest
 import sqlalchemy as sa
-from archive_kit import around_triggers, make_alerts
+from tests.kit.archive import around_triggers, make_alerts
 
 from riskshape.store import Store, chain_head, schema, verify_chain
 from riskshape.store.canonical import ALERT_FIELDS, REVIEW_FIELDS, entry_hash

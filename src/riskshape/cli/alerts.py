@@ -9,7 +9,7 @@ import click
 from riskshape.caution import CAUTION
 from riskshape.cli.audit import STORE_OPTION
 from riskshape.explain.archived import explanation_text
-from riskshape.export import EXPORT_COLUMNS, export_alerts
+from riskshape.outputs.export import EXPORT_COLUMNS, export_alerts
 from riskshape.store import REVIEW_ACTIONS, open_store
 
 __all__ = ["alerts"]

@@ -8,7 +8,7 @@ import click
 
 from riskshape.caution import CAUTION
 from riskshape.cli.progress import progress_bar
-from riskshape.demo import run_demo
+from riskshape.demo.runner import run_demo
 
 __all__ = ["demo"]
 

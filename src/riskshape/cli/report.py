@@ -8,7 +8,7 @@ import click
 
 from riskshape.caution import CAUTION
 from riskshape.cli.audit import STORE_OPTION
-from riskshape.report import collect_review, write_report
+from riskshape.outputs.report import collect_review, write_report
 from riskshape.store import open_store
 
 __all__ = ["report"]

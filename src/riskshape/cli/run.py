@@ -11,8 +11,8 @@ from riskshape.caution import CAUTION
 from riskshape.cli.progress import progress_bar
 from riskshape.config import Config
 from riskshape.errors import DataError
-from riskshape.monitor import monitor
-from riskshape.output import write_run
+from riskshape.compute.monitor import monitor
+from riskshape.outputs.run_folder import write_run
 from riskshape.prices import read_prices
 from riskshape.store import open_store
 

@@ -26,8 +26,8 @@ def serve(store_url: str, host: str, port: int, config_path: str | None) -> None
     """
     import uvicorn
 
-    from service import create_app
-    from service.logs import configure_logging
+    from riskshape_service import create_app
+    from riskshape_service.logs import configure_logging
 
     settings = ServiceSettings.from_env(store_url=store_url, config_path=config_path)
     open_store(settings.store_url).close()  # fail here, in one line, if the archive cannot be opened

@@ -13,7 +13,7 @@ from typing import Any
 from riskshape.alerts.model import Firing
 from riskshape.explain.attach import explain_alert
 from riskshape.explain.model import Explanation
-from riskshape.monitor import MonitorResult
+from riskshape.compute.monitor import MonitorResult
 
 __all__ = ["explanation_json", "explanation_text", "explanation_object", "NO_EXPLANATION"]
 

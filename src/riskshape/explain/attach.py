@@ -14,7 +14,7 @@ from riskshape.explain.clusters import ScaleRule, explain_clusters
 from riskshape.explain.geometry import WindowGeometry, as_date, window_geometry
 from riskshape.explain.loops import explain_loops
 from riskshape.explain.model import Explanation
-from riskshape.monitor import MonitorResult
+from riskshape.compute.monitor import MonitorResult
 
 __all__ = ["explain_alert", "summary_dimension"]
 
@@ -116,7 +116,7 @@ def explain_alert(
     Examples
     --------
     >>> from riskshape import Config, monitor
-    >>> from riskshape.scenario import generate_scenario
+    >>> from riskshape.demo.scenario import generate_scenario
     >>> run = monitor(generate_scenario(seed=1, n_days=80).prices, Config(window=60, step=10, compute={"executor": "serial"}))
     >>> e = explain_alert(run, run.window_ends[-1], "h0_total_persistence")
     >>> e.clusters is not None, e.loops is None

@@ -3,8 +3,8 @@
 The engine keeps only diagrams; explanations need the assets, their correlations and the
 distance matrix the diagrams came from. :func:`window_geometry` rebuilds them from
 ``MonitorResult.window_returns`` with the engine's own building blocks and settings
-(:func:`riskshape.windows.select_assets`, :func:`riskshape.distance.correlation_matrix`,
-:func:`riskshape.window.embedding_distance`).
+(:func:`riskshape.compute.windows.select_assets`, :func:`riskshape.compute.distance.correlation_matrix`,
+:func:`riskshape.compute.batch.embedding_distance`).
 """
 
 from __future__ import annotations
@@ -15,11 +15,11 @@ from datetime import date
 import numpy as np
 import pandas as pd
 
-from riskshape.distance import correlation_matrix, correlation_to_distance
+from riskshape.compute.distance import correlation_matrix, correlation_to_distance
 from riskshape.errors import DataError
-from riskshape.monitor import MonitorResult
-from riskshape.window import embedding_distance
-from riskshape.windows import select_assets
+from riskshape.compute.monitor import MonitorResult
+from riskshape.compute.batch import embedding_distance
+from riskshape.compute.windows import select_assets
 
 __all__ = ["WindowGeometry", "window_geometry", "as_date"]
 

@@ -17,7 +17,7 @@ import numpy as np
 import pandas as pd
 
 from riskshape.errors import ConfigError, DataError
-from riskshape.returns import to_returns
+from riskshape.compute.returns import to_returns
 
 __all__ = [
     "DrawdownEvents",

@@ -43,7 +43,7 @@ from sklearn.metrics import roc_auc_score
 
 from riskshape.alerts.model import Firing
 from riskshape.alerts.rules import evaluate_rule
-from riskshape.baselines import TRADING_DAYS_PER_YEAR
+from riskshape.research.baselines import TRADING_DAYS_PER_YEAR
 from riskshape.config import RuleConfig
 from riskshape.errors import ConfigError
 from riskshape.research.events import DrawdownEvents

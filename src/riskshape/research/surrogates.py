@@ -39,12 +39,12 @@ import pandas as pd
 from arch.bootstrap import MovingBlockBootstrap, StationaryBootstrap
 from scipy.stats import rankdata
 
-from riskshape.compute import make_executor
+from riskshape.compute.executors import make_executor
 from riskshape.errors import ConfigError, DataError
-from riskshape.monitor import MonitorResult, settings_of
-from riskshape.summaries import SUMMARY_NAMES, summarize_diagram
-from riskshape.window import WindowSettings, compute_window
-from riskshape.windows import select_assets
+from riskshape.compute.monitor import MonitorResult, settings_of
+from riskshape.compute.summaries import SUMMARY_NAMES, summarize_diagram
+from riskshape.compute.batch import WindowSettings, compute_window
+from riskshape.compute.windows import select_assets
 
 __all__ = [
     "METHODS",
@@ -66,7 +66,7 @@ def _complete(block: np.ndarray, method: str) -> np.ndarray:
     if not np.isfinite(data).all():
         raise DataError(
             f"surrogate '{method}': the block holds missing or infinite returns; use the complete block "
-            "riskshape.windows.select_assets gives"
+            "riskshape.compute.windows.select_assets gives"
         )
     return data
 
@@ -267,8 +267,8 @@ class WindowSummaries:
     """The monitor's per-window summaries of a complete block, by the engine's own functions.
 
     Calling it on a block gives ``mean_correlation`` and ``h{k}_<summary>`` for k = 0..maxdim
-    (the diagram summaries of :mod:`riskshape.summaries`), through
-    :func:`riskshape.window.compute_window` (so the embedding of the configuration is used).
+    (the diagram summaries of :mod:`riskshape.compute.summaries`), through
+    :func:`riskshape.compute.batch.compute_window` (so the embedding of the configuration is used).
     Picklable, so it can go to worker processes.
     """
 

@@ -3,7 +3,7 @@
 Each grid point runs the monitor (in its worker, serially), the baselines on the same windows
 and :func:`riskshape.research.study.study_table` against one fixed set of events; the grid
 points go to the executor the configuration's ``compute`` section names
-(:func:`riskshape.compute.make_executor`: a local process pool by default, or Dask).
+(:func:`riskshape.compute.executors.make_executor`: a local process pool by default, or Dask).
 """
 
 from __future__ import annotations
@@ -15,11 +15,11 @@ from typing import Literal
 
 import pandas as pd
 
-from riskshape.baselines import compute_baselines
-from riskshape.compute import make_executor
+from riskshape.research.baselines import compute_baselines
+from riskshape.compute.executors import make_executor
 from riskshape.config import Config
 from riskshape.errors import ConfigError
-from riskshape.monitor import monitor
+from riskshape.compute.monitor import monitor
 from riskshape.research.events import DrawdownEvents
 from riskshape.research.study import study_table
 

@@ -99,7 +99,7 @@ def walk_forward(
     ----------
     features : pandas.DataFrame
         Causal features indexed by window end (days of ``wealth``'s index), e.g. the monitor's
-        features joined with :func:`riskshape.baselines.compute_baselines`.
+        features joined with :func:`riskshape.research.baselines.compute_baselines`.
     wealth : pandas.Series
         The portfolio's wealth path (:func:`riskshape.research.events.equal_weight_wealth`);
         events come from it as in :func:`riskshape.research.events.drawdown_events`.

@@ -14,7 +14,7 @@ from sqlalchemy.engine import Connection, Engine
 
 from riskshape.errors import ConflictError, NotFoundError, StoreError
 from riskshape.store import schema as t
-from riskshape.store.engine import read_transaction, write_transaction
+from riskshape.store.database import read_transaction, write_transaction
 from riskshape.store.pricebook import append_prices, max_price_id, validated
 from riskshape.store.records import Portfolio, PriceWrite, Run, RunManifest
 

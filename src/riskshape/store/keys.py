@@ -20,7 +20,7 @@ from sqlalchemy.engine import Engine
 
 from riskshape.errors import NotFoundError, StoreError
 from riskshape.store import schema as t
-from riskshape.store.engine import read_transaction, write_transaction
+from riskshape.store.database import read_transaction, write_transaction
 from riskshape.store.records import ApiKey, NewApiKey
 
 __all__ = ["create_api_key", "lookup_api_key", "revoke_api_key", "list_api_keys"]

@@ -1,6 +1,6 @@
 """Appending to and reading the ledger: alerts and reviews, one hash chain.
 
-Every append runs in :func:`~riskshape.store.engine.write_transaction`, which holds the write lock
+Every append runs in :func:`~riskshape.store.database.write_transaction`, which holds the write lock
 before the head is read, so two writers can never both extend the same head.
 """
 
@@ -20,7 +20,7 @@ from riskshape.alerts.model import Alert
 from riskshape.errors import NotFoundError, StoreError
 from riskshape.store import schema as t
 from riskshape.store.canonical import entry_hash
-from riskshape.store.engine import read_transaction, write_transaction
+from riskshape.store.database import read_transaction, write_transaction
 from riskshape.store.records import (
     GENESIS_HASH,
     REVIEW_ACTIONS,

@@ -21,7 +21,7 @@ from sqlalchemy.engine import Connection, Engine
 from riskshape.errors import NotFoundError, StoreError
 from riskshape.store import schema as t
 from riskshape.store.catalog import portfolio_id
-from riskshape.store.engine import read_transaction, write_transaction
+from riskshape.store.database import read_transaction, write_transaction
 from riskshape.store.ledger import to_date
 from riskshape.store.pricebook import INDEX_UNIT
 from riskshape.store.records import Diagram, FeaturesPage, WriteCount

@@ -1,7 +1,7 @@
 """The archive: :func:`open_store` and the :class:`Store` with its typed repository methods.
 
 Every method runs in its own transaction; writes hold the archive's write lock (see
-:mod:`riskshape.store.engine`). Database failures surface as :class:`~riskshape.errors.StoreError`
+:mod:`riskshape.store.database`). Database failures surface as :class:`~riskshape.errors.StoreError`
 (a constraint violation as :class:`~riskshape.errors.ConflictError`).
 """
 
@@ -21,7 +21,7 @@ from riskshape.alerts.model import Alert
 from riskshape.errors import ConflictError, StoreError
 from riskshape.store import catalog, keys, ledger, pricebook, series
 from riskshape.store.chain import verify_ledger
-from riskshape.store.engine import (
+from riskshape.store.database import (
     archive_exists,
     create_archive_engine,
     read_transaction,

@@ -1,6 +1,6 @@
-"""Alembic environment: migrations run on the connection handed over by ``riskshape.store.engine``.
+"""Alembic environment: migrations run on the connection handed over by ``riskshape.store.database``.
 
-There is no ``alembic.ini``: :func:`riskshape.store.engine.upgrade` builds the Alembic ``Config`` in
+There is no ``alembic.ini``: :func:`riskshape.store.database.upgrade` builds the Alembic ``Config`` in
 code and passes an open connection (already inside a write transaction holding the archive's
 write lock) as ``config.attributes["connection"]``.
 """

@@ -1,0 +1,323 @@
+"""One window, end to end: returns block -> admitted assets -> distance -> diagrams.
+
+This is the unit of work the executors ship to workers; it is pure (no I/O, no globals).
+:func:`compute_window` is the plain path for one window; :func:`compute_batch` computes
+consecutive windows and takes the correlation from running sums where that changes nothing
+beyond rounding (:mod:`riskshape.compute.moments`).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Literal
+
+import numpy as np
+from scipy.spatial.distance import pdist, squareform
+
+from riskshape.compute.distance import correlation_matrix, correlation_to_distance, mean_offdiagonal
+from riskshape.compute.persistence import EMPTY_DIAGRAM, compute_diagrams
+from riskshape.compute.moments import RollingMoments, is_rebuild_point
+from riskshape.compute.summaries import SUMMARY_NAMES, bottleneck_distance, summarize_diagram, wasserstein_distance
+from riskshape.compute.windows import Selection, select_assets
+
+__all__ = [
+    "WindowSettings",
+    "WindowResult",
+    "compute_window",
+    "embedding_distance",
+    "compute_batch",
+    "diagram_distances",
+    "first_row_needed",
+    "preload",
+]
+
+
+@dataclass(frozen=True)
+class WindowSettings:
+    """The part of :class:`riskshape.Config` a worker needs (small, picklable).
+
+    ``rolling`` (not a configuration key: it never changes a result beyond rounding) lets
+    :func:`compute_batch` take correlations from running sums; ``False`` forces the plain path.
+    """
+
+    window: int
+    min_coverage: float
+    correlation: Literal["pearson", "spearman"]
+    maxdim: int
+    order_p: float
+    engine: Literal["auto", "ripser", "giotto"]
+    embedding: Literal["correlation", "point_cloud"]
+    standardize_cloud: bool
+    step: int = 1
+    rolling: bool = True
+
+
+@dataclass(frozen=True, init=False)
+class WindowResult:
+    """What one window gives.
+
+    Diagrams are stored compactly, all dimensions in one float32 array (lossless: their values
+    are float32 rounded already; a diagram that is not is kept in float64).
+
+    Parameters
+    ----------
+    used : numpy.ndarray
+        Column positions of the admitted assets.
+    left_out : tuple of (int, str)
+        Column positions left out, with the reason.
+    mean_correlation : float
+        Mean off-diagonal correlation of the admitted assets (NaN below 2 assets).
+    diagrams : tuple of numpy.ndarray
+        H0..Hmaxdim finite bars.
+    distances : numpy.ndarray
+        (maxdim + 1, 2) Wasserstein and bottleneck distance of each dimension's diagram to the
+        previous window's; NaN where there is no previous window.
+
+    Attributes
+    ----------
+    summaries : numpy.ndarray
+        (maxdim + 1, len(SUMMARY_NAMES)) per-diagram summaries
+        (:func:`riskshape.compute.summaries.summarize_diagram`), computed with the diagrams (in the worker).
+    """
+
+    used: np.ndarray
+    left_out: tuple[tuple[int, str], ...]
+    mean_correlation: float
+    bars: np.ndarray
+    sizes: tuple[int, ...]
+    summaries: np.ndarray
+    distances: np.ndarray
+
+    def __init__(
+        self,
+        used: np.ndarray,
+        left_out: tuple[tuple[int, str], ...],
+        mean_correlation: float,
+        diagrams: tuple[np.ndarray, ...],
+        distances: np.ndarray,
+    ) -> None:
+        bars = np.concatenate([np.asarray(d, dtype=float).reshape(-1, 2) for d in diagrams]) if diagrams else EMPTY_DIAGRAM
+        compact = bars.astype(np.float32)
+        if np.array_equal(compact, bars):
+            bars = compact
+        summaries = np.array([summarize_diagram(d).as_tuple() for d in diagrams], dtype=float)
+        for name, value in (
+            ("used", used),
+            ("left_out", left_out),
+            ("mean_correlation", mean_correlation),
+            ("bars", bars),
+            ("sizes", tuple(len(d) for d in diagrams)),
+            ("summaries", summaries.reshape(len(diagrams), len(SUMMARY_NAMES))),
+            ("distances", distances),
+        ):
+            object.__setattr__(self, name, value)
+
+    @property
+    def diagrams(self) -> tuple[np.ndarray, ...]:
+        """H0..Hmaxdim finite bars, each an (n, 2) float64 array."""
+        bounds = np.cumsum((0,) + self.sizes)
+        return tuple(self.bars[lo:hi].astype(float) for lo, hi in zip(bounds[:-1], bounds[1:]))
+
+    def with_distances(self, distances: np.ndarray) -> "WindowResult":
+        """A copy with ``distances`` set."""
+        copy = object.__new__(WindowResult)
+        copy.__dict__.update(self.__dict__)
+        object.__setattr__(copy, "distances", distances)
+        return copy
+
+
+def compute_window(block: np.ndarray, settings: WindowSettings) -> WindowResult:
+    """Diagrams and correlation level of one window of returns (the plain path).
+
+    Parameters
+    ----------
+    block : numpy.ndarray
+        (window, n_assets) returns, NaN where missing.
+    settings : WindowSettings
+
+    Returns
+    -------
+    WindowResult
+        With ``distances`` all NaN (see :func:`compute_batch`).
+    """
+    return _from_selection(select_assets(block, settings.min_coverage), settings, None)
+
+
+def _from_selection(selection: Selection, settings: WindowSettings, corr: np.ndarray | None) -> WindowResult:
+    """A window's result from its admitted assets; ``corr`` is their correlation if known already."""
+    nan_distances = np.full((settings.maxdim + 1, 2), np.nan)
+    if len(selection.used) < 2:
+        empty = tuple(EMPTY_DIAGRAM for _ in range(settings.maxdim + 1))
+        return WindowResult(selection.used, selection.left_out, float("nan"), empty, nan_distances)
+    if corr is None:
+        corr = correlation_matrix(selection.block, settings.correlation)
+    distance = embedding_distance(selection.block, corr, settings.embedding, settings.standardize_cloud)
+    diagrams = compute_diagrams(distance, settings.maxdim, settings.engine)
+    return WindowResult(selection.used, selection.left_out, mean_offdiagonal(corr), diagrams, nan_distances)
+
+
+def embedding_distance(
+    block: np.ndarray,
+    corr: np.ndarray,
+    embedding: Literal["correlation", "point_cloud"],
+    standardize_cloud: bool,
+) -> np.ndarray:
+    """The distance matrix whose Vietoris-Rips filtration gives a window's diagrams.
+
+    Parameters
+    ----------
+    block : numpy.ndarray
+        (days, assets) returns of the admitted assets, complete.
+    corr : numpy.ndarray
+        Their correlation matrix.
+    embedding : {"correlation", "point_cloud"}
+        ``correlation``: between assets, sqrt(2 (1 - rho)); ``point_cloud``: Euclidean between days.
+    standardize_cloud : bool
+        For ``point_cloud``: each asset's returns scaled to zero mean and unit variance first.
+
+    Returns
+    -------
+    numpy.ndarray
+    """
+    if embedding == "point_cloud":
+        points = block
+        if standardize_cloud:
+            points = (points - points.mean(axis=0)) / points.std(axis=0)
+        return squareform(pdist(points))
+    return correlation_to_distance(corr)
+
+
+def diagram_distances(previous: tuple[np.ndarray, ...], current: tuple[np.ndarray, ...], order_p: float) -> np.ndarray:
+    """(maxdim + 1, 2) array of Wasserstein (order ``order_p``) and bottleneck distances per dimension."""
+    return np.array(
+        [[wasserstein_distance(a, b, order_p), bottleneck_distance(a, b)] for a, b in zip(previous, current)]
+    )
+
+
+def compute_batch(
+    rows: np.ndarray,
+    ends: np.ndarray,
+    settings: WindowSettings,
+    previous: tuple[np.ndarray, ...] | None = None,
+    row_offset: int = 0,
+) -> list[WindowResult]:
+    """Compute consecutive windows over a slice of the returns table.
+
+    Parameters
+    ----------
+    rows : numpy.ndarray
+        Returns rows covering every window of the batch (row 0 = first row of the first window,
+        or earlier).
+    ends : numpy.ndarray
+        Window end positions relative to ``rows``, ascending.
+    settings : WindowSettings
+    previous : tuple of numpy.ndarray, optional
+        Diagrams of the window before the batch, if any (for the first distance).
+    row_offset : int
+        Position of ``rows[0]`` in the returns table. With ``settings.rolling`` the running sums
+        are rebuilt at fixed positions of that table (:mod:`riskshape.compute.moments`), so results do
+        not depend on how windows are split into batches provided ``rows`` reaches back to the
+        last rebuild point (as :func:`riskshape.compute.monitor.monitor` arranges).
+
+    Returns
+    -------
+    list of WindowResult
+        One per end, with distances to the previous window filled in.
+    """
+    # one memory layout whatever the caller passes (a view of a Fortran-ordered table, or the
+    # C-ordered copy a worker unpickles), so the floating-point reductions run in one order
+    rows = np.ascontiguousarray(rows, dtype=float)
+    rolling = _Rolling(rows, settings, row_offset) if _rolling_applies(settings) else None
+    results: list[WindowResult] = []
+    last_used: np.ndarray | None = None
+    for end in ends:
+        end = int(end)
+        block = rows[end - settings.window + 1 : end + 1]
+        selection = select_assets(block, settings.min_coverage)
+        if last_used is not None and np.array_equal(selection.used, last_used):
+            # share one array between windows with the same assets (pickled once per batch)
+            selection = Selection(last_used, selection.block, selection.left_out)
+        last_used = selection.used
+        corr = rolling.correlation(end, selection.used) if rolling is not None else None
+        result = _from_selection(selection, settings, corr)
+        if previous is not None:
+            result = result.with_distances(diagram_distances(previous, result.diagrams, settings.order_p))
+        results.append(result)
+        previous = result.diagrams
+    return results
+
+
+def first_row_needed(end: int, settings: WindowSettings) -> int:
+    """First returns row :func:`compute_batch` needs for a batch whose first window ends at row ``end``.
+
+    The window's first row, or with running sums the first row of the rebuild point before it
+    (:func:`riskshape.compute.moments.is_rebuild_point`), whichever is earlier.
+    """
+    start = end - settings.window + 1
+    if not _rolling_applies(settings) or (end - (settings.window - 1)) % settings.step:
+        return start
+    index = (end - (settings.window - 1)) // settings.step
+    while not is_rebuild_point(index):
+        index -= 1
+    return min(start, index * settings.step)
+
+
+def preload(settings: WindowSettings) -> None:
+    """Import the libraries the windows of these settings will need (before forking workers).
+
+    giotto-ph where it is the Rips engine (it imports scikit-learn: about a second).
+    """
+    from riskshape.compute.persistence import resolve_engine
+
+    if settings.maxdim >= 1 and resolve_engine(settings.engine) == "giotto":
+        import gph  # noqa: F401
+
+
+def _rolling_applies(settings: WindowSettings) -> bool:
+    """Running sums pay when a slide changes few rows and the estimator is Pearson's."""
+    return settings.rolling and settings.correlation == "pearson" and 2 * settings.step < settings.window
+
+
+class _Rolling:
+    """Running sums for the windows of one batch, rebuilt at fixed positions of the returns table."""
+
+    def __init__(self, rows: np.ndarray, settings: WindowSettings, row_offset: int) -> None:
+        self.rows = rows
+        self.window = settings.window
+        self.step = settings.step
+        self.offset = row_offset
+        self.moments: RollingMoments | None = None
+        self.end = -1  # relative end of the window the moments describe
+
+    def _index(self, end: int) -> int:
+        return (end + self.offset - (self.window - 1)) // self.step
+
+    def _rebuild_end(self, end: int) -> int:
+        """Relative end of the rebuild point at or before the window ending at ``end``."""
+        index = self._index(end)
+        while not is_rebuild_point(index):
+            index -= 1
+        return index * self.step + self.window - 1 - self.offset
+
+    def correlation(self, end: int, used: np.ndarray) -> np.ndarray | None:
+        """Correlation of ``used`` in the window ending at ``end`` from running sums, or None.
+
+        None when the window is off the step grid, when the rebuild point lies before ``rows``,
+        or when an admitted asset misses a return there (the coverage policy imputed it).
+        """
+        if (end + self.offset - (self.window - 1)) % self.step:
+            return None
+        rebuild = self._rebuild_end(end)
+        if rebuild - self.window + 1 < 0:
+            self.moments = None
+            return None
+        if self.moments is None or not rebuild <= self.end <= end:
+            self.moments = RollingMoments(self.rows[rebuild - self.window + 1 : rebuild + 1])
+            self.end = rebuild
+        while self.end < end:
+            first = self.end - self.window + 1
+            self.moments.slide(self.rows[first : first + self.step], self.rows[self.end + 1 : self.end + 1 + self.step])
+            self.end += self.step
+        if not self.moments.complete(used):
+            return None
+        return self.moments.correlation(used)

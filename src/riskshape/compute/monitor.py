@@ -1,0 +1,295 @@
+"""The one orchestrator: prices -> returns -> windows -> diagrams -> summaries.
+
+``monitor(prices, config)`` runs a batch; ``MonitorResult.update(more_prices)`` takes the next
+day(s) and computes only the new windows, giving the same numbers as a batch over all days.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+from dataclasses import dataclass, field
+from functools import cached_property, partial
+
+import numpy as np
+import pandas as pd
+
+from riskshape._version import __version__
+from riskshape.compute.executors import Executor, make_executor
+from riskshape.config import Config
+from riskshape.errors import DataError
+from riskshape.prices import hash_prices, validate_prices
+from riskshape.compute.returns import to_returns
+from riskshape.compute.summaries import DISTANCE_NAMES, SUMMARY_NAMES
+from riskshape.compute.batch import (
+    WindowResult,
+    WindowSettings,
+    compute_batch,
+    diagram_distances,
+    first_row_needed,
+    preload,
+)
+from riskshape.compute.windows import window_end_positions
+
+__all__ = ["monitor", "MonitorResult", "feature_columns"]
+
+ProgressFn = Callable[[int, int], None]
+
+
+def feature_columns(maxdim: int) -> list[str]:
+    """Names of the feature columns for homology dimensions 0..``maxdim``, in table order."""
+    columns = ["n_assets", "n_left_out", "mean_correlation"]
+    for k in range(maxdim + 1):
+        columns += [f"h{k}_{name}" for name in SUMMARY_NAMES + DISTANCE_NAMES]
+    return columns
+
+
+@dataclass(frozen=True)
+class MonitorResult:
+    """Per-window summaries, diagrams and provenance of one monitoring run.
+
+    Use :func:`monitor` to make one. ``features`` is indexed by window end; ``diagram``,
+    ``assets`` and ``window_inputs_hash`` look up one window.
+    """
+
+    config: Config
+    prices: pd.DataFrame
+    returns: pd.DataFrame
+    window_ends: pd.DatetimeIndex
+    windows: tuple[WindowResult, ...] = field(repr=False)
+    package_version: str = __version__
+
+    @cached_property
+    def features(self) -> pd.DataFrame:
+        """One row per window end: ``n_assets``, ``n_left_out``, ``mean_correlation``, ``h{k}_*``."""
+        columns = feature_columns(self.config.maxdim)
+        head = np.array([(len(r.used), len(r.left_out), r.mean_correlation) for r in self.windows], dtype=float)
+        # per window, dimension by dimension: the summaries, then the distances (the column order)
+        per_dim = [np.hstack([r.summaries, r.distances]).ravel() for r in self.windows]
+        values = np.column_stack(
+            [head.reshape(-1, 3), np.array(per_dim, dtype=float).reshape(len(head), len(columns) - 3)]
+        )
+        frame = pd.DataFrame(values, index=self.window_ends, columns=columns)
+        int_columns = ["n_assets", "n_left_out"] + [f"h{k}_n_bars" for k in range(self.config.maxdim + 1)]
+        return frame.astype({c: "int64" for c in int_columns})
+
+    @cached_property
+    def left_out(self) -> pd.DataFrame:
+        """Assets left out of each window: columns ``window_end``, ``asset``, ``reason``."""
+        names = self.prices.columns
+        records = [
+            (end, names[j], reason)
+            for end, result in zip(self.window_ends, self.windows)
+            for j, reason in result.left_out
+        ]
+        return pd.DataFrame(records, columns=["window_end", "asset", "reason"])
+
+    @cached_property
+    def input_hash(self) -> str:
+        """SHA-256 of the validated prices (see :func:`riskshape.prices.hash_prices`)."""
+        return hash_prices(self.prices)
+
+    def _position(self, window_end: object) -> int:
+        stamp = pd.Timestamp(window_end)  # type: ignore[arg-type]
+        pos = self.window_ends.get_indexer([stamp])[0]
+        if pos < 0:
+            raise DataError(
+                f"no window ends on {stamp.date()}; windows end from {self.window_ends[0].date()} "
+                f"to {self.window_ends[-1].date()} (every {self.config.step} trading day(s))"
+            )
+        return int(pos)
+
+    def diagram(self, window_end: object, dim: int) -> np.ndarray:
+        """Finite bars (birth, death) of the window ending at ``window_end`` in dimension ``dim``.
+
+        Raises
+        ------
+        DataError
+            If no window ends on that date or ``dim`` exceeds ``maxdim``.
+        """
+        if not 0 <= dim <= self.config.maxdim:
+            raise DataError(f"dim must be between 0 and maxdim={self.config.maxdim}, got {dim}")
+        return self.windows[self._position(window_end)].diagrams[dim].copy()
+
+    def assets(self, window_end: object) -> tuple[str, ...]:
+        """Assets admitted to the window ending at ``window_end``, in column order."""
+        used = self.windows[self._position(window_end)].used
+        return tuple(self.prices.columns[used])
+
+    def window_returns(self, window_end: object) -> pd.DataFrame:
+        """The exact returns (admitted assets, NaN kept) of the window ending at ``window_end``."""
+        pos = self._position(window_end)
+        end = self.returns.index.get_loc(self.window_ends[pos])
+        block = self.returns.iloc[end - self.config.window + 1 : end + 1]
+        return block[list(self.assets(window_end))]
+
+    def window_inputs_hash(self, window_end: object) -> str:
+        """SHA-256 of the window's exact inputs: asset names, dates and returns (float64, NaN kept)."""
+        return hash_prices(self.window_returns(window_end))
+
+    def update(self, more_prices: pd.DataFrame, progress: ProgressFn | None = None) -> "MonitorResult":
+        """Add the next day(s) of prices and compute only the windows they complete.
+
+        Parameters
+        ----------
+        more_prices : pandas.DataFrame
+            Wide prices with the same asset columns; dates already held must carry the same prices.
+        progress : callable, optional
+            Called as ``progress(done, total)`` after each batch.
+
+        Returns
+        -------
+        MonitorResult
+            Equal to ``monitor`` over all the days.
+
+        Raises
+        ------
+        DataError
+            If assets differ, or a date already held comes with a different price.
+        """
+        new = validate_prices(more_prices, source="new prices", min_rows=1)
+        if list(new.columns) != list(self.prices.columns):
+            raise DataError(
+                f"new prices: assets {list(new.columns)} differ from the monitored assets "
+                f"{list(self.prices.columns)}; give the same columns in the same order, or run monitor again"
+            )
+        held = new.index.intersection(self.prices.index)
+        if len(held):
+            same = np.array_equal(new.loc[held].to_numpy(), self.prices.loc[held].to_numpy(), equal_nan=True)
+            if not same:
+                raise DataError(
+                    f"new prices: dates already held ({held[0].date()} ...) carry different prices; "
+                    "revised prices are corrections: run monitor again on the corrected history"
+                )
+        fresh = new.loc[new.index.difference(self.prices.index)]
+        if len(fresh) and fresh.index[0] <= self.prices.index[-1]:
+            raise DataError(
+                f"new prices: date {fresh.index[0].date()} falls inside the history already held; "
+                "only days after the last one can be added"
+            )
+        prices = pd.concat([self.prices, fresh])
+        returns = to_returns(prices, self.config.returns)
+        ends = window_end_positions(len(returns), self.config.window, self.config.step)
+        new_ends = ends[len(self.windows) :]
+        previous = self.windows[-1].diagrams if self.windows else None
+        added = _compute_windows(returns.to_numpy(), new_ends, self.config, previous, progress)
+        return MonitorResult(
+            config=self.config,
+            prices=prices,
+            returns=returns,
+            window_ends=pd.DatetimeIndex(returns.index[ends], name="window_end"),
+            windows=self.windows + tuple(added),
+        )
+
+
+def monitor(prices: pd.DataFrame, config: Config | None = None, *, progress: ProgressFn | None = None) -> MonitorResult:
+    """Rolling persistent homology of a portfolio's correlation structure.
+
+    Parameters
+    ----------
+    prices : pandas.DataFrame
+        Wide prices: ``DatetimeIndex`` of trading days, one column per asset, NaN where missing.
+        (A table with a ``date`` column, wide or long, is accepted too.)
+    config : Config, optional
+        Defaults to ``Config()``.
+    progress : callable, optional
+        Called as ``progress(done, total)`` as windows complete.
+
+    Returns
+    -------
+    MonitorResult
+
+    Raises
+    ------
+    DataError
+        If the prices fail validation (see :mod:`riskshape.prices`).
+
+    Examples
+    --------
+    >>> from riskshape.demo.scenario import generate_scenario
+    >>> scenario = generate_scenario(seed=1, n_days=90)
+    >>> result = monitor(scenario.prices, Config(window=60, step=10, compute={"executor": "serial"}))
+    >>> list(result.features.columns[:3])
+    ['n_assets', 'n_left_out', 'mean_correlation']
+    """
+    config = config or Config()
+    valid = validate_prices(prices, source="prices", min_rows=config.window + 1)
+    returns = to_returns(valid, config.returns)
+    ends = window_end_positions(len(returns), config.window, config.step)
+    windows = _compute_windows(returns.to_numpy(), ends, config, None, progress)
+    return MonitorResult(
+        config=config,
+        prices=valid,
+        returns=returns,
+        window_ends=pd.DatetimeIndex(returns.index[ends], name="window_end"),
+        windows=tuple(windows),
+    )
+
+
+def settings_of(config: Config) -> WindowSettings:
+    """The worker's share of a configuration."""
+    return WindowSettings(
+        window=config.window,
+        min_coverage=config.min_coverage,
+        correlation=config.correlation,
+        maxdim=config.maxdim,
+        order_p=config.order_p,
+        engine=config.engine,
+        embedding=config.embedding,
+        standardize_cloud=config.standardize_cloud,
+        step=config.step,
+    )
+
+
+def _compute_windows(
+    values: np.ndarray,
+    ends: np.ndarray,
+    config: Config,
+    previous: tuple[np.ndarray, ...] | None,
+    progress: ProgressFn | None,
+    executor: Executor | None = None,
+) -> list[WindowResult]:
+    """Windows ending at ``ends``, computed in batches by the configured executor.
+
+    Each batch computes its windows' diagrams and the distances between them; the distance
+    from a batch's first window to the window before it is computed here, from the previous
+    batch's last diagrams, as results arrive (no window is computed twice). Batches are made
+    small enough to keep every worker of a pool busy (at least four per worker, at least 16
+    windows each); results do not depend on the batching.
+    """
+    if len(ends) == 0:
+        return []
+    settings = settings_of(config)
+    all_ends = np.asarray(ends)
+    size = config.compute.batch_windows
+    own = executor is None
+    runner = executor or make_executor(
+        config.compute, -(-len(all_ends) // size), preload=partial(preload, settings)
+    )
+    size = _balanced_batch_size(len(all_ends), size, getattr(runner, "workers", 1))
+    jobs = []
+    for start in range(0, len(all_ends), size):
+        batch_ends = all_ends[start : start + size]
+        first_row = first_row_needed(int(batch_ends[0]), settings)
+        rows = values[first_row : int(batch_ends[-1]) + 1]
+        jobs.append((rows, batch_ends - first_row, settings, previous if start == 0 else None, first_row))
+    results: list[WindowResult] = []
+    try:
+        for b, batch_results in enumerate(runner.map(compute_batch, jobs)):
+            if b > 0:
+                first = batch_results[0]
+                link = diagram_distances(results[-1].diagrams, first.diagrams, settings.order_p)
+                batch_results = [first.with_distances(link), *batch_results[1:]]
+            results.extend(batch_results)
+            if progress is not None:
+                progress(len(results), len(ends))
+    finally:
+        if own:
+            runner.close()
+    return results
+
+
+def _balanced_batch_size(n_windows: int, size: int, workers: int) -> int:
+    """``size``, made smaller when that leaves fewer than four batches per worker (not below 16)."""
+    if workers <= 1:
+        return size
+    return max(1, min(size, max(16, -(-n_windows // (4 * workers)))))

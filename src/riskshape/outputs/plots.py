@@ -1,0 +1,256 @@
+"""Figures for research and reports (matplotlib, no pyplot state).
+
+Every function takes ``ax=None`` (a new figure is made, on the Agg canvas, when none is given)
+and returns the Axes it drew on (or the Figure, for multi-panel plots). Every figure carries
+:data:`riskshape.caution.CAUTION_SHORT` in small print (:func:`add_caution`, called by each
+function); :func:`save_figure` writes PNG and SVG.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Mapping, Sequence
+from pathlib import Path
+from typing import TypeVar
+
+import numpy as np
+import pandas as pd
+from matplotlib.axes import Axes
+from matplotlib.backends.backend_agg import FigureCanvasAgg
+from matplotlib.figure import Figure, SubFigure
+from matplotlib.layout_engine import ConstrainedLayoutEngine
+from persim.landscapes import PersLandscapeApprox
+from scipy.cluster.hierarchy import dendrogram, leaves_list, linkage
+from scipy.spatial.distance import squareform
+
+from riskshape.alerts.model import Firing
+from riskshape.caution import CAUTION_SHORT
+from riskshape.compute.distance import correlation_matrix, correlation_to_distance
+from riskshape.compute.monitor import MonitorResult
+from riskshape.research.events import DrawdownEvents
+from riskshape.compute.windows import select_assets
+
+__all__ = [
+    "add_caution",
+    "save_figure",
+    "new_axes",
+    "plot_summary",
+    "plot_summaries",
+    "plot_diagram",
+    "plot_barcode",
+    "plot_landscape",
+    "plot_dendrogram",
+    "plot_correlation_heatmap",
+    "window_correlation",
+    "plot_window",
+]
+
+_CAUTION_GID = "riskshape-caution"
+_DIM_COLORS = ("tab:blue", "tab:orange", "tab:green")
+_FigureT = TypeVar("_FigureT", bound="Figure | SubFigure")
+
+
+def add_caution(fig: _FigureT) -> _FigureT:
+    """Put the caution in small print at the bottom right of ``fig`` (once).
+
+    Returns
+    -------
+    matplotlib.figure.Figure or matplotlib.figure.SubFigure
+        The same figure.
+    """
+    if not any(text.get_gid() == _CAUTION_GID for text in fig.texts):
+        engine = fig.get_layout_engine()
+        if isinstance(engine, ConstrainedLayoutEngine):
+            engine.set(rect=(0.0, 0.025, 1.0, 0.975))  # keep the small print clear of the axes
+        fig.text(0.995, 0.005, CAUTION_SHORT, ha="right", va="bottom", fontsize=6, color="0.35", gid=_CAUTION_GID)
+    return fig
+
+
+def new_axes(ax: Axes | None = None, figsize: tuple[float, float] = (7.0, 4.0)) -> Axes:
+    """``ax`` itself, or the Axes of a new Agg figure; the figure carries the caution either way."""
+    if ax is None:
+        fig = Figure(figsize=figsize, layout="constrained")
+        FigureCanvasAgg(fig)
+        ax = fig.add_subplot()
+    add_caution(ax.figure)
+    return ax
+
+
+def save_figure(fig: Figure, path_stem: str | Path) -> tuple[Path, Path]:
+    """Write ``<path_stem>.png`` (150 dpi) and ``<path_stem>.svg``, caution included.
+
+    Returns
+    -------
+    tuple of pathlib.Path
+        The PNG and SVG paths.
+    """
+    stem = Path(path_stem)
+    stem.parent.mkdir(parents=True, exist_ok=True)
+    add_caution(fig)
+    png, svg = stem.with_name(stem.name + ".png"), stem.with_name(stem.name + ".svg")
+    fig.savefig(png, dpi=150)
+    fig.savefig(svg)
+    return png, svg
+
+
+def _alert_dates(alerts: Sequence[Firing] | pd.DatetimeIndex | None) -> pd.DatetimeIndex:
+    if alerts is None:
+        return pd.DatetimeIndex([])
+    if isinstance(alerts, pd.DatetimeIndex):
+        return alerts
+    return pd.DatetimeIndex([f.window_end for f in alerts])
+
+
+def plot_summary(
+    series: pd.Series,
+    *,
+    alerts: Sequence[Firing] | pd.DatetimeIndex | None = None,
+    events: DrawdownEvents | None = None,
+    regimes: pd.DataFrame | None = None,
+    ax: Axes | None = None,
+) -> Axes:
+    """One summary over time, alerts as markers, events (start to trough) and regimes shaded.
+
+    Parameters
+    ----------
+    series : pandas.Series
+        Indexed by window end.
+    alerts : sequence of Firing or DatetimeIndex, optional
+        Alert dates, drawn as red triangles on the series.
+    events : DrawdownEvents, optional
+        Shaded red from start to trough.
+    regimes : pandas.DataFrame, optional
+        Columns ``name``, ``start``, ``end`` (e.g. ``Scenario.regimes``): alternately shaded grey,
+        with their names on top.
+    ax : matplotlib.axes.Axes, optional
+    """
+    ax = new_axes(ax)
+    if regimes is not None:
+        for i, row in enumerate(regimes.itertuples(index=False)):
+            if i % 2:
+                ax.axvspan(row.start, row.end, color="0.9", zorder=0)
+            ax.text(row.start, 1.0, f" {row.name}", transform=ax.get_xaxis_transform(), fontsize=7, va="top")
+    if events is not None:
+        for i, row in enumerate(events.table.itertuples(index=False)):
+            ax.axvspan(row.start, row.trough, color="tab:red", alpha=0.15, zorder=0, label="event" if i == 0 else None)
+    ax.plot(series.index, series.to_numpy(dtype=float), lw=1.0, color="tab:blue", label=str(series.name))
+    dates = _alert_dates(alerts)
+    dates = dates[dates.isin(series.index)]
+    if len(dates):
+        ax.plot(dates, series.loc[dates].to_numpy(dtype=float), "v", color="tab:red", ms=6, label="alert")
+    ax.set_ylabel(str(series.name))
+    ax.legend(loc="upper left", fontsize=7, frameon=False)
+    return ax
+
+
+def plot_summaries(
+    features: pd.DataFrame,
+    columns: Sequence[str],
+    *,
+    alerts: Mapping[str, Sequence[Firing] | pd.DatetimeIndex] | None = None,
+    events: DrawdownEvents | None = None,
+    regimes: pd.DataFrame | None = None,
+) -> Figure:
+    """Several summaries stacked on a shared time axis (one :func:`plot_summary` each).
+
+    ``alerts`` maps a column to its alerts.
+    """
+    fig = Figure(figsize=(8.0, 1.8 * len(columns) + 0.6), layout="constrained")
+    FigureCanvasAgg(fig)
+    axes = fig.subplots(len(columns), 1, sharex=True, squeeze=False)[:, 0]
+    for ax, col in zip(axes, columns):
+        plot_summary(features[col], alerts=(alerts or {}).get(col), events=events, regimes=regimes, ax=ax)
+    return add_caution(fig)
+
+
+def plot_diagram(diagrams: Sequence[np.ndarray], *, ax: Axes | None = None) -> Axes:
+    """Persistence diagram: (birth, death) of each finite bar, one colour per dimension."""
+    ax = new_axes(ax, (4.5, 4.5))
+    top = max([float(d[:, 1].max()) for d in diagrams if len(d)] or [1.0])
+    for k, dgm in enumerate(diagrams):
+        ax.scatter(dgm[:, 0], dgm[:, 1], s=12, color=_DIM_COLORS[k % 3], label=f"H{k} ({len(dgm)})")
+    ax.plot([0, top * 1.05], [0, top * 1.05], color="0.5", lw=0.8)
+    ax.set_xlabel("birth")
+    ax.set_ylabel("death")
+    ax.legend(fontsize=7, frameon=False, loc="lower right")
+    return ax
+
+
+def plot_barcode(diagrams: Sequence[np.ndarray], *, ax: Axes | None = None) -> Axes:
+    """Barcode: one horizontal bar per finite bar, grouped by dimension, longest first."""
+    ax = new_axes(ax, (5.0, 4.5))
+    y = 0
+    for k, dgm in enumerate(diagrams):
+        order = np.argsort(dgm[:, 0] - dgm[:, 1]) if len(dgm) else np.empty(0, dtype=np.intp)
+        for i, j in enumerate(order):
+            # "" (hlines' default) keeps all but the first bar of a dimension out of the legend
+            ax.hlines(y, dgm[j, 0], dgm[j, 1], color=_DIM_COLORS[k % 3], lw=1.5, label=f"H{k}" if i == 0 else "")
+            y += 1
+        y += 2
+    ax.set_yticks([])
+    ax.set_xlabel("filtration value (distance)")
+    ax.legend(fontsize=7, frameon=False, loc="lower right")
+    return ax
+
+
+def plot_landscape(dgm: np.ndarray, *, dim: int = 1, layers: int = 5, num_steps: int = 500, ax: Axes | None = None) -> Axes:
+    """First ``layers`` layers of the persistence landscape of one diagram (persim's PersLandscapeApprox)."""
+    ax = new_axes(ax)
+    if len(dgm) == 0:
+        ax.text(0.5, 0.5, f"H{dim}: no bars", ha="center", transform=ax.transAxes)
+        return ax
+    start, stop = float(dgm[:, 0].min()), float(dgm[:, 1].max())
+    land = PersLandscapeApprox(start=start, stop=stop, num_steps=num_steps, dgms=[dgm], hom_deg=0)
+    grid = np.linspace(start, stop, num_steps)
+    for k, values in enumerate(np.atleast_2d(land.values)[:layers]):
+        ax.plot(grid, values, lw=1.0, label=f"lambda_{k + 1}")
+    ax.set_xlabel("filtration value")
+    ax.set_ylabel(f"H{dim} landscape")
+    ax.legend(fontsize=7, frameon=False)
+    return ax
+
+
+def _single_linkage(corr: np.ndarray) -> np.ndarray:
+    return linkage(squareform(correlation_to_distance(corr), checks=False), method="single")
+
+
+def plot_dendrogram(corr: np.ndarray, labels: Sequence[str], *, ax: Axes | None = None) -> Axes:
+    """Single-linkage dendrogram of the assets on d = sqrt(2 (1 - rho)) (scipy)."""
+    ax = new_axes(ax, (8.0, 4.0))
+    dendrogram(_single_linkage(corr), labels=list(labels), ax=ax, leaf_font_size=6, color_threshold=0)
+    ax.set_ylabel("merge distance (H0 death)")
+    return ax
+
+
+def plot_correlation_heatmap(corr: np.ndarray, labels: Sequence[str], *, ax: Axes | None = None) -> Axes:
+    """Correlation matrix with rows and columns in the single-linkage dendrogram's leaf order."""
+    ax = new_axes(ax, (6.0, 5.0))
+    order = leaves_list(_single_linkage(corr)) if len(labels) > 1 else np.arange(len(labels))
+    image = ax.imshow(corr[np.ix_(order, order)], vmin=-1.0, vmax=1.0, cmap="RdBu_r")
+    names = [labels[int(i)] for i in order]
+    ax.set_xticks(range(len(names)), names, rotation=90, fontsize=5)
+    ax.set_yticks(range(len(names)), names, fontsize=5)
+    ax.figure.colorbar(image, ax=ax, shrink=0.8, label="correlation")
+    return ax
+
+
+def window_correlation(result: MonitorResult, window_end: object) -> tuple[np.ndarray, tuple[str, ...]]:
+    """Correlation matrix and asset names of one window of a run, as the monitor computed them."""
+    block = select_assets(result.window_returns(window_end).to_numpy(dtype=float), result.config.min_coverage).block
+    return correlation_matrix(block, result.config.correlation), result.assets(window_end)
+
+
+def plot_window(result: MonitorResult, window_end: object) -> Figure:
+    """One window on one page: diagram, barcode, H1 (or H0) landscape, dendrogram, ordered heatmap."""
+    diagrams = tuple(result.diagram(window_end, k) for k in range(result.config.maxdim + 1))
+    corr, labels = window_correlation(result, window_end)
+    fig = Figure(figsize=(12.0, 8.0), layout="constrained")
+    FigureCanvasAgg(fig)
+    grid = fig.add_gridspec(2, 3)
+    plot_diagram(diagrams, ax=fig.add_subplot(grid[0, 0]))
+    plot_barcode(diagrams, ax=fig.add_subplot(grid[0, 1]))
+    dim = min(1, result.config.maxdim)
+    plot_landscape(diagrams[dim], dim=dim, ax=fig.add_subplot(grid[0, 2]))
+    plot_dendrogram(corr, labels, ax=fig.add_subplot(grid[1, :2]))
+    plot_correlation_heatmap(corr, labels, ax=fig.add_subplot(grid[1, 2]))
+    fig.suptitle(f"window ending {pd.Timestamp(window_end).date()} ({len(labels)} assets)")
+    return add_caution(fig)

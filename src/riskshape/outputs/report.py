@@ -1,0 +1,314 @@
+"""The review report: one self-contained HTML file for a period of the archive.
+
+:func:`collect_review` reads the archive (alerts in the period with their reviews and
+explanations, the summaries over time, the configurations in force, the verification of the
+hash chain); :func:`render_html` turns that into one HTML page with every plot embedded as a
+base64 PNG, no script and no external reference (a Content-Security-Policy forbids loading
+anything but inline data); :func:`write_report` writes it, and a PDF of the same page with
+WeasyPrint where it is installed.
+
+Explanations come from the archive when it holds one for the alert (archived inside the hash
+chain); otherwise they are recomputed from the archived prices and configuration of the alert's
+run and marked as recomputed, with a check that the window's inputs hash to the archived value.
+"""
+
+from __future__ import annotations
+
+import base64
+import html
+import io
+import json
+from dataclasses import dataclass
+from datetime import date, datetime, timezone
+from pathlib import Path
+from typing import Literal
+
+import pandas as pd
+
+from riskshape._version import __version__
+from riskshape.caution import CAUTION
+from riskshape.config import Config
+from riskshape.errors import ConfigError, RiskshapeError, StoreError
+from riskshape.explain import Explanation, explain_alert
+from riskshape.compute.monitor import monitor
+from riskshape.store import AlertRecord, ReviewRecord, Run, Store, VerifyReport, verify_chain
+from riskshape.store.ledger import to_date
+
+__all__ = ["ReportedAlert", "PortfolioSeries", "ReviewReport", "collect_review", "render_html", "write_report",
+           "archived_explanation", "DEFAULT_SERIES"]
+
+DEFAULT_SERIES = ("mean_correlation", "h0_total_persistence", "h1_landscape_l1")
+"""Summaries always plotted (with every summary an alert of the period watches)."""
+
+Source = Literal["archived", "recomputed", "unavailable"]
+
+
+@dataclass(frozen=True)
+class ReportedAlert:
+    """An alert of the period with its reviews and explanation.
+
+    ``explanation_source`` says where the explanation came from; ``explanation_note`` says how it
+    was checked, or why there is none.
+    """
+
+    alert: AlertRecord
+    reviews: tuple[ReviewRecord, ...]
+    explanation: Explanation | None
+    explanation_source: Source
+    explanation_note: str
+
+
+@dataclass(frozen=True)
+class PortfolioSeries:
+    """A portfolio's archived summaries over the period (``frame`` indexed by window end)."""
+
+    portfolio: str
+    frame: pd.DataFrame
+    config_hash: str | None
+
+
+@dataclass(frozen=True)
+class ReviewReport:
+    """Everything the review report shows (see :func:`collect_review`)."""
+
+    period_from: date
+    period_to: date
+    generated_at: datetime
+    store: str
+    alerts: tuple[ReportedAlert, ...]
+    series: tuple[PortfolioSeries, ...]
+    runs: tuple[Run, ...]
+    verification: VerifyReport
+    package_version: str = __version__
+
+
+def archived_explanation(record: AlertRecord) -> Explanation | None:
+    """The explanation archived with an alert, if the archive holds one (``record.explanation`` JSON)."""
+    text = getattr(record, "explanation", None)
+    return Explanation.from_json(text) if text else None
+
+
+def _recompute(store: Store, alerts: list[AlertRecord]) -> dict[int, tuple[Explanation | None, Source, str]]:
+    """Explanations of alerts without an archived one, recomputing each run once up to its last alert."""
+    out: dict[int, tuple[Explanation | None, Source, str]] = {}
+    by_run: dict[int, list[AlertRecord]] = {}
+    for a in alerts:
+        by_run.setdefault(a.run_id, []).append(a)
+    for run_id, group in by_run.items():
+        try:
+            run = store.get_run(run_id)
+            config = Config.from_mapping(run.config, where=f"run {run_id} configuration")
+            prices = store.read_prices(run.portfolio, start=run.first_date, end=run.last_date, assets=run.assets,
+                                       as_of_run=run.id)
+            last = max(pd.Timestamp(a.window_end) for a in group)
+            result = monitor(prices.loc[:last], config)
+        except RiskshapeError as err:
+            for a in group:
+                out[a.id] = (None, "unavailable", f"could not recompute run {run_id}: {err}")
+            continue
+        for a in group:
+            end = pd.Timestamp(a.window_end)
+            inputs = result.window_inputs_hash(end)
+            if inputs != a.inputs_hash or config.hash() != a.config_hash:
+                out[a.id] = (None, "unavailable", "the archived prices or configuration no longer give this "
+                             "window's inputs (hash mismatch); no explanation shown")
+                continue
+            note = f"recomputed from run {run_id}'s archived prices; window inputs hash matches the alert's"
+            out[a.id] = (explain_alert(result, end, a.summary), "recomputed", note)
+    return out
+
+
+def collect_review(store: Store, since: object, until: object, *, portfolio: str | None = None,
+                   recompute: bool = True, now: datetime | None = None) -> ReviewReport:
+    """Read what the review report shows for window ends from ``since`` to ``until`` (inclusive).
+
+    Parameters
+    ----------
+    store : Store
+    since, until : date-like
+        The period (window ends).
+    portfolio : str, optional
+        One portfolio (default: every portfolio).
+    recompute : bool
+        Recompute explanations the archive does not hold (see the module notes).
+    now : datetime, optional
+        Time stamp of the report (default: now, UTC).
+
+    Returns
+    -------
+    ReviewReport
+
+    Raises
+    ------
+    StoreError
+        If the period is not a pair of dates in order, or the archive cannot be read.
+    """
+    first, last = to_date(since, "--from"), to_date(until, "--to")
+    if first > last:
+        raise StoreError(f"the period runs backwards: --from {first} is after --to {last}; swap them")
+    page = store.list_alerts(portfolio=portfolio, since=first, until=last, limit=None)
+    details = [store.get_alert(a.id) for a in page.items]
+    missing = [d.alert for d in details if archived_explanation(d.alert) is None]
+    recomputed = _recompute(store, missing) if recompute else {}
+    alerts = []
+    for d in details:
+        archived = archived_explanation(d.alert)
+        item: tuple[Explanation | None, Source, str]
+        if archived is not None:
+            item = (archived, "archived", "archived with the alert, inside the hash chain")
+        else:
+            item = recomputed.get(d.alert.id, (None, "unavailable", "not archived with the alert (not recomputed)"))
+        alerts.append(ReportedAlert(d.alert, d.reviews, *item))
+    names = [portfolio] if portfolio is not None else [p.name for p in store.list_portfolios()]
+    series = []
+    runs: list[Run] = []
+    for name in names:
+        feats = store.read_features(name, start=first, end=last, limit=None)
+        if len(feats.frame):
+            series.append(PortfolioSeries(name, feats.frame, feats.config_hash))
+        used = {a.alert.config_hash for a in alerts if a.alert.portfolio == name} | {feats.config_hash}
+        runs += [r for r in store.list_runs(name) if r.config_hash in used]
+    return ReviewReport(
+        period_from=first, period_to=last, generated_at=(now or datetime.now(timezone.utc)).astimezone(timezone.utc),
+        store=store.url, alerts=tuple(alerts), series=tuple(series), runs=tuple(runs),
+        verification=verify_chain(store),
+    )
+
+
+# --- rendering ----------------------------------------------------------------------------------
+
+
+def _summaries_png(s: PortfolioSeries, alerts: tuple[ReportedAlert, ...]) -> bytes:
+    from riskshape.outputs.plots import plot_summaries
+
+    watched = [a.alert.summary for a in alerts if a.alert.portfolio == s.portfolio]
+    columns = [c for c in dict.fromkeys([*DEFAULT_SERIES, *watched]) if c in s.frame.columns]
+    marks = {c: pd.DatetimeIndex([pd.Timestamp(a.alert.window_end) for a in alerts
+                                  if a.alert.portfolio == s.portfolio and a.alert.summary == c]) for c in columns}
+    fig = plot_summaries(s.frame, columns, alerts=marks)
+    fig.suptitle(f"{s.portfolio}: summaries by window end")
+    buffer = io.BytesIO()
+    fig.savefig(buffer, format="png", dpi=110)
+    return buffer.getvalue()
+
+
+def _e(value: object) -> str:
+    return html.escape(str(value), quote=True)
+
+
+_STYLE = """
+@page{size:A4;margin:1.5cm}td{overflow-wrap:anywhere}
+body{font-family:sans-serif;margin:2em;color:#222;max-width:70em}
+h1{font-size:1.5em}h2{font-size:1.2em;border-bottom:1px solid #999;margin-top:2em}
+table{border-collapse:collapse;margin:.5em 0}td,th{border:1px solid #bbb;padding:.2em .5em;text-align:left;
+vertical-align:top;font-size:.9em}th{background:#eee}.caution{border:2px solid #a33;padding:.6em;background:#fff4f4}
+.ok{color:#161}.bad{color:#a11;font-weight:bold}pre{background:#f6f6f6;padding:.5em;white-space:pre-wrap;
+font-size:.85em}img{max-width:100%}code{font-size:.9em}
+"""
+
+
+def _alert_html(item: ReportedAlert) -> str:
+    a = item.alert
+    rows = "".join(
+        f"<tr><th>{_e(k)}</th><td class=\"{_e(k)}\">{_e(v)}</td></tr>"
+        for k, v in (("portfolio", a.portfolio), ("rule", a.rule), ("summary", a.summary), ("kind", a.kind),
+                     ("severity", a.severity), ("window end", a.window_end), ("value", repr(a.value)),
+                     ("threshold", repr(a.threshold)), ("raised at", a.raised_at.isoformat()),
+                     ("run", a.run_id), ("config hash", a.config_hash), ("inputs hash", a.inputs_hash),
+                     ("package version", a.package_version), ("ledger seq", a.seq), ("entry hash", a.entry_hash))
+    )
+    if item.reviews:
+        reviews = "<table><tr><th>when</th><th>action</th><th>reviewer</th><th>comment</th></tr>" + "".join(
+            f"<tr class=\"review\"><td>{_e(r.created_at.isoformat())}</td><td>{_e(r.action)}</td>"
+            f"<td>{_e(r.reviewer)}</td><td>{_e(r.comment)}</td></tr>" for r in item.reviews) + "</table>"
+    else:
+        reviews = "<p>Not reviewed yet.</p>"
+    text = item.explanation.to_text() if item.explanation is not None else "No explanation."
+    return (
+        f"<section class=\"alert\" id=\"alert-{a.id}\" data-alert-id=\"{a.id}\" data-value=\"{_e(repr(a.value))}\" "
+        f"data-threshold=\"{_e(repr(a.threshold))}\"><h3>Alert {a.id}: {_e(a.rule)} on {_e(a.summary)} "
+        f"({_e(a.severity)}), window ending {_e(a.window_end)}</h3><table>{rows}</table>"
+        f"<h4>Explanation ({_e(item.explanation_source)})</h4><p>{_e(item.explanation_note)}</p>"
+        f"<pre class=\"explanation\">{_e(text)}</pre><h4>Reviews</h4>{reviews}</section>"
+    )
+
+
+def render_html(report: ReviewReport, images: dict[str, bytes] | None = None) -> str:
+    """The report as one self-contained HTML page.
+
+    Parameters
+    ----------
+    report : ReviewReport
+    images : dict of str to bytes, optional
+        PNG plot of each portfolio's summaries (default: drawn here with :mod:`riskshape.outputs.plots`).
+
+    Returns
+    -------
+    str
+    """
+    if images is None:
+        images = {s.portfolio: _summaries_png(s, report.alerts) for s in report.series}
+    v = report.verification
+    verdict = (f"<p class=\"ok\" id=\"chain-ok\">The hash chain verifies: {v.checked} records checked.</p>" if v.ok
+               else f"<p class=\"bad\" id=\"chain-bad\">The hash chain does NOT verify: first bad record "
+                    f"{_e(v.first_bad)}.</p>")
+    plots = "".join(
+        f"<figure><img alt=\"summaries of {_e(name)}\" src=\"data:image/png;base64,"
+        f"{base64.b64encode(png).decode('ascii')}\"><figcaption>{_e(name)}: summaries by window end; red "
+        f"triangles mark alerts.</figcaption></figure>" for name, png in images.items()
+    ) or "<p>No summaries archived for the period.</p>"
+    runs = "".join(
+        f"<h3>Run {r.id} ({_e(r.portfolio)}), recorded {_e(r.created_at.isoformat())}</h3><table>"
+        f"<tr><th>config hash</th><td>{_e(r.config_hash)}</td></tr><tr><th>prices hash</th><td>{_e(r.input_hash)}"
+        f"</td></tr><tr><th>package version</th><td>{_e(r.package_version)}</td></tr><tr><th>prices</th><td>"
+        f"{_e(r.first_date)} to {_e(r.last_date)}, {r.n_dates} dates, {len(r.assets)} assets</td></tr></table>"
+        f"<pre class=\"config\">{_e(json.dumps(r.config, indent=2, sort_keys=True))}</pre>" for r in report.runs
+    ) or "<p>No run recorded for the period.</p>"
+    alerts = "".join(_alert_html(a) for a in report.alerts) or "<p>No alert in the period.</p>"
+    summary = "".join(
+        f"<tr><td><a href=\"#alert-{a.alert.id}\">{a.alert.id}</a></td><td>{_e(a.alert.window_end)}</td>"
+        f"<td>{_e(a.alert.portfolio)}</td><td>{_e(a.alert.rule)}</td><td>{_e(a.alert.severity)}</td>"
+        f"<td>{_e(repr(a.alert.value))}</td><td>{_e(repr(a.alert.threshold))}</td>"
+        f"<td>{_e(a.reviews[-1].action if a.reviews else 'none')}</td></tr>" for a in report.alerts
+    )
+    csp = "default-src 'none'; img-src data:; style-src 'unsafe-inline'"
+    return f"""<!DOCTYPE html>
+<html lang="en"><head><meta charset="utf-8"><meta http-equiv="Content-Security-Policy" content="{csp}">
+<title>riskshape review {_e(report.period_from)} to {_e(report.period_to)}</title><style>{_STYLE}</style></head>
+<body><h1>riskshape review: window ends {_e(report.period_from)} to {_e(report.period_to)}</h1>
+<p class="caution" id="caution">{_e(CAUTION)}</p>
+<p>Generated {_e(report.generated_at.isoformat())} by riskshape {_e(report.package_version)} from the archive
+<code>{_e(report.store)}</code>.</p>
+<h2>Chain verification</h2>{verdict}<p>Chain head: <code id="chain-head">{_e(v.head)}</code></p>
+<h2>Alerts ({len(report.alerts)})</h2><table id="alert-summary"><tr><th>id</th><th>window end</th><th>portfolio</th>
+<th>rule</th><th>severity</th><th>value</th><th>threshold</th><th>last review</th></tr>{summary}</table>
+<h2>Summaries over time</h2>{plots}
+<h2>Alert details</h2>{alerts}
+<h2>Configuration in force</h2>{runs}
+<p class="caution">{_e(CAUTION)}</p></body></html>
+"""
+
+
+def write_report(report: ReviewReport, out: str | Path, pdf: str | Path | None = None) -> Path:
+    """Write the report as HTML to ``out`` (and as PDF to ``pdf`` if given).
+
+    Raises
+    ------
+    StoreError
+        If the file cannot be written.
+    ConfigError
+        If a PDF is asked for and WeasyPrint (``pip install 'riskshape[pdf]'``) is not usable.
+    """
+    page = render_html(report)
+    path = Path(out)
+    try:
+        path.write_text(page, encoding="utf-8")
+    except OSError as err:
+        raise StoreError(f"{path}: cannot write the report ({err.strerror}); check the folder exists and is writable") from None
+    if pdf is not None:
+        try:
+            from weasyprint import HTML
+        except (ImportError, OSError) as err:
+            raise ConfigError(f"--pdf needs WeasyPrint and its system libraries (pip install 'riskshape[pdf]'): {err}") from None
+        HTML(string=page).write_pdf(str(pdf))
+    return path

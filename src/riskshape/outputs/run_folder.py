@@ -1,0 +1,136 @@
+"""Writing a run's results to a folder: features (CSV and Parquet), diagrams, left-out assets, manifest.
+
+Everything is first written to a temporary folder beside the target and moved into place only
+when complete, so a failure leaves nothing half-written.
+"""
+
+from __future__ import annotations
+
+import json
+import os
+import shutil
+import tempfile
+from dataclasses import dataclass
+from datetime import datetime, timezone
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import pandas as pd
+
+from riskshape.caution import CAUTION
+from riskshape.errors import DataError
+from riskshape.compute.monitor import MonitorResult
+
+__all__ = ["RunFiles", "write_run", "diagrams_table", "run_manifest"]
+
+
+@dataclass(frozen=True)
+class RunFiles:
+    """Paths of what :func:`write_run` wrote."""
+
+    folder: Path
+    features_csv: Path
+    features_parquet: Path
+    diagrams: Path
+    left_out: Path
+    manifest: Path
+
+
+def diagrams_table(result: MonitorResult) -> pd.DataFrame:
+    """Every finite bar of every window in one long table: ``window_end, dim, birth, death``."""
+    parts = []
+    for end, window in zip(result.window_ends, result.windows):
+        for dim, dgm in enumerate(window.diagrams):
+            if len(dgm):
+                parts.append(
+                    pd.DataFrame(
+                        {
+                            "window_end": np.repeat(end, len(dgm)),
+                            "dim": np.full(len(dgm), dim, dtype=np.int8),
+                            "birth": dgm[:, 0].astype(np.float32),
+                            "death": dgm[:, 1].astype(np.float32),
+                        }
+                    )
+                )
+    if not parts:
+        return pd.DataFrame({"window_end": pd.Series(dtype="datetime64[ns]"), "dim": pd.Series(dtype=np.int8),
+                             "birth": pd.Series(dtype=np.float32), "death": pd.Series(dtype=np.float32)})
+    return pd.concat(parts, ignore_index=True)
+
+
+def run_manifest(result: MonitorResult, source: str) -> dict[str, Any]:
+    """The run manifest: configuration, its hash, the input-data hash, package version, extent."""
+    return {
+        "caution": CAUTION,
+        "package": "riskshape",
+        "package_version": result.package_version,
+        "created_at": datetime.now(timezone.utc).isoformat(timespec="seconds"),
+        "source": source,
+        "input_hash": result.input_hash,
+        "config_hash": result.config.hash(),
+        "config": result.config.to_mapping(),
+        "assets": list(result.prices.columns),
+        "first_date": str(result.prices.index[0].date()),
+        "last_date": str(result.prices.index[-1].date()),
+        "n_windows": len(result.window_ends),
+        "first_window_end": str(result.window_ends[0].date()) if len(result.window_ends) else None,
+        "last_window_end": str(result.window_ends[-1].date()) if len(result.window_ends) else None,
+        "conventions": {
+            "distance": "d = sqrt(2 (1 - rho)), clipped to [0, 2]",
+            "diagrams": "Vietoris-Rips, finite bars only (the infinite H0 bar is dropped), float32 values",
+            "landscape": "exact L1/L2 norms over all layers (Bubenik 2015)",
+            "wasserstein": f"order p = {result.config.order_p}, L-infinity ground metric",
+            "bottleneck": "L-infinity ground metric",
+        },
+    }
+
+
+def write_run(result: MonitorResult, out_dir: str | os.PathLike[str], source: str) -> RunFiles:
+    """Write a run's results into ``out_dir`` (created if needed), all or nothing.
+
+    Parameters
+    ----------
+    result : MonitorResult
+    out_dir : path-like
+    source : str
+        Where the prices came from (recorded in the manifest).
+
+    Returns
+    -------
+    RunFiles
+
+    Raises
+    ------
+    DataError
+        If ``out_dir`` exists and is not a folder, or cannot be written.
+    """
+    target = Path(out_dir)
+    if target.exists() and not target.is_dir():
+        raise DataError(f"--out {target}: exists and is not a folder; give a folder path")
+    try:
+        target.parent.mkdir(parents=True, exist_ok=True)
+        staging = Path(tempfile.mkdtemp(prefix=".riskshape-", dir=target.parent))
+    except OSError as err:
+        raise DataError(f"--out {target}: cannot write there ({err.strerror})") from None
+    try:
+        result.features.to_csv(staging / "features.csv", float_format="%.9g")
+        result.features.to_parquet(staging / "features.parquet")
+        diagrams_table(result).to_parquet(staging / "diagrams.parquet", index=False)
+        result.left_out.to_csv(staging / "left_out.csv", index=False)
+        (staging / "manifest.json").write_text(json.dumps(run_manifest(result, source), indent=2) + "\n")
+        target.mkdir(exist_ok=True)
+        for item in staging.iterdir():
+            os.replace(item, target / item.name)
+    except OSError as err:
+        raise DataError(f"--out {target}: cannot write there ({err.strerror})") from None
+    finally:
+        shutil.rmtree(staging, ignore_errors=True)
+    return RunFiles(
+        folder=target,
+        features_csv=target / "features.csv",
+        features_parquet=target / "features.parquet",
+        diagrams=target / "diagrams.parquet",
+        left_out=target / "left_out.csv",
+        manifest=target / "manifest.json",
+    )

@@ -1,0 +1,1 @@
+"""riskshape's tests."""
