@@ -28,14 +28,14 @@ from threadpoolctl import threadpool_limits
 import riskshape.compute.batch as window_module
 from benchmarks.data import factor_prices, factor_returns
 from riskshape import Config, monitor
-from riskshape.compute.executors import ProcessExecutor, available_cores
+from riskshape.compute.batch import compute_batch, preload
 from riskshape.compute.distance import correlation_matrix, correlation_to_distance
+from riskshape.compute.executors import ProcessExecutor, available_cores
 from riskshape.compute.matching import assignment_wasserstein, persim_bottleneck
 from riskshape.compute.monitor import _compute_windows, settings_of
 from riskshape.compute.persistence import compute_diagrams
 from riskshape.compute.returns import to_returns
 from riskshape.compute.summaries import bottleneck_distance, wasserstein_distance
-from riskshape.compute.batch import compute_batch, preload
 from riskshape.compute.windows import window_end_positions
 
 __all__ = ["Row", "CASES"]
@@ -244,9 +244,15 @@ def naive_loop_vs_riskshape(quick: bool) -> list[Row]:
     return rows
 
 
-def _timed_row(label: str, windows: int, spent: Span, baseline: Span | None, extra: dict[str, float] | None = None) -> Row:
-    values: dict[str, float] = {"windows": windows, "wall s": spent.wall, "CPU s": spent.cpu,
-                                "wall ms/window": 1e3 * spent.wall / windows}
+def _timed_row(
+    label: str, windows: int, spent: Span, baseline: Span | None, extra: dict[str, float] | None = None
+) -> Row:
+    values: dict[str, float] = {
+        "windows": windows,
+        "wall s": spent.wall,
+        "CPU s": spent.cpu,
+        "wall ms/window": 1e3 * spent.wall / windows,
+    }
     if baseline is not None:
         values["speed-up (wall)"] = baseline.wall / spent.wall
         values["CPU ratio"] = baseline.cpu / spent.cpu
@@ -289,13 +295,17 @@ def h0_vs_ripser(quick: bool) -> list[Row]:
     steps = len(range(window - 1, len(returns), 4))
     return [
         _timed_row("ripser maxdim 0 (with numpy corrcoef), 1 process", n_windows, plain, None),
-        _timed_row(f"riskshape maxdim 0 with distances and summaries, {available_cores()} processes",
-                   n_windows, ours, plain),
-        Row(f"persistence step only ({steps} windows, CPU)", {
-            "ripser ms/window": 1e3 * step_ripser / steps,
-            "single linkage ms/window": 1e3 * step_linkage / steps,
-            "CPU ratio": step_ripser / step_linkage,
-        }),
+        _timed_row(
+            f"riskshape maxdim 0 with distances and summaries, {available_cores()} processes", n_windows, ours, plain
+        ),
+        Row(
+            f"persistence step only ({steps} windows, CPU)",
+            {
+                "ripser ms/window": 1e3 * step_ripser / steps,
+                "single linkage ms/window": 1e3 * step_linkage / steps,
+                "CPU ratio": step_ripser / step_linkage,
+            },
+        ),
     ]
 
 
@@ -316,9 +326,11 @@ def one_day_update(quick: bool) -> list[Row]:
         features.append(spent)
 
     def summary(spans: list[Span]) -> dict[str, float]:
-        return {"median wall ms": 1e3 * statistics.median(s.wall for s in spans),
-                "max wall ms": 1e3 * max(s.wall for s in spans),
-                "median CPU ms": 1e3 * statistics.median(s.cpu for s in spans)}
+        return {
+            "median wall ms": 1e3 * statistics.median(s.wall for s in spans),
+            "max wall ms": 1e3 * max(s.wall for s in spans),
+            "median CPU ms": 1e3 * statistics.median(s.cpu for s in spans),
+        }
 
     return [
         Row(f"update(one day), {len(result.window_ends)} windows held", summary(updates)),
@@ -365,7 +377,9 @@ def distance_solvers(quick: bool) -> list[Row]:
     rows = []
     for n_assets, window in [(100, 60), (500, 250)]:
         returns = factor_returns(window + 1, n_assets, seed=4)
-        a, b = (compute_diagrams(correlation_to_distance(correlation_matrix(returns[k : k + window])), 1) for k in (0, 1))
+        a, b = (
+            compute_diagrams(correlation_to_distance(correlation_matrix(returns[k : k + window])), 1) for k in (0, 1)
+        )
         repeats = 2 if quick else 5
         for dim in (0, 1):
             x, y = a[dim], b[dim]

@@ -54,7 +54,10 @@ def _child(argv: list[str]) -> None:
 def _in_fresh_process(*args: str) -> dict[str, float]:
     done = subprocess.run(
         [sys.executable, str(Path(__file__).resolve()), "--child", *args],
-        capture_output=True, text=True, check=False, cwd=ROOT,
+        capture_output=True,
+        text=True,
+        check=False,
+        cwd=ROOT,
     )
     if done.returncode != 0:
         raise RuntimeError(f"benchmark child {args} failed:\n{done.stderr[-3000:]}")
@@ -84,6 +87,7 @@ def large_section(quick: bool) -> list[cases.Row]:
 
 def _machine() -> dict[str, object]:
     import numpy
+
     import riskshape
     from riskshape.compute.executors import available_cores
     from riskshape.compute.persistence import resolve_engine
@@ -108,7 +112,9 @@ def _format(title: str, table: pd.DataFrame) -> str:
 def main(argv: list[str] | None = None) -> int:
     parser = argparse.ArgumentParser(description=__doc__, formatter_class=argparse.RawDescriptionHelpFormatter)
     parser.add_argument("--quick", action="store_true", help="scaled-down sizes (the output says so)")
-    parser.add_argument("--only", default=",".join(SECTIONS), help=f"comma-separated sections of: {', '.join(SECTIONS)}")
+    parser.add_argument(
+        "--only", default=",".join(SECTIONS), help=f"comma-separated sections of: {', '.join(SECTIONS)}"
+    )
     parser.add_argument("--out", type=Path, default=ROOT / "benchmarks" / "results")
     parser.add_argument("--child", nargs="+", help=argparse.SUPPRESS)
     args = parser.parse_args(argv)
@@ -121,7 +127,10 @@ def main(argv: list[str] | None = None) -> int:
         parser.error(f"unknown section(s) {sorted(unknown)}; choose from {', '.join(SECTIONS)}")
     machine = _machine()
     machine["calibration ms at the start (ripser, fixed window, best of 5)"] = round(cases.calibration_ms(), 2)
-    lines = ["riskshape benchmarks" + ("  [QUICK MODE: sizes scaled down, figures are not the reference ones]" if args.quick else "")]
+    lines = [
+        "riskshape benchmarks"
+        + ("  [QUICK MODE: sizes scaled down, figures are not the reference ones]" if args.quick else "")
+    ]
     lines += [f"  {key}: {value}" for key, value in machine.items()]
     print("\n".join(lines), flush=True)
     report: dict[str, object] = {"machine": machine, "quick": args.quick, "sections": {}}

@@ -54,10 +54,26 @@ def start_server(folder: Path, url: str, window: int) -> tuple[subprocess.Popen[
     config = folder / "bench.toml"
     config.write_text(CONFIG.format(window=window), encoding="utf-8")
     port = free_port()
-    env = {**os.environ, "RISKSHAPE_RATE_LIMIT_PER_MINUTE": "100000000", "RISKSHAPE_RATE_LIMIT_BURST": "100000000",
-           "RISKSHAPE_LOG_LEVEL": "warning"}
-    command = [sys.executable, "-m", "riskshape", "serve", "--store", url, "--host", "127.0.0.1", "--port", str(port),
-               "--config", str(config)]
+    env = {
+        **os.environ,
+        "RISKSHAPE_RATE_LIMIT_PER_MINUTE": "100000000",
+        "RISKSHAPE_RATE_LIMIT_BURST": "100000000",
+        "RISKSHAPE_LOG_LEVEL": "warning",
+    }
+    command = [
+        sys.executable,
+        "-m",
+        "riskshape",
+        "serve",
+        "--store",
+        url,
+        "--host",
+        "127.0.0.1",
+        "--port",
+        str(port),
+        "--config",
+        str(config),
+    ]
     process = subprocess.Popen(command, stdout=subprocess.DEVNULL, stderr=(folder / "server.log").open("wb"), env=env)
     base = f"http://127.0.0.1:{port}"
     deadline = time.monotonic() + 60
@@ -74,8 +90,14 @@ def start_server(folder: Path, url: str, window: int) -> tuple[subprocess.Popen[
     raise SystemExit(f"the server did not start; see {folder / 'server.log'}")
 
 
-async def poller(client: httpx.AsyncClient, paths: list[str], stop_at: float, budget: list[int],
-                 samples: dict[str, list[float]], errors: list[str]) -> None:
+async def poller(
+    client: httpx.AsyncClient,
+    paths: list[str],
+    stop_at: float,
+    budget: list[int],
+    samples: dict[str, list[float]],
+    errors: list[str],
+) -> None:
     i = 0
     while time.perf_counter() < stop_at and budget[0] > 0:
         budget[0] -= 1
@@ -93,8 +115,9 @@ async def poller(client: httpx.AsyncClient, paths: list[str], stop_at: float, bu
         samples[path].append(elapsed)
 
 
-async def run_load(base: str, token: str, portfolio: str, pollers: int, seconds: float,
-                   max_requests: int) -> tuple[dict[str, list[float]], float, list[str]]:
+async def run_load(
+    base: str, token: str, portfolio: str, pollers: int, seconds: float, max_requests: int
+) -> tuple[dict[str, list[float]], float, list[str]]:
     paths = [f"/v1/portfolios/{portfolio}/latest", f"/v1/portfolios/{portfolio}/series?limit=100"]
     samples: dict[str, list[float]] = {p: [] for p in paths}
     errors: list[str] = []
@@ -124,14 +147,17 @@ def daily_feed(base: str, headers: dict[str, str], portfolios: int, days: int, a
         prices = generate_scenario(seed=100 + k, n_days=days + 1, assets_per_sector=assets_per_sector).prices
         name = f"feed-{k:03d}"
         httpx.post(f"{base}/v1/portfolios", json={"name": name}, headers=headers, timeout=60).raise_for_status()
-        httpx.post(f"{base}/v1/portfolios/{name}/prices", headers=csv_headers, content=_csv(prices.iloc[:-1]),
-                   timeout=600).raise_for_status()
+        httpx.post(
+            f"{base}/v1/portfolios/{name}/prices", headers=csv_headers, content=_csv(prices.iloc[:-1]), timeout=600
+        ).raise_for_status()
         names.append(name)
         next_days.append(prices.iloc[[-1]])
     seconds = []
     for name, day in zip(names, next_days):
         started = time.perf_counter()
-        response = httpx.post(f"{base}/v1/portfolios/{name}/prices", headers=csv_headers, content=_csv(day), timeout=600)
+        response = httpx.post(
+            f"{base}/v1/portfolios/{name}/prices", headers=csv_headers, content=_csv(day), timeout=600
+        )
         response.raise_for_status()
         seconds.append(time.perf_counter() - started)
         if response.json()["windows_added"] != 1:
@@ -141,8 +167,10 @@ def daily_feed(base: str, headers: dict[str, str], portfolios: int, days: int, a
 
 def describe(name: str, values: list[float], wall: float) -> str:
     ms = np.asarray(values) * 1000
-    return (f"{name:<44} {len(ms):>7} req  {len(ms) / wall:>8.1f} req/s  p50 {np.percentile(ms, 50):>7.2f} ms  "
-            f"p99 {np.percentile(ms, 99):>7.2f} ms")
+    return (
+        f"{name:<44} {len(ms):>7} req  {len(ms) / wall:>8.1f} req/s  p50 {np.percentile(ms, 50):>7.2f} ms  "
+        f"p99 {np.percentile(ms, 99):>7.2f} ms"
+    )
 
 
 def main() -> None:
@@ -153,10 +181,16 @@ def main() -> None:
     parser.add_argument("--days", type=int, default=500, help="return days of the portfolio (default 500)")
     parser.add_argument("--assets-per-sector", type=int, default=4, help="assets per sector, 6 sectors (default 4)")
     parser.add_argument("--window", type=int, default=60, help="window length (default 60)")
-    parser.add_argument("--feed", type=int, default=0, help="portfolios of the daily-feed measurement (default 0: none)")
+    parser.add_argument(
+        "--feed", type=int, default=0, help="portfolios of the daily-feed measurement (default 0: none)"
+    )
     args = parser.parse_args()
-    if not (1 <= args.pollers <= 256 and 0 < args.seconds <= 300 and 1 <= args.max_requests <= 1_000_000
-            and 0 <= args.feed <= 1000):
+    if not (
+        1 <= args.pollers <= 256
+        and 0 < args.seconds <= 300
+        and 1 <= args.max_requests <= 1_000_000
+        and 0 <= args.feed <= 1000
+    ):
         raise SystemExit("keep it bounded: 1-256 pollers, at most 300 s, 1,000,000 requests and 1,000 feed portfolios")
 
     with tempfile.TemporaryDirectory(prefix="riskshape-load-") as tmp:
@@ -170,21 +204,30 @@ def main() -> None:
             headers = {"X-Riskshape-Key": token}
             httpx.post(f"{base}/v1/portfolios", json={"name": "load"}, headers=headers, timeout=60).raise_for_status()
             started = time.perf_counter()
-            ingest = httpx.post(f"{base}/v1/portfolios/load/prices", headers={**headers, "Content-Type": "text/csv"},
-                                content=_csv(prices), timeout=600)
+            ingest = httpx.post(
+                f"{base}/v1/portfolios/load/prices",
+                headers={**headers, "Content-Type": "text/csv"},
+                content=_csv(prices),
+                timeout=600,
+            )
             ingest.raise_for_status()
             ingest_seconds = time.perf_counter() - started
             windows = ingest.json()["windows_added"]
             next_day = prices.index[-1] + np.timedelta64(1, "D")
             last = prices.iloc[[-1]].set_axis([next_day]) * 1.001
             started = time.perf_counter()
-            one_day = httpx.post(f"{base}/v1/portfolios/load/prices", headers={**headers, "Content-Type": "text/csv"},
-                                 content=_csv(last), timeout=600)
+            one_day = httpx.post(
+                f"{base}/v1/portfolios/load/prices",
+                headers={**headers, "Content-Type": "text/csv"},
+                content=_csv(last),
+                timeout=600,
+            )
             one_day.raise_for_status()
             day_seconds = time.perf_counter() - started
 
-            samples, wall, errors = asyncio.run(run_load(base, token, "load", args.pollers, args.seconds,
-                                                         args.max_requests))
+            samples, wall, errors = asyncio.run(
+                run_load(base, token, "load", args.pollers, args.seconds, args.max_requests)
+            )
             feed = daily_feed(base, headers, args.feed, args.days, args.assets_per_sector) if args.feed else []
             server_log = (folder / "server.log").read_text(errors="replace")
         finally:
@@ -193,8 +236,10 @@ def main() -> None:
 
     print(CAUTION)
     print(f"portfolio: {prices.shape[1]} assets, {len(prices)} dates, window {args.window}: {windows} windows")
-    print(f"ingest of the whole history in one CSV body: {ingest_seconds:.2f} s; of one more day: {day_seconds:.3f} s "
-          f"({one_day.json()['windows_added']} window computed)")
+    print(
+        f"ingest of the whole history in one CSV body: {ingest_seconds:.2f} s; of one more day: {day_seconds:.3f} s "
+        f"({one_day.json()['windows_added']} window computed)"
+    )
     print(f"{args.pollers} pollers for {wall:.1f} s on 127.0.0.1 (uvicorn, 1 worker, SQLite), {os.cpu_count()} CPU(s)")
     everything = [v for values in samples.values() for v in values]
     for path, values in samples.items():
@@ -202,9 +247,11 @@ def main() -> None:
     print(describe("all", everything, wall))
     if feed:
         ms = np.asarray(feed) * 1000
-        print(f"daily feed: one new day posted to each of {len(feed)} portfolios ({prices.shape[1]} assets, {len(prices)} "
-              f"dates held each) in {sum(feed):.2f} s: p50 {np.percentile(ms, 50):.0f} ms, "
-              f"max {ms.max():.0f} ms per portfolio (1 window computed and archived each)")
+        print(
+            f"daily feed: one new day posted to each of {len(feed)} portfolios ({prices.shape[1]} assets, {len(prices)} "
+            f"dates held each) in {sum(feed):.2f} s: p50 {np.percentile(ms, 50):.0f} ms, "
+            f"max {ms.max():.0f} ms per portfolio (1 window computed and archived each)"
+        )
     if errors:
         print(f"failed requests: {len(errors)} ({', '.join(sorted(set(errors)))}); server log tail:")
         print(server_log[-2000:])

@@ -58,16 +58,29 @@ def latest_state(store: Store, portfolio: str, snapshots: Snapshots) -> LatestSt
             active.extend(a for a in found if a.config_hash == run.config_hash)
     last = frame.iloc[-1]
     made = LatestState(
-        portfolio=portfolio, config_hash=run.config_hash, n_windows=len(frame),
-        window_end=frame.index[-1].date(), values={str(k): float(v) for k, v in last.items()},
-        rules=states, active_alerts=tuple(active),
-    )  # fmt: skip
+        portfolio=portfolio,
+        config_hash=run.config_hash,
+        n_windows=len(frame),
+        window_end=frame.index[-1].date(),
+        values={str(k): float(v) for k, v in last.items()},
+        rules=states,
+        active_alerts=tuple(active),
+    )
     snapshot.latest = {head: made}
     return made
 
 
-def series_page(store: Store, portfolio: str, snapshots: Snapshots, *, start: date | None, end: date | None,
-                columns: list[str] | None, limit: int, offset: int) -> FeaturesPage:
+def series_page(
+    store: Store,
+    portfolio: str,
+    snapshots: Snapshots,
+    *,
+    start: date | None,
+    end: date | None,
+    columns: list[str] | None,
+    limit: int,
+    offset: int,
+) -> FeaturesPage:
     """A page of the summaries series; an unknown summary name is a DataError naming the known ones."""
     return snapshots.get(store, portfolio).page(start=start, end=end, columns=columns, limit=limit, offset=offset)
 

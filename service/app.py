@@ -31,9 +31,20 @@ from riskshape_service.logs import LOGGER_NAME, stamp_request_ids
 from riskshape_service.metrics import ServiceMetrics
 from riskshape_service.middleware import CAUTION_HEADER, CAUTION_HEADER_VALUE, RequestContextMiddleware
 from riskshape_service.ratelimit import RateLimiter
-from riskshape_service.snapshots import Snapshots
-from riskshape_service.routers import alerts, audit, diagrams, export, health, metrics, portfolios, prices, reviews, series
+from riskshape_service.routers import (
+    alerts,
+    audit,
+    diagrams,
+    export,
+    health,
+    metrics,
+    portfolios,
+    prices,
+    reviews,
+    series,
+)
 from riskshape_service.schemas import PricesIn
+from riskshape_service.snapshots import Snapshots
 
 __all__ = ["create_app"]
 
@@ -89,11 +100,13 @@ def create_app(settings: ServiceSettings | None = None) -> FastAPI:
     config = Config.from_toml(settings.config_path) if settings.config_path else Config()
     service_metrics = ServiceMetrics()
     context = ServiceContext(
-        settings=settings, config=config, metrics=service_metrics,
+        settings=settings,
+        config=config,
+        metrics=service_metrics,
         limiter=RateLimiter(settings.rate_limit_per_minute, settings.rate_limit_burst),
         ingestor=Ingestor(config, settings.result_cache_size),
         snapshots=Snapshots(config),
-    )  # fmt: skip
+    )
 
     @asynccontextmanager
     async def lifespan(app: FastAPI) -> AsyncIterator[None]:
@@ -111,8 +124,15 @@ def create_app(settings: ServiceSettings | None = None) -> FastAPI:
                 context.store.close()
                 context.store = None
 
-    app = FastAPI(title="riskshape", version=__version__, description=DESCRIPTION, lifespan=lifespan,
-                  docs_url=None, redoc_url=None, openapi_url="/openapi.json")
+    app = FastAPI(
+        title="riskshape",
+        version=__version__,
+        description=DESCRIPTION,
+        lifespan=lifespan,
+        docs_url=None,
+        redoc_url=None,
+        openapi_url="/openapi.json",
+    )
     mount_docs(app)
     app.state.context = context
     install_handlers(app)

@@ -46,11 +46,13 @@ def table_from_json(body: PricesIn) -> tuple[pd.DataFrame, str]:
     if body.rows is not None:
         dates = [r.date.isoformat() for r in body.rows]
         _check_order(dates, JSON_SOURCE, "rows", 0)
-        table = pd.DataFrame({
-            "date": dates,
-            "asset": [r.asset for r in body.rows],
-            "price": [float("nan") if r.price is None else float(r.price) for r in body.rows],
-        })  # fmt: skip
+        table = pd.DataFrame(
+            {
+                "date": dates,
+                "asset": [r.asset for r in body.rows],
+                "price": [float("nan") if r.price is None else float(r.price) for r in body.rows],
+            }
+        )
         return table, "long"
     assert body.wide is not None
     dates = [r.date.isoformat() for r in body.wide]
@@ -87,8 +89,9 @@ def table_from_csv(raw: bytes) -> pd.DataFrame:
         table = csv_table(io.StringIO(text))
     except (pd.errors.ParserError, pd.errors.EmptyDataError, csv.Error, ValueError) as err:
         message = " ".join(str(err).split())
-        raise DataError(f"{CSV_SOURCE}: malformed CSV ({message}); use one header line and the same number of "
-                        "fields on every line") from None
+        raise DataError(
+            f"{CSV_SOURCE}: malformed CSV ({message}); use one header line and the same number of fields on every line"
+        ) from None
     if table.empty:
         raise DataError(f"{CSV_SOURCE}: a header but no data lines; add one line per date")
     lower = {str(c).strip().lower(): c for c in table.columns}

@@ -1,6 +1,7 @@
 """What one app holds while it runs: settings, the open archive, the default configuration, the rate
 limiter, the metrics, the ingest engine and the snapshots pollers read. Made by ``create_app``, kept
-on ``app.state.context``."""
+on ``app.state.context``.
+"""
 
 from __future__ import annotations
 

@@ -23,7 +23,9 @@ from riskshape_service.context import ServiceContext
 __all__ = ["ContextDep", "StoreDep", "KeyDep", "ReaderDep", "IngestDep", "ReviewerDep", "AdminDep", "requires"]
 
 _key_header = APIKeyHeader(
-    name=KEY_HEADER, auto_error=False, scheme_name="RiskshapeKey",
+    name=KEY_HEADER,
+    auto_error=False,
+    scheme_name="RiskshapeKey",
     description="An API key made by `riskshape keys create`; sent in this header only, never in a URL.",
 )
 
@@ -72,8 +74,9 @@ def authenticate(request: Request, context: ContextDep, token: Annotated[str | N
     try:
         role = Role(key.role)
     except ValueError:
-        raise HTTPException(status_code=403,
-                            detail=f"the key's role {key.role!r} is not one this service knows") from None
+        raise HTTPException(
+            status_code=403, detail=f"the key's role {key.role!r} is not one this service knows"
+        ) from None
     caller = Caller(key_id=key.key_id, role=role, owner=key.owner)
     request.scope.setdefault("state", {})["caller"] = caller
     decision = context.limiter.take(key.key_id)

@@ -59,7 +59,8 @@ def _shown(value: Any) -> str:
 
 def describe_validation(errors: Any) -> list[dict[str, str]]:
     """Pydantic/FastAPI validation errors as ``{"field", "message"}`` pairs, the value received shown
-    (cut to a few dozen characters)."""
+    (cut to a few dozen characters).
+    """
     described = []
     for problem in errors:
         field = ".".join(str(p) for p in problem.get("loc", ()))
@@ -73,10 +74,10 @@ def describe_validation(errors: Any) -> list[dict[str, str]]:
     return described
 
 
-def _json(request: Request, status: int, detail: str, headers: dict[str, str] | None = None,
-          **more: Any) -> JSONResponse:
-    return JSONResponse(error_body(detail, request_id_of(request.scope), **more), status_code=status,
-                        headers=headers)
+def _json(
+    request: Request, status: int, detail: str, headers: dict[str, str] | None = None, **more: Any
+) -> JSONResponse:
+    return JSONResponse(error_body(detail, request_id_of(request.scope), **more), status_code=status, headers=headers)
 
 
 async def _riskshape_error(request: Request, err: Exception) -> JSONResponse:

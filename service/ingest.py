@@ -35,11 +35,11 @@ import numpy as np
 import pandas as pd
 
 from riskshape.archive import archive_run
+from riskshape.compute.monitor import MonitorResult, monitor
+from riskshape.compute.windows import window_end_positions
 from riskshape.config import Config
 from riskshape.errors import ConflictError, DataError
-from riskshape.compute.monitor import MonitorResult, monitor
 from riskshape.store import AlertRecord, Run, Store
-from riskshape.compute.windows import window_end_positions
 
 __all__ = ["Ingestor", "IngestReport", "portfolio_config"]
 
@@ -76,8 +76,11 @@ def portfolio_config(store: Store, portfolio: str, default: Config) -> tuple[Con
 
 
 def _same_prices(a: pd.DataFrame, b: pd.DataFrame) -> bool:
-    return (list(a.columns) == list(b.columns) and a.index.equals(b.index)
-            and np.array_equal(a.to_numpy(dtype=float), b.to_numpy(dtype=float), equal_nan=True))
+    return (
+        list(a.columns) == list(b.columns)
+        and a.index.equals(b.index)
+        and np.array_equal(a.to_numpy(dtype=float), b.to_numpy(dtype=float), equal_nan=True)
+    )
 
 
 @dataclass(frozen=True)
@@ -172,8 +175,15 @@ class Ingestor:
         with self._guard:
             return self._results.get(portfolio)
 
-    def ingest(self, store: Store, portfolio: str, prices: pd.DataFrame, *, correction: bool = False,
-               source: str = "request body") -> IngestReport:
+    def ingest(
+        self,
+        store: Store,
+        portfolio: str,
+        prices: pd.DataFrame,
+        *,
+        correction: bool = False,
+        source: str = "request body",
+    ) -> IngestReport:
         """Archive ``prices`` (validated wide prices) for ``portfolio`` and compute the new windows.
 
         Raises
@@ -194,36 +204,71 @@ class Ingestor:
             if n_returns < config.window:
                 written = store.append_prices(portfolio, plan.touched, source=source)
                 return IngestReport(
-                    portfolio, written.added, written.corrections, plan.unchanged, 0, 0, 0, None, None, (), None,
+                    portfolio,
+                    written.added,
+                    written.corrections,
+                    plan.unchanged,
+                    0,
+                    0,
+                    0,
+                    None,
+                    None,
+                    (),
+                    None,
                     f"{len(plan.table)} date(s) archived; the first window needs {config.window + 1}",
                 )
             expected = len(window_end_positions(n_returns, config.window, config.step))
             archived = len(store.window_ends(portfolio, config.hash()))
             if not len(plan.fresh) and not plan.corrections and archived >= expected:
-                return IngestReport(portfolio, 0, 0, plan.unchanged, 0, 0, 0, None, None, (), None,
-                                    "nothing new: every price was already archived with the same value")
+                return IngestReport(
+                    portfolio,
+                    0,
+                    0,
+                    plan.unchanged,
+                    0,
+                    0,
+                    0,
+                    None,
+                    None,
+                    (),
+                    None,
+                    "nothing new: every price was already archived with the same value",
+                )
             result, computed = self._result(portfolio, plan, held, config)
             report = archive_run(store, portfolio, result, config, source=source)
             self._remember(portfolio, result)
             added = report.features.added
-            new_ends = result.window_ends[len(result.window_ends) - added:] if added else result.window_ends[:0]
+            new_ends = result.window_ends[len(result.window_ends) - added :] if added else result.window_ends[:0]
             note = f"{added} window(s) added"
             if report.features.differing:
-                note += (f"; {report.features.differing} archived window(s) would differ under the corrected prices "
-                         "and keep their archived values")
+                note += (
+                    f"; {report.features.differing} archived window(s) would differ under the corrected prices "
+                    "and keep their archived values"
+                )
             return IngestReport(
-                portfolio=portfolio, prices_added=report.run.prices_added, corrections=report.run.corrections_added,
-                unchanged=plan.unchanged, windows_computed=computed, windows_added=added,
+                portfolio=portfolio,
+                prices_added=report.run.prices_added,
+                corrections=report.run.corrections_added,
+                unchanged=plan.unchanged,
+                windows_computed=computed,
+                windows_added=added,
                 windows_differing=report.features.differing,
-                first_window=new_ends[0].date() if added else None, last_window=new_ends[-1].date() if added else None,
-                alerts=report.alerts.added, run_id=report.run.id, note=note,
-            )  # fmt: skip
+                first_window=new_ends[0].date() if added else None,
+                last_window=new_ends[-1].date() if added else None,
+                alerts=report.alerts.added,
+                run_id=report.run.id,
+                note=note,
+            )
 
     def _result(self, portfolio: str, plan: _Plan, held: pd.DataFrame, config: Config) -> tuple[MonitorResult, int]:
         """The result over the whole history and how many windows were computed for it."""
         cached = self._cached(portfolio)
-        if (cached is not None and not plan.corrections and cached.config.hash() == config.hash()
-                and _same_prices(cached.prices, held)):
+        if (
+            cached is not None
+            and not plan.corrections
+            and cached.config.hash() == config.hash()
+            and _same_prices(cached.prices, held)
+        ):
             if not len(plan.fresh):
                 return cached, 0
             result = cached.update(plan.fresh)

@@ -25,7 +25,8 @@ _STANDARD = set(logging.LogRecord("", 0, "", 0, "", None, None).__dict__) | {"me
 
 class JsonFormatter(logging.Formatter):
     """Format a record as one line of JSON: time (UTC, ISO 8601), level, logger, message, request id,
-    the fields given with ``extra=`` and, for errors, the exception type and traceback."""
+    the fields given with ``extra=`` and, for errors, the exception type and traceback.
+    """
 
     def format(self, record: logging.LogRecord) -> str:
         entry: dict[str, Any] = {
@@ -48,7 +49,8 @@ class JsonFormatter(logging.Formatter):
 
 class RequestIdFilter(logging.Filter):
     """Stamp each record with the current request id when it is logged (so a record formatted
-    later, or elsewhere, still names its request)."""
+    later, or elsewhere, still names its request).
+    """
 
     def filter(self, record: logging.LogRecord) -> bool:
         if getattr(record, "request_id", None) is None:

@@ -25,8 +25,14 @@ from riskshape.caution import CAUTION
 from riskshape_service.logs import LOGGER_NAME, REQUEST_ID
 from riskshape_service.metrics import ServiceMetrics
 
-__all__ = ["RequestContextMiddleware", "CAUTION_HEADER", "CAUTION_HEADER_VALUE", "REQUEST_ID_HEADER",
-           "request_id_of", "error_body"]
+__all__ = [
+    "RequestContextMiddleware",
+    "CAUTION_HEADER",
+    "CAUTION_HEADER_VALUE",
+    "REQUEST_ID_HEADER",
+    "request_id_of",
+    "error_body",
+]
 
 CAUTION_HEADER = "X-Riskshape-Caution"
 CAUTION_HEADER_VALUE = "not investment advice"
@@ -84,24 +90,35 @@ class RequestContextMiddleware:
             if message["type"] == "http.response.start":
                 status["code"], status["sent"] = int(message["status"]), True
                 raw = [(k, v) for k, v in message.get("headers", []) if k.lower() != b"x-riskshape-caution"]
-                raw += [(CAUTION_HEADER.lower().encode(), CAUTION_HEADER_VALUE.encode()),
-                        (REQUEST_ID_HEADER.lower().encode(), request_id.encode())]
+                raw += [
+                    (CAUTION_HEADER.lower().encode(), CAUTION_HEADER_VALUE.encode()),
+                    (REQUEST_ID_HEADER.lower().encode(), request_id.encode()),
+                ]
                 message = {**message, "headers": raw}
             await send(message)
 
         try:
             declared = _content_length(headers)
             if declared is not None and declared > self.max_body_bytes:
-                await self._reply(send_with_context, 413, error_body(
-                    f"request body of {declared} bytes exceeds the limit of {self.max_body_bytes} bytes; "
-                    "send less data per request", request_id))
+                await self._reply(
+                    send_with_context,
+                    413,
+                    error_body(
+                        f"request body of {declared} bytes exceeds the limit of {self.max_body_bytes} bytes; "
+                        "send less data per request",
+                        request_id,
+                    ),
+                )
             else:
                 await self.app(scope, receive, send_with_context)
         except Exception:  # the last resort: log it whole, answer without a trace
             log.exception("unhandled error while serving %s %s", scope.get("method"), scope.get("path"))
             if not status["sent"]:
-                await self._reply(send_with_context, 500, error_body(
-                    f"internal error; the service logged it under request id {request_id}", request_id))
+                await self._reply(
+                    send_with_context,
+                    500,
+                    error_body(f"internal error; the service logged it under request id {request_id}", request_id),
+                )
         finally:
             elapsed = time.perf_counter() - started
             route = _route_label(scope)
@@ -110,19 +127,33 @@ class RequestContextMiddleware:
             self.metrics.requests.labels(method, route, str(status["code"])).inc()
             self.metrics.latency.labels(method, route).observe(elapsed)
             caller = scope.get("state", {}).get("caller")
-            log.info("request", extra={
-                "method": method, "path": scope.get("path"), "route": route, "status": status["code"],
-                "duration_ms": round(elapsed * 1000, 3), "key_id": getattr(caller, "key_id", None),
-                "client": (scope.get("client") or ("-",))[0],
-            })  # fmt: skip
+            log.info(
+                "request",
+                extra={
+                    "method": method,
+                    "path": scope.get("path"),
+                    "route": route,
+                    "status": status["code"],
+                    "duration_ms": round(elapsed * 1000, 3),
+                    "key_id": getattr(caller, "key_id", None),
+                    "client": (scope.get("client") or ("-",))[0],
+                },
+            )
             REQUEST_ID.reset(token)
 
     @staticmethod
     async def _reply(send: Send, code: int, body: dict[str, Any]) -> None:
         payload = json.dumps(body).encode("utf-8")
-        await send({"type": "http.response.start", "status": code, "headers": [
-            (b"content-type", b"application/json"), (b"content-length", str(len(payload)).encode()),
-        ]})  # fmt: skip
+        await send(
+            {
+                "type": "http.response.start",
+                "status": code,
+                "headers": [
+                    (b"content-type", b"application/json"),
+                    (b"content-length", str(len(payload)).encode()),
+                ],
+            }
+        )
         await send({"type": "http.response.body", "body": payload})
 
 

@@ -16,10 +16,36 @@ from riskshape.caution import CAUTION
 from riskshape.store.records import REVIEW_ACTIONS
 
 __all__ = [
-    "Cautioned", "ErrorOut", "FieldError", "StoreStatus", "HealthOut", "PortfolioOut", "PortfolioList",
-    "PortfolioIn", "AlertOut", "ProvenanceOut", "ReviewOut", "AlertDetailOut", "AlertPageOut", "ReviewIn",
-    "ReviewCreated", "RuleStateOut", "LatestOut", "SeriesRow", "SeriesOut", "DiagramOut", "LongRow", "WideRow",
-    "PricesIn", "IngestOut", "ChainHead", "HeadOut", "PortfolioCreated", "BadRecordOut", "VerifyOut", "finite_or_none",
+    "Cautioned",
+    "ErrorOut",
+    "FieldError",
+    "StoreStatus",
+    "HealthOut",
+    "PortfolioOut",
+    "PortfolioList",
+    "PortfolioIn",
+    "AlertOut",
+    "ProvenanceOut",
+    "ReviewOut",
+    "AlertDetailOut",
+    "AlertPageOut",
+    "ReviewIn",
+    "ReviewCreated",
+    "RuleStateOut",
+    "LatestOut",
+    "SeriesRow",
+    "SeriesOut",
+    "DiagramOut",
+    "LongRow",
+    "WideRow",
+    "PricesIn",
+    "IngestOut",
+    "ChainHead",
+    "HeadOut",
+    "PortfolioCreated",
+    "BadRecordOut",
+    "VerifyOut",
+    "finite_or_none",
 ]
 
 AssetName = Annotated[str, Field(min_length=1, max_length=200)]
@@ -85,8 +111,12 @@ class PortfolioList(Cautioned):
 
 
 class PortfolioIn(_Input):
-    name: str = Field(min_length=1, max_length=200, pattern=r"^[A-Za-z0-9](?:[A-Za-z0-9 ._-]{0,198}[A-Za-z0-9._-])?$",
-                      description="1 to 200 letters, digits, spaces, '.', '_' or '-'; starts with a letter or digit")
+    name: str = Field(
+        min_length=1,
+        max_length=200,
+        pattern=r"^[A-Za-z0-9](?:[A-Za-z0-9 ._-]{0,198}[A-Za-z0-9._-])?$",
+        description="1 to 200 letters, digits, spaces, '.', '_' or '-'; starts with a letter or digit",
+    )
 
 
 class PortfolioCreated(Cautioned):
@@ -132,8 +162,10 @@ class AlertDetailOut(Cautioned):
     alert: AlertOut
     provenance: ProvenanceOut
     explanation: dict[str, Any] | None = Field(
-        None, description="why it fired: clusters that merged or split (H0), loops and their assets (H1); "
-        "archived inside the alert's hash-chained record (null where none was archived)")
+        None,
+        description="why it fired: clusters that merged or split (H0), loops and their assets (H1); "
+        "archived inside the alert's hash-chained record (null where none was archived)",
+    )
     explanation_text: str = Field(description="the explanation as plain text")
     reviews: list[ReviewOut]
 
@@ -225,7 +257,7 @@ class PricesIn(_Input):
     wide: list[WideRow] | None = Field(None, min_length=1)
 
     @model_validator(mode="after")
-    def _one_layout(self) -> "PricesIn":
+    def _one_layout(self) -> PricesIn:
         if (self.rows is None) == (self.wide is None):
             raise ValueError("give exactly one of 'rows' (long: date, asset, price) or 'wide' (date, prices)")
         return self
@@ -237,8 +269,9 @@ class IngestOut(Cautioned):
     corrections: int = Field(description="price cells archived as corrections (new revisions)")
     unchanged: int = Field(description="price cells already archived with the same price")
     windows_added: int = Field(description="windows computed and archived by this request")
-    windows_differing: int = Field(description="archived windows that corrected prices would change (they keep "
-                                   "their archived values)")
+    windows_differing: int = Field(
+        description="archived windows that corrected prices would change (they keep their archived values)"
+    )
     first_window: date | None
     last_window: date | None
     alerts: list[AlertOut] = Field(description="alerts raised by this request")

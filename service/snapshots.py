@@ -34,22 +34,28 @@ class Snapshot:
     frame: pd.DataFrame
     latest: dict[int, object] = field(default_factory=dict)  # ledger head count -> latest state
 
-    def page(self, *, start: date | None, end: date | None, columns: list[str] | None, limit: int,
-             offset: int) -> FeaturesPage:
+    def page(
+        self, *, start: date | None, end: date | None, columns: list[str] | None, limit: int, offset: int
+    ) -> FeaturesPage:
         """A page of the series, as :meth:`riskshape.store.Store.read_features` would give it."""
         frame = self.frame
         if columns:
             unknown = [c for c in columns if c not in frame.columns]
             if unknown and len(frame.columns):
-                raise DataError(f"query 'summaries': no summary {unknown[0]!r}; archived summaries are "
-                                f"{', '.join(frame.columns)}")
+                raise DataError(
+                    f"query 'summaries': no summary {unknown[0]!r}; archived summaries are {', '.join(frame.columns)}"
+                )
             frame = frame[[c for c in columns if c in frame.columns]]
         if start is not None:
             frame = frame[frame.index >= pd.Timestamp(start)]
         if end is not None:
             frame = frame[frame.index <= pd.Timestamp(end)]
-        return FeaturesPage(frame=frame.iloc[offset:offset + limit], total=len(frame), offset=offset,
-                            config_hash=None if self.run is None else self.run.config_hash)
+        return FeaturesPage(
+            frame=frame.iloc[offset : offset + limit],
+            total=len(frame),
+            offset=offset,
+            config_hash=None if self.run is None else self.run.config_hash,
+        )
 
 
 class Snapshots:

@@ -110,15 +110,29 @@ def _at(row: int) -> dict[str, str]:
 BAD_CASES: tuple[BadCase, ...] = (
     BadCase("unparseable-date", _set(6, "date", "2031-02-30"), _at(6), ("'date'", "YYYY-MM-DD")),
     BadCase("unreadable-date", _set(3, "date", "soon"), _at(3), ("'date'", "'soon'", "YYYY-MM-DD")),
-    BadCase("duplicate-date", _duplicate_date, {"csv": "lines 10, 11", "parquet": "rows 9, 10"},
-            ("date 2031-01-14", "one row per date")),
-    BadCase("non-numeric", _set(4, "BRK", "12,5x"), _at(4), ("'BRK'", "2031-01-08", "not a number", "leave the cell empty")),
+    BadCase(
+        "duplicate-date",
+        _duplicate_date,
+        {"csv": "lines 10, 11", "parquet": "rows 9, 10"},
+        ("date 2031-01-14", "one row per date"),
+    ),
+    BadCase(
+        "non-numeric", _set(4, "BRK", "12,5x"), _at(4), ("'BRK'", "2031-01-08", "not a number", "leave the cell empty")
+    ),
     BadCase("zero-price", _set(5, "CYN", "0"), _at(5), ("'CYN'", "2031-01-09", "not positive", "> 0")),
     BadCase("negative-price", _set(7, "DOV", "-3.5"), _at(7), ("'DOV'", "-3.5", "not positive", "> 0")),
-    BadCase("infinite-price", _set(10, "ALD", "inf"), _at(10), ("'ALD'", "2031-01-16", "infinite", "leave the cell empty")),
-    BadCase("too-few-assets", lambda t: t.drop(columns=["CYN", "DOV"]), {}, ("2 asset column", "at least 3", "add assets")),
-    BadCase("too-few-rows", lambda t: t.iloc[:BAD_INPUT_WINDOW], {},
-            (f"{BAD_INPUT_WINDOW} dates", f"at least {BAD_INPUT_WINDOW + 1}", "longer history or a shorter window")),
+    BadCase(
+        "infinite-price", _set(10, "ALD", "inf"), _at(10), ("'ALD'", "2031-01-16", "infinite", "leave the cell empty")
+    ),
+    BadCase(
+        "too-few-assets", lambda t: t.drop(columns=["CYN", "DOV"]), {}, ("2 asset column", "at least 3", "add assets")
+    ),
+    BadCase(
+        "too-few-rows",
+        lambda t: t.iloc[:BAD_INPUT_WINDOW],
+        {},
+        (f"{BAD_INPUT_WINDOW} dates", f"at least {BAD_INPUT_WINDOW + 1}", "longer history or a shorter window"),
+    ),
 )
 
 
@@ -135,7 +149,8 @@ class BadFile:
 def write_table(table: pd.DataFrame, path: Path) -> Path:
     """Write a text table as CSV, or as Parquet with typed columns where the cells allow it
     (dates as timestamps, prices as float64 with nulls for empty cells; a column with a bad cell
-    stays text, as a spreadsheet export would leave it)."""
+    stays text, as a spreadsheet export would leave it).
+    """
     if path.suffix == ".csv":
         table.to_csv(path, index=False)
         return path
@@ -152,8 +167,7 @@ def write_table(table: pd.DataFrame, path: Path) -> Path:
     return path
 
 
-@pytest.fixture(params=[(c, fmt) for c in BAD_CASES for fmt in ("csv", "parquet")],
-                ids=lambda p: f"{p[0].name}-{p[1]}")
+@pytest.fixture(params=[(c, fmt) for c in BAD_CASES for fmt in ("csv", "parquet")], ids=lambda p: f"{p[0].name}-{p[1]}")
 def bad_price_file(request: pytest.FixtureRequest, tmp_path: Path) -> BadFile:
     """Each bad input of issue 2 item 1, as CSV (lines counted from the header, line 1) and Parquet (rows from 1)."""
     case, fmt = request.param

@@ -36,19 +36,35 @@ def make_router(settings: ServiceSettings) -> APIRouter:
         offset: Annotated[int, Query(ge=0, le=MAX_ID)] = 0,
     ) -> AlertPageOut:
         """Archived alerts, oldest window first, filtered."""
-        page = store.list_alerts(portfolio=portfolio, since=since, until=until, severity=severity or None, rule=rule,
-                                 reviewed=reviewed, limit=limit, offset=offset)
+        page = store.list_alerts(
+            portfolio=portfolio,
+            since=since,
+            until=until,
+            severity=severity or None,
+            rule=rule,
+            reviewed=reviewed,
+            limit=limit,
+            offset=offset,
+        )
         following = offset + len(page.items)
-        return AlertPageOut(items=[alert_out(a) for a in page.items], total=page.total, offset=offset, limit=limit,
-                            next_offset=following if following < page.total else None)
+        return AlertPageOut(
+            items=[alert_out(a) for a in page.items],
+            total=page.total,
+            offset=offset,
+            limit=limit,
+            next_offset=following if following < page.total else None,
+        )
 
     @router.get("/{alert_id}", response_model=AlertDetailOut, responses=errors(401, 403, 404, 422, 429))
     def get_alert(alert_id: AlertId, caller: ReaderDep, store: StoreDep) -> AlertDetailOut:
         """One alert, where it came from (configuration, inputs, version, run, chain), and its reviews."""
         detail = store.get_alert(alert_id)
-        return AlertDetailOut(alert=alert_out(detail.alert), provenance=provenance_out(detail.alert),
-                              explanation=explanation_object(detail.alert.explanation),
-                              explanation_text=explanation_text(detail.alert.explanation),
-                              reviews=[review_out(r) for r in detail.reviews])
+        return AlertDetailOut(
+            alert=alert_out(detail.alert),
+            provenance=provenance_out(detail.alert),
+            explanation=explanation_object(detail.alert.explanation),
+            explanation_text=explanation_text(detail.alert.explanation),
+            reviews=[review_out(r) for r in detail.reviews],
+        )
 
     return router

@@ -27,17 +27,22 @@ def make_router(settings: ServiceSettings) -> APIRouter:
     async def verify(
         caller: ReviewerDep,
         store: StoreDep,
-        expect_head: Annotated[str | None, Query(pattern=r"^(?:[0-9]+:)?[0-9a-f]{64}$",
-                                                 description="COUNT:HASH kept from /v1/audit/head earlier")] = None,
+        expect_head: Annotated[
+            str | None,
+            Query(pattern=r"^(?:[0-9]+:)?[0-9a-f]{64}$", description="COUNT:HASH kept from /v1/audit/head earlier"),
+        ] = None,
     ) -> VerifyOut:
         """Recompute the hash chain of alerts and reviews; name the first record that does not verify."""
         report = await run_in_threadpool(verify_chain, store, expect_head)
         bad = report.first_bad
         return VerifyOut(
-            ok=report.ok, checked=report.checked, head=_head(report.head),
-            first_bad=None if bad is None else BadRecordOut(seq=bad.seq, table=bad.table, record_id=bad.record_id,
-                                                            reason=bad.reason),
-        )  # fmt: skip
+            ok=report.ok,
+            checked=report.checked,
+            head=_head(report.head),
+            first_bad=None
+            if bad is None
+            else BadRecordOut(seq=bad.seq, table=bad.table, record_id=bad.record_id, reason=bad.reason),
+        )
 
     @router.get("/head", response_model=HeadOut, responses=errors(401, 403, 429))
     def head(caller: ReviewerDep, store: StoreDep) -> HeadOut:

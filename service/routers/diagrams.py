@@ -30,8 +30,13 @@ def make_router(settings: ServiceSettings) -> APIRouter:
         """Finite (birth, death) bars of one window in one dimension, under the latest configuration."""
         found = store.read_diagram(name, window_end, dim)
         return DiagramOut(
-            portfolio=found.portfolio, window_end=found.window_end, dim=found.dim, config_hash=found.config_hash,
-            run_id=found.run_id, n_bars=len(found.bars), bars=[(float(b), float(d)) for b, d in found.bars],
-        )  # fmt: skip
+            portfolio=found.portfolio,
+            window_end=found.window_end,
+            dim=found.dim,
+            config_hash=found.config_hash,
+            run_id=found.run_id,
+            n_bars=len(found.bars),
+            bars=[(float(b), float(d)) for b, d in found.bars],
+        )
 
     return router

@@ -23,12 +23,19 @@ def make_router(settings: ServiceSettings) -> APIRouter:
     router = APIRouter(prefix=f"{API_PREFIX}/export", tags=["export"])
 
     @router.get(
-        "/alerts", response_class=Response, responses={
-            200: {"description": "The export", "content": {"text/csv": {"schema": {"type": "string"}},
-                                                            "application/x-ndjson": {"schema": {"type": "string"}}}},
+        "/alerts",
+        response_class=Response,
+        responses={
+            200: {
+                "description": "The export",
+                "content": {
+                    "text/csv": {"schema": {"type": "string"}},
+                    "application/x-ndjson": {"schema": {"type": "string"}},
+                },
+            },
             **errors(401, 403, 404, 422, 429),
         },
-    )  # fmt: skip
+    )
     async def export(
         caller: ReviewerDep,
         store: StoreDep,
@@ -40,7 +47,8 @@ def make_router(settings: ServiceSettings) -> APIRouter:
         """Every matching alert with its hashes and review status; CSV cells made safe for spreadsheets."""
         text = await run_in_threadpool(export_alerts, store, format, since=since, until=until, portfolio=portfolio)
         name = f"riskshape-alerts.{format}"
-        return Response(text, media_type=MEDIA_TYPES[format],
-                        headers={"Content-Disposition": f'attachment; filename="{name}"'})
+        return Response(
+            text, media_type=MEDIA_TYPES[format], headers={"Content-Disposition": f'attachment; filename="{name}"'}
+        )
 
     return router

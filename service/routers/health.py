@@ -19,8 +19,11 @@ __all__ = ["make_router"]
 def make_router(settings: ServiceSettings) -> APIRouter:
     router = APIRouter(prefix=API_PREFIX, tags=["health"])
 
-    @router.get("/health", response_model=HealthOut,
-                responses={503: {"model": HealthOut, "description": "The archive cannot be read"}, **errors()})
+    @router.get(
+        "/health",
+        response_model=HealthOut,
+        responses={503: {"model": HealthOut, "description": "The archive cannot be read"}, **errors()},
+    )
     def health(context: ContextDep) -> HealthOut | JSONResponse:
         """Service version and archive status; 503 when the archive cannot be read."""
         store = context.store

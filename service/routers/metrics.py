@@ -16,9 +16,14 @@ __all__ = ["make_router"]
 def make_router(settings: ServiceSettings) -> APIRouter:
     router = APIRouter(tags=["metrics"])
 
-    @router.get("/metrics", response_class=Response, responses={
-        200: {"description": "Prometheus text format", "content": {"text/plain": {"schema": {"type": "string"}}}},
-        **errors(401, 403, 429)})  # fmt: skip
+    @router.get(
+        "/metrics",
+        response_class=Response,
+        responses={
+            200: {"description": "Prometheus text format", "content": {"text/plain": {"schema": {"type": "string"}}}},
+            **errors(401, 403, 429),
+        },
+    )
     def metrics(caller: ReaderDep, context: ContextDep) -> Response:
         """Requests, latencies, windows computed, alerts raised, price cells ingested, rate-limited requests."""
         return Response(context.metrics.render(), media_type=CONTENT_TYPE_LATEST)

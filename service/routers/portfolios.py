@@ -11,7 +11,14 @@ from riskshape_service import access
 from riskshape_service.convert import alert_out, rule_state_out
 from riskshape_service.deps import AdminDep, ContextDep, ReaderDep, StoreDep
 from riskshape_service.routers import API_PREFIX, errors
-from riskshape_service.schemas import LatestOut, PortfolioCreated, PortfolioIn, PortfolioList, PortfolioOut, finite_or_none
+from riskshape_service.schemas import (
+    LatestOut,
+    PortfolioCreated,
+    PortfolioIn,
+    PortfolioList,
+    PortfolioOut,
+    finite_or_none,
+)
 
 __all__ = ["make_router", "PortfolioName"]
 
@@ -38,9 +45,13 @@ def make_router(settings: ServiceSettings) -> APIRouter:
         """The last window: its summaries, where each alert rule stands, and the alerts still active."""
         state = access.latest_state(store, name, context.snapshots)
         return LatestOut(
-            portfolio=state.portfolio, config_hash=state.config_hash, n_windows=state.n_windows,
-            window_end=state.window_end, values={k: finite_or_none(v) for k, v in state.values.items()},
-            rules=[rule_state_out(s) for s in state.rules], active_alerts=[alert_out(a) for a in state.active_alerts],
-        )  # fmt: skip
+            portfolio=state.portfolio,
+            config_hash=state.config_hash,
+            n_windows=state.n_windows,
+            window_end=state.window_end,
+            values={k: finite_or_none(v) for k, v in state.values.items()},
+            rules=[rule_state_out(s) for s in state.rules],
+            active_alerts=[alert_out(a) for a in state.active_alerts],
+        )
 
     return router

@@ -32,8 +32,13 @@ PRICES_BODY = {
     "required": True,
     "content": {
         "application/json": {"schema": {"$ref": "#/components/schemas/PricesIn"}},
-        "text/csv": {"schema": {"type": "string", "description": "wide (date, one column per asset) or long "
-                                "(date, asset, price) CSV, one header line"}, "example": CSV_EXAMPLE},
+        "text/csv": {
+            "schema": {
+                "type": "string",
+                "description": "wide (date, one column per asset) or long (date, asset, price) CSV, one header line",
+            },
+            "example": CSV_EXAMPLE,
+        },
     },
 }
 
@@ -51,11 +56,29 @@ def _json_body(raw: bytes) -> PricesIn:
     try:
         data = json.loads(raw)
     except json.JSONDecodeError as err:
-        raise RequestValidationError([{"type": "json_invalid", "loc": ("body", err.pos), "msg": "JSON decode error",
-                                       "input": {}, "ctx": {"error": err.msg}}]) from None
+        raise RequestValidationError(
+            [
+                {
+                    "type": "json_invalid",
+                    "loc": ("body", err.pos),
+                    "msg": "JSON decode error",
+                    "input": {},
+                    "ctx": {"error": err.msg},
+                }
+            ]
+        ) from None
     except UnicodeDecodeError:
-        raise RequestValidationError([{"type": "json_invalid", "loc": ("body",), "msg": "JSON decode error",
-                                       "input": {}, "ctx": {"error": "not UTF-8 text"}}]) from None
+        raise RequestValidationError(
+            [
+                {
+                    "type": "json_invalid",
+                    "loc": ("body",),
+                    "msg": "JSON decode error",
+                    "input": {},
+                    "ctx": {"error": "not UTF-8 text"},
+                }
+            ]
+        ) from None
     try:
         return PricesIn.model_validate(data)
     except ValidationError as err:
@@ -64,27 +87,42 @@ def _json_body(raw: bytes) -> PricesIn:
 
 def _ingest_out(report: IngestReport) -> IngestOut:
     return IngestOut(
-        portfolio=report.portfolio, prices_added=report.prices_added, corrections=report.corrections,
-        unchanged=report.unchanged, windows_added=report.windows_added,
-        windows_differing=report.windows_differing, first_window=report.first_window,
-        last_window=report.last_window, alerts=[alert_out(a) for a in report.alerts], run_id=report.run_id,
+        portfolio=report.portfolio,
+        prices_added=report.prices_added,
+        corrections=report.corrections,
+        unchanged=report.unchanged,
+        windows_added=report.windows_added,
+        windows_differing=report.windows_differing,
+        first_window=report.first_window,
+        last_window=report.last_window,
+        alerts=[alert_out(a) for a in report.alerts],
+        run_id=report.run_id,
         note=report.note,
-    )  # fmt: skip
+    )
 
 
 def make_router(settings: ServiceSettings) -> APIRouter:
     router = APIRouter(prefix=f"{API_PREFIX}/portfolios", tags=["prices"])
 
-    @router.post("/{name}/prices", response_model=IngestOut, openapi_extra={"requestBody": PRICES_BODY},
-                 responses=errors(401, 403, 404, 409, 413, 415, 422, 429))
+    @router.post(
+        "/{name}/prices",
+        response_model=IngestOut,
+        openapi_extra={"requestBody": PRICES_BODY},
+        responses=errors(401, 403, 404, 409, 413, 415, 422, 429),
+    )
     async def post_prices(
         name: PortfolioName,
         request: Request,
         caller: IngestDep,
         store: StoreDep,
         context: ContextDep,
-        correction: Annotated[bool, Query(description="archive prices that differ from archived ones as "
-                                          "corrections (otherwise they are refused with 409)")] = False,
+        correction: Annotated[
+            bool,
+            Query(
+                description="archive prices that differ from archived ones as "
+                "corrections (otherwise they are refused with 409)"
+            ),
+        ] = False,
     ) -> IngestOut:
         """Archive prices, compute only the new windows, evaluate the alert rules; idempotent.
 
@@ -112,8 +150,10 @@ def make_router(settings: ServiceSettings) -> APIRouter:
             table = await run_in_threadpool(table_from_csv, raw)
             source, first, label = CSV_SOURCE, 2, "line"
         else:
-            raise HTTPException(status_code=415, detail=f"content type {media or 'none'!r} is not accepted; send "
-                                "application/json or text/csv")
+            raise HTTPException(
+                status_code=415,
+                detail=f"content type {media or 'none'!r} is not accepted; send application/json or text/csv",
+            )
         prices = await run_in_threadpool(validated_prices, table, source, first, label)
 
         def work() -> IngestReport:

@@ -17,8 +17,12 @@ __all__ = ["make_router"]
 def make_router(settings: ServiceSettings) -> APIRouter:
     router = APIRouter(prefix=f"{API_PREFIX}/alerts", tags=["reviews"])
 
-    @router.post("/{alert_id}/reviews", response_model=ReviewCreated, status_code=201,
-                 responses=errors(401, 403, 404, 413, 422, 429))
+    @router.post(
+        "/{alert_id}/reviews",
+        response_model=ReviewCreated,
+        status_code=201,
+        responses=errors(401, 403, 404, 413, 422, 429),
+    )
     def post_review(alert_id: AlertId, body: ReviewIn, caller: ReviewerDep, store: StoreDep) -> ReviewCreated:
         """Append a review; the reviewer recorded is the owner of the key, never a field of the body."""
         record = store.append_review(alert_id, body.action, caller.owner, body.comment)

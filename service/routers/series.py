@@ -32,14 +32,23 @@ def make_router(settings: ServiceSettings) -> APIRouter:
         offset: Annotated[int, Query(ge=0, le=MAX_ID, description="windows to skip")] = 0,
     ) -> SeriesOut:
         """Per-window summaries under the portfolio's latest configuration, oldest window first."""
-        page = access.series_page(store, name, context.snapshots, start=start, end=end, columns=summaries,
-                                  limit=limit, offset=offset)
-        rows = [SeriesRow(window_end=stamp.date(), values=[finite_or_none(v) for v in values])
-                for stamp, values in zip(page.frame.index, page.frame.to_numpy(dtype=float))]
+        page = access.series_page(
+            store, name, context.snapshots, start=start, end=end, columns=summaries, limit=limit, offset=offset
+        )
+        rows = [
+            SeriesRow(window_end=stamp.date(), values=[finite_or_none(v) for v in values])
+            for stamp, values in zip(page.frame.index, page.frame.to_numpy(dtype=float))
+        ]
         following = offset + len(rows)
         return SeriesOut(
-            portfolio=name, config_hash=page.config_hash, columns=[str(c) for c in page.frame.columns], rows=rows,
-            total=page.total, offset=offset, limit=limit, next_offset=following if following < page.total else None,
-        )  # fmt: skip
+            portfolio=name,
+            config_hash=page.config_hash,
+            columns=[str(c) for c in page.frame.columns],
+            rows=rows,
+            total=page.total,
+            offset=offset,
+            limit=limit,
+            next_offset=following if following < page.total else None,
+        )
 
     return router

@@ -5,6 +5,7 @@ A decision aid for risk monitoring and research, not investment advice.
 
 from riskshape._version import __version__
 from riskshape.caution import CAUTION
+from riskshape.compute.monitor import MonitorResult, monitor
 from riskshape.config import Config
 from riskshape.errors import (
     AuditError,
@@ -16,7 +17,6 @@ from riskshape.errors import (
     RiskshapeError,
     StoreError,
 )
-from riskshape.compute.monitor import MonitorResult, monitor
 from riskshape.prices import read_prices
 
 __all__ = [

@@ -21,15 +21,23 @@ import pandas as pd
 
 from riskshape.alerts.model import Alert
 from riskshape.alerts.rules import evaluate_rules, recheck_firing
+from riskshape.compute.monitor import MonitorResult, monitor
 from riskshape.config import ComputeConfig, Config
 from riskshape.errors import ConfigError, RiskshapeError
 from riskshape.explain.archived import explanation_json
-from riskshape.compute.monitor import MonitorResult, monitor
 from riskshape.prices import hash_prices
 from riskshape.store import AlertAppend, AlertRecord, Run, RunManifest, Store, WriteCount
 
-__all__ = ["RunReport", "Check", "ReproduceReport", "archive_run", "reproduce_alert", "reproduce_alerts",
-           "VALUE_RTOL", "VALUE_ATOL"]
+__all__ = [
+    "RunReport",
+    "Check",
+    "ReproduceReport",
+    "archive_run",
+    "reproduce_alert",
+    "reproduce_alerts",
+    "VALUE_RTOL",
+    "VALUE_ATOL",
+]
 
 VALUE_RTOL = 1e-5
 """Relative tolerance on a recomputed value: diagrams come from float32 Rips filtrations (float32
@@ -61,7 +69,8 @@ class Check:
 @dataclass(frozen=True)
 class ReproduceReport:
     """Outcome of reproducing one alert: ``ok`` when every check passed (``exact`` if the value and
-    threshold came out bit-identical)."""
+    threshold came out bit-identical).
+    """
 
     alert_id: int
     ok: bool
@@ -74,8 +83,16 @@ class ReproduceReport:
         return tuple(c for c in self.checks if not c.ok)
 
 
-def archive_run(store: Store, portfolio: str, result: MonitorResult, config: Config | None = None, *,
-                source: str | None = None, raised_at: datetime | None = None, explain: bool = True) -> RunReport:
+def archive_run(
+    store: Store,
+    portfolio: str,
+    result: MonitorResult,
+    config: Config | None = None,
+    *,
+    source: str | None = None,
+    raised_at: datetime | None = None,
+    explain: bool = True,
+) -> RunReport:
     """Write a monitoring run into the archive and append the alerts its rules raise.
 
     Idempotent: windows already archived for this configuration keep their features and diagrams
@@ -117,8 +134,13 @@ def archive_run(store: Store, portfolio: str, result: MonitorResult, config: Con
             f"computed with (hash {result.config.hash()[:12]}); pass result.config or run monitor again"
         )
     store.ensure_portfolio(portfolio)
-    manifest = RunManifest(config=config.to_mapping(), config_hash=config.hash(), input_hash=result.input_hash,
-                           package_version=result.package_version, source=source)
+    manifest = RunManifest(
+        config=config.to_mapping(),
+        config_hash=config.hash(),
+        input_hash=result.input_hash,
+        package_version=result.package_version,
+        source=source,
+    )
     held = set(store.window_ends(portfolio, manifest.config_hash))
     run = store.create_run(portfolio, manifest, result.prices)
     features = store.write_features(run.id, result.features)
@@ -128,32 +150,49 @@ def archive_run(store: Store, portfolio: str, result: MonitorResult, config: Con
     skipped = (len(result.window_ends) - len(fresh)) * len(dims)  # archived already: kept, not compared
     diagrams = WriteCount(added=written.added, existing=written.existing + skipped, differing=written.differing)
     stamp = (raised_at or datetime.now(timezone.utc)).astimezone(timezone.utc)
-    archived = {(a.rule, a.window_end) for a in store.list_alerts(portfolio=portfolio, limit=None).items
-                if a.config_hash == manifest.config_hash}
+    archived = {
+        (a.rule, a.window_end)
+        for a in store.list_alerts(portfolio=portfolio, limit=None).items
+        if a.config_hash == manifest.config_hash
+    }
     firings = evaluate_rules(result.features, config.alerts.rules)
     new = [f for f in firings if (f.rule, f.window_end.date()) not in archived]
     alerts = [
-        Alert(portfolio=portfolio, firing=f, raised_at=stamp, config_hash=manifest.config_hash,
-              inputs_hash=result.window_inputs_hash(f.window_end), package_version=result.package_version,
-              explanation=explanation_json(result, f) if explain else None)
+        Alert(
+            portfolio=portfolio,
+            firing=f,
+            raised_at=stamp,
+            config_hash=manifest.config_hash,
+            inputs_hash=result.window_inputs_hash(f.window_end),
+            package_version=result.package_version,
+            explanation=explanation_json(result, f) if explain else None,
+        )
         for f in new
     ]
     appended = store.append_alerts(alerts, run.id)
     already = appended.existing + len(firings) - len(new)  # found archived before explaining them
-    return RunReport(run=run, features=features, diagrams=diagrams,
-                     alerts=AlertAppend(added=appended.added, existing=already))
+    return RunReport(
+        run=run, features=features, diagrams=diagrams, alerts=AlertAppend(added=appended.added, existing=already)
+    )
 
 
 def _close(archived: float, recomputed: float) -> bool:
     return math.isclose(archived, recomputed, rel_tol=VALUE_RTOL, abs_tol=VALUE_ATOL)
 
 
-def _checks_for(alert: AlertRecord, config: Config, result: MonitorResult | None,
-                failure: str | None) -> ReproduceReport:
+def _checks_for(
+    alert: AlertRecord, config: Config, result: MonitorResult | None, failure: str | None
+) -> ReproduceReport:
     checks: list[Check] = []
     rule = next((r for r in config.alerts.rules if r.name == alert.rule), None)
-    checks.append(Check("rule in the run's configuration", rule is not None, alert.rule,
-                        alert.rule if rule is not None else "absent"))
+    checks.append(
+        Check(
+            "rule in the run's configuration",
+            rule is not None,
+            alert.rule,
+            alert.rule if rule is not None else "absent",
+        )
+    )
     if result is None or rule is None:
         if failure is not None:
             checks.append(Check("recomputation", False, "windows up to the alert", failure))
@@ -176,8 +215,9 @@ def _checks_for(alert: AlertRecord, config: Config, result: MonitorResult | None
     return ReproduceReport(alert.id, ok=ok, exact=ok and exact, checks=tuple(checks))
 
 
-def reproduce_alerts(store: Store, alert_ids: Sequence[int],
-                     compute: ComputeConfig | None = None) -> tuple[ReproduceReport, ...]:
+def reproduce_alerts(
+    store: Store, alert_ids: Sequence[int], compute: ComputeConfig | None = None
+) -> tuple[ReproduceReport, ...]:
     """Reproduce several alerts, recomputing each run once (up to its latest alert's window).
 
     Parameters
@@ -215,8 +255,9 @@ def reproduce_alerts(store: Store, alert_ids: Sequence[int],
             base.append(Check("configuration hash", again == run.config_hash, run.config_hash, again))
             if compute is not None:
                 config = config.replace(compute=compute)
-        prices = store.read_prices(run.portfolio, start=run.first_date, end=run.last_date, assets=run.assets,
-                                   as_of_run=run.id)
+        prices = store.read_prices(
+            run.portfolio, start=run.first_date, end=run.last_date, assets=run.assets, as_of_run=run.id
+        )
         archived_hash = hash_prices(prices)
         base.append(Check("run prices hash", archived_hash == run.input_hash, run.input_hash, archived_hash))
         result: MonitorResult | None = None
@@ -228,8 +269,9 @@ def reproduce_alerts(store: Store, alert_ids: Sequence[int],
             except RiskshapeError as err:
                 failure = str(err)
         for alert in group:
-            own = Check("alert configuration hash", alert.config_hash == run.config_hash, alert.config_hash,
-                        run.config_hash)
+            own = Check(
+                "alert configuration hash", alert.config_hash == run.config_hash, alert.config_hash, run.config_hash
+            )
             report = _checks_for(alert, config or Config(), result, failure)
             checks = tuple(base) + (own,) + report.checks
             ok = all(c.ok for c in checks)

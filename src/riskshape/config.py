@@ -13,11 +13,12 @@ import hashlib
 import json
 import os
 import sys
+from collections.abc import Callable, Mapping
 from contextvars import ContextVar
 from functools import lru_cache
 from importlib import resources
 from pathlib import Path
-from typing import Any, Callable, Literal, Mapping
+from typing import Any, Literal
 
 from pydantic import BaseModel, ConfigDict, Field, ValidationError, model_validator
 
@@ -28,8 +29,16 @@ if sys.version_info >= (3, 11):
 else:  # pragma: no cover - exercised on Python 3.10 only
     import tomli as tomllib
 
-__all__ = ["Config", "ComputeConfig", "AlertsConfig", "RuleConfig", "ServiceSettings", "format_validation_error", "default_rules",
-           "store_url_from_env"]
+__all__ = [
+    "Config",
+    "ComputeConfig",
+    "AlertsConfig",
+    "RuleConfig",
+    "ServiceSettings",
+    "format_validation_error",
+    "default_rules",
+    "store_url_from_env",
+]
 
 Severity = Literal["info", "warning", "critical"]
 
@@ -112,7 +121,9 @@ class ComputeConfig(_Frozen):
     executor: Literal["serial", "process", "dask"] = "process"
     workers: int = Field(0, ge=0, description="processes for the local pool; 0 means one per core")
     scheduler: str | None = Field(None, description="Dask scheduler address, e.g. tcp://10.0.0.5:8786")
-    batch_windows: int = Field(64, ge=1, description="most windows sent to a worker at once (smaller batches keep every worker busy)")
+    batch_windows: int = Field(
+        64, ge=1, description="most windows sent to a worker at once (smaller batches keep every worker busy)"
+    )
 
 
 class RuleConfig(_Frozen):
@@ -136,7 +147,7 @@ class RuleConfig(_Frozen):
     severity: Severity = "warning"
 
     @model_validator(mode="after")
-    def _check_levels(self) -> "RuleConfig":
+    def _check_levels(self) -> RuleConfig:
         if self.kind == "quantile":
             for key in ("threshold", "clear"):
                 value = getattr(self, key)
@@ -216,7 +227,7 @@ class Config(_Frozen):
     alerts: AlertsConfig = AlertsConfig()
 
     @classmethod
-    def from_toml(cls, path: str | os.PathLike[str]) -> "Config":
+    def from_toml(cls, path: str | os.PathLike[str]) -> Config:
         """Read a configuration file laid out like ``config/default.toml``.
 
         Parameters
@@ -245,7 +256,7 @@ class Config(_Frozen):
         return cls.from_mapping(data, where=str(file))
 
     @classmethod
-    def from_mapping(cls, data: Mapping[str, Any], where: str = "configuration") -> "Config":
+    def from_mapping(cls, data: Mapping[str, Any], where: str = "configuration") -> Config:
         """Build a Config from the nested mapping a TOML file holds (``monitor``, ``compute``, ``alerts``)."""
         unknown = set(data) - {"monitor", "compute", "alerts"}
         if unknown:
@@ -271,7 +282,7 @@ class Config(_Frozen):
         alerts = dumped.pop("alerts")
         return {"monitor": dumped, "compute": compute, "alerts": alerts}
 
-    def replace(self, **changes: Any) -> "Config":
+    def replace(self, **changes: Any) -> Config:
         """A copy with some fields changed, validated like a new Config."""
         data = self.model_dump()
         data.update(changes)
@@ -329,7 +340,7 @@ class ServiceSettings(_Frozen):
     result_cache_size: int = Field(128, ge=0)
 
     @classmethod
-    def from_env(cls, environ: Mapping[str, str] | None = None, **overrides: Any) -> "ServiceSettings":
+    def from_env(cls, environ: Mapping[str, str] | None = None, **overrides: Any) -> ServiceSettings:
         """Read ``RISKSHAPE_STORE_URL``, ``RISKSHAPE_MAX_BODY_BYTES``, ... then apply ``overrides``."""
         env = os.environ if environ is None else environ
         data: dict[str, Any] = {}

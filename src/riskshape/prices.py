@@ -16,9 +16,9 @@ window policy in :mod:`riskshape.compute.windows` decides who enters each window
 from __future__ import annotations
 
 import hashlib
-from collections.abc import Callable
 import os
 import warnings
+from collections.abc import Callable
 from pathlib import Path
 from typing import IO
 
@@ -202,7 +202,9 @@ def _to_wide(table: pd.DataFrame, source: str, first_line: int, row_label: str) 
         table = table.assign(__line__=np.arange(first_line, first_line + len(table)))
         table["date"] = _parse_dates(table["date"], source, table["__line__"].to_numpy(), row_label)
         if set(lower) == {"date", "asset", "price"}:
-            wide = _pivot_long(table.rename(columns={lower["asset"]: "asset", lower["price"]: "price"}), source, row_label)
+            wide = _pivot_long(
+                table.rename(columns={lower["asset"]: "asset", lower["price"]: "price"}), source, row_label
+            )
         else:
             wide = table.set_index("date")
             wide.columns = [str(c).strip() for c in wide.columns]

@@ -4,8 +4,8 @@ from __future__ import annotations
 
 from pathlib import Path
 
-from riskshape.config import Config, RuleConfig
 from riskshape.compute.monitor import feature_columns
+from riskshape.config import Config, RuleConfig
 
 DEFAULT_TOML = Path(__file__).resolve().parents[2] / "config" / "default.toml"
 

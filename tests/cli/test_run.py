@@ -49,8 +49,9 @@ def _expected(prices: Path, config: Path) -> MonitorResult:
     return monitor(read_prices(prices), Config.from_toml(config))
 
 
-def test_run_writes_every_output_and_they_match_the_api(price_files: Any, tmp_path: Path,
-                                                        capsys: pytest.CaptureFixture[str]) -> None:
+def test_run_writes_every_output_and_they_match_the_api(
+    price_files: Any, tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
     prices, config = _prices_file(price_files, tmp_path), _config_file(tmp_path)
     out = tmp_path / "results"
     _run("--prices", prices, "--config", config, "--out", out)
@@ -61,12 +62,14 @@ def test_run_writes_every_output_and_they_match_the_api(price_files: Any, tmp_pa
     expected = _expected(prices, config)
 
     features = pd.read_parquet(out / "features.parquet")
-    pd.testing.assert_frame_equal(features, expected.features, check_exact=True, check_freq=False,
-                                  check_index_type=False)
+    pd.testing.assert_frame_equal(
+        features, expected.features, check_exact=True, check_freq=False, check_index_type=False
+    )
     from_csv = pd.read_csv(out / "features.csv", index_col="window_end", parse_dates=["window_end"])
     assert list(from_csv.columns) == list(expected.features.columns)
-    np.testing.assert_allclose(from_csv.to_numpy(dtype=float), expected.features.to_numpy(dtype=float),
-                               rtol=1e-8, equal_nan=True)  # written with 9 significant digits
+    np.testing.assert_allclose(
+        from_csv.to_numpy(dtype=float), expected.features.to_numpy(dtype=float), rtol=1e-8, equal_nan=True
+    )  # written with 9 significant digits
 
     diagrams = pd.read_parquet(out / "diagrams.parquet")
     assert set(diagrams.columns) == {"window_end", "dim", "birth", "death"}
@@ -92,8 +95,9 @@ def test_run_writes_every_output_and_they_match_the_api(price_files: Any, tmp_pa
     assert manifest["n_windows"] == len(expected.window_ends)
 
 
-def test_input_hash_follows_the_prices_and_config_hash_the_config(price_files: Any, tmp_path: Path,
-                                                                  capsys: pytest.CaptureFixture[str]) -> None:
+def test_input_hash_follows_the_prices_and_config_hash_the_config(
+    price_files: Any, tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
     config = _config_file(tmp_path)
     table = price_files.table(40)
     first = price_files.write(table, tmp_path / "a.csv")
@@ -110,7 +114,9 @@ def test_input_hash_follows_the_prices_and_config_hash_the_config(price_files: A
     assert three["config_hash"] != one["config_hash"]
 
 
-def _assert_refused(out: Path, capsys: pytest.CaptureFixture[str], fragments: tuple[str, ...], *args: str | Path) -> None:
+def _assert_refused(
+    out: Path, capsys: pytest.CaptureFixture[str], fragments: tuple[str, ...], *args: str | Path
+) -> None:
     with pytest.raises(SystemExit) as stopped:
         _run(*args)
     assert stopped.value.code == 2
@@ -123,56 +129,77 @@ def _assert_refused(out: Path, capsys: pytest.CaptureFixture[str], fragments: tu
     assert not missing, f"{missing} not in {lines[0]!r}"
 
 
-def test_bad_input_exits_2_with_one_line_and_writes_nothing(bad_price_file: Any, tmp_path: Path,
-                                                             capsys: pytest.CaptureFixture[str]) -> None:
+def test_bad_input_exits_2_with_one_line_and_writes_nothing(
+    bad_price_file: Any, tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
     out = tmp_path / "results"
     config = _config_file(tmp_path, window=bad_price_file.min_rows - 1)
-    _assert_refused(out, capsys, bad_price_file.fragments,
-                    "--prices", bad_price_file.path, "--config", config, "--out", out)
+    _assert_refused(
+        out, capsys, bad_price_file.fragments, "--prices", bad_price_file.path, "--config", config, "--out", out
+    )
     assert not out.exists()
     assert not list(tmp_path.glob(".riskshape-*"))
 
 
-def test_an_existing_out_folder_is_left_as_it_was(price_files: Any, tmp_path: Path,
-                                                  capsys: pytest.CaptureFixture[str]) -> None:
+def test_an_existing_out_folder_is_left_as_it_was(
+    price_files: Any, tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
     out = tmp_path / "results"
     out.mkdir()
     (out / "notes.txt").write_text("mine")
     table = price_files.table()
     table.loc[12, "ALD"] = "-1"
     bad = price_files.write(table, tmp_path / "bad.csv")
-    _assert_refused(out, capsys, ("bad.csv", "line 14", "'ALD'"),
-                    "--prices", bad, "--config", _config_file(tmp_path), "--out", out)
+    _assert_refused(
+        out, capsys, ("bad.csv", "line 14", "'ALD'"), "--prices", bad, "--config", _config_file(tmp_path), "--out", out
+    )
     assert [p.name for p in out.iterdir()] == ["notes.txt"]
     assert (out / "notes.txt").read_text() == "mine"
 
 
-def test_bad_config_and_missing_file_are_refused_in_one_line(price_files: Any, tmp_path: Path,
-                                                             capsys: pytest.CaptureFixture[str]) -> None:
+def test_bad_config_and_missing_file_are_refused_in_one_line(
+    price_files: Any, tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
     prices = _prices_file(price_files, tmp_path)
     out = tmp_path / "results"
     config = _config_file(tmp_path, extra="windw = 30")
     _assert_refused(out, capsys, ("riskshape.toml", "windw"), "--prices", prices, "--config", config, "--out", out)
-    _assert_refused(out, capsys, ("missing.csv", "no such file"),
-                    "--prices", tmp_path / "missing.csv", "--config", _config_file(tmp_path), "--out", out)
+    _assert_refused(
+        out,
+        capsys,
+        ("missing.csv", "no such file"),
+        "--prices",
+        tmp_path / "missing.csv",
+        "--config",
+        _config_file(tmp_path),
+        "--out",
+        out,
+    )
     assert not out.exists()
 
 
-def test_unsorted_dates_warn_and_give_the_sorted_result(price_files: Any, tmp_path: Path,
-                                                        capsys: pytest.CaptureFixture[str]) -> None:
+def test_unsorted_dates_warn_and_give_the_sorted_result(
+    price_files: Any, tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
     config = _config_file(tmp_path)
     table = price_files.table(50)
     ordered = price_files.write(table, tmp_path / "ordered.csv")
-    shuffled = price_files.write(table.sample(frac=1.0, random_state=np.random.default_rng(8)), tmp_path / "shuffled.csv")
+    shuffled = price_files.write(
+        table.sample(frac=1.0, random_state=np.random.default_rng(8)), tmp_path / "shuffled.csv"
+    )
     _run("--prices", ordered, "--config", config, "--out", tmp_path / "a")
     with pytest.warns(DataQualityWarning, match="sorted"):
         _run("--prices", shuffled, "--config", config, "--out", tmp_path / "b")
-    pd.testing.assert_frame_equal(pd.read_parquet(tmp_path / "a" / "features.parquet"),
-                                  pd.read_parquet(tmp_path / "b" / "features.parquet"), check_exact=True)
+    pd.testing.assert_frame_equal(
+        pd.read_parquet(tmp_path / "a" / "features.parquet"),
+        pd.read_parquet(tmp_path / "b" / "features.parquet"),
+        check_exact=True,
+    )
 
 
-def test_long_layout_gives_the_same_run_as_wide(price_files: Any, tmp_path: Path,
-                                                capsys: pytest.CaptureFixture[str]) -> None:
+def test_long_layout_gives_the_same_run_as_wide(
+    price_files: Any, tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
     config = _config_file(tmp_path)
     wide_table = price_files.table(50)
     wide_table.loc[:9, "DOV"] = ""
@@ -183,8 +210,9 @@ def test_long_layout_gives_the_same_run_as_wide(price_files: Any, tmp_path: Path
     _run("--prices", wide, "--config", config, "--out", tmp_path / "w")
     _run("--prices", long, "--config", config, "--out", tmp_path / "l")
     for name in ("features.parquet", "diagrams.parquet"):
-        pd.testing.assert_frame_equal(pd.read_parquet(tmp_path / "w" / name), pd.read_parquet(tmp_path / "l" / name),
-                                      check_exact=True)
+        pd.testing.assert_frame_equal(
+            pd.read_parquet(tmp_path / "w" / name), pd.read_parquet(tmp_path / "l" / name), check_exact=True
+        )
     hashes = [json.loads((tmp_path / n / "manifest.json").read_text())["input_hash"] for n in ("w", "l")]
     assert hashes[0] == hashes[1]
 
@@ -197,8 +225,13 @@ def test_the_installed_command_refuses_bad_input_in_one_line(price_files: Any, t
     table.loc[4, "CYN"] = "n/a?"
     bad = price_files.write(table, tmp_path / "bad.csv")
     out = tmp_path / "results"
-    done = subprocess.run([command, "run", "--prices", str(bad), "--out", str(out)],
-                          capture_output=True, text=True, timeout=120, check=False)
+    done = subprocess.run(
+        [command, "run", "--prices", str(bad), "--out", str(out)],
+        capture_output=True,
+        text=True,
+        timeout=120,
+        check=False,
+    )
     assert done.returncode == 2
     lines = done.stderr.strip().splitlines()
     assert len(lines) == 1 and lines[0].startswith("riskshape: error: "), done.stderr

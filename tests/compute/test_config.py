@@ -18,15 +18,20 @@ def test_the_documented_defaults_are_the_defaults() -> None:
     assert Config.from_mapping(Config().to_mapping()) == Config()
 
 
-@pytest.mark.parametrize("text, words", [
-    ("[monitor]\nwindow = 2\n", ("'monitor.window'", "greater than or equal to 5", "(got 2)")),
-    ("[monitor]\nwindwo = 60\n", ("unknown key 'monitor.windwo'",)),
-    ("[compute]\nexecutor = 'gpu'\n", ("'compute.executor'", "'gpu'")),
-    ("[alerts]\n[[alerts.rules]]\nname = 'q'\nsummary = 'mean_correlation'\nkind = 'quantile'\nthreshold = 1.5\n",
-     ("'alerts.rules.0'", "must lie in (0, 1)", "1.5")),
-    ("[monitors]\nwindow = 60\n", ("unknown section", "monitors")),
-    ("[monitor\nwindow = 60\n", ("not valid TOML",)),
-])  # fmt: skip
+@pytest.mark.parametrize(
+    "text, words",
+    [
+        ("[monitor]\nwindow = 2\n", ("'monitor.window'", "greater than or equal to 5", "(got 2)")),
+        ("[monitor]\nwindwo = 60\n", ("unknown key 'monitor.windwo'",)),
+        ("[compute]\nexecutor = 'gpu'\n", ("'compute.executor'", "'gpu'")),
+        (
+            "[alerts]\n[[alerts.rules]]\nname = 'q'\nsummary = 'mean_correlation'\nkind = 'quantile'\nthreshold = 1.5\n",
+            ("'alerts.rules.0'", "must lie in (0, 1)", "1.5"),
+        ),
+        ("[monitors]\nwindow = 60\n", ("unknown section", "monitors")),
+        ("[monitor\nwindow = 60\n", ("not valid TOML",)),
+    ],
+)
 def test_bad_files_name_the_file_and_the_key(tmp_path: Path, text: str, words: tuple[str, ...]) -> None:
     path = tmp_path / "mine.toml"
     path.write_text(text)

@@ -34,8 +34,11 @@ def gappy_prices(rng: np.random.Generator) -> pd.DataFrame:
     n_days, names = 90, ["AMB", "BIR", "CED", "DUN", "LATE", "GONE", "HOLE", "FLAT"]
     factor = rng.normal(0.0, 0.01, (n_days, 1))
     returns = 0.6 * factor + rng.normal(0.0, 0.01, (n_days, len(names)))
-    prices = pd.DataFrame(100.0 * np.exp(np.cumsum(returns, axis=0)), columns=names,
-                          index=pd.bdate_range("2032-03-01", periods=n_days, name="date"))
+    prices = pd.DataFrame(
+        100.0 * np.exp(np.cumsum(returns, axis=0)),
+        columns=names,
+        index=pd.bdate_range("2032-03-01", periods=n_days, name="date"),
+    )
     prices.iloc[:35, 4] = np.nan  # LATE lists on day 35
     prices.iloc[62:, 5] = np.nan  # GONE delists after day 61
     prices.iloc[[20, 21, 50], 6] = np.nan  # HOLE misses three days (each hole costs two returns)
@@ -79,12 +82,14 @@ def test_log_and_simple_returns_match_pandas(gappy_prices: pd.DataFrame) -> None
     base = Config(window=WINDOW, step=10, compute={"executor": "serial"})
     log = monitor(gappy_prices, base)
     expected_log = np.log(gappy_prices).diff().iloc[1:]
-    pd.testing.assert_frame_equal(log.returns, expected_log, check_exact=False, rtol=1e-9, atol=1e-15,
-                                  check_names=False, check_freq=False)
+    pd.testing.assert_frame_equal(
+        log.returns, expected_log, check_exact=False, rtol=1e-9, atol=1e-15, check_names=False, check_freq=False
+    )
     simple = monitor(gappy_prices, base.replace(returns="simple"))
     expected_simple = gappy_prices.pct_change(fill_method=None).iloc[1:]
-    pd.testing.assert_frame_equal(simple.returns, expected_simple, check_exact=False, rtol=1e-9, atol=1e-15,
-                                  check_names=False, check_freq=False)
+    pd.testing.assert_frame_equal(
+        simple.returns, expected_simple, check_exact=False, rtol=1e-9, atol=1e-15, check_names=False, check_freq=False
+    )
     # the option reaches the features: simple and log returns give (slightly) different correlations
     assert not np.allclose(simple.features["mean_correlation"], log.features["mean_correlation"], rtol=1e-9)
 

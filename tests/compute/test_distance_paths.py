@@ -39,7 +39,9 @@ def _general(rng: np.random.Generator, n: int) -> np.ndarray:
     return np.column_stack([birth, birth + rng.exponential(0.3, n) + 1e-3])
 
 
-def _consecutive_diagrams(rng: np.random.Generator, n_assets: int, window: int, count: int) -> list[tuple[np.ndarray, ...]]:
+def _consecutive_diagrams(
+    rng: np.random.Generator, n_assets: int, window: int, count: int
+) -> list[tuple[np.ndarray, ...]]:
     """Diagrams of consecutive windows of factor-model returns (what the monitor compares)."""
     days = window + count
     common = rng.standard_normal(days)[:, None] * rng.uniform(0.4, 1.0, n_assets)
@@ -47,8 +49,7 @@ def _consecutive_diagrams(rng: np.random.Generator, n_assets: int, window: int, 
     sector = rng.standard_normal((days, 5))[:, groups] * rng.uniform(0.3, 0.9, n_assets)
     returns = 0.01 * (common + sector + rng.standard_normal((days, n_assets)))
     return [
-        compute_diagrams(correlation_to_distance(correlation_matrix(returns[k : k + window])), 1)
-        for k in range(count)
+        compute_diagrams(correlation_to_distance(correlation_matrix(returns[k : k + window])), 1) for k in range(count)
     ]
 
 

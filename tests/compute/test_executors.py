@@ -85,8 +85,8 @@ def test_spawned_workers_pin_blas_themselves(monkeypatch: pytest.MonkeyPatch) ->
 
     from threadpoolctl import threadpool_info
 
-    from riskshape.compute.monitor import settings_of
     from riskshape.compute.batch import preload
+    from riskshape.compute.monitor import settings_of
 
     monkeypatch.setattr("riskshape.compute.executors._start_method", lambda: "spawn")
     executor = ProcessExecutor(2, preload=partial(preload, settings_of(Config(window=30, maxdim=1))))
@@ -158,7 +158,9 @@ def test_cli_run_on_a_dask_cluster_equals_serial(small_prices: pd.DataFrame, clu
         "dask": ["--executor", "dask", "--scheduler", cluster.scheduler_address],  # type: ignore[attr-defined]
     }.items():
         out = tmp_path / name
-        done = runner.invoke(cli, ["run", "--prices", str(prices_csv), "--config", str(config_toml), "--out", str(out), *options])
+        done = runner.invoke(
+            cli, ["run", "--prices", str(prices_csv), "--config", str(config_toml), "--out", str(out), *options]
+        )
         assert done.exit_code == 0, done.output
         outputs[name] = out
     features = {name: pd.read_parquet(out / "features.parquet") for name, out in outputs.items()}

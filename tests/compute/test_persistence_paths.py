@@ -42,7 +42,7 @@ def test_giotto_equals_ripser_bit_for_bit(rng: np.random.Generator, assets: int)
 
 
 def _plain_ripser(distance: np.ndarray) -> list[np.ndarray]:
-    """ripser on the original numbering, finite non-zero bars sorted as compute_diagrams sorts them."""
+    """Ripser on the original numbering, finite non-zero bars sorted as compute_diagrams sorts them."""
     out = []
     for raw in ripser(distance, maxdim=1, distance_matrix=True)["dgms"]:
         bars = raw.astype(np.float32).astype(float)

@@ -26,8 +26,9 @@ def _prices(rng: np.random.Generator, n_days: int = 61, n_assets: int = 4, scale
 
 
 def _config(standardize: bool) -> Config:
-    return Config(window=60, step=1, embedding="point_cloud", standardize_cloud=standardize,
-                  compute={"executor": "serial"})
+    return Config(
+        window=60, step=1, embedding="point_cloud", standardize_cloud=standardize, compute={"executor": "serial"}
+    )
 
 
 @pytest.mark.parametrize("standardize", [False, True])

@@ -103,8 +103,14 @@ def _frame(price_files: Any, n_rows: int = 30) -> pd.DataFrame:
     [
         (lambda f: f.iloc[:20], ("20 dates", "at least 21")),
         (lambda f: f[["ALD", "BRK"]], ("2 asset column",)),
-        (lambda f: f.assign(CYN=f["CYN"].where(f.index != f.index[5], 0.0)), ("date 2031-01-09", "'CYN'", "not positive")),
-        (lambda f: f.assign(ALD=f["ALD"].where(f.index != f.index[8], np.inf)), ("date 2031-01-14", "'ALD'", "infinite")),
+        (
+            lambda f: f.assign(CYN=f["CYN"].where(f.index != f.index[5], 0.0)),
+            ("date 2031-01-09", "'CYN'", "not positive"),
+        ),
+        (
+            lambda f: f.assign(ALD=f["ALD"].where(f.index != f.index[8], np.inf)),
+            ("date 2031-01-14", "'ALD'", "infinite"),
+        ),
     ],
     ids=["too-few-rows", "too-few-assets", "zero-price", "infinite"],
 )
@@ -127,7 +133,8 @@ def test_validate_prices_keeps_a_clean_dataframe_as_it_is(price_files: Any) -> N
 def test_input_hash_does_not_depend_on_how_the_dates_were_stored(price_files: Any, tmp_path: Path, unit: str) -> None:
     """The same dates, assets and prices give the same hash, however they were read
     (riskshape.prices.hash_prices docstring). A Parquet file may store timestamps in any unit
-    (pandas 2 and many writers use nanoseconds); a CSV file reads at pandas' default unit."""
+    (pandas 2 and many writers use nanoseconds); a CSV file reads at pandas' default unit.
+    """
     table = price_files.table()
     from_csv = read_prices(price_files.write(table, tmp_path / "prices.csv"))
     typed = table.assign(date=pd.DatetimeIndex(pd.to_datetime(table["date"])).as_unit(unit)).astype(

@@ -14,11 +14,11 @@ import pandas as pd
 import pytest
 
 from riskshape import Config, monitor
+from riskshape.compute.batch import WindowResult, compute_batch
 from riskshape.compute.distance import correlation_matrix
+from riskshape.compute.moments import RECOMPUTE_EVERY, RollingMoments, is_rebuild_point
 from riskshape.compute.monitor import settings_of
 from riskshape.compute.persistence import compute_diagrams
-from riskshape.compute.moments import RECOMPUTE_EVERY, RollingMoments, is_rebuild_point
-from riskshape.compute.batch import WindowResult, compute_batch
 from riskshape.compute.windows import window_end_positions
 
 FLOAT32_STEP = 2.0**-22  # two float32 ulps at values in [1, 2), the range of correlation distances
@@ -81,7 +81,8 @@ def test_batch_with_running_sums_equals_plain_batch(
     plain = compute_batch(values, ends, plain_settings)
     # the running sums served exactly the windows where no admitted asset missed a return
     complete = [
-        not np.isnan(values[end - config.window + 1 : end + 1][:, result.used]).any() for end, result in zip(ends, plain)
+        not np.isnan(values[end - config.window + 1 : end + 1][:, result.used]).any()
+        for end, result in zip(ends, plain)
     ]
     assert sum(used_sums) == sum(complete) > 20
 
@@ -143,5 +144,9 @@ def test_summaries_at_once_equal_the_functions_one_by_one(rng: np.random.Generat
         summary = summarize_diagram(dgm)
         assert summary.as_tuple() == tuple(getattr(summary, name) for name in SUMMARY_NAMES)
         assert summary.as_tuple() == (
-            len(dgm), total_persistence(dgm), persistent_entropy(dgm), landscape_norm(dgm, 1.0), landscape_norm(dgm, 2.0)
+            len(dgm),
+            total_persistence(dgm),
+            persistent_entropy(dgm),
+            landscape_norm(dgm, 1.0),
+            landscape_norm(dgm, 2.0),
         )

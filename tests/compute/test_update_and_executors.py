@@ -12,10 +12,10 @@ import pandas as pd
 import pytest
 
 from riskshape import Config, DataError, MonitorResult, monitor
+from riskshape.compute.batch import compute_batch
 from riskshape.compute.executors import DaskExecutor, SerialExecutor
 from riskshape.compute.monitor import settings_of
 from riskshape.demo.scenario import Scenario
-from riskshape.compute.batch import compute_batch
 
 WINDOW = 12
 
@@ -27,8 +27,13 @@ def _prices(scenario: Scenario) -> pd.DataFrame:
 
 
 def _config(step: int, **compute: object) -> Config:
-    return Config(window=WINDOW, step=step, maxdim=1, engine="ripser",
-                  compute={"executor": "serial", "batch_windows": 5, **compute})
+    return Config(
+        window=WINDOW,
+        step=step,
+        maxdim=1,
+        engine="ripser",
+        compute={"executor": "serial", "batch_windows": 5, **compute},
+    )
 
 
 def assert_same_result(a: MonitorResult, b: MonitorResult) -> None:

@@ -30,8 +30,14 @@ def test_window_ends_are_anchored_and_evenly_spaced(window: int, step: int, n: i
 
 
 ENGINE_MODULES = [  # the engine modules that carry examples
-    "riskshape.compute.returns", "riskshape.compute.windows", "riskshape.compute.distance", "riskshape.compute.persistence",
-    "riskshape.compute.summaries", "riskshape.compute.monitor", "riskshape.demo.scenario", "riskshape.config",
+    "riskshape.compute.returns",
+    "riskshape.compute.windows",
+    "riskshape.compute.distance",
+    "riskshape.compute.persistence",
+    "riskshape.compute.summaries",
+    "riskshape.compute.monitor",
+    "riskshape.demo.scenario",
+    "riskshape.config",
 ]
 
 

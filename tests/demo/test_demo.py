@@ -24,7 +24,10 @@ def demo_run(tmp_path_factory: pytest.TempPathFactory) -> tuple[Path, subprocess
     out = tmp_path_factory.mktemp("demo")
     done = subprocess.run(
         [sys.executable, "-m", "riskshape", "demo", "--out", str(out)],
-        capture_output=True, text=True, timeout=300, check=False,
+        capture_output=True,
+        text=True,
+        timeout=300,
+        check=False,
     )
     return out, done
 
@@ -34,8 +37,16 @@ def test_demo_exits_cleanly_and_prints_the_caution(demo_run: tuple[Path, subproc
     assert done.returncode == 0, done.stderr
     assert CAUTION in done.stdout
     assert "Traceback" not in done.stderr
-    for name in ("prices.csv", "run/features.csv", "run/features.parquet", "run/diagrams.parquet",
-                 "run/manifest.json", "summaries.png", "summaries.svg", "stress_diagram.png"):
+    for name in (
+        "prices.csv",
+        "run/features.csv",
+        "run/features.parquet",
+        "run/diagrams.parquet",
+        "run/manifest.json",
+        "summaries.png",
+        "summaries.svg",
+        "stress_diagram.png",
+    ):
         assert (out / name).is_file(), name
 
 

@@ -19,7 +19,8 @@ WINDOW = 80
 
 def merging_market(rng: np.random.Generator, merge_at: int, n_days: int) -> tuple[pd.DataFrame, dict[str, str]]:
     """Four sectors of six assets, each driven by its own factor; from day ``merge_at`` on, Alder and
-    Birch also share a strong common factor (so their assets become correlated across the two sectors)."""
+    Birch also share a strong common factor (so their assets become correlated across the two sectors).
+    """
     names = [f"{s[:3].upper()}{k + 1}" for s in SECTORS for k in range(PER_SECTOR)]
     sector_of = np.repeat(np.arange(len(SECTORS)), PER_SECTOR)
     factors = rng.standard_normal((n_days, len(SECTORS)))
@@ -30,7 +31,9 @@ def merging_market(rng: np.random.Generator, merge_at: int, n_days: int) -> tupl
     after = np.arange(n_days) >= merge_at
     # after the merge: 0.85 shared + 0.35 own sector + 0.39 noise (unit variance, as before)
     returns[np.ix_(after, joined)] = (
-        0.85 * shared[after, None] + 0.35 * factors[np.ix_(after, sector_of[joined])] + 0.39 * noise[np.ix_(after, joined)]
+        0.85 * shared[after, None]
+        + 0.35 * factors[np.ix_(after, sector_of[joined])]
+        + 0.39 * noise[np.ix_(after, joined)]
     )
     dates = pd.bdate_range("2040-01-02", periods=n_days + 1, name="date")
     prices = 50.0 * np.exp(np.vstack([np.zeros(len(names)), np.cumsum(0.01 * returns, axis=0)]))

@@ -6,7 +6,7 @@ import json
 
 import pytest
 
-from riskshape import Config, DataError, monitor
+from riskshape import DataError, monitor
 from riskshape.explain import Explanation, explain_alert, summary_dimension
 
 

@@ -9,16 +9,19 @@ from ripser import ripser
 from scipy.spatial.distance import pdist, squareform
 
 from riskshape import Config, monitor
+from riskshape.demo.scenario import generate_scenario
 from riskshape.explain import explain_alert
 from riskshape.explain.loops import canonical_cycle, cycle_from_cocycle, representative_cycles, track_loop
-from riskshape.demo.scenario import generate_scenario
 
 
 def circle_points(rng: np.random.Generator, n: int, jitter: float) -> tuple[np.ndarray, np.ndarray]:
     """``n`` points on a circle of random radius, angles evenly spaced then jittered by up to
-    ``jitter`` of the spacing, listed in a random order. Returns the points and their angles."""
+    ``jitter`` of the spacing, listed in a random order. Returns the points and their angles.
+    """
     spacing = 2 * np.pi / n
-    angles = (np.arange(n) * spacing + rng.uniform(-jitter, jitter, n) * spacing + rng.uniform(0, 2 * np.pi)) % (2 * np.pi)
+    angles = (np.arange(n) * spacing + rng.uniform(-jitter, jitter, n) * spacing + rng.uniform(0, 2 * np.pi)) % (
+        2 * np.pi
+    )
     order = rng.permutation(n)
     angles = angles[order]
     radius = rng.uniform(0.5, 20.0)
@@ -51,7 +54,8 @@ def test_cycle_on_a_circle_visits_every_point_in_circular_order(rng: np.random.G
 
 def test_cycle_pairs_with_its_cocycle(rng: np.random.Generator) -> None:
     """The recovered cycle is closed in the Rips graph below death and meets the cocycle an odd number
-    of times (Z/2 coefficients): it carries the class (de Silva, Morozov & Vejdemo-Johansson 2011)."""
+    of times (Z/2 coefficients): it carries the class (de Silva, Morozov & Vejdemo-Johansson 2011).
+    """
     for _ in range(20):
         points = np.vstack([circle_points(rng, 12, 0.3)[0], circle_points(rng, 9, 0.3)[0] + 30.0])
         points += 0.05 * rng.standard_normal(points.shape)

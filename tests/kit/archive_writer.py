@@ -12,9 +12,9 @@ import time
 from pathlib import Path
 
 import numpy as np
-from tests.kit.archive import make_alerts
 
 from riskshape.store import open_store
+from tests.kit.archive import make_alerts
 
 
 def main(url: str, run_id: int, rule: str, count: int, go_file: str | None) -> None:

@@ -1,5 +1,6 @@
 """Helpers of the service tests: a small configuration whose rules fire on a short history, and
-price bodies in the layouts the API accepts."""
+price bodies in the layouts the API accepts.
+"""
 
 from __future__ import annotations
 
@@ -58,23 +59,30 @@ def long_rows(prices: pd.DataFrame) -> dict[str, object]:
     """The long JSON body: one {date, asset, price} per cell, missing prices left out."""
     rows = [
         {"date": stamp.strftime("%Y-%m-%d"), "asset": str(asset), "price": float(value)}
-        for stamp, row in prices.iterrows() for asset, value in row.items() if np.isfinite(value)
-    ]  # fmt: skip
+        for stamp, row in prices.iterrows()
+        for asset, value in row.items()
+        if np.isfinite(value)
+    ]
     return {"rows": rows}
 
 
 def wide_rows(prices: pd.DataFrame) -> dict[str, object]:
     """The wide JSON body: one {date, prices} per date, missing prices as null."""
-    return {"wide": [
-        {"date": stamp.strftime("%Y-%m-%d"),
-         "prices": {str(a): (float(v) if np.isfinite(v) else None) for a, v in row.items()}}
-        for stamp, row in prices.iterrows()
-    ]}  # fmt: skip
+    return {
+        "wide": [
+            {
+                "date": stamp.strftime("%Y-%m-%d"),
+                "prices": {str(a): (float(v) if np.isfinite(v) else None) for a, v in row.items()},
+            }
+            for stamp, row in prices.iterrows()
+        ]
+    }
 
 
 def cautioned(response: object) -> object:
     """Check the caution on a response (header always; ``caution`` field when the body is a JSON
-    object) and return the decoded body (or the text when it is not JSON)."""
+    object) and return the decoded body (or the text when it is not JSON).
+    """
     from riskshape.caution import CAUTION
 
     headers = response.headers  # type: ignore[attr-defined]

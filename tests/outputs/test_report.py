@@ -17,16 +17,31 @@ from riskshape import CAUTION, Config, monitor
 from riskshape.alerts.model import Alert
 from riskshape.alerts.rules import evaluate_rules
 from riskshape.cli import main
+from riskshape.demo.scenario import generate_scenario
 from riskshape.explain import explain_alert
 from riskshape.outputs.report import collect_review, render_html, write_report
-from riskshape.demo.scenario import generate_scenario
 from riskshape.store import RunManifest, Store, chain_head, open_store, verify_chain
 
 RULES = [
-    {"name": "h0-high", "summary": "h0_total_persistence", "kind": "quantile", "threshold": 0.9,
-     "min_history": 10, "lookback": 40, "cooldown": 4},
-    {"name": "h1-high", "summary": "h1_landscape_l1", "kind": "quantile", "threshold": 0.9,
-     "min_history": 10, "lookback": 40, "cooldown": 4, "severity": "critical"},
+    {
+        "name": "h0-high",
+        "summary": "h0_total_persistence",
+        "kind": "quantile",
+        "threshold": 0.9,
+        "min_history": 10,
+        "lookback": 40,
+        "cooldown": 4,
+    },
+    {
+        "name": "h1-high",
+        "summary": "h1_landscape_l1",
+        "kind": "quantile",
+        "threshold": 0.9,
+        "min_history": 10,
+        "lookback": 40,
+        "cooldown": 4,
+        "severity": "critical",
+    },
 ]
 PERIOD = ("2031-05-01", "2032-04-30")
 COMMENT = 'checked <b>by hand</b> & "fine"'
@@ -36,13 +51,22 @@ def record_run(store: Store, portfolio: str, result) -> tuple:
     """Archive a run through the store's public API: prices and manifest, features, alerts of its rules."""
     config = result.config
     store.ensure_portfolio(portfolio)
-    manifest = RunManifest(config=config.to_mapping(), config_hash=config.hash(), input_hash=result.input_hash,
-                           package_version=result.package_version, source="test")
+    manifest = RunManifest(
+        config=config.to_mapping(),
+        config_hash=config.hash(),
+        input_hash=result.input_hash,
+        package_version=result.package_version,
+        source="test",
+    )
     run = store.create_run(portfolio, manifest, result.prices)
     store.write_features(run.id, result.features)
     raised = pd.Timestamp("2033-01-03", tz="UTC").to_pydatetime()
-    alerts = [Alert(portfolio, f, raised, manifest.config_hash, result.window_inputs_hash(f.window_end),
-                    result.package_version) for f in evaluate_rules(result.features, config.alerts.rules)]
+    alerts = [
+        Alert(
+            portfolio, f, raised, manifest.config_hash, result.window_inputs_hash(f.window_end), result.package_version
+        )
+        for f in evaluate_rules(result.features, config.alerts.rules)
+    ]
     return store.append_alerts(alerts, run.id).added
 
 
@@ -150,7 +174,9 @@ def test_tampered_archive_is_reported(archive, tmp_path: Path) -> None:
 def test_backwards_period_is_one_line_error(archive, tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
     url, _, _, _ = archive
     with pytest.raises(SystemExit) as exit_info:
-        main(["report", "--store", url, "--from", "2032-01-01", "--to", "2031-01-01", "--out", str(tmp_path / "x.html")])
+        main(
+            ["report", "--store", url, "--from", "2032-01-01", "--to", "2031-01-01", "--out", str(tmp_path / "x.html")]
+        )
     assert exit_info.value.code == 2
     err = capsys.readouterr().err.strip()
     assert err.startswith("riskshape: error:") and "backwards" in err and "\n" not in err
@@ -159,17 +185,30 @@ def test_backwards_period_is_one_line_error(archive, tmp_path: Path, capsys: pyt
 CHROMIUM = shutil.which("chromium") or shutil.which("chromium-browser")
 
 
-@pytest.mark.skipif(CHROMIUM is None, reason="Debian's chromium is not installed (apt-get install chromium; .ci/run does)")
+@pytest.mark.skipif(
+    CHROMIUM is None, reason="Debian's chromium is not installed (apt-get install chromium; .ci/run does)"
+)
 def test_report_renders_in_headless_chromium(archive, tmp_path: Path) -> None:
     url, _, _, _ = archive
     with open_store(url) as store:
         write_report(collect_review(store, *PERIOD), tmp_path / "review.html")
     shot = tmp_path / "shot.png"
     command = [
-        str(CHROMIUM), "--headless", "--no-sandbox", "--disable-gpu", "--disable-background-networking",
-        "--disable-component-update", "--disable-sync", "--no-first-run", f"--user-data-dir={tmp_path / 'profile'}",
-        "--enable-logging=stderr", "--v=0", "--hide-scrollbars", "--window-size=1200,2400",
-        f"--screenshot={shot}", (tmp_path / "review.html").as_uri(),
+        str(CHROMIUM),
+        "--headless",
+        "--no-sandbox",
+        "--disable-gpu",
+        "--disable-background-networking",
+        "--disable-component-update",
+        "--disable-sync",
+        "--no-first-run",
+        f"--user-data-dir={tmp_path / 'profile'}",
+        "--enable-logging=stderr",
+        "--v=0",
+        "--hide-scrollbars",
+        "--window-size=1200,2400",
+        f"--screenshot={shot}",
+        (tmp_path / "review.html").as_uri(),
     ]
     done = subprocess.run(command, capture_output=True, text=True, timeout=120, check=False)
     assert done.returncode == 0, done.stderr[-2000:]
@@ -199,8 +238,21 @@ def test_pdf_holds_the_same_report(archive, tmp_path: Path) -> None:
 
     url, _, _, _ = archive
     pdf = tmp_path / "review.pdf"
-    main(["report", "--store", url, "--from", PERIOD[0], "--to", PERIOD[1], "--out", str(tmp_path / "r.html"),
-          "--pdf", str(pdf)])
+    main(
+        [
+            "report",
+            "--store",
+            url,
+            "--from",
+            PERIOD[0],
+            "--to",
+            PERIOD[1],
+            "--out",
+            str(tmp_path / "r.html"),
+            "--pdf",
+            str(pdf),
+        ]
+    )
     reader = pypdf.PdfReader(pdf)
     text = "".join("".join(page.extract_text().split()) for page in reader.pages)  # no whitespace: lines wrap
     with open_store(url) as store:

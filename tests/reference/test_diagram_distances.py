@@ -38,8 +38,11 @@ def _pairs(rng: np.random.Generator) -> list[tuple[np.ndarray, np.ndarray]]:
     pairs = [(_random_diagram(rng, n), _random_diagram(rng, m)) for n, m in sizes]
     pairs += [(_random_diagram(rng, n, h0=True), _random_diagram(rng, m, h0=True)) for n, m in [(5, 5), (7, 10)]]
     # larger pairs too (the engine may switch solver with size), including equal-size H0 pairs
-    pairs += [(_random_diagram(rng, 80), _random_diagram(rng, 70)), (_random_diagram(rng, 90, h0=True),
-              _random_diagram(rng, 90, h0=True)), (_random_diagram(rng, 8, h0=True), _random_diagram(rng, 8, h0=True))]
+    pairs += [
+        (_random_diagram(rng, 80), _random_diagram(rng, 70)),
+        (_random_diagram(rng, 90, h0=True), _random_diagram(rng, 90, h0=True)),
+        (_random_diagram(rng, 8, h0=True), _random_diagram(rng, 8, h0=True)),
+    ]
     near = _random_diagram(rng, 40, h0=True)  # consecutive windows: close H0 diagrams of equal size
     pairs.append((near, near + np.column_stack([np.zeros(40), rng.normal(0.0, 0.01, 40)])))
     same = _random_diagram(rng, 6)

@@ -19,8 +19,8 @@ from scipy.spatial.distance import pdist, squareform
 from riskshape import Config, MonitorResult, monitor
 from riskshape.compute.distance import correlation_matrix, correlation_to_distance
 from riskshape.compute.persistence import compute_diagrams
-from riskshape.demo.scenario import Scenario
 from riskshape.compute.windows import select_assets
+from riskshape.demo.scenario import Scenario
 
 
 def _scipy_merge_heights(distance: np.ndarray) -> np.ndarray:
@@ -79,13 +79,18 @@ def test_h0_on_scenario_windows_matches_single_linkage(small_scenario: Scenario)
 def test_h0_features_drop_the_infinite_bar_and_sum_the_merge_heights(small_scenario: Scenario) -> None:
     """The infinite H0 bar is left out of every summary (our documented convention): n assets give
     n - 1 finite bars, and total persistence is the sum of the single-linkage heights (scipy).
-    The single-linkage path (maxdim=0) and ripser (maxdim=1) give the same H0 features."""
+    The single-linkage path (maxdim=0) and ripser (maxdim=1) give the same H0 features.
+    """
     base = Config(window=40, step=30, engine="ripser", compute={"executor": "serial"})
     with_loops = monitor(small_scenario.prices, base.replace(maxdim=1))
     clusters_only = monitor(small_scenario.prices, base.replace(maxdim=0))
     h0_columns = [c for c in clusters_only.features.columns if c.startswith("h0_")]
-    np.testing.assert_allclose(clusters_only.features[h0_columns].to_numpy(), with_loops.features[h0_columns].to_numpy(),
-                               rtol=1e-7, equal_nan=True)
+    np.testing.assert_allclose(
+        clusters_only.features[h0_columns].to_numpy(),
+        with_loops.features[h0_columns].to_numpy(),
+        rtol=1e-7,
+        equal_nan=True,
+    )
     for end in with_loops.window_ends:
         row = with_loops.features.loc[end]
         assert row["h0_n_bars"] == row["n_assets"] - 1

@@ -57,7 +57,8 @@ def test_empty_diagram_has_zero_norms() -> None:
 
 def test_nested_bars_worked_by_hand() -> None:
     """(0, 4) and (1, 3): the small tent lies under the big one, so lambda_1 is the big tent
-    (h = 2, area 4) and lambda_2 the small one (h = 1, area 1). L1 = 5; L2^2 = 2*8/3 + 2*1/3 = 6."""
+    (h = 2, area 4) and lambda_2 the small one (h = 1, area 1). L1 = 5; L2^2 = 2*8/3 + 2*1/3 = 6.
+    """
     dgm = np.array([[0.0, 4.0], [1.0, 3.0]])
     assert landscape_norm(dgm, 1.0) == pytest.approx(5.0)
     assert landscape_norm(dgm, 2.0) == pytest.approx(np.sqrt(6.0))
@@ -71,7 +72,8 @@ def test_overlapping_bars_worked_by_hand() -> None:
     """(0, 4) and (2, 6): the tents cross at t = 3 (height 1). lambda_2 is the small triangle on
     [2, 4] under the crossing, area 1; lambda_1 is the rest, area 8 - 1 = 7; L1 = 8.
     lambda_2 = 1 - |t - 3| on [2, 4]: integral of its square is 2/3; lambda_1^2 integrates to
-    2 * (2 * 8 / 3) - 2/3 = 10; L2 = sqrt(10 + 2/3) = sqrt(32 / 3)."""
+    2 * (2 * 8 / 3) - 2/3 = 10; L2 = sqrt(10 + 2/3) = sqrt(32 / 3).
+    """
     dgm = np.array([[0.0, 4.0], [2.0, 6.0]])
     grid = np.linspace(0.0, 6.0, 60_001)
     layers = _layers_on_grid(dgm, grid)

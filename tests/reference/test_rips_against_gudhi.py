@@ -74,7 +74,8 @@ def test_h2_agrees_with_gudhi_on_small_matrices(rng: np.random.Generator) -> Non
 
 def test_octahedron_has_one_h2_bar_like_gudhi() -> None:
     """The six vertices +-e_i of R^3: a 2-sphere (octahedron) from sqrt(2) to 2 (worked by hand:
-    every edge but the three antipodal diagonals has length sqrt(2), the diagonals have length 2)."""
+    every edge but the three antipodal diagonals has length sqrt(2), the diagonals have length 2).
+    """
     points = np.vstack([np.eye(3), -np.eye(3)])
     distance = squareform(pdist(points))
     ours = compute_diagrams(distance, maxdim=2, engine="ripser")

@@ -16,6 +16,7 @@ import pytest
 from scipy.spatial.distance import mahalanobis
 
 from riskshape import monitor
+from riskshape.errors import DataError
 from riskshape.research.baselines import (
     BASELINE_COLUMNS,
     absorption_ratio,
@@ -24,7 +25,6 @@ from riskshape.research.baselines import (
     portfolio_volatility,
     turbulence,
 )
-from riskshape.errors import DataError
 
 
 def test_absorption_ratio_two_assets_matches_closed_form_eigenvalues() -> None:

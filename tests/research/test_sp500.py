@@ -23,9 +23,9 @@ import pytest
 from scipy.sparse.csgraph import minimum_spanning_tree
 
 from riskshape import Config, monitor
-from riskshape.research.baselines import compute_baselines
 from riskshape.compute.distance import correlation_matrix, correlation_to_distance
 from riskshape.compute.windows import select_assets
+from riskshape.research.baselines import compute_baselines
 
 datasets = pytest.importorskip("skfolio.datasets", reason="skfolio (test extra) carries the S&P 500 dataset")
 

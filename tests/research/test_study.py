@@ -12,13 +12,18 @@ from scipy.stats import mannwhitneyu
 
 from riskshape import Config, monitor
 from riskshape.alerts.rules import evaluate_rule
+from riskshape.compute.returns import to_returns
 from riskshape.config import RuleConfig
+from riskshape.demo.scenario import generate_scenario
 from riskshape.errors import DataError
-from riskshape.research.events import DrawdownEvents, equal_weight_wealth, events_from_periods, portfolio_drawdown_events
+from riskshape.research.events import (
+    DrawdownEvents,
+    equal_weight_wealth,
+    events_from_periods,
+    portfolio_drawdown_events,
+)
 from riskshape.research.study import event_labels, event_study, study_table
 from riskshape.research.surrogates import surrogate
-from riskshape.compute.returns import to_returns
-from riskshape.demo.scenario import generate_scenario
 
 CAL = pd.bdate_range("2030-01-01", periods=60)
 
@@ -164,8 +169,16 @@ def rng_children(n: int) -> list[np.random.Generator]:
 
 def test_rule_alerts_are_the_alert_engines_firings(demo) -> None:
     result = monitor(demo.prices, DEMO)
-    rule = RuleConfig(name="low_h0", summary="h0_total_persistence", kind="quantile", threshold=0.05,
-                      clear=0.2, direction="below", lookback=100, min_history=30)
+    rule = RuleConfig(
+        name="low_h0",
+        summary="h0_total_persistence",
+        kind="quantile",
+        threshold=0.05,
+        clear=0.2,
+        direction="below",
+        lookback=100,
+        min_history=30,
+    )
     events = portfolio_drawdown_events(result.prices, 0.2, 126)
     study = event_study(result.features[rule.summary], events, alerts=rule, direction="below")
     fired = [f.window_end for f in evaluate_rule(result.features[rule.summary], rule)]

@@ -13,8 +13,8 @@ import pandas as pd
 import pytest
 
 from riskshape import Config, monitor
-from riskshape.errors import ConfigError, DataError
 from riskshape.compute.monitor import settings_of
+from riskshape.errors import ConfigError, DataError
 from riskshape.research.surrogates import (
     METHODS,
     WindowSummaries,
@@ -53,10 +53,14 @@ def test_shuffle_keeps_each_assets_values_and_destroys_correlation(rng: np.rando
 def test_phase_randomisation_keeps_periodograms_and_the_sample_covariance(rng: np.random.Generator) -> None:
     block = _factor_block(rng, days=65)  # odd length: no Nyquist term
     out = surrogate(block, "phase", rng)
-    np.testing.assert_allclose(np.abs(np.fft.rfft(out, axis=0)), np.abs(np.fft.rfft(block, axis=0)), rtol=1e-9, atol=1e-14)
+    np.testing.assert_allclose(
+        np.abs(np.fft.rfft(out, axis=0)), np.abs(np.fft.rfft(block, axis=0)), rtol=1e-9, atol=1e-14
+    )
     np.testing.assert_allclose(np.cov(out, rowvar=False), np.cov(block, rowvar=False), rtol=1e-9, atol=1e-14)
     even = _factor_block(rng, days=64)
-    np.testing.assert_allclose(np.cov(surrogate(even, "phase", rng), rowvar=False), np.cov(even, rowvar=False), rtol=1e-9, atol=1e-14)
+    np.testing.assert_allclose(
+        np.cov(surrogate(even, "phase", rng), rowvar=False), np.cov(even, rowvar=False), rtol=1e-9, atol=1e-14
+    )
 
 
 def test_iaaft_keeps_values_exactly_and_spectra_and_correlations_approximately(rng: np.random.Generator) -> None:
@@ -110,7 +114,9 @@ def test_zscores_flag_correlation_structure_against_shuffles(rng: np.random.Gene
     assert abs(calm.loc["mean_correlation", "z"]) < 3
 
 
-def test_rolling_zscores_cover_the_chosen_windows(small_prices: pd.DataFrame, small_config: Config, rng: np.random.Generator) -> None:
+def test_rolling_zscores_cover_the_chosen_windows(
+    small_prices: pd.DataFrame, small_config: Config, rng: np.random.Generator
+) -> None:
     result = monitor(small_prices, small_config)
     ends = result.window_ends[[10, 50]]
     table = rolling_surrogate_zscores(result, 5, "gaussian", rng, window_ends=ends)
@@ -119,5 +125,7 @@ def test_rolling_zscores_cover_the_chosen_windows(small_prices: pd.DataFrame, sm
     observed = table.set_index(["window_end", "summary"])["observed"]
     # the observed summaries are the monitor's own
     for end in ends:
-        assert observed[(end, "h0_total_persistence")] == pytest.approx(result.features.loc[end, "h0_total_persistence"])
+        assert observed[(end, "h0_total_persistence")] == pytest.approx(
+            result.features.loc[end, "h0_total_persistence"]
+        )
         assert observed[(end, "mean_correlation")] == pytest.approx(result.features.loc[end, "mean_correlation"])

@@ -1,5 +1,6 @@
 """Fixtures of the service tests: an archive in a temporary SQLite file, one API key per role,
-and an app (FastAPI TestClient) over them with a small configuration."""
+and an app (FastAPI TestClient) over them with a small configuration.
+"""
 
 from __future__ import annotations
 
@@ -10,12 +11,12 @@ import pandas as pd
 import pytest
 from fastapi import FastAPI
 from fastapi.testclient import TestClient
-from tests.kit.service import ROLES, write_config
 
 from riskshape.config import ServiceSettings
 from riskshape.demo.scenario import generate_scenario
 from riskshape.store import open_store
 from riskshape_service import create_app
+from tests.kit.service import ROLES, write_config
 
 
 @pytest.fixture(scope="session")
@@ -39,8 +40,12 @@ def keys(store_url: str) -> dict[str, str]:
 @pytest.fixture
 def make_settings(store_url: str, tmp_path: Path) -> Callable[..., ServiceSettings]:
     def make(**overrides: object) -> ServiceSettings:
-        values: dict[str, object] = {"store_url": store_url, "config_path": str(write_config(tmp_path)),
-                                     "rate_limit_per_minute": 100_000, "rate_limit_burst": 100_000}
+        values: dict[str, object] = {
+            "store_url": store_url,
+            "config_path": str(write_config(tmp_path)),
+            "rate_limit_per_minute": 100_000,
+            "rate_limit_burst": 100_000,
+        }
         values.update(overrides)
         return ServiceSettings(**values)
 

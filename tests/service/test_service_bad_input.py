@@ -1,6 +1,7 @@
 """Bad input gets a 4xx that says what is wrong, never a 500: malformed JSON and CSV, unknown
 portfolios, dates out of order, prices that fail validation, oversize bodies (declared and
-chunked), page sizes over the cap, conflicting revisions, keys in the URL, rate limits."""
+chunked), page sizes over the cap, conflicting revisions, keys in the URL, rate limits.
+"""
 
 from __future__ import annotations
 
@@ -9,11 +10,11 @@ from collections.abc import Callable, Iterator
 import pandas as pd
 import pytest
 from fastapi.testclient import TestClient
-from tests.kit.service import cautioned, csv_body, long_rows, wide_rows
 
 from riskshape.config import ServiceSettings
 from riskshape.store import open_store
 from riskshape_service import create_app
+from tests.kit.service import cautioned, csv_body, long_rows, wide_rows
 
 Auth = Callable[[str], dict[str, str]]
 CSV = {"Content-Type": "text/csv"}
@@ -25,11 +26,14 @@ def portfolio(client: TestClient, auth: Auth) -> str:
     return "p"
 
 
-def post_prices(client: TestClient, auth: Auth, body: object, *, csv: bool = False, correction: bool = False,
-                name: str = "p"):
+def post_prices(
+    client: TestClient, auth: Auth, body: object, *, csv: bool = False, correction: bool = False, name: str = "p"
+):
     params = {"correction": "true"} if correction else None
     if csv:
-        return client.post(f"/v1/portfolios/{name}/prices", content=body, params=params, headers={**auth("ingest"), **CSV})
+        return client.post(
+            f"/v1/portfolios/{name}/prices", content=body, params=params, headers={**auth("ingest"), **CSV}
+        )
     return client.post(f"/v1/portfolios/{name}/prices", json=body, params=params, headers=auth("ingest"))
 
 
@@ -44,32 +48,45 @@ def refused(response, status: int, *words: str) -> str:
 
 
 def test_malformed_json(client: TestClient, auth: Auth, portfolio: str) -> None:
-    response = client.post("/v1/portfolios/p/prices", content=b'{"rows": [', headers={**auth("ingest"), "Content-Type": "application/json"})
+    response = client.post(
+        "/v1/portfolios/p/prices", content=b'{"rows": [', headers={**auth("ingest"), "Content-Type": "application/json"}
+    )
     refused(response, 422, "malformed JSON")
-    response = client.post("/v1/portfolios", content=b"{name: 1}", headers={**auth("admin"), "Content-Type": "application/json"})
+    response = client.post(
+        "/v1/portfolios", content=b"{name: 1}", headers={**auth("admin"), "Content-Type": "application/json"}
+    )
     refused(response, 422, "malformed JSON")
 
 
 def test_json_that_does_not_fit_the_schema(client: TestClient, auth: Auth, portfolio: str) -> None:
-    refused(post_prices(client, auth, {"rows": [{"date": "2031-01-02", "asset": "A", "price": "abc"}]}), 422,
-            "body.rows.0.price", "'abc'")
+    refused(
+        post_prices(client, auth, {"rows": [{"date": "2031-01-02", "asset": "A", "price": "abc"}]}),
+        422,
+        "body.rows.0.price",
+        "'abc'",
+    )
     refused(post_prices(client, auth, {"rows": [], "wide": []}), 422, "rows")
-    refused(post_prices(client, auth, {"wide": [{"date": "31/01/2031", "prices": {"A": 1.0}}]}), 422, "body.wide.0.date")
+    refused(
+        post_prices(client, auth, {"wide": [{"date": "31/01/2031", "prices": {"A": 1.0}}]}), 422, "body.wide.0.date"
+    )
 
 
-@pytest.mark.parametrize("text, words", [
-    (b"date,A,B,C\n2031-01-02,1,2\n2031-01-03,1,2,3,4\n", ("malformed CSV",)),
-    (b"\xff\xfe\x00d\x00a", ("not UTF-8",)),
-    (b"", ("empty",)),
-    (b"date,A,B,C\n", ("no data lines",)),
-    (b"day,A,B,C\n2031-01-02,1,2,3\n", ("no 'date' column",)),
-    (b"date,A,B,C\n2031-01-02,1,two,3\n", ("line 2", "column 'B'", "'two'")),
-    (b"date,A,B,C\n2031-01-02,1,-2,3\n", ("column 'B'", "not positive")),
-    (b"date,A,B,C\n2031-13-02,1,2,3\n", ("line 2", "2031-13-02")),
-    (b"date,A,B\n2031-01-02,1,2\n", ("at least 3",)),
-    (b"date,A,A,B\n2031-01-02,1,2,3\n", ("'A' appears twice",)),
-    (b"date,A,,B\n2031-01-02,1,2,3\n", ("no name",)),
-])  # fmt: skip
+@pytest.mark.parametrize(
+    "text, words",
+    [
+        (b"date,A,B,C\n2031-01-02,1,2\n2031-01-03,1,2,3,4\n", ("malformed CSV",)),
+        (b"\xff\xfe\x00d\x00a", ("not UTF-8",)),
+        (b"", ("empty",)),
+        (b"date,A,B,C\n", ("no data lines",)),
+        (b"day,A,B,C\n2031-01-02,1,2,3\n", ("no 'date' column",)),
+        (b"date,A,B,C\n2031-01-02,1,two,3\n", ("line 2", "column 'B'", "'two'")),
+        (b"date,A,B,C\n2031-01-02,1,-2,3\n", ("column 'B'", "not positive")),
+        (b"date,A,B,C\n2031-13-02,1,2,3\n", ("line 2", "2031-13-02")),
+        (b"date,A,B\n2031-01-02,1,2\n", ("at least 3",)),
+        (b"date,A,A,B\n2031-01-02,1,2,3\n", ("'A' appears twice",)),
+        (b"date,A,,B\n2031-01-02,1,2,3\n", ("no name",)),
+    ],
+)
 def test_malformed_or_invalid_csv(client: TestClient, auth: Auth, portfolio: str, text: bytes, words: tuple) -> None:
     refused(post_prices(client, auth, text, csv=True), 422, *words)
 
@@ -77,8 +94,12 @@ def test_malformed_or_invalid_csv(client: TestClient, auth: Auth, portfolio: str
 def test_dates_out_of_order_are_refused(client: TestClient, auth: Auth, portfolio: str) -> None:
     text = b"date,A,B,C\n2031-01-03,1,2,3\n2031-01-02,1,2,3\n"
     refused(post_prices(client, auth, text, csv=True), 422, "line 3", "out of order")
-    body = {"wide": [{"date": "2031-01-03", "prices": {"A": 1, "B": 2, "C": 3}},
-                     {"date": "2031-01-02", "prices": {"A": 1, "B": 2, "C": 3}}]}
+    body = {
+        "wide": [
+            {"date": "2031-01-03", "prices": {"A": 1, "B": 2, "C": 3}},
+            {"date": "2031-01-02", "prices": {"A": 1, "B": 2, "C": 3}},
+        ]
+    }
     refused(post_prices(client, auth, body), 422, "wide 1", "out of order")
 
 
@@ -86,7 +107,9 @@ def test_unknown_portfolio_and_unsupported_media(client: TestClient, auth: Auth,
     refused(post_prices(client, auth, wide_rows(scenario_prices.iloc[:2]), name="nowhere"), 404, "'nowhere'")
     refused(client.get("/v1/portfolios/nowhere/latest", headers=auth("reader")), 404, "'nowhere'")
     refused(client.get("/v1/portfolios/nowhere/series", headers=auth("reader")), 404, "'nowhere'")
-    response = client.post("/v1/portfolios/nowhere/prices", content=b"x", headers={**auth("ingest"), "Content-Type": "text/plain"})
+    response = client.post(
+        "/v1/portfolios/nowhere/prices", content=b"x", headers={**auth("ingest"), "Content-Type": "text/plain"}
+    )
     refused(response, 415, "text/plain")
 
 
@@ -96,7 +119,9 @@ def test_conflicting_revision_is_409_unless_a_correction(
     first = scenario_prices.iloc[:3]
     assert post_prices(client, auth, csv_body(first), csv=True).status_code == 200
     same = cautioned(post_prices(client, auth, long_rows(first)))
-    assert same["prices_added"] == 0 and same["corrections"] == 0 and same["unchanged"] == int(first.notna().sum().sum())
+    assert (
+        same["prices_added"] == 0 and same["corrections"] == 0 and same["unchanged"] == int(first.notna().sum().sum())
+    )
     revised = first.copy()
     revised.iloc[1, 2] *= 1.01
     asset = str(revised.columns[2])
@@ -112,8 +137,9 @@ def test_conflicting_revision_is_409_unless_a_correction(
     assert again["corrections"] == 0  # idempotent too
 
 
-def test_a_date_inside_the_history_and_an_unknown_asset(client: TestClient, auth: Auth, portfolio: str,
-                                                        scenario_prices: pd.DataFrame) -> None:
+def test_a_date_inside_the_history_and_an_unknown_asset(
+    client: TestClient, auth: Auth, portfolio: str, scenario_prices: pd.DataFrame
+) -> None:
     assert post_prices(client, auth, csv_body(scenario_prices.iloc[[0, 2]]), csv=True).status_code == 200
     refused(post_prices(client, auth, wide_rows(scenario_prices.iloc[[1]])), 422, "inside the archived history")
     extra = scenario_prices.iloc[[3]].assign(NEWCO=10.0)
@@ -168,7 +194,9 @@ def test_missing_invalid_and_revoked_keys_are_401(client: TestClient, keys: dict
     refused(client.get("/v1/portfolios", headers={"X-Riskshape-Key": keys["reader"]}), 401, "revoked")
 
 
-def test_rate_limit_answers_429_with_retry_after(make_settings: Callable[..., ServiceSettings], keys: dict[str, str]) -> None:
+def test_rate_limit_answers_429_with_retry_after(
+    make_settings: Callable[..., ServiceSettings], keys: dict[str, str]
+) -> None:
     app = create_app(make_settings(rate_limit_per_minute=1, rate_limit_burst=2))
     with TestClient(app) as client:
         reader = {"X-Riskshape-Key": keys["reader"]}
@@ -191,5 +219,7 @@ def test_an_archive_that_cannot_be_opened_is_reported_not_hidden(tmp_path, keys:
     with TestClient(create_app(settings)) as client:
         health = client.get("/v1/health")
         body = cautioned(health)
-        assert health.status_code == 503 and body["status"] == "degraded" and "missing-folder" in body["store"]["detail"]
+        assert (
+            health.status_code == 503 and body["status"] == "degraded" and "missing-folder" in body["store"]["detail"]
+        )
         refused(client.get("/v1/portfolios", headers={"X-Riskshape-Key": keys["reader"]}), 503, "not open")

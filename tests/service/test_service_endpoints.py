@@ -1,5 +1,6 @@
 """Endpoint tests over a SQLite archive (FastAPI TestClient): what each endpoint returns, checked
-against the library computing the same thing directly (riskshape.monitor on the same prices)."""
+against the library computing the same thing directly (riskshape.monitor on the same prices).
+"""
 
 from __future__ import annotations
 
@@ -13,13 +14,13 @@ import pandas as pd
 import pytest
 from fastapi.testclient import TestClient
 from prometheus_client.parser import text_string_to_metric_families
-from tests.kit.service import cautioned, csv_body, long_rows, wide_rows
 
 from riskshape import monitor
 from riskshape.archive import reproduce_alert
 from riskshape.caution import CAUTION
 from riskshape.store import open_store
 from riskshape_service.logs import JsonFormatter
+from tests.kit.service import cautioned, csv_body, long_rows, wide_rows
 
 Auth = Callable[[str], dict[str, str]]
 N_FIRST = 45  # price dates ingested by the `loaded` fixture
@@ -29,8 +30,11 @@ N_FIRST = 45  # price dates ingested by the `loaded` fixture
 def loaded(client: TestClient, auth: Auth, scenario_prices: pd.DataFrame) -> dict[str, object]:
     """Portfolio 'alpha' with the first N_FIRST dates ingested as one CSV body."""
     assert client.post("/v1/portfolios", json={"name": "alpha"}, headers=auth("admin")).status_code == 201
-    response = client.post("/v1/portfolios/alpha/prices", content=csv_body(scenario_prices.iloc[:N_FIRST]),
-                           headers={**auth("ingest"), "Content-Type": "text/csv"})
+    response = client.post(
+        "/v1/portfolios/alpha/prices",
+        content=csv_body(scenario_prices.iloc[:N_FIRST]),
+        headers={**auth("ingest"), "Content-Type": "text/csv"},
+    )
     assert response.status_code == 200, response.text
     return cautioned(response)  # type: ignore[return-value]
 
@@ -60,8 +64,11 @@ def test_portfolios_create_list_and_conflict(client: TestClient, auth: Auth) -> 
 
 def test_a_portfolio_without_windows_has_an_empty_series_and_state(client: TestClient, auth: Auth) -> None:
     assert client.post("/v1/portfolios", json={"name": "empty"}, headers=auth("admin")).status_code == 201
-    page = cautioned(client.get("/v1/portfolios/empty/series", params={"start": "2031-01-01", "end": "2031-12-31"},
-                                headers=auth("reader")))
+    page = cautioned(
+        client.get(
+            "/v1/portfolios/empty/series", params={"start": "2031-01-01", "end": "2031-12-31"}, headers=auth("reader")
+        )
+    )
     assert page["total"] == 0 and page["rows"] == [] and page["next_offset"] is None
     state = cautioned(client.get("/v1/portfolios/empty/latest", headers=auth("reader")))
     assert state["n_windows"] == 0 and state["window_end"] is None and state["active_alerts"] == []
@@ -78,24 +85,28 @@ def test_ingest_reports_the_windows_it_computed(loaded: dict, batch) -> None:
 def test_a_correction_inside_the_windows_is_archived_and_used_from_then_on(
     client: TestClient, auth: Auth, loaded: dict, batch, scenario_prices: pd.DataFrame
 ) -> None:
-    prices = scenario_prices.iloc[:N_FIRST + 1].sort_index(axis=1)
+    prices = scenario_prices.iloc[: N_FIRST + 1].sort_index(axis=1)
     revised = prices.copy()
     day, asset = prices.index[30], str(prices.columns[0])
     revised.loc[day, asset] *= 1.05
     body = wide_rows(revised.loc[[day]])
     refused = client.post("/v1/portfolios/alpha/prices", json=body, headers=auth("ingest"))
     assert refused.status_code == 409 and asset in cautioned(refused)["detail"]
-    fixed = cautioned(client.post("/v1/portfolios/alpha/prices", json=body, params={"correction": True},
-                                  headers=auth("ingest")))
+    fixed = cautioned(
+        client.post("/v1/portfolios/alpha/prices", json=body, params={"correction": True}, headers=auth("ingest"))
+    )
     assert fixed["corrections"] == 1 and fixed["windows_added"] == 0
     # the windows holding that day's returns (day 30 and the next, up to the window length) would change
-    assert fixed["windows_differing"] == sum(1 for end in batch.window_ends
-                                             if prices.index[30] <= end <= prices.index[min(30 + 20, N_FIRST - 1)])
-    archived = cautioned(client.get("/v1/portfolios/alpha/series", params={"start": str(day.date()), "limit": 1},
-                                    headers=auth("reader")))
+    assert fixed["windows_differing"] == sum(
+        1 for end in batch.window_ends if prices.index[30] <= end <= prices.index[min(30 + 20, N_FIRST - 1)]
+    )
+    archived = cautioned(
+        client.get("/v1/portfolios/alpha/series", params={"start": str(day.date()), "limit": 1}, headers=auth("reader"))
+    )
     assert archived["rows"][0]["values"][2] == batch.features.loc[day, "mean_correlation"]  # kept as archived
-    following = cautioned(client.post("/v1/portfolios/alpha/prices", json=wide_rows(revised.iloc[[N_FIRST]]),
-                                      headers=auth("ingest")))
+    following = cautioned(
+        client.post("/v1/portfolios/alpha/prices", json=wide_rows(revised.iloc[[N_FIRST]]), headers=auth("ingest"))
+    )
     assert following["windows_added"] == 1
     expected = monitor(revised, batch.config).features.iloc[-1]  # the new window sees the corrected history
     got = cautioned(client.get("/v1/portfolios/alpha/latest", headers=auth("reader")))["values"]
@@ -119,8 +130,9 @@ def test_latest_state_is_the_last_window_of_the_batch(client: TestClient, auth: 
 def test_series_pages_join_up_to_the_batch_series(client: TestClient, auth: Auth, loaded: dict, batch) -> None:
     rows, offset = [], 0
     while offset is not None:
-        page = cautioned(client.get("/v1/portfolios/alpha/series", params={"limit": 7, "offset": offset},
-                                    headers=auth("reader")))
+        page = cautioned(
+            client.get("/v1/portfolios/alpha/series", params={"limit": 7, "offset": offset}, headers=auth("reader"))
+        )
         assert page["total"] == len(batch.window_ends) and len(page["rows"]) <= 7
         rows += page["rows"]
         offset = page["next_offset"]
@@ -132,10 +144,15 @@ def test_series_pages_join_up_to_the_batch_series(client: TestClient, auth: Auth
 
 def test_series_date_range_and_chosen_summaries(client: TestClient, auth: Auth, loaded: dict, batch) -> None:
     start, end = batch.window_ends[3].date(), batch.window_ends[9].date()
-    page = cautioned(client.get("/v1/portfolios/alpha/series", headers=auth("reader"), params={
-        "start": str(start), "end": str(end), "summaries": ["h1_entropy", "mean_correlation"]}))
+    page = cautioned(
+        client.get(
+            "/v1/portfolios/alpha/series",
+            headers=auth("reader"),
+            params={"start": str(start), "end": str(end), "summaries": ["h1_entropy", "mean_correlation"]},
+        )
+    )
     assert page["columns"] == ["h1_entropy", "mean_correlation"] and page["total"] == 7
-    expected = batch.features.loc[str(start):str(end), ["h1_entropy", "mean_correlation"]].to_numpy()
+    expected = batch.features.loc[str(start) : str(end), ["h1_entropy", "mean_correlation"]].to_numpy()
     np.testing.assert_array_equal(np.array([r["values"] for r in page["rows"]], dtype=float), expected)
 
 
@@ -148,13 +165,15 @@ def test_unknown_summary_is_422_naming_the_known_ones(client: TestClient, auth: 
 def test_diagram_is_the_windows_float32_bars(client: TestClient, auth: Auth, loaded: dict, batch) -> None:
     end = batch.window_ends[5]
     for dim in (0, 1):
-        body = cautioned(client.get(f"/v1/portfolios/alpha/diagrams/{end.date()}", params={"dim": dim},
-                                    headers=auth("reader")))
+        body = cautioned(
+            client.get(f"/v1/portfolios/alpha/diagrams/{end.date()}", params={"dim": dim}, headers=auth("reader"))
+        )
         expected = batch.diagram(end, dim)
         assert body["n_bars"] == len(expected)
         # the archive keeps float32 bars; ripser computes in float32, so the values are equal
-        np.testing.assert_array_equal(np.array(body["bars"], dtype=float).reshape(-1, 2),
-                                      expected.astype(np.float32).astype(float))
+        np.testing.assert_array_equal(
+            np.array(body["bars"], dtype=float).reshape(-1, 2), expected.astype(np.float32).astype(float)
+        )
     missing = client.get("/v1/portfolios/alpha/diagrams/2030-01-01", headers=auth("reader"))
     assert missing.status_code == 404 and "no diagram" in cautioned(missing)["detail"]
 
@@ -166,8 +185,13 @@ def test_alerts_filters_detail_and_provenance(client: TestClient, auth: Auth, lo
     assert all(a["severity"] == "critical" for a in critical["items"])
     assert critical["total"] == sum(a["severity"] == "critical" for a in everything["items"])
     first = everything["items"][0]
-    ranged = cautioned(client.get("/v1/alerts", headers=auth("reader"),
-                                  params={"since": first["window_end"], "until": first["window_end"], "rule": first["rule"]}))
+    ranged = cautioned(
+        client.get(
+            "/v1/alerts",
+            headers=auth("reader"),
+            params={"since": first["window_end"], "until": first["window_end"], "rule": first["rule"]},
+        )
+    )
     assert [a["id"] for a in ranged["items"]] == [first["id"]]
     detail = cautioned(client.get(f"/v1/alerts/{first['id']}", headers=auth("reader")))
     assert detail["alert"] == first and detail["reviews"] == []
@@ -191,13 +215,17 @@ def test_alerts_raised_through_the_service_reproduce_from_the_archive(loaded: di
 
 def test_review_records_the_keys_owner(client: TestClient, auth: Auth, loaded: dict) -> None:
     alert_id = loaded["alerts"][0]["id"]
-    made = client.post(f"/v1/alerts/{alert_id}/reviews", json={"action": "escalate", "comment": "looks real"},
-                       headers=auth("reviewer"))
+    made = client.post(
+        f"/v1/alerts/{alert_id}/reviews", json={"action": "escalate", "comment": "looks real"}, headers=auth("reviewer")
+    )
     assert made.status_code == 201
     review = cautioned(made)["review"]
     assert review["reviewer"] == "reviewer-owner" and review["action"] == "escalate"
-    forged = client.post(f"/v1/alerts/{alert_id}/reviews", headers=auth("reviewer"),
-                         json={"action": "dismiss", "reviewer": "someone-else"})
+    forged = client.post(
+        f"/v1/alerts/{alert_id}/reviews",
+        headers=auth("reviewer"),
+        json={"action": "dismiss", "reviewer": "someone-else"},
+    )
     assert forged.status_code == 422 and "reviewer" in cautioned(forged)["detail"]
     detail = cautioned(client.get(f"/v1/alerts/{alert_id}", headers=auth("reader")))
     assert [r["reviewer"] for r in detail["reviews"]] == ["reviewer-owner"]
@@ -240,8 +268,11 @@ def test_metrics_in_the_prometheus_text_format(client: TestClient, auth: Auth, l
     assert windows == [loaded["windows_added"]]
     raised = sum(s.value for s in families["riskshape_alerts_raised"].samples if s.name.endswith("_total"))
     assert raised == len(loaded["alerts"])
-    served = [s for s in families["riskshape_http_requests"].samples
-              if s.name.endswith("_total") and s.labels["route"] == "/v1/portfolios/{name}/latest"]
+    served = [
+        s
+        for s in families["riskshape_http_requests"].samples
+        if s.name.endswith("_total") and s.labels["route"] == "/v1/portfolios/{name}/latest"
+    ]
     assert served and served[0].labels["status"] == "200" and served[0].value == 1
     assert "riskshape_http_request_duration_seconds" in families
 
@@ -254,10 +285,13 @@ def test_the_three_body_layouts_archive_the_same_prices(
     client.post("/v1/portfolios", json={"name": "p"}, headers=auth("admin"))
     headers = auth("ingest")
     if layout == "csv":
-        response = client.post("/v1/portfolios/p/prices", content=csv_body(part), headers={**headers, "Content-Type": "text/csv"})
+        response = client.post(
+            "/v1/portfolios/p/prices", content=csv_body(part), headers={**headers, "Content-Type": "text/csv"}
+        )
     else:
-        response = client.post("/v1/portfolios/p/prices", json=(long_rows if layout == "long" else wide_rows)(part),
-                               headers=headers)
+        response = client.post(
+            "/v1/portfolios/p/prices", json=(long_rows if layout == "long" else wide_rows)(part), headers=headers
+        )
     body = cautioned(response)
     assert response.status_code == 200 and body["windows_added"] == 0 and "first window needs 21" in body["note"]
     with open_store(store_url) as store:
@@ -266,7 +300,9 @@ def test_the_three_body_layouts_archive_the_same_prices(
     pd.testing.assert_frame_equal(archived, part, check_names=False, check_freq=False, check_index_type=False)
 
 
-def test_logs_are_json_lines_with_the_request_id(client: TestClient, auth: Auth, caplog: pytest.LogCaptureFixture) -> None:
+def test_logs_are_json_lines_with_the_request_id(
+    client: TestClient, auth: Auth, caplog: pytest.LogCaptureFixture
+) -> None:
     with caplog.at_level(logging.INFO, logger="riskshape.service"):
         response = client.get("/v1/portfolios", headers={**auth("reader"), "X-Request-Id": "trace-42"})
     assert response.headers["X-Request-Id"] == "trace-42"

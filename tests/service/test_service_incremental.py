@@ -11,11 +11,11 @@ from collections.abc import Callable
 import numpy as np
 import pandas as pd
 from fastapi.testclient import TestClient
-from tests.kit.service import cautioned, wide_rows
 
 from riskshape import monitor
 from riskshape.alerts import evaluate_rules
 from riskshape.config import ServiceSettings
+from tests.kit.service import cautioned, wide_rows
 
 Auth = Callable[[str], dict[str, str]]
 N_DAYS = 48  # price dates: 28 windows of 20 returns
@@ -42,7 +42,9 @@ def test_day_by_day_equals_one_batch(client: TestClient, auth: Auth, scenario_pr
     for day in range(N_DAYS):
         # wide rows with nulls: an asset not yet priced (the scenario's late listing) is still one of the
         # portfolio's assets from the first day, as in the batch
-        response = client.post("/v1/portfolios/daily/prices", json=wide_rows(prices.iloc[[day]]), headers=auth("ingest"))
+        response = client.post(
+            "/v1/portfolios/daily/prices", json=wide_rows(prices.iloc[[day]]), headers=auth("ingest")
+        )
         body = cautioned(response)
         assert response.status_code == 200, response.text
         expected_new = 1 if day >= config.window else 0  # one new window a day once the first is complete
@@ -72,7 +74,8 @@ def test_a_portfolio_archived_elsewhere_is_continued_one_day_at_a_time(
 ) -> None:
     """A portfolio archived by the library directly (as ``riskshape run --store`` does), in its file's
     asset order, then fed by the service: the service rebuilds its result once from the archive and
-    adds only the new windows, equal to a batch over all the days."""
+    adds only the new windows, equal to a batch over all the days.
+    """
     from riskshape.archive import archive_run
     from riskshape.store import open_store
 
@@ -81,8 +84,9 @@ def test_a_portfolio_archived_elsewhere_is_continued_one_day_at_a_time(
     with open_store(store_url) as store:
         archive_run(store, "elsewhere", monitor(prices.iloc[:35], config), source="a file")
     for day in range(35, 40):
-        body = cautioned(client.post("/v1/portfolios/elsewhere/prices", json=wide_rows(prices.iloc[[day]]),
-                                     headers=auth("ingest")))
+        body = cautioned(
+            client.post("/v1/portfolios/elsewhere/prices", json=wide_rows(prices.iloc[[day]]), headers=auth("ingest"))
+        )
         assert body["windows_added"] == 1 and body["prices_added"] == prices.shape[1]
     batch = monitor(prices, config)
     page, rows = _all_pages(client, auth, "/v1/portfolios/elsewhere/series", "rows")
@@ -95,7 +99,8 @@ def test_without_cached_results_each_day_is_recomputed_from_the_archive_alike(
     make_settings: Callable[..., object], auth: Auth, scenario_prices: pd.DataFrame
 ) -> None:
     """RISKSHAPE_RESULT_CACHE_SIZE=0: no result stays in memory, every new day rebuilds the result from
-    the archive; two portfolios fed in turn get the batch's summaries all the same."""
+    the archive; two portfolios fed in turn get the batch's summaries all the same.
+    """
     from riskshape_service import create_app
 
     env = {f"RISKSHAPE_{k.upper()}": str(v) for k, v in make_settings().model_dump().items() if v is not None}
@@ -107,11 +112,16 @@ def test_without_cached_results_each_day_is_recomputed_from_the_archive_alike(
         ingestor = client.app.state.context.ingestor  # type: ignore[attr-defined]
         for name in ("first", "second"):
             assert client.post("/v1/portfolios", json={"name": name}, headers=auth("admin")).status_code == 201
-            cautioned(client.post(f"/v1/portfolios/{name}/prices", json=wide_rows(prices.iloc[:28]), headers=auth("ingest")))
+            cautioned(
+                client.post(f"/v1/portfolios/{name}/prices", json=wide_rows(prices.iloc[:28]), headers=auth("ingest"))
+            )
         for day in range(28, 32):
             for name in ("first", "second"):
-                body = cautioned(client.post(f"/v1/portfolios/{name}/prices", json=wide_rows(prices.iloc[[day]]),
-                                             headers=auth("ingest")))
+                body = cautioned(
+                    client.post(
+                        f"/v1/portfolios/{name}/prices", json=wide_rows(prices.iloc[[day]]), headers=auth("ingest")
+                    )
+                )
                 assert body["windows_added"] == 1
                 assert ingestor._cached(name) is None  # nothing kept: the next day recomputes
         batch = monitor(prices, config)

@@ -1,5 +1,6 @@
 """The service over the real PostgreSQL server (127.0.0.1:5432, database 'test', a fresh schema):
-ingest, poll, review and verify, as on SQLite. Skipped with the reason when the server is unreachable."""
+ingest, poll, review and verify, as on SQLite. Skipped with the reason when the server is unreachable.
+"""
 
 from __future__ import annotations
 
@@ -7,13 +8,13 @@ from collections.abc import Iterator
 
 import pytest
 from fastapi.testclient import TestClient
-from tests.kit.postgres import fresh_schema_url
-from tests.kit.service import cautioned, csv_body, write_config
 
 from riskshape.config import ServiceSettings
 from riskshape.demo.scenario import generate_scenario
 from riskshape.store import open_store
 from riskshape_service import create_app
+from tests.kit.postgres import fresh_schema_url
+from tests.kit.service import cautioned, csv_body, write_config
 
 pytestmark = pytest.mark.postgres
 
@@ -33,11 +34,17 @@ def test_ingest_poll_review_verify_on_postgresql(pg_url: str, tmp_path) -> None:
         health = cautioned(client.get("/v1/health"))
         assert health["store"]["dialect"] == "postgresql"
         assert client.post("/v1/portfolios", json={"name": "pg"}, headers=admin).status_code == 201
-        ingested = cautioned(client.post("/v1/portfolios/pg/prices", content=csv_body(prices),
-                                         headers={**admin, "Content-Type": "text/csv"}))
+        ingested = cautioned(
+            client.post(
+                "/v1/portfolios/pg/prices", content=csv_body(prices), headers={**admin, "Content-Type": "text/csv"}
+            )
+        )
         assert ingested["windows_added"] == len(prices) - 20 and ingested["alerts"]  # returns - window + 1
-        again = cautioned(client.post("/v1/portfolios/pg/prices", content=csv_body(prices),
-                                      headers={**admin, "Content-Type": "text/csv"}))
+        again = cautioned(
+            client.post(
+                "/v1/portfolios/pg/prices", content=csv_body(prices), headers={**admin, "Content-Type": "text/csv"}
+            )
+        )
         assert again["windows_added"] == 0 and again["alerts"] == []
         latest = cautioned(client.get("/v1/portfolios/pg/latest", headers=admin))
         assert latest["window_end"] == str(prices.index[-1].date())

@@ -14,13 +14,13 @@ from pathlib import Path
 
 import pytest
 from fastapi.testclient import TestClient
-from tests.kit.service import ROLES, cautioned, csv_body, write_config
 
 from riskshape.config import ServiceSettings
 from riskshape.demo.scenario import generate_scenario
 from riskshape.store import open_store
 from riskshape_service import create_app
 from riskshape_service.auth import Permission, Role, may
+from tests.kit.service import ROLES, cautioned, csv_body, write_config
 
 
 @dataclass(frozen=True)
@@ -38,13 +38,16 @@ def world(tmp_path_factory: pytest.TempPathFactory) -> Iterator[World]:
     url = f"sqlite:///{folder / 'archive.sqlite'}"
     with open_store(url) as store:
         keys = {role: store.create_api_key(f"{role}-owner", role).token for role in ROLES}
-    settings = ServiceSettings(store_url=url, config_path=str(write_config(folder)), rate_limit_per_minute=100_000,
-                               rate_limit_burst=100_000)
+    settings = ServiceSettings(
+        store_url=url, config_path=str(write_config(folder)), rate_limit_per_minute=100_000, rate_limit_burst=100_000
+    )
     prices = csv_body(generate_scenario(seed=5, n_days=40, assets_per_sector=4).prices)
     with TestClient(create_app(settings)) as client:
         admin = {"X-Riskshape-Key": keys["admin"]}
         assert client.post("/v1/portfolios", json={"name": "alpha"}, headers=admin).status_code == 201
-        ingested = client.post("/v1/portfolios/alpha/prices", content=prices, headers={**admin, "Content-Type": "text/csv"})
+        ingested = client.post(
+            "/v1/portfolios/alpha/prices", content=prices, headers={**admin, "Content-Type": "text/csv"}
+        )
         assert ingested.status_code == 200 and ingested.json()["alerts"], ingested.text
         alert = ingested.json()["alerts"][0]
         yield World(client, keys, alert["id"], alert["window_end"], prices)
@@ -85,8 +88,11 @@ ENDPOINTS = (
 )
 
 
-@pytest.mark.parametrize("endpoint, role", list(itertools.product(ENDPOINTS, (*ROLES, None))),
-                         ids=lambda v: f"{v.method} {v.path}" if isinstance(v, Endpoint) else str(v))
+@pytest.mark.parametrize(
+    "endpoint, role",
+    list(itertools.product(ENDPOINTS, (*ROLES, None))),
+    ids=lambda v: f"{v.method} {v.path}" if isinstance(v, Endpoint) else str(v),
+)
 def test_role_matrix(world: World, endpoint: Endpoint, role: str | None) -> None:
     headers = {} if role is None else {"X-Riskshape-Key": world.keys[role]}
     response = endpoint.call(world, headers, f"{role}-{endpoint.path.count('/')}")
@@ -103,8 +109,12 @@ def test_role_matrix(world: World, endpoint: Endpoint, role: str | None) -> None
 def test_the_matrix_matches_the_documented_roles() -> None:
     # reader < ingest, reviewer < admin (the brief's lattice), spelled out
     allowed = {role: {p.value for p in Permission if may(role, p)} for role in Role}
-    assert allowed == {Role.reader: {"read"}, Role.ingest: {"read", "ingest"}, Role.reviewer: {"read", "review"},
-                       Role.admin: {"read", "ingest", "review", "admin"}}
+    assert allowed == {
+        Role.reader: {"read"},
+        Role.ingest: {"read", "ingest"},
+        Role.reviewer: {"read", "review"},
+        Role.admin: {"read", "ingest", "review", "admin"},
+    }
 
 
 @pytest.mark.parametrize("path", ["/v1/health", "/openapi.json", "/docs"])

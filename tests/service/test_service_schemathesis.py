@@ -22,17 +22,19 @@ from schemathesis.specs.openapi.checks import (
     response_schema_conformance,
     status_code_conformance,
 )
-from tests.kit.service import csv_body, write_config
 
 from riskshape.caution import CAUTION
 from riskshape.config import ServiceSettings
 from riskshape.demo.scenario import generate_scenario
 from riskshape.store import open_store
 from riskshape_service import create_app
+from tests.kit.service import csv_body, write_config
 
 
 @schemathesis.check
-def caution_everywhere(ctx: schemathesis.CheckContext, response: schemathesis.Response, case: schemathesis.Case) -> None:
+def caution_everywhere(
+    ctx: schemathesis.CheckContext, response: schemathesis.Response, case: schemathesis.Case
+) -> None:
     """Every response carries the caution header, and every JSON object body the caution field."""
     assert response.headers.get("x-riskshape-caution") == ["not investment advice"], response.headers
     if case.path != "/openapi.json" and "application/json" in (response.headers.get("content-type") or [""])[0]:
@@ -41,8 +43,14 @@ def caution_everywhere(ctx: schemathesis.CheckContext, response: schemathesis.Re
             assert body.get("caution") == CAUTION, body
 
 
-CHECKS = [not_a_server_error, status_code_conformance, content_type_conformance, response_schema_conformance,
-          response_headers_conformance, caution_everywhere]
+CHECKS = [
+    not_a_server_error,
+    status_code_conformance,
+    content_type_conformance,
+    response_schema_conformance,
+    response_headers_conformance,
+    caution_everywhere,
+]
 ADMIN_TOKEN: dict[str, str] = {}
 
 
@@ -52,15 +60,24 @@ def fuzzed_app(tmp_path_factory: pytest.TempPathFactory) -> Iterator[FastAPI]:
     url = f"sqlite:///{folder / 'archive.sqlite'}"
     with open_store(url) as store:
         ADMIN_TOKEN["value"] = store.create_api_key("fuzzer", "admin").token
-    settings_ = ServiceSettings(store_url=url, config_path=str(write_config(folder)), rate_limit_per_minute=1_000_000,
-                                rate_limit_burst=1_000_000, max_page_size=50)
+    settings_ = ServiceSettings(
+        store_url=url,
+        config_path=str(write_config(folder)),
+        rate_limit_per_minute=1_000_000,
+        rate_limit_burst=1_000_000,
+        max_page_size=50,
+    )
     app = create_app(settings_)
     prices = csv_body(generate_scenario(seed=5, n_days=30, assets_per_sector=4).prices)
     with TestClient(app) as client:  # seed the archive: a portfolio with windows and alerts
         headers = {"X-Riskshape-Key": ADMIN_TOKEN["value"]}
         assert client.post("/v1/portfolios", json={"name": "alpha"}, headers=headers).status_code == 201
-        assert client.post("/v1/portfolios/alpha/prices", content=prices,
-                           headers={**headers, "Content-Type": "text/csv"}).status_code == 200
+        assert (
+            client.post(
+                "/v1/portfolios/alpha/prices", content=prices, headers={**headers, "Content-Type": "text/csv"}
+            ).status_code
+            == 200
+        )
     yield app
 
 

@@ -1,5 +1,6 @@
 """The service as it runs for real: ``riskshape serve`` (uvicorn) on 127.0.0.1 at a free port, spoken
-to with a real HTTP client (httpx) over a socket; keys made with ``riskshape keys create``."""
+to with a real HTTP client (httpx) over a socket; keys made with ``riskshape keys create``.
+"""
 
 from __future__ import annotations
 
@@ -16,10 +17,10 @@ from pathlib import Path
 import httpx
 import pytest
 from click.testing import CliRunner
-from tests.kit.service import cautioned, csv_body, write_config
 
 from riskshape.cli import cli
 from riskshape.demo.scenario import generate_scenario
+from tests.kit.service import cautioned, csv_body, write_config
 
 STARTUP_SECONDS = 60  # a bound on waiting for the server, not a speed requirement
 
@@ -51,8 +52,20 @@ def server(tmp_path_factory: pytest.TempPathFactory) -> Iterator[Server]:
     port = free_port()
     log = folder / "server.log"
     env = {**os.environ, "RISKSHAPE_MAX_BODY_BYTES": "65536"}
-    command = [sys.executable, "-m", "riskshape", "serve", "--store", url, "--host", "127.0.0.1", "--port", str(port),
-               "--config", str(write_config(folder))]
+    command = [
+        sys.executable,
+        "-m",
+        "riskshape",
+        "serve",
+        "--store",
+        url,
+        "--host",
+        "127.0.0.1",
+        "--port",
+        str(port),
+        "--config",
+        str(write_config(folder)),
+    ]
     with log.open("wb") as sink:
         process = subprocess.Popen(command, stdout=sink, stderr=subprocess.STDOUT, env=env)
     base = f"http://127.0.0.1:{port}"
@@ -82,16 +95,20 @@ def test_ingest_then_poll_over_http(server: Server) -> None:
     with httpx.Client(base_url=server.base, timeout=60) as client:
         admin, ingest, reader = ({"X-Riskshape-Key": server.keys[r]} for r in ("admin", "ingest", "reader"))
         assert client.post("/v1/portfolios", json={"name": "live"}, headers=admin).status_code == 201
-        response = client.post("/v1/portfolios/live/prices", content=csv_body(prices),
-                               headers={**ingest, "Content-Type": "text/csv"})
+        response = client.post(
+            "/v1/portfolios/live/prices", content=csv_body(prices), headers={**ingest, "Content-Type": "text/csv"}
+        )
         body = cautioned(response)
         assert response.status_code == 200 and body["windows_added"] == len(prices) - 1 - 20 + 1
         latest = cautioned(client.get("/v1/portfolios/live/latest", headers=reader))
         assert latest["window_end"] == str(prices.index[-1].date())
         series = cautioned(client.get("/v1/portfolios/live/series", params={"limit": 5}, headers=reader))
         assert series["total"] == body["windows_added"] and len(series["rows"]) == 5
-        again = cautioned(client.post("/v1/portfolios/live/prices", content=csv_body(prices),
-                                      headers={**ingest, "Content-Type": "text/csv"}))
+        again = cautioned(
+            client.post(
+                "/v1/portfolios/live/prices", content=csv_body(prices), headers={**ingest, "Content-Type": "text/csv"}
+            )
+        )
         assert again["windows_added"] == 0 and again["prices_added"] == 0  # idempotent
 
 
@@ -102,8 +119,11 @@ def test_chunked_upload_over_the_limit_is_413(server: Server) -> None:
             yield line * 20
 
     with httpx.Client(base_url=server.base, timeout=60) as client:
-        response = client.post("/v1/portfolios/live/prices", content=chunks(),
-                               headers={"X-Riskshape-Key": server.keys["ingest"], "Content-Type": "text/csv"})
+        response = client.post(
+            "/v1/portfolios/live/prices",
+            content=chunks(),
+            headers={"X-Riskshape-Key": server.keys["ingest"], "Content-Type": "text/csv"},
+        )
     assert response.status_code == 413
     assert "65536 bytes" in cautioned(response)["detail"]
 
@@ -114,8 +134,11 @@ def test_keys_in_the_url_are_refused_over_http(server: Server) -> None:
 
 
 def test_server_logs_are_json_lines_with_request_ids(server: Server) -> None:
-    response = httpx.get(f"{server.base}/v1/portfolios", headers={"X-Riskshape-Key": server.keys["reader"],
-                                                                  "X-Request-Id": "uvicorn-check-1"}, timeout=30)
+    response = httpx.get(
+        f"{server.base}/v1/portfolios",
+        headers={"X-Riskshape-Key": server.keys["reader"], "X-Request-Id": "uvicorn-check-1"},
+        timeout=30,
+    )
     assert response.status_code == 200
     deadline = time.monotonic() + 10
     while True:  # the access line is written as the response completes

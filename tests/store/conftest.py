@@ -1,22 +1,22 @@
 """Fixtures of the archive tests: one store per test on SQLite (a temporary file) and on the real
-PostgreSQL server (a fresh schema per test, dropped afterwards; skipped when unreachable)."""
+PostgreSQL server (a fresh schema per test, dropped afterwards; skipped when unreachable).
+"""
 
 from __future__ import annotations
 
-from collections.abc import Iterator
-
 import dataclasses
+from collections.abc import Iterator
 
 import numpy as np
 import pandas as pd
 import pytest
-from tests.kit.archive import manifest, walk_prices
-from tests.kit.postgres import fresh_schema_url
 
 from riskshape import Config, monitor
-from riskshape.config import RuleConfig
 from riskshape.compute.monitor import MonitorResult
+from riskshape.config import RuleConfig
 from riskshape.store import Run, Store, open_store
+from tests.kit.archive import manifest, walk_prices
+from tests.kit.postgres import fresh_schema_url
 
 
 @pytest.fixture(params=["sqlite", pytest.param("postgresql", marks=pytest.mark.postgres)])
@@ -44,15 +44,39 @@ def run(store: Store, rng: np.random.Generator) -> Run:
 
 def _rules(features: pd.DataFrame) -> tuple[RuleConfig, ...]:
     """Rules that fire a few times on this series: a level at its own 80th percentile, a z-score and a
-    trailing quantile (thresholds from the data, so nothing is hard-coded)."""
+    trailing quantile (thresholds from the data, so nothing is hard-coded).
+    """
     level = float(features["mean_correlation"].quantile(0.8))
     return (
-        RuleConfig(name="corr_level", summary="mean_correlation", kind="level", threshold=level, min_history=0,
-                   consecutive=2, cooldown=5, severity="critical"),
-        RuleConfig(name="h1_z", summary="h1_total_persistence", kind="zscore", threshold=1.5, lookback=40,
-                   min_history=20, severity="info"),
-        RuleConfig(name="h0_q", summary="h0_wasserstein", kind="quantile", threshold=0.9, clear=0.5, lookback=40,
-                   min_history=20, cooldown=3),
+        RuleConfig(
+            name="corr_level",
+            summary="mean_correlation",
+            kind="level",
+            threshold=level,
+            min_history=0,
+            consecutive=2,
+            cooldown=5,
+            severity="critical",
+        ),
+        RuleConfig(
+            name="h1_z",
+            summary="h1_total_persistence",
+            kind="zscore",
+            threshold=1.5,
+            lookback=40,
+            min_history=20,
+            severity="info",
+        ),
+        RuleConfig(
+            name="h0_q",
+            summary="h0_wasserstein",
+            kind="quantile",
+            threshold=0.9,
+            clear=0.5,
+            lookback=40,
+            min_history=20,
+            cooldown=3,
+        ),
     )
 
 

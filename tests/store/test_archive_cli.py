@@ -11,12 +11,12 @@ from pathlib import Path
 import numpy as np
 import pytest
 import sqlalchemy as sa
-from tests.kit.archive import around_triggers, make_alerts, manifest, walk_prices
 
 from riskshape.caution import CAUTION
 from riskshape.cli import main
 from riskshape.outputs.export import EXPORT_COLUMNS, neutralise_cell
 from riskshape.store import chain_head, open_store
+from tests.kit.archive import around_triggers, make_alerts, manifest, walk_prices
 
 
 @pytest.fixture
@@ -68,8 +68,9 @@ def test_verify_fails_naming_the_first_bad_record(archive: str, capsys: pytest.C
     assert status == 1 and "seq 5" in out and "tail cut" in out
 
 
-def test_user_errors_are_one_line_and_status_2(archive: str, tmp_path: Path,
-                                               capsys: pytest.CaptureFixture[str]) -> None:
+def test_user_errors_are_one_line_and_status_2(
+    archive: str, tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
     status, _, err = _run(capsys, "audit", "verify", "--store", f"sqlite:///{tmp_path / 'no' / 'x.sqlite'}")
     assert status == 2 and err.startswith("riskshape: error:") and len(err.strip().splitlines()) == 1
     status, _, err = _run(capsys, "audit", "verify", "--store", archive, "--expect-head", "12:xyz")
@@ -94,8 +95,9 @@ def test_list_show_and_review(archive: str, capsys: pytest.CaptureFixture[str]) 
     _, out, _ = _run(capsys, "alerts", "show", "1", "--store", archive)
     assert out.splitlines()[0] == CAUTION and "escalate by @Reviewer: -looks real" in out
     assert "entry_hash" in out and "inputs_hash" in out
-    status, _, err = _run(capsys, "alerts", "review", "3", "--store", archive, "--action", "approve",
-                          "--reviewer", "Ana")
+    status, _, err = _run(
+        capsys, "alerts", "review", "3", "--store", archive, "--action", "approve", "--reviewer", "Ana"
+    )
     assert status == 2 and "approve" in err
 
 

@@ -6,12 +6,12 @@ import numpy as np
 import pandas as pd
 import pytest
 import sqlalchemy as sa
-from tests.kit.archive import around_triggers
 
 from riskshape import monitor
 from riskshape.archive import archive_run, reproduce_alert, reproduce_alerts
 from riskshape.compute.monitor import MonitorResult
 from riskshape.store import Store, verify_chain
+from tests.kit.archive import around_triggers
 
 
 def test_archive_then_reproduce_every_alert(store: Store, computed: MonitorResult) -> None:
@@ -28,8 +28,9 @@ def test_archive_then_reproduce_every_alert(store: Store, computed: MonitorResul
     page = store.read_features("Fund Scenario")
     pd.testing.assert_frame_equal(page.frame, computed.features, check_freq=False, check_names=False)
     end = computed.window_ends[40]
-    np.testing.assert_array_equal(store.read_diagram("Fund Scenario", end, 1).bars,
-                                  computed.diagram(end, 1).astype(np.float32))
+    np.testing.assert_array_equal(
+        store.read_diagram("Fund Scenario", end, 1).bars, computed.diagram(end, 1).astype(np.float32)
+    )
     run = store.get_run(report.run.id)
     assert run.input_hash == computed.input_hash and run.config_hash == computed.config.hash()
 
@@ -58,8 +59,9 @@ def test_new_days_add_only_what_is_new(store: Store, computed: MonitorResult, sm
     assert every == {(a.rule, a.window_end) for a in archive_run(store, "Fund Batch", computed).alerts.added}
 
 
-def test_a_price_correction_is_kept_beside_the_original(store: Store, computed: MonitorResult,
-                                                         small_prices: pd.DataFrame) -> None:
+def test_a_price_correction_is_kept_beside_the_original(
+    store: Store, computed: MonitorResult, small_prices: pd.DataFrame
+) -> None:
     first = archive_run(store, "Fund Scenario", computed)
     revised = small_prices.copy()
     day, asset = revised.index[50], revised.columns[2]
@@ -93,8 +95,9 @@ def test_reproduce_notices_a_changed_value(store: Store, computed: MonitorResult
     assert not verify_chain(store).ok
 
 
-def test_archive_refuses_a_configuration_the_result_was_not_computed_with(store: Store,
-                                                                         computed: MonitorResult) -> None:
+def test_archive_refuses_a_configuration_the_result_was_not_computed_with(
+    store: Store, computed: MonitorResult
+) -> None:
     from riskshape.errors import ConfigError
 
     with pytest.raises(ConfigError, match="not the one the result was computed with"):

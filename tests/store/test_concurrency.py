@@ -12,31 +12,35 @@ from pathlib import Path
 import numpy as np
 import pytest
 import sqlalchemy as sa
-from tests.kit.archive import make_alerts
 
 from riskshape.store import Store, verify_chain
+from tests.kit.archive import make_alerts
 
 REPO = Path(__file__).resolve().parents[2]  # the writer runs as ``python -m tests.kit.archive_writer`` from here
 
 
-def _writer(url: str, run_id: int, rule: str, count: int, errors: Path, go_file: Path | None = None
-            ) -> subprocess.Popen[str]:
+def _writer(
+    url: str, run_id: int, rule: str, count: int, errors: Path, go_file: Path | None = None
+) -> subprocess.Popen[str]:
     """Start a writer; its stderr goes to ``errors`` so stdout is the one pipe (communicate() then reads
-    through the same buffer as readline(), and no line is lost)."""
+    through the same buffer as readline(), and no line is lost).
+    """
     args = [sys.executable, "-m", "tests.kit.archive_writer", url, str(run_id), rule, str(count)]
     args += [str(go_file)] if go_file else []
     # the writer imports the test kits as the tests do: the tests package from the repository's root
     path = os.pathsep.join([str(REPO), os.environ.get("PYTHONPATH", "")])
     with errors.open("w") as sink:
-        return subprocess.Popen(args, stdout=subprocess.PIPE, stderr=sink, text=True, cwd=REPO,
-                                env={**os.environ, "PYTHONPATH": path})
+        return subprocess.Popen(
+            args, stdout=subprocess.PIPE, stderr=sink, text=True, cwd=REPO, env={**os.environ, "PYTHONPATH": path}
+        )
 
 
 def _ledger(store: Store) -> dict[tuple[str, int], int]:
     """(table, id) -> seq of every archived alert and review."""
     with store.engine.connect() as connection:
-        rows = connection.execute(sa.text("SELECT 'alert', id, seq FROM alerts "
-                                          "UNION ALL SELECT 'review', id, seq FROM reviews"))
+        rows = connection.execute(
+            sa.text("SELECT 'alert', id, seq FROM alerts UNION ALL SELECT 'review', id, seq FROM reviews")
+        )
         return {(kind, int(i)): int(seq) for kind, i, seq in rows}
 
 
@@ -85,8 +89,10 @@ def test_two_writers_at_once_never_fork_the_chain(store: Store, store_url: str, 
         time.sleep(0.01)  # leave the other writer a gap, as the child does
     out, _ = child.communicate()
     assert child.returncode == 0, errors.read_text()  # the child never failed on a lock or a constraint
-    theirs = [(kind, int(i), int(seq)) for kind, i, seq in (line.split() for line in [" ".join(first_of_theirs)]
-                                                             + out.splitlines())]
+    theirs = [
+        (kind, int(i), int(seq))
+        for kind, i, seq in (line.split() for line in [" ".join(first_of_theirs)] + out.splitlines())
+    ]
     assert len(theirs) == len(mine) == 40 + 8
     mine_seqs, their_seqs = [seq for *_, seq in mine], [seq for *_, seq in theirs]
     # the two really wrote at the same time: each wrote both before and after the other's first record

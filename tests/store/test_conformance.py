@@ -18,7 +18,6 @@ from alembic.runtime.migration import MigrationContext
 from riskshape.errors import ConflictError, DataError, NotFoundError, StoreError
 from riskshape.store import GENESIS_HASH, Store, open_store, verify_chain
 from riskshape.store.schema import APPEND_ONLY_TABLES, metadata
-
 from tests.kit.archive import make_alerts, manifest, walk_prices
 
 
@@ -89,11 +88,13 @@ def test_corrections_are_new_revisions_and_visible(store: Store, rng: np.random.
     assert corrections[0].old_price == prices.iloc[5, 0] and corrections[0].new_price == revised.iloc[5, 0]
     assert corrections[1].old_price == prices.iloc[7, 1] and np.isnan(corrections[1].new_price)
     columns = list(prices.columns)
-    pd.testing.assert_frame_equal(store.read_prices("Fund West", assets=columns), revised, check_freq=False,
-                                  check_names=False)
+    pd.testing.assert_frame_equal(
+        store.read_prices("Fund West", assets=columns), revised, check_freq=False, check_names=False
+    )
     # as of the first run the correction was not there yet
-    pd.testing.assert_frame_equal(store.read_prices("Fund West", assets=columns, as_of_run=first.id), prices,
-                                  check_freq=False, check_names=False)
+    pd.testing.assert_frame_equal(
+        store.read_prices("Fund West", assets=columns, as_of_run=first.id), prices, check_freq=False, check_names=False
+    )
     with store.engine.connect() as connection:
         n_rows = connection.execute(sa.text("SELECT count(*) FROM prices")).scalar_one()
     assert n_rows == prices.size + 2  # nothing overwritten
@@ -129,8 +130,14 @@ def test_run_manifest(store: Store, rng: np.random.Generator) -> None:
 
 def test_features_idempotent_paged_and_typed(store: Store, run, rng: np.random.Generator) -> None:
     ends = pd.DatetimeIndex(pd.bdate_range("2030-02-01", periods=25), name="window_end")
-    features = pd.DataFrame({"n_assets": rng.integers(3, 9, 25), "mean_correlation": rng.uniform(-1, 1, 25),
-                             "h1_wasserstein": rng.uniform(0, 1, 25)}, index=ends)
+    features = pd.DataFrame(
+        {
+            "n_assets": rng.integers(3, 9, 25),
+            "mean_correlation": rng.uniform(-1, 1, 25),
+            "h1_wasserstein": rng.uniform(0, 1, 25),
+        },
+        index=ends,
+    )
     features.iloc[0, 2] = np.nan
     assert dataclasses.astuple(store.write_features(run.id, features)) == (25, 0, 0)
     assert dataclasses.astuple(store.write_features(run.id, features)) == (0, 25, 0)
@@ -142,8 +149,7 @@ def test_features_idempotent_paged_and_typed(store: Store, run, rng: np.random.G
     whole = store.read_features("Fund North").frame
     pd.testing.assert_frame_equal(whole, features, check_freq=False)
     assert whole["n_assets"].dtype == np.int64
-    page = store.read_features("Fund North", start=ends[5], end=ends[20], columns=["h1_wasserstein"], limit=4,
-                               offset=8)
+    page = store.read_features("Fund North", start=ends[5], end=ends[20], columns=["h1_wasserstein"], limit=4, offset=8)
     assert page.total == 16 and page.offset == 8
     pd.testing.assert_frame_equal(page.frame, features[["h1_wasserstein"]].iloc[13:17], check_freq=False)
     with pytest.raises(StoreError, match="h9_nothing"):
@@ -209,8 +215,10 @@ def test_alerts_refuse_bad_values(store: Store, run, rng: np.random.Generator) -
 
 def test_list_alerts_filters_and_paging(store: Store, run, rng: np.random.Generator) -> None:
     a = make_alerts(rng, 5, rule="rule_a", start="2030-03-01")
-    b = [dataclasses.replace(x, firing=dataclasses.replace(x.firing, severity="critical"))
-         for x in make_alerts(rng, 3, rule="rule_b", start="2030-03-04")]
+    b = [
+        dataclasses.replace(x, firing=dataclasses.replace(x.firing, severity="critical"))
+        for x in make_alerts(rng, 3, rule="rule_b", start="2030-03-04")
+    ]
     added = store.append_alerts(a + b, run.id).added
     assert store.list_alerts(rule="rule_b").total == 3
     assert store.list_alerts(severity="critical").total == 3
@@ -250,21 +258,20 @@ def test_history_tables_refuse_update_and_delete(store: Store, run, rng: np.rand
     store.append_review(alert.id, "acknowledge", "Reviewer One")
     column = {"ledger": "kind", "alerts": "rule", "reviews": "comment", "prices": "asset", "runs": "source"}[table]
     for statement in (f"UPDATE {table} SET {column} = 'x'", f"DELETE FROM {table}"):
-        with store.engine.connect() as connection:
-            with pytest.raises(sa.exc.DatabaseError, match="append-only"):
-                with connection.begin():
-                    connection.exec_driver_sql(statement)
+        with store.engine.connect() as connection, pytest.raises(sa.exc.DatabaseError, match="append-only"):
+            with connection.begin():
+                connection.exec_driver_sql(statement)
     assert verify_chain(store).ok
 
 
 def test_a_fork_is_refused_by_unique_constraints(store: Store, run, rng: np.random.Generator) -> None:
     first = store.append_alerts(make_alerts(rng, 1), run.id).added[0]
-    with store.engine.connect() as connection:
-        with pytest.raises(sa.exc.IntegrityError):
-            with connection.begin():  # a second record claiming the genesis as its predecessor
-                connection.execute(sa.text("INSERT INTO ledger (seq, kind, prev_hash, entry_hash) "
-                                           "VALUES (2, 'alert', :prev, :own)"),
-                                   {"prev": first.prev_hash, "own": "f" * 64})
+    with store.engine.connect() as connection, pytest.raises(sa.exc.IntegrityError):
+        with connection.begin():  # a second record claiming the genesis as its predecessor
+            connection.execute(
+                sa.text("INSERT INTO ledger (seq, kind, prev_hash, entry_hash) VALUES (2, 'alert', :prev, :own)"),
+                {"prev": first.prev_hash, "own": "f" * 64},
+            )
 
 
 def test_api_keys(store: Store) -> None:
@@ -310,27 +317,31 @@ def test_a_write_transaction_holds_the_lock_before_reading(store: Store) -> None
     # While a write transaction is open (and has read nothing yet), no other writer may start.
     from riskshape.store.database import LOCK_KEY, write_transaction
 
-    with write_transaction(store.engine):
-        with store.engine.connect() as other:
-            if store.dialect == "sqlite":
-                raw = other.connection.driver_connection
-                raw.execute("PRAGMA busy_timeout = 0")
-                with pytest.raises(sqlite3.OperationalError, match="locked"):
-                    raw.execute("BEGIN IMMEDIATE")
-                raw.execute("PRAGMA busy_timeout = 30000")
-            else:
-                got = other.execute(sa.text("SELECT pg_try_advisory_xact_lock(:k, hashtext(current_schema()))"),
-                                    {"k": LOCK_KEY}).scalar_one()
-                other.rollback()
-                assert got is False
+    with write_transaction(store.engine), store.engine.connect() as other:
+        if store.dialect == "sqlite":
+            raw = other.connection.driver_connection
+            raw.execute("PRAGMA busy_timeout = 0")
+            with pytest.raises(sqlite3.OperationalError, match="locked"):
+                raw.execute("BEGIN IMMEDIATE")
+            raw.execute("PRAGMA busy_timeout = 30000")
+        else:
+            got = other.execute(
+                sa.text("SELECT pg_try_advisory_xact_lock(:k, hashtext(current_schema()))"), {"k": LOCK_KEY}
+            ).scalar_one()
+            other.rollback()
+            assert got is False
     with store.engine.connect() as other:  # released at the end of the transaction
         if store.dialect == "sqlite":
             raw = other.connection.driver_connection
             raw.execute("BEGIN IMMEDIATE")
             raw.execute("ROLLBACK")
         else:
-            assert other.execute(sa.text("SELECT pg_try_advisory_xact_lock(:k, hashtext(current_schema()))"),
-                                 {"k": LOCK_KEY}).scalar_one() is True
+            assert (
+                other.execute(
+                    sa.text("SELECT pg_try_advisory_xact_lock(:k, hashtext(current_schema()))"), {"k": LOCK_KEY}
+                ).scalar_one()
+                is True
+            )
             other.rollback()
 
 

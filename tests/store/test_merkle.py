@@ -5,10 +5,10 @@ from __future__ import annotations
 import hashlib
 
 import numpy as np
-from tests.kit.archive import make_alerts
 
 from riskshape.store import Store, verify_chain
 from riskshape.store.merkle import merkle_root
+from tests.kit.archive import make_alerts
 
 # Leaves and roots of the reference tests of the certificate-transparency / transparency-dev
 # Merkle tree code (RFC 6962 test tree; values from memory, each root checked below for 1..8 leaves).

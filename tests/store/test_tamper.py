@@ -13,10 +13,10 @@ import datetime as dt
 import numpy as np
 import pytest
 import sqlalchemy as sa
-from tests.kit.archive import around_triggers, make_alerts
 
 from riskshape.store import Store, chain_head, schema, verify_chain
 from riskshape.store.canonical import ALERT_FIELDS, REVIEW_FIELDS, entry_hash
+from tests.kit.archive import around_triggers, make_alerts
 
 
 @pytest.fixture
@@ -60,12 +60,16 @@ def _edit(store: Store, table: str, record_id: int, field: str, new: object = No
     return old
 
 
-@pytest.mark.parametrize(("table", "record_id", "seq", "fields"), [
-    ("alerts", 4, 4, ALERT_FIELDS + ("entry_hash",)),
-    ("reviews", 1, 6, REVIEW_FIELDS + ("entry_hash",)),
-])
-def test_changing_any_stored_field_is_caught(ledger: Store, table: str, record_id: int, seq: int,
-                                             fields: tuple[str, ...]) -> None:
+@pytest.mark.parametrize(
+    ("table", "record_id", "seq", "fields"),
+    [
+        ("alerts", 4, 4, ALERT_FIELDS + ("entry_hash",)),
+        ("reviews", 1, 6, REVIEW_FIELDS + ("entry_hash",)),
+    ],
+)
+def test_changing_any_stored_field_is_caught(
+    ledger: Store, table: str, record_id: int, seq: int, fields: tuple[str, ...]
+) -> None:
     # One field at a time: change it, verify, put it back (and check the chain is whole again).
     for field in fields:
         old = _edit(ledger, table, record_id, field)
@@ -110,8 +114,10 @@ def test_a_deleted_first_record_is_caught(ledger: Store) -> None:
 def test_swapped_records_are_caught(ledger: Store) -> None:
     # Exchange the places (seq, prev_hash, entry_hash) of alerts 2 and 3, in the ledger too.
     with around_triggers(ledger) as connection:
-        rows = {r.id: r for r in connection.execute(sa.text("SELECT id, seq, prev_hash, entry_hash FROM alerts "
-                                                            "WHERE id IN (2, 3)"))}
+        rows = {
+            r.id: r
+            for r in connection.execute(sa.text("SELECT id, seq, prev_hash, entry_hash FROM alerts WHERE id IN (2, 3)"))
+        }
         for table in ("alerts", "ledger"):
             for seq, filler in ((2, "a"), (3, "b")):  # park both rows on free values (UNIQUE columns)
                 connection.execute(
@@ -121,8 +127,12 @@ def test_swapped_records_are_caught(ledger: Store) -> None:
             for me, other in ((2, 3), (3, 2)):
                 connection.execute(
                     sa.text(f"UPDATE {table} SET seq = :seq, prev_hash = :prev, entry_hash = :own WHERE seq = :tmp"),
-                    {"seq": rows[other].seq, "prev": rows[other].prev_hash, "own": rows[other].entry_hash,
-                     "tmp": rows[me].seq + 1_000_000},
+                    {
+                        "seq": rows[other].seq,
+                        "prev": rows[other].prev_hash,
+                        "own": rows[other].entry_hash,
+                        "tmp": rows[me].seq + 1_000_000,
+                    },
                 )
     report = verify_chain(ledger)
     assert not report.ok and report.first_bad.seq == 2
@@ -132,16 +142,24 @@ def _forged(ledger: Store) -> dict[str, object]:
     """A copy of alert 6 placed after the head, a week later, with a different value (its hash left stale)."""
     head = chain_head(ledger)
     row = dataclasses.asdict(ledger.get_alert(6).alert)
-    return {**row, "id": 7, "seq": head.count + 1, "prev_hash": head.head_hash, "value": 123.0,
-            "window_end": row["window_end"] + dt.timedelta(days=7)}
+    return {
+        **row,
+        "id": 7,
+        "seq": head.count + 1,
+        "prev_hash": head.head_hash,
+        "value": 123.0,
+        "window_end": row["window_end"] + dt.timedelta(days=7),
+    }
 
 
 def test_a_forged_record_with_a_made_up_hash_is_caught(ledger: Store) -> None:
     forged = {**_forged(ledger), "entry_hash": "ab" * 32}
     with around_triggers(ledger) as connection:  # plain INSERTs: the triggers would not stop them anyway
-        connection.execute(sa.insert(schema.ledger).values(seq=forged["seq"], kind="alert",
-                                                           prev_hash=forged["prev_hash"],
-                                                           entry_hash=forged["entry_hash"]))
+        connection.execute(
+            sa.insert(schema.ledger).values(
+                seq=forged["seq"], kind="alert", prev_hash=forged["prev_hash"], entry_hash=forged["entry_hash"]
+            )
+        )
         connection.execute(sa.insert(schema.alerts).values(**forged))
     report = verify_chain(ledger)
     assert not report.ok and report.first_bad.seq == forged["seq"] and report.first_bad.record_id == 7

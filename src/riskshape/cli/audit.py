@@ -10,6 +10,7 @@ from riskshape.store import chain_head, open_store, verify_chain
 
 __all__ = ["audit", "STORE_OPTION"]
 
+
 def _store_url(ctx: click.Context, param: click.Parameter, value: str | None) -> str:
     url = value or store_url_from_env()
     if not url:
@@ -18,9 +19,12 @@ def _store_url(ctx: click.Context, param: click.Parameter, value: str | None) ->
 
 
 STORE_OPTION = click.option(
-    "--store", "store_url", default=None, callback=_store_url,
+    "--store",
+    "store_url",
+    default=None,
+    callback=_store_url,
     help="Archive URL: sqlite:///path/to/archive.sqlite or postgresql+psycopg://user@host:5432/db "
-         "(default: RISKSHAPE_STORE_URL).",
+    "(default: RISKSHAPE_STORE_URL).",
 )
 
 
@@ -31,8 +35,12 @@ def audit() -> None:
 
 @audit.command()
 @STORE_OPTION
-@click.option("--expect-head", default=None, metavar="COUNT:HASH",
-              help="A head printed earlier by 'riskshape audit head' (COUNT:HASH, or HASH): also catches a cut tail.")
+@click.option(
+    "--expect-head",
+    default=None,
+    metavar="COUNT:HASH",
+    help="A head printed earlier by 'riskshape audit head' (COUNT:HASH, or HASH): also catches a cut tail.",
+)
 def verify(store_url: str, expect_head: str | None) -> None:
     """Recompute every hash of the ledger; exit 1 naming the first record that does not match."""
     click.echo(CAUTION)
@@ -60,8 +68,13 @@ def head(store_url: str) -> None:
 @audit.command()
 @click.argument("alert_id", type=int)
 @STORE_OPTION
-@click.option("--executor", type=click.Choice(["serial", "process"]), default="serial", show_default=True,
-              help="Where the windows are recomputed (never changes a result).")
+@click.option(
+    "--executor",
+    type=click.Choice(["serial", "process"]),
+    default="serial",
+    show_default=True,
+    help="Where the windows are recomputed (never changes a result).",
+)
 def reproduce(alert_id: int, store_url: str, executor: str) -> None:
     """Recompute ALERT_ID from the archived prices and configuration; exit 1 unless it is confirmed."""
     from riskshape.archive import reproduce_alert  # the engine loads only for this command

@@ -20,8 +20,12 @@ def keys() -> None:
 
 
 @keys.command()
-@click.option("--role", type=click.Choice(ROLES), required=True,
-              help="reader reads; ingest also posts prices; reviewer also reviews, verifies and exports; admin all.")
+@click.option(
+    "--role",
+    type=click.Choice(ROLES),
+    required=True,
+    help="reader reads; ingest also posts prices; reviewer also reviews, verifies and exports; admin all.",
+)
 @click.option("--owner", required=True, help="Who holds the key (recorded as the reviewer of their reviews).")
 @STORE_OPTION
 def create(role: str, owner: str, store_url: str) -> None:
@@ -30,8 +34,11 @@ def create(role: str, owner: str, store_url: str) -> None:
         made = store.create_api_key(owner, role)
     click.echo(made.token)
     click.echo(CAUTION, err=True)
-    click.echo(f"key {made.key.key_id} ({made.key.role}, owner {made.key.owner}): shown once, store it now; "
-               "send it in the X-Riskshape-Key header", err=True)
+    click.echo(
+        f"key {made.key.key_id} ({made.key.role}, owner {made.key.owner}): shown once, store it now; "
+        "send it in the X-Riskshape-Key header",
+        err=True,
+    )
 
 
 @keys.command("list")
@@ -44,8 +51,10 @@ def list_keys(store_url: str) -> None:
     click.echo(f"{'key_id':<16}  {'role':<8}  {'created_at':<25}  {'state':<7}  owner")
     for key in found:
         state = "revoked" if key.revoked else "active"
-        click.echo(f"{key.key_id:<16}  {key.role:<8}  {key.created_at.isoformat(timespec='seconds'):<25}  "
-                   f"{state:<7}  {key.owner}")
+        click.echo(
+            f"{key.key_id:<16}  {key.role:<8}  {key.created_at.isoformat(timespec='seconds'):<25}  "
+            f"{state:<7}  {key.owner}"
+        )
     click.echo(f"{len(found)} key(s)")
 
 

@@ -18,22 +18,36 @@ __all__ = ["report"]
 @STORE_OPTION
 @click.option("--from", "since", required=True, help="First window end of the period (YYYY-MM-DD).")
 @click.option("--to", "until", required=True, help="Last window end of the period (YYYY-MM-DD).")
-@click.option("--out", "out", type=click.Path(path_type=Path, dir_okay=False), required=True,
-              help="HTML file to write.")
+@click.option(
+    "--out", "out", type=click.Path(path_type=Path, dir_okay=False), required=True, help="HTML file to write."
+)
 @click.option("--portfolio", default=None, help="Only this portfolio (default: every portfolio).")
-@click.option("--pdf", "pdf", type=click.Path(path_type=Path, dir_okay=False), default=None,
-              help="Also write the same report as PDF (needs riskshape[pdf]).")
-@click.option("--recompute/--no-recompute", default=True, show_default=True,
-              help="Recompute explanations the archive does not hold, from the archived prices.")
-def report(store_url: str, since: str, until: str, out: Path, portfolio: str | None, pdf: Path | None,
-           recompute: bool) -> None:
+@click.option(
+    "--pdf",
+    "pdf",
+    type=click.Path(path_type=Path, dir_okay=False),
+    default=None,
+    help="Also write the same report as PDF (needs riskshape[pdf]).",
+)
+@click.option(
+    "--recompute/--no-recompute",
+    default=True,
+    show_default=True,
+    help="Recompute explanations the archive does not hold, from the archived prices.",
+)
+def report(
+    store_url: str, since: str, until: str, out: Path, portfolio: str | None, pdf: Path | None, recompute: bool
+) -> None:
     """Write a self-contained HTML review of the alerts of a period: values, thresholds, explanations,
-    provenance, reviews, summaries over time, chain verification and configuration."""
+    provenance, reviews, summaries over time, chain verification and configuration.
+    """
     with open_store(store_url) as store:
         review = collect_review(store, since, until, portfolio=portfolio, recompute=recompute)
     path = write_report(review, out, pdf)
     status = "verifies" if review.verification.ok else "DOES NOT VERIFY"
-    click.echo(f"{len(review.alerts)} alerts from {review.period_from} to {review.period_to}; "
-               f"chain {status} (head {review.verification.head})")
+    click.echo(
+        f"{len(review.alerts)} alerts from {review.period_from} to {review.period_to}; "
+        f"chain {status} (head {review.verification.head})"
+    )
     click.echo(f"report: {path}" + (f"  (PDF: {pdf})" if pdf is not None else ""))
     click.echo(CAUTION)

@@ -9,9 +9,9 @@ import click
 from riskshape.archive import archive_run
 from riskshape.caution import CAUTION
 from riskshape.cli.progress import progress_bar
+from riskshape.compute.monitor import monitor
 from riskshape.config import Config
 from riskshape.errors import DataError
-from riskshape.compute.monitor import monitor
 from riskshape.outputs.run_folder import write_run
 from riskshape.prices import read_prices
 from riskshape.store import open_store
@@ -25,19 +25,44 @@ def load_config(path: Path | None) -> Config:
 
 
 @click.command()
-@click.option("--prices", "prices_path", type=click.Path(path_type=Path), required=True,
-              help="Price table: CSV or Parquet, wide (date + one column per asset) or long (date, asset, price).")
-@click.option("--config", "config_path", type=click.Path(path_type=Path), default=None,
-              help="TOML configuration (see config/default.toml); defaults apply without it.")
+@click.option(
+    "--prices",
+    "prices_path",
+    type=click.Path(path_type=Path),
+    required=True,
+    help="Price table: CSV or Parquet, wide (date + one column per asset) or long (date, asset, price).",
+)
+@click.option(
+    "--config",
+    "config_path",
+    type=click.Path(path_type=Path),
+    default=None,
+    help="TOML configuration (see config/default.toml); defaults apply without it.",
+)
 @click.option("--out", "out_dir", type=click.Path(path_type=Path), required=True, help="Folder for the results.")
-@click.option("--executor", type=click.Choice(["serial", "process", "dask"]), default=None,
-              help="Where windows are computed (overrides [compute] executor).")
+@click.option(
+    "--executor",
+    type=click.Choice(["serial", "process", "dask"]),
+    default=None,
+    help="Where windows are computed (overrides [compute] executor).",
+)
 @click.option("--scheduler", default=None, help="Dask scheduler address, with --executor dask.")
-@click.option("--store", "store_url", default=None,
-              help="Archive URL (sqlite:///FILE or postgresql+psycopg://...); default: OUT/riskshape.sqlite.")
+@click.option(
+    "--store",
+    "store_url",
+    default=None,
+    help="Archive URL (sqlite:///FILE or postgresql+psycopg://...); default: OUT/riskshape.sqlite.",
+)
 @click.option("--portfolio", default=None, help="Portfolio name in the archive; default: the prices file's stem.")
-def run(prices_path: Path, config_path: Path | None, out_dir: Path, executor: str | None, scheduler: str | None,
-        store_url: str | None, portfolio: str | None) -> None:
+def run(
+    prices_path: Path,
+    config_path: Path | None,
+    out_dir: Path,
+    executor: str | None,
+    scheduler: str | None,
+    store_url: str | None,
+    portfolio: str | None,
+) -> None:
     """Compute rolling persistence summaries of a price table, archive them and raise alerts."""
     config = load_config(config_path)
     if executor or scheduler:
@@ -54,12 +79,16 @@ def run(prices_path: Path, config_path: Path | None, out_dir: Path, executor: st
     store_url = store_url or f"sqlite:///{(out_dir / 'riskshape.sqlite').resolve()}"
     with open_store(store_url) as store:
         archived = archive_run(store, portfolio or prices_path.stem, result, source=str(prices_path))
-    click.echo(f"{len(result.window_ends)} windows of {prices.shape[1]} assets "
-               f"({result.window_ends[0].date()} to {result.window_ends[-1].date()})")
+    click.echo(
+        f"{len(result.window_ends)} windows of {prices.shape[1]} assets "
+        f"({result.window_ends[0].date()} to {result.window_ends[-1].date()})"
+    )
     click.echo(f"features:  {files.features_csv}  ({files.features_parquet.name})")
     click.echo(f"diagrams:  {files.diagrams}")
     click.echo(f"left out:  {files.left_out}")
     click.echo(f"manifest:  {files.manifest}")
-    click.echo(f"archive:   {store_url} (portfolio '{archived.run.portfolio}', run {archived.run.id}): "
-               f"{len(archived.alerts.added)} new alert(s), {archived.alerts.existing} already archived")
+    click.echo(
+        f"archive:   {store_url} (portfolio '{archived.run.portfolio}', run {archived.run.id}): "
+        f"{len(archived.alerts.added)} new alert(s), {archived.alerts.existing} already archived"
+    )
     click.echo(CAUTION)

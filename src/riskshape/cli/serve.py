@@ -16,8 +16,13 @@ __all__ = ["serve"]
 @STORE_OPTION
 @click.option("--host", default="127.0.0.1", show_default=True, help="Interface to listen on.")
 @click.option("--port", type=click.IntRange(0, 65535), default=8000, show_default=True, help="TCP port.")
-@click.option("--config", "config_path", type=click.Path(dir_okay=False), default=None,
-              help="TOML configuration for portfolios before their first run (see config/default.toml).")
+@click.option(
+    "--config",
+    "config_path",
+    type=click.Path(dir_okay=False),
+    default=None,
+    help="TOML configuration for portfolios before their first run (see config/default.toml).",
+)
 def serve(store_url: str, host: str, port: int, config_path: str | None) -> None:
     """Serve the archive over HTTP: series, diagrams, alerts, reviews, price ingest, audit, export.
 
@@ -34,5 +39,6 @@ def serve(store_url: str, host: str, port: int, config_path: str | None) -> None
     configure_logging(settings.log_level)
     click.echo(CAUTION, err=True)
     click.echo(f"serving {settings.store_url} on http://{host}:{port} (docs at /docs)", err=True)
-    uvicorn.run(create_app(settings), host=host, port=port, log_config=None, access_log=False,
-                log_level=settings.log_level)
+    uvicorn.run(
+        create_app(settings), host=host, port=port, log_config=None, access_log=False, log_level=settings.log_level
+    )

@@ -15,8 +15,8 @@ import numpy as np
 from scipy.spatial.distance import pdist, squareform
 
 from riskshape.compute.distance import correlation_matrix, correlation_to_distance, mean_offdiagonal
-from riskshape.compute.persistence import EMPTY_DIAGRAM, compute_diagrams
 from riskshape.compute.moments import RollingMoments, is_rebuild_point
+from riskshape.compute.persistence import EMPTY_DIAGRAM, compute_diagrams
 from riskshape.compute.summaries import SUMMARY_NAMES, bottleneck_distance, summarize_diagram, wasserstein_distance
 from riskshape.compute.windows import Selection, select_assets
 
@@ -96,7 +96,9 @@ class WindowResult:
         diagrams: tuple[np.ndarray, ...],
         distances: np.ndarray,
     ) -> None:
-        bars = np.concatenate([np.asarray(d, dtype=float).reshape(-1, 2) for d in diagrams]) if diagrams else EMPTY_DIAGRAM
+        bars = (
+            np.concatenate([np.asarray(d, dtype=float).reshape(-1, 2) for d in diagrams]) if diagrams else EMPTY_DIAGRAM
+        )
         compact = bars.astype(np.float32)
         if np.array_equal(compact, bars):
             bars = compact
@@ -118,7 +120,7 @@ class WindowResult:
         bounds = np.cumsum((0,) + self.sizes)
         return tuple(self.bars[lo:hi].astype(float) for lo, hi in zip(bounds[:-1], bounds[1:]))
 
-    def with_distances(self, distances: np.ndarray) -> "WindowResult":
+    def with_distances(self, distances: np.ndarray) -> WindowResult:
         """A copy with ``distances`` set."""
         copy = object.__new__(WindowResult)
         copy.__dict__.update(self.__dict__)

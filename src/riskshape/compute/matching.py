@@ -178,7 +178,7 @@ def reduced_assignment_wasserstein(a: np.ndarray, b: np.ndarray, order_p: float)
 
 
 def persim_bottleneck(a: np.ndarray, b: np.ndarray) -> float:
-    """persim's exact bottleneck distance of two non-empty diagrams of finite bars."""
+    """Persim's exact bottleneck distance of two non-empty diagrams of finite bars."""
     from persim import bottleneck
 
     with warnings.catch_warnings():

@@ -14,12 +14,6 @@ import numpy as np
 import pandas as pd
 
 from riskshape._version import __version__
-from riskshape.compute.executors import Executor, make_executor
-from riskshape.config import Config
-from riskshape.errors import DataError
-from riskshape.prices import hash_prices, validate_prices
-from riskshape.compute.returns import to_returns
-from riskshape.compute.summaries import DISTANCE_NAMES, SUMMARY_NAMES
 from riskshape.compute.batch import (
     WindowResult,
     WindowSettings,
@@ -28,7 +22,13 @@ from riskshape.compute.batch import (
     first_row_needed,
     preload,
 )
+from riskshape.compute.executors import Executor, make_executor
+from riskshape.compute.returns import to_returns
+from riskshape.compute.summaries import DISTANCE_NAMES, SUMMARY_NAMES
 from riskshape.compute.windows import window_end_positions
+from riskshape.config import Config
+from riskshape.errors import DataError
+from riskshape.prices import hash_prices, validate_prices
 
 __all__ = ["monitor", "MonitorResult", "feature_columns"]
 
@@ -126,7 +126,7 @@ class MonitorResult:
         """SHA-256 of the window's exact inputs: asset names, dates and returns (float64, NaN kept)."""
         return hash_prices(self.window_returns(window_end))
 
-    def update(self, more_prices: pd.DataFrame, progress: ProgressFn | None = None) -> "MonitorResult":
+    def update(self, more_prices: pd.DataFrame, progress: ProgressFn | None = None) -> MonitorResult:
         """Add the next day(s) of prices and compute only the windows they complete.
 
         Parameters
@@ -262,9 +262,7 @@ def _compute_windows(
     all_ends = np.asarray(ends)
     size = config.compute.batch_windows
     own = executor is None
-    runner = executor or make_executor(
-        config.compute, -(-len(all_ends) // size), preload=partial(preload, settings)
-    )
+    runner = executor or make_executor(config.compute, -(-len(all_ends) // size), preload=partial(preload, settings))
     size = _balanced_batch_size(len(all_ends), size, getattr(runner, "workers", 1))
     jobs = []
     for start in range(0, len(all_ends), size):

@@ -56,9 +56,7 @@ def resolve_engine(engine: Engine) -> Literal["ripser", "giotto"]:
     if engine == "auto":
         return "giotto" if _giotto_available() else "ripser"
     if engine == "giotto" and not _giotto_available():
-        raise ConfigError(
-            "engine = 'giotto' needs giotto-ph (pip install 'riskshape[fast]'); or set engine = 'ripser'"
-        )
+        raise ConfigError("engine = 'giotto' needs giotto-ph (pip install 'riskshape[fast]'); or set engine = 'ripser'")
     return engine
 
 

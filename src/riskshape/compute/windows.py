@@ -91,8 +91,9 @@ def select_assets(block: np.ndarray, min_coverage: float) -> Selection:
     if present.all():  # the common case: no gaps, so only the variance test can leave an asset out
         flat = (block == block[0]).all(axis=0)
         if not flat.any():
-            return Selection(used=np.arange(block.shape[1]), block=np.ascontiguousarray(block, dtype=float),
-                             left_out=())
+            return Selection(
+                used=np.arange(block.shape[1]), block=np.ascontiguousarray(block, dtype=float), left_out=()
+            )
     counts = present.sum(axis=0)
     with np.errstate(invalid="ignore"):
         spread = np.max(np.where(present, block, -np.inf), axis=0) - np.min(np.where(present, block, np.inf), axis=0)

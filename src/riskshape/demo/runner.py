@@ -17,10 +17,10 @@ from pathlib import Path
 import pandas as pd
 
 from riskshape.alerts import Firing, evaluate_rules
-from riskshape.config import Config
 from riskshape.compute.monitor import MonitorResult, monitor
-from riskshape.outputs.run_folder import RunFiles, write_run
+from riskshape.config import Config
 from riskshape.demo.scenario import Scenario, generate_scenario
+from riskshape.outputs.run_folder import RunFiles, write_run
 
 __all__ = ["DemoReport", "run_demo", "DEMO_SUMMARIES", "stress_window_end"]
 

@@ -176,7 +176,11 @@ def _regime_returns(
         # each ring member shares one factor with each neighbour: neighbours correlate, others do not
         ring = rng.standard_normal((length, len(ring_members)))
         for k, j in enumerate(ring_members):
-            shocks[:, j] = 0.2 * market[:, 0] + 0.68 * (ring[:, k] + ring[:, (k + 1) % len(ring_members)]) / np.sqrt(2) + 0.35 * rng.standard_normal(length)
+            shocks[:, j] = (
+                0.2 * market[:, 0]
+                + 0.68 * (ring[:, k] + ring[:, (k + 1) % len(ring_members)]) / np.sqrt(2)
+                + 0.35 * rng.standard_normal(length)
+            )
     return drift + vol * shocks
 
 

@@ -11,9 +11,9 @@ import json
 from typing import Any
 
 from riskshape.alerts.model import Firing
+from riskshape.compute.monitor import MonitorResult
 from riskshape.explain.attach import explain_alert
 from riskshape.explain.model import Explanation
-from riskshape.compute.monitor import MonitorResult
 
 __all__ = ["explanation_json", "explanation_text", "explanation_object", "NO_EXPLANATION"]
 

@@ -9,12 +9,12 @@ from typing import Literal, overload
 
 import pandas as pd
 
+from riskshape.compute.monitor import MonitorResult
 from riskshape.errors import DataError
 from riskshape.explain.clusters import ScaleRule, explain_clusters
 from riskshape.explain.geometry import WindowGeometry, as_date, window_geometry
 from riskshape.explain.loops import explain_loops
 from riskshape.explain.model import Explanation
-from riskshape.compute.monitor import MonitorResult
 
 __all__ = ["explain_alert", "summary_dimension"]
 
@@ -141,8 +141,9 @@ def explain_alert(
     if want_loops:
         count = min(lookback, position)
         history = _EarlierWindows(result, position, count)
-        loops = explain_loops(current, history, n_loops=n_loops, min_overlap=min_overlap,
-                              reaches_first_window=count == position)
+        loops = explain_loops(
+            current, history, n_loops=n_loops, min_overlap=min_overlap, reaches_first_window=count == position
+        )
     return Explanation(summary=summary, window_end=current.window_end, clusters=clusters, loops=loops)
 
 

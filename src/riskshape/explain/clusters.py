@@ -34,8 +34,15 @@ from riskshape.errors import DataError
 from riskshape.explain.geometry import WindowGeometry
 from riskshape.explain.model import ClusterEvent, ClusterExplanation, Members, PairChange, rounded
 
-__all__ = ["ScaleRule", "merge_heights", "choose_scale", "clusters_at", "match_clusters", "top_pair_changes",
-           "explain_clusters"]
+__all__ = [
+    "ScaleRule",
+    "merge_heights",
+    "choose_scale",
+    "clusters_at",
+    "match_clusters",
+    "top_pair_changes",
+    "explain_clusters",
+]
 
 ScaleRule = str | float
 
@@ -215,9 +222,7 @@ def explain_clusters(
     at_curr = {a: i for i, a in enumerate(current.assets)}
     ip = np.array([at_prev[a] for a in shared], dtype=int)
     ic = np.array([at_curr[a] for a in shared], dtype=int)
-    pairs = top_pair_changes(
-        shared, previous.correlation[np.ix_(ip, ip)], current.correlation[np.ix_(ic, ic)], n_pairs
-    )
+    pairs = top_pair_changes(shared, previous.correlation[np.ix_(ip, ip)], current.correlation[np.ix_(ic, ic)], n_pairs)
     return ClusterExplanation(
         window_end=current.window_end,
         previous_end=previous.window_end,

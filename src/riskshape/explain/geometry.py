@@ -15,11 +15,11 @@ from datetime import date
 import numpy as np
 import pandas as pd
 
-from riskshape.compute.distance import correlation_matrix, correlation_to_distance
-from riskshape.errors import DataError
-from riskshape.compute.monitor import MonitorResult
 from riskshape.compute.batch import embedding_distance
+from riskshape.compute.distance import correlation_matrix, correlation_to_distance
+from riskshape.compute.monitor import MonitorResult
 from riskshape.compute.windows import select_assets
+from riskshape.errors import DataError
 
 __all__ = ["WindowGeometry", "window_geometry", "as_date"]
 

@@ -41,8 +41,16 @@ from scipy.sparse.csgraph import csgraph_from_dense, shortest_path
 from riskshape.explain.geometry import WindowGeometry
 from riskshape.explain.model import Loop, LoopExplanation, Members, rounded
 
-__all__ = ["Cycle", "METHOD", "representative_cycles", "cycle_from_cocycle", "canonical_cycle", "jaccard",
-           "track_loop", "explain_loops"]
+__all__ = [
+    "Cycle",
+    "METHOD",
+    "representative_cycles",
+    "cycle_from_cocycle",
+    "canonical_cycle",
+    "jaccard",
+    "track_loop",
+    "explain_loops",
+]
 
 METHOD = (
     "representative cycle from ripser's persistent cocycle: shortest path (squared edge lengths) between "

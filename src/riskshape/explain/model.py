@@ -185,7 +185,7 @@ class Explanation:
         return json.dumps(payload, sort_keys=True, separators=(",", ":"), ensure_ascii=False, allow_nan=False)
 
     @classmethod
-    def from_json(cls, text: str | bytes) -> "Explanation":
+    def from_json(cls, text: str | bytes) -> Explanation:
         """Read an explanation written by :meth:`to_json`.
 
         Raises
@@ -200,7 +200,9 @@ class Explanation:
         reader = _Reader(data, "explanation")
         version = reader.get("version", int)
         if version != SCHEMA_VERSION:
-            raise DataError(f"explanation: layout version {version} is not supported (this riskshape reads {SCHEMA_VERSION})")
+            raise DataError(
+                f"explanation: layout version {version} is not supported (this riskshape reads {SCHEMA_VERSION})"
+            )
         return _decode_explanation(reader)
 
     def to_text(self) -> str:
@@ -268,13 +270,13 @@ class _Reader:
             raise DataError(f"{self.path}.{key}: expected a list of clusters, got {value!r}")
         return tuple(_names(v, f"{self.path}.{key}[{i}]") for i, v in enumerate(value))
 
-    def objects(self, key: str) -> list["_Reader"]:
+    def objects(self, key: str) -> list[_Reader]:
         value = self.raw(key)
         if not isinstance(value, list):
             raise DataError(f"{self.path}.{key}: expected a list, got {value!r}")
         return [_Reader(v, f"{self.path}.{key}[{i}]") for i, v in enumerate(value)]
 
-    def optional(self, key: str) -> "_Reader | None":
+    def optional(self, key: str) -> _Reader | None:
         value = self.raw(key)
         return None if value is None else _Reader(value, f"{self.path}.{key}")
 

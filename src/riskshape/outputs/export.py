@@ -18,8 +18,11 @@ from riskshape.store.canonical import ALERT_FIELDS
 
 __all__ = ["EXPORT_COLUMNS", "neutralise_cell", "export_rows", "export_alerts"]
 
-EXPORT_COLUMNS = ("id", "window_end") + tuple(f for f in ALERT_FIELDS if f not in ("id", "window_end")) + (
-    "entry_hash", "reviews", "last_review")
+EXPORT_COLUMNS = (
+    ("id", "window_end")
+    + tuple(f for f in ALERT_FIELDS if f not in ("id", "window_end"))
+    + ("entry_hash", "reviews", "last_review")
+)
 """Columns of an export: id and window end first, then every stored alert field, its hashes and review status."""
 
 _RISKY_FIRST = ("=", "+", "-", "@", "\t", "\r")
@@ -55,8 +58,14 @@ def export_rows(store: Store, alerts: tuple[AlertRecord, ...]) -> list[dict[str,
     return rows
 
 
-def export_alerts(store: Store, fmt: Literal["csv", "jsonl"], *, since: object = None, until: object = None,
-                  portfolio: str | None = None) -> str:
+def export_alerts(
+    store: Store,
+    fmt: Literal["csv", "jsonl"],
+    *,
+    since: object = None,
+    until: object = None,
+    portfolio: str | None = None,
+) -> str:
     """The export of the alerts whose window ends fall in [since, until], as text.
 
     Parameters
@@ -88,8 +97,12 @@ def export_alerts(store: Store, fmt: Literal["csv", "jsonl"], *, since: object =
         writer.writerow([f"# {CAUTION}"])
         writer.writerow(EXPORT_COLUMNS)
         for row in rows:
-            writer.writerow([neutralise_cell(v) if isinstance(v, str) else repr(v) if isinstance(v, float) else v
-                             for v in row.values()])
+            writer.writerow(
+                [
+                    neutralise_cell(v) if isinstance(v, str) else repr(v) if isinstance(v, float) else v
+                    for v in row.values()
+                ]
+            )
     else:
         buffer.write(json.dumps({"caution": CAUTION}) + "\n")
         for row in rows:

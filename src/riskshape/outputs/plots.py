@@ -26,8 +26,8 @@ from riskshape.alerts.model import Firing
 from riskshape.caution import CAUTION_SHORT
 from riskshape.compute.distance import correlation_matrix, correlation_to_distance
 from riskshape.compute.monitor import MonitorResult
-from riskshape.research.events import DrawdownEvents
 from riskshape.compute.windows import select_assets
+from riskshape.research.events import DrawdownEvents
 
 __all__ = [
     "add_caution",
@@ -192,7 +192,9 @@ def plot_barcode(diagrams: Sequence[np.ndarray], *, ax: Axes | None = None) -> A
     return ax
 
 
-def plot_landscape(dgm: np.ndarray, *, dim: int = 1, layers: int = 5, num_steps: int = 500, ax: Axes | None = None) -> Axes:
+def plot_landscape(
+    dgm: np.ndarray, *, dim: int = 1, layers: int = 5, num_steps: int = 500, ax: Axes | None = None
+) -> Axes:
     """First ``layers`` layers of the persistence landscape of one diagram (persim's PersLandscapeApprox)."""
     ax = new_axes(ax)
     if len(dgm) == 0:

@@ -27,15 +27,23 @@ import pandas as pd
 
 from riskshape._version import __version__
 from riskshape.caution import CAUTION
+from riskshape.compute.monitor import monitor
 from riskshape.config import Config
 from riskshape.errors import ConfigError, RiskshapeError, StoreError
 from riskshape.explain import Explanation, explain_alert
-from riskshape.compute.monitor import monitor
 from riskshape.store import AlertRecord, ReviewRecord, Run, Store, VerifyReport, verify_chain
 from riskshape.store.ledger import to_date
 
-__all__ = ["ReportedAlert", "PortfolioSeries", "ReviewReport", "collect_review", "render_html", "write_report",
-           "archived_explanation", "DEFAULT_SERIES"]
+__all__ = [
+    "ReportedAlert",
+    "PortfolioSeries",
+    "ReviewReport",
+    "collect_review",
+    "render_html",
+    "write_report",
+    "archived_explanation",
+    "DEFAULT_SERIES",
+]
 
 DEFAULT_SERIES = ("mean_correlation", "h0_total_persistence", "h1_landscape_l1")
 """Summaries always plotted (with every summary an alert of the period watches)."""
@@ -98,8 +106,9 @@ def _recompute(store: Store, alerts: list[AlertRecord]) -> dict[int, tuple[Expla
         try:
             run = store.get_run(run_id)
             config = Config.from_mapping(run.config, where=f"run {run_id} configuration")
-            prices = store.read_prices(run.portfolio, start=run.first_date, end=run.last_date, assets=run.assets,
-                                       as_of_run=run.id)
+            prices = store.read_prices(
+                run.portfolio, start=run.first_date, end=run.last_date, assets=run.assets, as_of_run=run.id
+            )
             last = max(pd.Timestamp(a.window_end) for a in group)
             result = monitor(prices.loc[:last], config)
         except RiskshapeError as err:
@@ -110,16 +119,27 @@ def _recompute(store: Store, alerts: list[AlertRecord]) -> dict[int, tuple[Expla
             end = pd.Timestamp(a.window_end)
             inputs = result.window_inputs_hash(end)
             if inputs != a.inputs_hash or config.hash() != a.config_hash:
-                out[a.id] = (None, "unavailable", "the archived prices or configuration no longer give this "
-                             "window's inputs (hash mismatch); no explanation shown")
+                out[a.id] = (
+                    None,
+                    "unavailable",
+                    "the archived prices or configuration no longer give this "
+                    "window's inputs (hash mismatch); no explanation shown",
+                )
                 continue
             note = f"recomputed from run {run_id}'s archived prices; window inputs hash matches the alert's"
             out[a.id] = (explain_alert(result, end, a.summary), "recomputed", note)
     return out
 
 
-def collect_review(store: Store, since: object, until: object, *, portfolio: str | None = None,
-                   recompute: bool = True, now: datetime | None = None) -> ReviewReport:
+def collect_review(
+    store: Store,
+    since: object,
+    until: object,
+    *,
+    portfolio: str | None = None,
+    recompute: bool = True,
+    now: datetime | None = None,
+) -> ReviewReport:
     """Read what the review report shows for window ends from ``since`` to ``until`` (inclusive).
 
     Parameters
@@ -169,8 +189,13 @@ def collect_review(store: Store, since: object, until: object, *, portfolio: str
         used = {a.alert.config_hash for a in alerts if a.alert.portfolio == name} | {feats.config_hash}
         runs += [r for r in store.list_runs(name) if r.config_hash in used]
     return ReviewReport(
-        period_from=first, period_to=last, generated_at=(now or datetime.now(timezone.utc)).astimezone(timezone.utc),
-        store=store.url, alerts=tuple(alerts), series=tuple(series), runs=tuple(runs),
+        period_from=first,
+        period_to=last,
+        generated_at=(now or datetime.now(timezone.utc)).astimezone(timezone.utc),
+        store=store.url,
+        alerts=tuple(alerts),
+        series=tuple(series),
+        runs=tuple(runs),
         verification=verify_chain(store),
     )
 
@@ -183,8 +208,16 @@ def _summaries_png(s: PortfolioSeries, alerts: tuple[ReportedAlert, ...]) -> byt
 
     watched = [a.alert.summary for a in alerts if a.alert.portfolio == s.portfolio]
     columns = [c for c in dict.fromkeys([*DEFAULT_SERIES, *watched]) if c in s.frame.columns]
-    marks = {c: pd.DatetimeIndex([pd.Timestamp(a.alert.window_end) for a in alerts
-                                  if a.alert.portfolio == s.portfolio and a.alert.summary == c]) for c in columns}
+    marks = {
+        c: pd.DatetimeIndex(
+            [
+                pd.Timestamp(a.alert.window_end)
+                for a in alerts
+                if a.alert.portfolio == s.portfolio and a.alert.summary == c
+            ]
+        )
+        for c in columns
+    }
     fig = plot_summaries(s.frame, columns, alerts=marks)
     fig.suptitle(f"{s.portfolio}: summaries by window end")
     buffer = io.BytesIO()
@@ -210,26 +243,44 @@ font-size:.85em}img{max-width:100%}code{font-size:.9em}
 def _alert_html(item: ReportedAlert) -> str:
     a = item.alert
     rows = "".join(
-        f"<tr><th>{_e(k)}</th><td class=\"{_e(k)}\">{_e(v)}</td></tr>"
-        for k, v in (("portfolio", a.portfolio), ("rule", a.rule), ("summary", a.summary), ("kind", a.kind),
-                     ("severity", a.severity), ("window end", a.window_end), ("value", repr(a.value)),
-                     ("threshold", repr(a.threshold)), ("raised at", a.raised_at.isoformat()),
-                     ("run", a.run_id), ("config hash", a.config_hash), ("inputs hash", a.inputs_hash),
-                     ("package version", a.package_version), ("ledger seq", a.seq), ("entry hash", a.entry_hash))
+        f'<tr><th>{_e(k)}</th><td class="{_e(k)}">{_e(v)}</td></tr>'
+        for k, v in (
+            ("portfolio", a.portfolio),
+            ("rule", a.rule),
+            ("summary", a.summary),
+            ("kind", a.kind),
+            ("severity", a.severity),
+            ("window end", a.window_end),
+            ("value", repr(a.value)),
+            ("threshold", repr(a.threshold)),
+            ("raised at", a.raised_at.isoformat()),
+            ("run", a.run_id),
+            ("config hash", a.config_hash),
+            ("inputs hash", a.inputs_hash),
+            ("package version", a.package_version),
+            ("ledger seq", a.seq),
+            ("entry hash", a.entry_hash),
+        )
     )
     if item.reviews:
-        reviews = "<table><tr><th>when</th><th>action</th><th>reviewer</th><th>comment</th></tr>" + "".join(
-            f"<tr class=\"review\"><td>{_e(r.created_at.isoformat())}</td><td>{_e(r.action)}</td>"
-            f"<td>{_e(r.reviewer)}</td><td>{_e(r.comment)}</td></tr>" for r in item.reviews) + "</table>"
+        reviews = (
+            "<table><tr><th>when</th><th>action</th><th>reviewer</th><th>comment</th></tr>"
+            + "".join(
+                f'<tr class="review"><td>{_e(r.created_at.isoformat())}</td><td>{_e(r.action)}</td>'
+                f"<td>{_e(r.reviewer)}</td><td>{_e(r.comment)}</td></tr>"
+                for r in item.reviews
+            )
+            + "</table>"
+        )
     else:
         reviews = "<p>Not reviewed yet.</p>"
     text = item.explanation.to_text() if item.explanation is not None else "No explanation."
     return (
-        f"<section class=\"alert\" id=\"alert-{a.id}\" data-alert-id=\"{a.id}\" data-value=\"{_e(repr(a.value))}\" "
-        f"data-threshold=\"{_e(repr(a.threshold))}\"><h3>Alert {a.id}: {_e(a.rule)} on {_e(a.summary)} "
+        f'<section class="alert" id="alert-{a.id}" data-alert-id="{a.id}" data-value="{_e(repr(a.value))}" '
+        f'data-threshold="{_e(repr(a.threshold))}"><h3>Alert {a.id}: {_e(a.rule)} on {_e(a.summary)} '
         f"({_e(a.severity)}), window ending {_e(a.window_end)}</h3><table>{rows}</table>"
         f"<h4>Explanation ({_e(item.explanation_source)})</h4><p>{_e(item.explanation_note)}</p>"
-        f"<pre class=\"explanation\">{_e(text)}</pre><h4>Reviews</h4>{reviews}</section>"
+        f'<pre class="explanation">{_e(text)}</pre><h4>Reviews</h4>{reviews}</section>'
     )
 
 
@@ -249,27 +300,38 @@ def render_html(report: ReviewReport, images: dict[str, bytes] | None = None) ->
     if images is None:
         images = {s.portfolio: _summaries_png(s, report.alerts) for s in report.series}
     v = report.verification
-    verdict = (f"<p class=\"ok\" id=\"chain-ok\">The hash chain verifies: {v.checked} records checked.</p>" if v.ok
-               else f"<p class=\"bad\" id=\"chain-bad\">The hash chain does NOT verify: first bad record "
-                    f"{_e(v.first_bad)}.</p>")
-    plots = "".join(
-        f"<figure><img alt=\"summaries of {_e(name)}\" src=\"data:image/png;base64,"
-        f"{base64.b64encode(png).decode('ascii')}\"><figcaption>{_e(name)}: summaries by window end; red "
-        f"triangles mark alerts.</figcaption></figure>" for name, png in images.items()
-    ) or "<p>No summaries archived for the period.</p>"
-    runs = "".join(
-        f"<h3>Run {r.id} ({_e(r.portfolio)}), recorded {_e(r.created_at.isoformat())}</h3><table>"
-        f"<tr><th>config hash</th><td>{_e(r.config_hash)}</td></tr><tr><th>prices hash</th><td>{_e(r.input_hash)}"
-        f"</td></tr><tr><th>package version</th><td>{_e(r.package_version)}</td></tr><tr><th>prices</th><td>"
-        f"{_e(r.first_date)} to {_e(r.last_date)}, {r.n_dates} dates, {len(r.assets)} assets</td></tr></table>"
-        f"<pre class=\"config\">{_e(json.dumps(r.config, indent=2, sort_keys=True))}</pre>" for r in report.runs
-    ) or "<p>No run recorded for the period.</p>"
+    verdict = (
+        f'<p class="ok" id="chain-ok">The hash chain verifies: {v.checked} records checked.</p>'
+        if v.ok
+        else f'<p class="bad" id="chain-bad">The hash chain does NOT verify: first bad record {_e(v.first_bad)}.</p>'
+    )
+    plots = (
+        "".join(
+            f'<figure><img alt="summaries of {_e(name)}" src="data:image/png;base64,'
+            f'{base64.b64encode(png).decode("ascii")}"><figcaption>{_e(name)}: summaries by window end; red '
+            f"triangles mark alerts.</figcaption></figure>"
+            for name, png in images.items()
+        )
+        or "<p>No summaries archived for the period.</p>"
+    )
+    runs = (
+        "".join(
+            f"<h3>Run {r.id} ({_e(r.portfolio)}), recorded {_e(r.created_at.isoformat())}</h3><table>"
+            f"<tr><th>config hash</th><td>{_e(r.config_hash)}</td></tr><tr><th>prices hash</th><td>{_e(r.input_hash)}"
+            f"</td></tr><tr><th>package version</th><td>{_e(r.package_version)}</td></tr><tr><th>prices</th><td>"
+            f"{_e(r.first_date)} to {_e(r.last_date)}, {r.n_dates} dates, {len(r.assets)} assets</td></tr></table>"
+            f'<pre class="config">{_e(json.dumps(r.config, indent=2, sort_keys=True))}</pre>'
+            for r in report.runs
+        )
+        or "<p>No run recorded for the period.</p>"
+    )
     alerts = "".join(_alert_html(a) for a in report.alerts) or "<p>No alert in the period.</p>"
     summary = "".join(
-        f"<tr><td><a href=\"#alert-{a.alert.id}\">{a.alert.id}</a></td><td>{_e(a.alert.window_end)}</td>"
+        f'<tr><td><a href="#alert-{a.alert.id}">{a.alert.id}</a></td><td>{_e(a.alert.window_end)}</td>'
         f"<td>{_e(a.alert.portfolio)}</td><td>{_e(a.alert.rule)}</td><td>{_e(a.alert.severity)}</td>"
         f"<td>{_e(repr(a.alert.value))}</td><td>{_e(repr(a.alert.threshold))}</td>"
-        f"<td>{_e(a.reviews[-1].action if a.reviews else 'none')}</td></tr>" for a in report.alerts
+        f"<td>{_e(a.reviews[-1].action if a.reviews else 'none')}</td></tr>"
+        for a in report.alerts
     )
     csp = "default-src 'none'; img-src data:; style-src 'unsafe-inline'"
     return f"""<!DOCTYPE html>
@@ -304,11 +366,15 @@ def write_report(report: ReviewReport, out: str | Path, pdf: str | Path | None =
     try:
         path.write_text(page, encoding="utf-8")
     except OSError as err:
-        raise StoreError(f"{path}: cannot write the report ({err.strerror}); check the folder exists and is writable") from None
+        raise StoreError(
+            f"{path}: cannot write the report ({err.strerror}); check the folder exists and is writable"
+        ) from None
     if pdf is not None:
         try:
             from weasyprint import HTML
         except (ImportError, OSError) as err:
-            raise ConfigError(f"--pdf needs WeasyPrint and its system libraries (pip install 'riskshape[pdf]'): {err}") from None
+            raise ConfigError(
+                f"--pdf needs WeasyPrint and its system libraries (pip install 'riskshape[pdf]'): {err}"
+            ) from None
         HTML(string=page).write_pdf(str(pdf))
     return path

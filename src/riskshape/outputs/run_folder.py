@@ -19,8 +19,8 @@ import numpy as np
 import pandas as pd
 
 from riskshape.caution import CAUTION
-from riskshape.errors import DataError
 from riskshape.compute.monitor import MonitorResult
+from riskshape.errors import DataError
 
 __all__ = ["RunFiles", "write_run", "diagrams_table", "run_manifest"]
 
@@ -54,8 +54,14 @@ def diagrams_table(result: MonitorResult) -> pd.DataFrame:
                     )
                 )
     if not parts:
-        return pd.DataFrame({"window_end": pd.Series(dtype="datetime64[ns]"), "dim": pd.Series(dtype=np.int8),
-                             "birth": pd.Series(dtype=np.float32), "death": pd.Series(dtype=np.float32)})
+        return pd.DataFrame(
+            {
+                "window_end": pd.Series(dtype="datetime64[ns]"),
+                "dim": pd.Series(dtype=np.int8),
+                "birth": pd.Series(dtype=np.float32),
+                "death": pd.Series(dtype=np.float32),
+            }
+        )
     return pd.concat(parts, ignore_index=True)
 
 

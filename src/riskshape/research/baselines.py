@@ -32,11 +32,11 @@ from typing import Literal
 import numpy as np
 import pandas as pd
 
-from riskshape.config import Config
 from riskshape.compute.distance import correlation_matrix, mean_offdiagonal
-from riskshape.errors import DataError
 from riskshape.compute.returns import to_returns
 from riskshape.compute.windows import select_assets, window_end_positions
+from riskshape.config import Config
+from riskshape.errors import DataError
 
 __all__ = [
     "TRADING_DAYS_PER_YEAR",

@@ -16,8 +16,8 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
-from riskshape.errors import ConfigError, DataError
 from riskshape.compute.returns import to_returns
+from riskshape.errors import ConfigError, DataError
 
 __all__ = [
     "DrawdownEvents",

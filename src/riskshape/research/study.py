@@ -43,13 +43,20 @@ from sklearn.metrics import roc_auc_score
 
 from riskshape.alerts.model import Firing
 from riskshape.alerts.rules import evaluate_rule
-from riskshape.research.baselines import TRADING_DAYS_PER_YEAR
 from riskshape.config import RuleConfig
 from riskshape.errors import ConfigError
+from riskshape.research.baselines import TRADING_DAYS_PER_YEAR
 from riskshape.research.events import DrawdownEvents
 from riskshape.research.labels import event_labels, event_positions, positions
 
-__all__ = ["EventStudy", "event_labels", "event_study", "study_table", "default_rule", "ALERT_OUTCOMES"]  # event_labels: from labels
+__all__ = [
+    "EventStudy",
+    "event_labels",
+    "event_study",
+    "study_table",
+    "default_rule",
+    "ALERT_OUTCOMES",
+]  # event_labels: from labels
 
 ALERT_OUTCOMES: tuple[str, ...] = ("true", "false", "in_event", "unknown")
 Alerts: TypeAlias = RuleConfig | Sequence[Firing] | pd.DatetimeIndex | None
@@ -149,7 +156,9 @@ class EventStudy:
     @property
     def mean_kendall_tau(self) -> float:
         """Mean Kendall tau over the events with a trend computed."""
-        return float(self.per_event["kendall_tau"].mean()) if self.per_event["kendall_tau"].notna().any() else float("nan")
+        return (
+            float(self.per_event["kendall_tau"].mean()) if self.per_event["kendall_tau"].notna().any() else float("nan")
+        )
 
     def table(self) -> pd.Series:
         """The study in one row (for :func:`study_table`)."""
@@ -327,7 +336,9 @@ _PER_EVENT_COLUMNS = (
 )
 
 
-def _alert_outcomes(alert_pos: np.ndarray, starts: np.ndarray, troughs: np.ndarray, horizon: int, n_days: int) -> list[str]:
+def _alert_outcomes(
+    alert_pos: np.ndarray, starts: np.ndarray, troughs: np.ndarray, horizon: int, n_days: int
+) -> list[str]:
     outcomes = []
     for a in alert_pos:
         ahead = starts - a
@@ -375,12 +386,20 @@ def study_table(
     pandas.DataFrame
         One row per column (index ``signal``), the columns of :meth:`EventStudy.table` plus ``direction``.
     """
-    chosen = list(columns) if columns is not None else [
-        c for c in features.columns if c not in ("n_assets", "n_left_out") and pd.api.types.is_numeric_dtype(features[c])
-    ]
+    chosen = (
+        list(columns)
+        if columns is not None
+        else [
+            c
+            for c in features.columns
+            if c not in ("n_assets", "n_left_out") and pd.api.types.is_numeric_dtype(features[c])
+        ]
+    )
     missing = [c for c in chosen if c not in features.columns]
     if missing:
-        raise ConfigError(f"study_table: columns {missing} are not in the features; available: {list(features.columns)}")
+        raise ConfigError(
+            f"study_table: columns {missing} are not in the features; available: {list(features.columns)}"
+        )
     by_summary = {rule.summary: rule for rule in rules}
     rows = []
     for col in chosen:

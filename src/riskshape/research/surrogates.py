@@ -39,12 +39,12 @@ import pandas as pd
 from arch.bootstrap import MovingBlockBootstrap, StationaryBootstrap
 from scipy.stats import rankdata
 
+from riskshape.compute.batch import WindowSettings, compute_window
 from riskshape.compute.executors import make_executor
-from riskshape.errors import ConfigError, DataError
 from riskshape.compute.monitor import MonitorResult, settings_of
 from riskshape.compute.summaries import SUMMARY_NAMES, summarize_diagram
-from riskshape.compute.batch import WindowSettings, compute_window
 from riskshape.compute.windows import select_assets
+from riskshape.errors import ConfigError, DataError
 
 __all__ = [
     "METHODS",
@@ -62,7 +62,9 @@ METHODS: tuple[str, ...] = ("shuffle", "gaussian", "phase", "iaaft", "stationary
 def _complete(block: np.ndarray, method: str) -> np.ndarray:
     data = np.asarray(block, dtype=float)
     if data.ndim != 2 or data.shape[0] < 4:
-        raise DataError(f"surrogate '{method}': need a (days, assets) block with at least 4 days, got shape {data.shape}")
+        raise DataError(
+            f"surrogate '{method}': need a (days, assets) block with at least 4 days, got shape {data.shape}"
+        )
     if not np.isfinite(data).all():
         raise DataError(
             f"surrogate '{method}': the block holds missing or infinite returns; use the complete block "

@@ -15,11 +15,11 @@ from typing import Literal
 
 import pandas as pd
 
-from riskshape.research.baselines import compute_baselines
 from riskshape.compute.executors import make_executor
+from riskshape.compute.monitor import monitor
 from riskshape.config import Config
 from riskshape.errors import ConfigError
-from riskshape.compute.monitor import monitor
+from riskshape.research.baselines import compute_baselines
 from riskshape.research.events import DrawdownEvents
 from riskshape.research.study import study_table
 

@@ -20,10 +20,25 @@ from datetime import date, datetime, timezone
 __all__ = ["ALERT_FIELDS", "REVIEW_FIELDS", "canonical_bytes", "entry_hash", "canonical_value"]
 
 ALERT_FIELDS = (
-    "id", "seq", "prev_hash", "portfolio_id", "portfolio", "rule", "summary", "kind", "window_end", "value",
-    "threshold", "severity", "raised_at", "config_hash", "inputs_hash", "package_version", "run_id",
+    "id",
+    "seq",
+    "prev_hash",
+    "portfolio_id",
+    "portfolio",
+    "rule",
+    "summary",
+    "kind",
+    "window_end",
+    "value",
+    "threshold",
+    "severity",
+    "raised_at",
+    "config_hash",
+    "inputs_hash",
+    "package_version",
+    "run_id",
     "explanation",
-)  # fmt: skip
+)
 """Stored fields of an alert that its hash covers (every column but ``entry_hash``)."""
 
 REVIEW_FIELDS = ("id", "seq", "prev_hash", "alert_id", "action", "reviewer", "comment", "created_at")

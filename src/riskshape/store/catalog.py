@@ -18,8 +18,18 @@ from riskshape.store.database import read_transaction, write_transaction
 from riskshape.store.pricebook import append_prices, max_price_id, validated
 from riskshape.store.records import Portfolio, PriceWrite, Run, RunManifest
 
-__all__ = ["check_name", "portfolio_id", "create_portfolio", "ensure_portfolio", "get_portfolio", "list_portfolios",
-           "create_run", "get_run", "latest_run", "list_runs"]
+__all__ = [
+    "check_name",
+    "portfolio_id",
+    "create_portfolio",
+    "ensure_portfolio",
+    "get_portfolio",
+    "list_portfolios",
+    "create_run",
+    "get_run",
+    "latest_run",
+    "list_runs",
+]
 
 _HEX64 = re.compile(r"^[0-9a-f]{64}$")
 
@@ -93,12 +103,22 @@ def list_portfolios(engine: Engine) -> tuple[Portfolio, ...]:
 
 def _run(row: Any) -> Run:
     return Run(
-        id=int(row.id), portfolio=row.name, created_at=row.created_at, config=json.loads(row.config_json),
-        config_hash=row.config_hash, input_hash=row.input_hash, package_version=row.package_version,
-        source=row.source, first_date=row.first_date, last_date=row.last_date, n_dates=int(row.n_dates),
-        assets=tuple(json.loads(row.assets_json)), prices_through_id=int(row.prices_through_id),
-        prices_added=int(row.prices_added), corrections_added=int(row.corrections_added),
-    )  # fmt: skip
+        id=int(row.id),
+        portfolio=row.name,
+        created_at=row.created_at,
+        config=json.loads(row.config_json),
+        config_hash=row.config_hash,
+        input_hash=row.input_hash,
+        package_version=row.package_version,
+        source=row.source,
+        first_date=row.first_date,
+        last_date=row.last_date,
+        n_dates=int(row.n_dates),
+        assets=tuple(json.loads(row.assets_json)),
+        prices_through_id=int(row.prices_through_id),
+        prices_added=int(row.prices_added),
+        corrections_added=int(row.corrections_added),
+    )
 
 
 def _run_query() -> sa.Select[Any]:
@@ -107,7 +127,8 @@ def _run_query() -> sa.Select[Any]:
 
 def create_run(engine: Engine, portfolio: str, manifest: RunManifest, prices: pd.DataFrame | None = None) -> Run:
     """Archive the prices of a run (as corrections where they differ) and record its manifest, in one
-    transaction. See :meth:`riskshape.store.Store.create_run`."""
+    transaction. See :meth:`riskshape.store.Store.create_run`.
+    """
     for name in ("config_hash", "input_hash"):
         value = getattr(manifest, name)
         if not isinstance(value, str) or not _HEX64.match(value):
@@ -124,13 +145,21 @@ def create_run(engine: Engine, portfolio: str, manifest: RunManifest, prices: pd
         pid = portfolio_id(connection, portfolio)
         written = PriceWrite(0, 0, 0) if valid is None else append_prices(connection, pid, valid, now)
         values = {
-            "portfolio_id": pid, "created_at": now, "config_json": config_json, "config_hash": manifest.config_hash,
-            "input_hash": manifest.input_hash, "package_version": manifest.package_version, "source": manifest.source,
-            "first_date": min(dates) if dates else None, "last_date": max(dates) if dates else None,
-            "n_dates": len(dates), "assets_json": json.dumps(assets),
+            "portfolio_id": pid,
+            "created_at": now,
+            "config_json": config_json,
+            "config_hash": manifest.config_hash,
+            "input_hash": manifest.input_hash,
+            "package_version": manifest.package_version,
+            "source": manifest.source,
+            "first_date": min(dates) if dates else None,
+            "last_date": max(dates) if dates else None,
+            "n_dates": len(dates),
+            "assets_json": json.dumps(assets),
             "prices_through_id": max_price_id(connection, pid),
-            "prices_added": written.added, "corrections_added": written.corrections,
-        }  # fmt: skip
+            "prices_added": written.added,
+            "corrections_added": written.corrections,
+        }
         run_id = connection.execute(sa.insert(t.runs).values(**values)).inserted_primary_key
         assert run_id is not None
         row = connection.execute(_run_query().where(t.runs.c.id == run_id[0])).one()

@@ -65,8 +65,9 @@ Records = dict[int, list[tuple[str, Any]]]
 def _chunks(connection: Connection, low: int, high: int) -> Iterator[tuple[int, dict[int, Any], Records]]:
     for start in range(low, high + 1, CHUNK):
         stop = min(start + CHUNK - 1, high)
-        entries = {int(r.seq): r for r in connection.execute(
-            sa.select(t.ledger).where(t.ledger.c.seq.between(start, stop)))}
+        entries = {
+            int(r.seq): r for r in connection.execute(sa.select(t.ledger).where(t.ledger.c.seq.between(start, stop)))
+        }
         records: dict[int, list[tuple[str, Any]]] = defaultdict(list)
         for name, table in (("alerts", t.alerts), ("reviews", t.reviews)):
             for row in connection.execute(sa.select(table).where(table.c.seq.between(start, stop))):
@@ -81,26 +82,42 @@ def _check(seq: int, entry: Any, found: list[tuple[str, Any]], prev: str) -> tup
         name, row = found[0] if found else ("ledger", None)
         return BadRecord(seq, name, getattr(row, "id", None), "seq below 1: the ledger starts at seq 1"), prev
     if entry is None and not found:
-        return BadRecord(seq, "ledger", None, "record missing: no ledger entry and no alert or review has this seq "
-                                              "(deleted?)"), prev
+        return BadRecord(
+            seq, "ledger", None, "record missing: no ledger entry and no alert or review has this seq (deleted?)"
+        ), prev
     if len(found) > 1:
         names = ", ".join(f"{n} id {r.id}" for n, r in found)
         return BadRecord(seq, found[0][0], found[0][1].id, f"several records claim this seq ({names})"), prev
     if not found:
         table = _TABLE_OF_KIND.get(entry.kind, str(entry.kind))
-        return BadRecord(seq, table, None, f"the ledger lists a {entry.kind} here but no {table} row has this seq "
-                                           "(deleted?)"), prev
+        return BadRecord(
+            seq, table, None, f"the ledger lists a {entry.kind} here but no {table} row has this seq (deleted?)"
+        ), prev
     name, row = found[0]
     if entry is None:
-        return BadRecord(seq, name, row.id, "no ledger entry for this record (inserted around the ledger, or its "
-                                            "ledger entry deleted)"), prev
+        return BadRecord(
+            seq,
+            name,
+            row.id,
+            "no ledger entry for this record (inserted around the ledger, or its ledger entry deleted)",
+        ), prev
     if row.prev_hash != prev:
-        return BadRecord(seq, name, row.id, f"prev_hash {row.prev_hash} is not the hash of the record before "
-                                            f"({prev}): records deleted, reordered or inserted"), prev
+        return BadRecord(
+            seq,
+            name,
+            row.id,
+            f"prev_hash {row.prev_hash} is not the hash of the record before "
+            f"({prev}): records deleted, reordered or inserted",
+        ), prev
     recomputed = entry_hash(name, row._mapping)
     if recomputed != row.entry_hash:
-        return BadRecord(seq, name, row.id, f"content does not match its hash (stored {row.entry_hash}, "
-                                            f"recomputed {recomputed}): a stored field was changed"), prev
+        return BadRecord(
+            seq,
+            name,
+            row.id,
+            f"content does not match its hash (stored {row.entry_hash}, "
+            f"recomputed {recomputed}): a stored field was changed",
+        ), prev
     if _TABLE_OF_KIND.get(entry.kind) != name or entry.prev_hash != row.prev_hash or entry.entry_hash != row.entry_hash:
         return BadRecord(seq, name, row.id, "the ledger entry disagrees with the record (kind or hashes)"), prev
     return None, row.entry_hash
@@ -116,13 +133,18 @@ def verify_ledger(connection: Connection, expect_head: str | None = None) -> Ver
     for seq, entries, records in _chunks(connection, low, high):
         problem, prev = _check(seq, entries.get(seq), records.get(seq, []), prev)
         if problem is not None:
-            return VerifyReport(ok=False, checked=checked, head=Head(checked, prev), first_bad=problem,
-                                merkle_root=merkle_root(leaves))
+            return VerifyReport(
+                ok=False, checked=checked, head=Head(checked, prev), first_bad=problem, merkle_root=merkle_root(leaves)
+            )
         checked += 1
         leaves.append(bytes.fromhex(prev))
-        if expected is not None and expected[0] is None and prev == expected[1]:
-            hashes_at[seq] = prev
-        elif expected is not None and expected[0] == seq:
+        if (
+            expected is not None
+            and expected[0] is None
+            and prev == expected[1]
+            or expected is not None
+            and expected[0] == seq
+        ):
             hashes_at[seq] = prev
     head = Head(checked, prev)
     root = merkle_root(leaves)
@@ -139,15 +161,27 @@ def _against(expected: tuple[int | None, str], head: Head, hashes_at: dict[int, 
     if count is None:
         if wanted in hashes_at.values():
             return None
-        return BadRecord(head.count + 1, "ledger", None,
-                         f"the expected head hash {wanted} is not in the archive ({head.count} records): "
-                         "records cut off the tail, or another archive")
+        return BadRecord(
+            head.count + 1,
+            "ledger",
+            None,
+            f"the expected head hash {wanted} is not in the archive ({head.count} records): "
+            "records cut off the tail, or another archive",
+        )
     if head.count < count:
-        return BadRecord(head.count + 1, "ledger", None,
-                         f"the archive holds {head.count} records but the expected head has {count}: "
-                         f"the last {count - head.count} record(s) are missing (tail cut)")
+        return BadRecord(
+            head.count + 1,
+            "ledger",
+            None,
+            f"the archive holds {head.count} records but the expected head has {count}: "
+            f"the last {count - head.count} record(s) are missing (tail cut)",
+        )
     if hashes_at.get(count) != wanted:
-        return BadRecord(count, "ledger", None,
-                         f"record {count} has hash {hashes_at.get(count)}, the expected head says {wanted}: "
-                         "the history up to the head was rewritten")
+        return BadRecord(
+            count,
+            "ledger",
+            None,
+            f"record {count} has hash {hashes_at.get(count)}, the expected head says {wanted}: "
+            "the history up to the head was rewritten",
+        )
     return None

@@ -29,8 +29,14 @@ from sqlalchemy.exc import ArgumentError, NoSuchModuleError
 
 from riskshape.errors import StoreError
 
-__all__ = ["create_archive_engine", "write_transaction", "read_transaction", "upgrade", "schema_revision",
-           "archive_exists"]
+__all__ = [
+    "create_archive_engine",
+    "write_transaction",
+    "read_transaction",
+    "upgrade",
+    "schema_revision",
+    "archive_exists",
+]
 
 WRITE_OPTION = "riskshape_write"
 BUSY_TIMEOUT_MS = 30_000
@@ -131,7 +137,8 @@ def read_transaction(engine: Engine) -> Iterator[Connection]:
 
 def archive_exists(engine: Engine) -> bool:
     """Whether the database already holds an archive (a SQLite file with the schema, or a PostgreSQL
-    schema with the archive's migration table), without creating anything."""
+    schema with the archive's migration table), without creating anything.
+    """
     if engine.dialect.name == "sqlite":
         database = engine.url.database or ""
         if not Path(database).expanduser().is_file():

@@ -33,8 +33,9 @@ def _digest(secret: str) -> str:
 
 
 def _key(row: Any) -> ApiKey:
-    return ApiKey(key_id=row.key_id, role=row.role, owner=row.owner, created_at=row.created_at,
-                  revoked=bool(row.revoked))
+    return ApiKey(
+        key_id=row.key_id, role=row.role, owner=row.owner, created_at=row.created_at, revoked=bool(row.revoked)
+    )
 
 
 def create_api_key(engine: Engine, owner: str, role: str) -> NewApiKey:
@@ -46,10 +47,14 @@ def create_api_key(engine: Engine, owner: str, role: str) -> NewApiKey:
     key_id, secret = secrets.token_hex(8), secrets.token_urlsafe(32)
     now = datetime.now(timezone.utc)
     with write_transaction(engine) as connection:
-        connection.execute(sa.insert(t.api_keys).values(key_id=key_id, key_hash=_digest(secret), role=role,
-                                                        owner=owner, created_at=now, revoked=False))
-    return NewApiKey(key=ApiKey(key_id=key_id, role=role, owner=owner, created_at=now, revoked=False),
-                     token=f"{key_id}.{secret}")
+        connection.execute(
+            sa.insert(t.api_keys).values(
+                key_id=key_id, key_hash=_digest(secret), role=role, owner=owner, created_at=now, revoked=False
+            )
+        )
+    return NewApiKey(
+        key=ApiKey(key_id=key_id, role=role, owner=owner, created_at=now, revoked=False), token=f"{key_id}.{secret}"
+    )
 
 
 def lookup_api_key(engine: Engine, token: str) -> ApiKey | None:

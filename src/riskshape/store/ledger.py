@@ -31,8 +31,16 @@ from riskshape.store.records import (
     ReviewRecord,
 )
 
-__all__ = ["append_alerts", "append_review", "list_alerts", "get_alert", "alert_from_row", "review_from_row",
-           "ledger_head", "to_date"]
+__all__ = [
+    "append_alerts",
+    "append_review",
+    "list_alerts",
+    "get_alert",
+    "alert_from_row",
+    "review_from_row",
+    "ledger_head",
+    "to_date",
+]
 
 _HEX64 = re.compile(r"^[0-9a-f]{64}$")
 MAX_COMMENT = 10_000
@@ -69,9 +77,14 @@ def _check_alert(alert: Alert, n: int) -> None:
     for name, number in (("value", f.value), ("threshold", f.threshold)):
         if not isinstance(number, (int, float)) or not math.isfinite(float(number)):
             raise StoreError(f"{where}: {name} must be a finite number, got {number!r}")
-    for name, text, limit in (("rule", f.rule, 80), ("summary", f.summary, 80), ("kind", f.kind, 16),
-                               ("severity", f.severity, 16), ("portfolio", alert.portfolio, 200),
-                               ("package_version", alert.package_version, 64)):
+    for name, text, limit in (
+        ("rule", f.rule, 80),
+        ("summary", f.summary, 80),
+        ("kind", f.kind, 16),
+        ("severity", f.severity, 16),
+        ("portfolio", alert.portfolio, 200),
+        ("package_version", alert.package_version, 64),
+    ):
         if not isinstance(text, str) or not text or len(text) > limit:
             raise StoreError(f"{where}: {name} must be a non-empty string of at most {limit} characters, got {text!r}")
     for name, digest in (("config_hash", alert.config_hash), ("inputs_hash", alert.inputs_hash)):
@@ -83,7 +96,8 @@ def _check_alert(alert: Alert, n: int) -> None:
 
 def append_alerts(engine: Engine, alerts: Sequence[Alert], run_id: int) -> AlertAppend:
     """Append alerts of one run; an alert already archived (same portfolio, rule, window end and
-    configuration hash) adds nothing. See :meth:`riskshape.store.Store.append_alerts`."""
+    configuration hash) adds nothing. See :meth:`riskshape.store.Store.append_alerts`.
+    """
     for n, alert in enumerate(alerts):
         _check_alert(alert, n)
     ordered = sorted(alerts, key=lambda a: (pd.Timestamp(a.firing.window_end), a.firing.rule))
@@ -119,28 +133,43 @@ def append_alerts(engine: Engine, alerts: Sequence[Alert], run_id: int) -> Alert
             seen.add(key)
             seq += 1
             row: dict[str, Any] = {
-                "id": next_id, "seq": seq, "prev_hash": prev, "portfolio_id": run.pid, "portfolio": run.name,
-                "rule": f.rule, "summary": f.summary, "kind": f.kind, "window_end": key[1],
-                "value": float(f.value), "threshold": float(f.threshold), "severity": f.severity,
-                "raised_at": alert.raised_at.astimezone(timezone.utc), "config_hash": alert.config_hash,
-                "inputs_hash": alert.inputs_hash, "package_version": alert.package_version, "run_id": run_id,
+                "id": next_id,
+                "seq": seq,
+                "prev_hash": prev,
+                "portfolio_id": run.pid,
+                "portfolio": run.name,
+                "rule": f.rule,
+                "summary": f.summary,
+                "kind": f.kind,
+                "window_end": key[1],
+                "value": float(f.value),
+                "threshold": float(f.threshold),
+                "severity": f.severity,
+                "raised_at": alert.raised_at.astimezone(timezone.utc),
+                "config_hash": alert.config_hash,
+                "inputs_hash": alert.inputs_hash,
+                "package_version": alert.package_version,
+                "run_id": run_id,
                 "explanation": alert.explanation,
-            }  # fmt: skip
+            }
             row["entry_hash"] = prev = entry_hash("alerts", row)
             rows.append(row)
             next_id += 1
         if rows:
             connection.execute(
                 sa.insert(t.ledger),
-                [{"seq": r["seq"], "kind": "alert", "prev_hash": r["prev_hash"], "entry_hash": r["entry_hash"]}
-                 for r in rows],
+                [
+                    {"seq": r["seq"], "kind": "alert", "prev_hash": r["prev_hash"], "entry_hash": r["entry_hash"]}
+                    for r in rows
+                ],
             )
             connection.execute(sa.insert(t.alerts), rows)
     return AlertAppend(added=tuple(AlertRecord(**r) for r in rows), existing=existing)
 
 
-def append_review(engine: Engine, alert_id: int, action: str, reviewer: str, comment: str = "",
-                  now: datetime | None = None) -> ReviewRecord:
+def append_review(
+    engine: Engine, alert_id: int, action: str, reviewer: str, comment: str = "", now: datetime | None = None
+) -> ReviewRecord:
     """Append a review of an alert. See :meth:`riskshape.store.Store.append_review`."""
     if action not in REVIEW_ACTIONS:
         raise StoreError(f"review action {action!r} is not one of {', '.join(REVIEW_ACTIONS)}")
@@ -155,9 +184,15 @@ def append_review(engine: Engine, alert_id: int, action: str, reviewer: str, com
             raise NotFoundError(f"alert {alert_id} is not in the archive; list alerts to find its id")
         seq, prev = ledger_head(connection)
         row: dict[str, Any] = {
-            "id": _next_id(connection, t.reviews), "seq": seq + 1, "prev_hash": prev, "alert_id": alert_id,
-            "action": action, "reviewer": reviewer, "comment": comment, "created_at": created,
-        }  # fmt: skip
+            "id": _next_id(connection, t.reviews),
+            "seq": seq + 1,
+            "prev_hash": prev,
+            "alert_id": alert_id,
+            "action": action,
+            "reviewer": reviewer,
+            "comment": comment,
+            "created_at": created,
+        }
         row["entry_hash"] = entry_hash("reviews", row)
         connection.execute(
             sa.insert(t.ledger),

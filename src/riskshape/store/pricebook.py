@@ -39,8 +39,14 @@ def _long(frame: pd.DataFrame) -> pd.DataFrame:
 _LATEST_COLUMNS = ["id", "date", "asset", "price", "revision"]
 
 
-def _latest(connection: Connection, portfolio_id: int, start: date | None, end: date | None,
-            assets: list[str] | None, through_id: int | None) -> pd.DataFrame:
+def _latest(
+    connection: Connection,
+    portfolio_id: int,
+    start: date | None,
+    end: date | None,
+    assets: list[str] | None,
+    through_id: int | None,
+) -> pd.DataFrame:
     """Latest revision of each cell, as rows (id, date, asset, price, revision), dates as ``datetime.date``.
 
     Read through the driver's own cursor: building a SQLAlchemy row per result row took three
@@ -89,7 +95,8 @@ def _latest(connection: Connection, portfolio_id: int, start: date | None, end: 
 
 def validated(prices: pd.DataFrame, source: str) -> pd.DataFrame:
     """The table through :func:`riskshape.prices.validate_prices` (raises :class:`DataError`), with asset
-    names of at most 200 characters."""
+    names of at most 200 characters.
+    """
     valid = validate_prices(prices, source=source, min_rows=1)
     long_names = [c for c in valid.columns if len(c) > 200]
     if long_names:
@@ -101,8 +108,9 @@ def append_prices(connection: Connection, portfolio_id: int, valid: pd.DataFrame
     """Append a validated wide price table (see :func:`validated`) inside an open write transaction."""
     incoming = _long(valid)
     held = _latest(connection, portfolio_id, incoming["date"].min(), incoming["date"].max(), None, None)
-    merged = incoming.merge(held[["date", "asset", "price", "revision"]], on=["date", "asset"], how="left",
-                            suffixes=("", "_held"))
+    merged = incoming.merge(
+        held[["date", "asset", "price", "revision"]], on=["date", "asset"], how="left", suffixes=("", "_held")
+    )
     is_new = merged["revision"].isna().to_numpy()
     new_price, old_price = merged["price"].to_numpy(float), merged["price_held"].to_numpy(float)
     same = (new_price == old_price) | (np.isnan(new_price) & np.isnan(old_price))
@@ -111,18 +119,22 @@ def append_prices(connection: Connection, portfolio_id: int, valid: pd.DataFrame
     keep = is_new | changed
     part = merged[keep]
     revs = np.where(is_new[keep], 0, np.nan_to_num(revision[keep].astype(float)) + 1).astype(int)
-    rows = [(d, asset, None if math.isnan(price) else float(price), int(r))
-            for (d, asset, price), r in zip(part[["date", "asset", "price"]].itertuples(index=False), revs)]
+    rows = [
+        (d, asset, None if math.isnan(price) else float(price), int(r))
+        for (d, asset, price), r in zip(part[["date", "asset", "price"]].itertuples(index=False), revs)
+    ]
     _bulk_insert(connection, portfolio_id, rows, now)
     return PriceWrite(added=int(is_new.sum()), corrections=int(changed.sum()), unchanged=int((~is_new & same).sum()))
 
 
-def _bulk_insert(connection: Connection, portfolio_id: int, rows: list[tuple[date, str, float | None, int]],
-                 now: datetime) -> None:
+def _bulk_insert(
+    connection: Connection, portfolio_id: int, rows: list[tuple[date, str, float | None, int]], now: datetime
+) -> None:
     """Insert price rows with the driver's ``executemany`` (SQLAlchemy's per-row parameter processing
     costs ~70 us a row, which dominates a run of 60 000 cells). Values are given in the form the
     SQLAlchemy column types would store: ISO text on SQLite (as its Date and DateTime types do),
-    native date and aware datetime on PostgreSQL."""
+    native date and aware datetime on PostgreSQL.
+    """
     if not rows:
         return
     columns = "portfolio_id, date, asset, price, revision, recorded_at"
@@ -144,8 +156,14 @@ def max_price_id(connection: Connection, portfolio_id: int) -> int:
     return int(connection.execute(query).scalar_one())
 
 
-def read_prices(connection: Connection, portfolio_id: int, start: date | None = None, end: date | None = None,
-                assets: list[str] | None = None, through_id: int | None = None) -> pd.DataFrame:
+def read_prices(
+    connection: Connection,
+    portfolio_id: int,
+    start: date | None = None,
+    end: date | None = None,
+    assets: list[str] | None = None,
+    through_id: int | None = None,
+) -> pd.DataFrame:
     """Latest revision of every cell as a wide table (dates x assets, NaN where missing).
 
     Columns follow ``assets`` when given (assets never archived come out all-NaN), else sorted names.
@@ -164,14 +182,22 @@ def read_prices(connection: Connection, portfolio_id: int, start: date | None = 
     return wide
 
 
-def list_corrections(connection: Connection, portfolio_id: int, start: date | None = None,
-                     end: date | None = None) -> tuple[PriceCorrection, ...]:
+def list_corrections(
+    connection: Connection, portfolio_id: int, start: date | None = None, end: date | None = None
+) -> tuple[PriceCorrection, ...]:
     """Every revision > 0 with the price it replaced, by date, asset and revision."""
     p, q = t.prices, t.prices.alias("previous")
     query = (
         sa.select(p.c.date, p.c.asset, p.c.revision, q.c.price.label("old"), p.c.price.label("new"), p.c.recorded_at)
-        .join(q, sa.and_(q.c.portfolio_id == p.c.portfolio_id, q.c.date == p.c.date, q.c.asset == p.c.asset,
-                         q.c.revision == p.c.revision - 1))
+        .join(
+            q,
+            sa.and_(
+                q.c.portfolio_id == p.c.portfolio_id,
+                q.c.date == p.c.date,
+                q.c.asset == p.c.asset,
+                q.c.revision == p.c.revision - 1,
+            ),
+        )
         .where(p.c.portfolio_id == portfolio_id, p.c.revision > 0)
         .order_by(p.c.date, p.c.asset, p.c.revision)
     )
@@ -181,9 +207,13 @@ def list_corrections(connection: Connection, portfolio_id: int, start: date | No
         query = query.where(p.c.date <= end)
     nan = float("nan")
     return tuple(
-        PriceCorrection(date=r.date, asset=r.asset, revision=int(r.revision),
-                        old_price=nan if r.old is None else float(r.old),
-                        new_price=nan if r.new is None else float(r.new), recorded_at=r.recorded_at)
+        PriceCorrection(
+            date=r.date,
+            asset=r.asset,
+            revision=int(r.revision),
+            old_price=nan if r.old is None else float(r.old),
+            new_price=nan if r.new is None else float(r.new),
+            recorded_at=r.recorded_at,
+        )
         for r in connection.execute(query)
     )
-

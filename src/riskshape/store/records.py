@@ -131,7 +131,8 @@ class PriceCorrection:
 @dataclass(frozen=True)
 class WriteCount:
     """Outcome of an idempotent write: rows added, rows already there (identical), rows already there
-    with different content (kept as archived, not overwritten)."""
+    with different content (kept as archived, not overwritten).
+    """
 
     added: int
     existing: int

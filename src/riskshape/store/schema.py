@@ -24,8 +24,20 @@ from typing import Any
 
 import sqlalchemy as sa
 
-__all__ = ["metadata", "UtcDateTime", "portfolios", "runs", "prices", "features", "diagrams", "ledger", "alerts",
-           "reviews", "api_keys", "APPEND_ONLY_TABLES"]
+__all__ = [
+    "metadata",
+    "UtcDateTime",
+    "portfolios",
+    "runs",
+    "prices",
+    "features",
+    "diagrams",
+    "ledger",
+    "alerts",
+    "reviews",
+    "api_keys",
+    "APPEND_ONLY_TABLES",
+]
 
 APPEND_ONLY_TABLES = ("ledger", "alerts", "reviews", "prices", "runs")
 

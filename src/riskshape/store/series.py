@@ -71,11 +71,18 @@ def write_features(engine: Engine, run_id: int, features: pd.DataFrame) -> Write
     with write_transaction(engine) as connection:
         pid, config_hash = _run_keys(connection, run_id)
         f = t.features
-        held = dict(connection.execute(
-            sa.select(f.c.window_end, f.c.values_json).where(f.c.portfolio_id == pid, f.c.config_hash == config_hash)
-        ).all())
-        rows = [{"portfolio_id": pid, "config_hash": config_hash, "window_end": e, "run_id": run_id,
-                 "values_json": text} for e, text in zip(ends, texts) if e not in held]
+        held = dict(
+            connection.execute(
+                sa.select(f.c.window_end, f.c.values_json).where(
+                    f.c.portfolio_id == pid, f.c.config_hash == config_hash
+                )
+            ).all()
+        )
+        rows = [
+            {"portfolio_id": pid, "config_hash": config_hash, "window_end": e, "run_id": run_id, "values_json": text}
+            for e, text in zip(ends, texts)
+            if e not in held
+        ]
         differing = sum(1 for e, text in zip(ends, texts) if e in held and held[e] != text)
         if rows:
             connection.execute(sa.insert(f), rows)
@@ -92,9 +99,17 @@ def window_ends(engine: Engine, portfolio: str, config_hash: str | None = None) 
         return tuple(connection.execute(query.order_by(f.c.window_end)).scalars())
 
 
-def read_features(engine: Engine, portfolio: str, *, start: object = None, end: object = None,
-                  columns: Sequence[str] | None = None, limit: int | None = None, offset: int = 0,
-                  config_hash: str | None = None) -> FeaturesPage:
+def read_features(
+    engine: Engine,
+    portfolio: str,
+    *,
+    start: object = None,
+    end: object = None,
+    columns: Sequence[str] | None = None,
+    limit: int | None = None,
+    offset: int = 0,
+    config_hash: str | None = None,
+) -> FeaturesPage:
     """A page of the features series. See :meth:`riskshape.store.Store.read_features`."""
     if (limit is not None and limit < 0) or offset < 0:
         raise StoreError(f"paging: limit and offset must not be negative, got limit={limit}, offset={offset}")
@@ -138,28 +153,47 @@ def write_diagrams(engine: Engine, run_id: int, diagrams: Iterable[tuple[object,
                 f"diagram {window_end} dim {dim}: bars must be an (n, 2) array of finite (birth, death), "
                 f"got shape {array.shape}"
             )
-        prepared.append((to_date(window_end, "diagram window_end"), int(dim), len(array),
-                         np.ascontiguousarray(array, dtype=BAR_DTYPE).tobytes()))
+        prepared.append(
+            (
+                to_date(window_end, "diagram window_end"),
+                int(dim),
+                len(array),
+                np.ascontiguousarray(array, dtype=BAR_DTYPE).tobytes(),
+            )
+        )
     with write_transaction(engine) as connection:
         pid, config_hash = _run_keys(connection, run_id)
         d = t.diagrams
         held = {
             (r.window_end, int(r.dim)): bytes(r.bars)
             for r in connection.execute(
-                sa.select(d.c.window_end, d.c.dim, d.c.bars)
-                .where(d.c.portfolio_id == pid, d.c.config_hash == config_hash)
+                sa.select(d.c.window_end, d.c.dim, d.c.bars).where(
+                    d.c.portfolio_id == pid, d.c.config_hash == config_hash
+                )
             )
         }
-        rows = [{"portfolio_id": pid, "config_hash": config_hash, "window_end": e, "dim": k, "run_id": run_id,
-                 "n_bars": n, "bars": blob} for e, k, n, blob in prepared if (e, k) not in held]
+        rows = [
+            {
+                "portfolio_id": pid,
+                "config_hash": config_hash,
+                "window_end": e,
+                "dim": k,
+                "run_id": run_id,
+                "n_bars": n,
+                "bars": blob,
+            }
+            for e, k, n, blob in prepared
+            if (e, k) not in held
+        ]
         differing = sum(1 for e, k, _, blob in prepared if (e, k) in held and held[(e, k)] != blob)
         if rows:
             connection.execute(sa.insert(d), rows)
     return WriteCount(added=len(rows), existing=len(prepared) - len(rows) - differing, differing=differing)
 
 
-def read_diagram(engine: Engine, portfolio: str, window_end: object, dim: int,
-                 config_hash: str | None = None) -> Diagram:
+def read_diagram(
+    engine: Engine, portfolio: str, window_end: object, dim: int, config_hash: str | None = None
+) -> Diagram:
     """One archived diagram. See :meth:`riskshape.store.Store.read_diagram`."""
     day = to_date(window_end, "window_end")
     d = t.diagrams
@@ -167,8 +201,9 @@ def read_diagram(engine: Engine, portfolio: str, window_end: object, dim: int,
         pid = portfolio_id(connection, portfolio)
         chosen = config_hash or latest_config_hash(connection, pid)
         row = connection.execute(
-            sa.select(d.c.bars, d.c.n_bars, d.c.run_id, d.c.config_hash)
-            .where(d.c.portfolio_id == pid, d.c.config_hash == chosen, d.c.window_end == day, d.c.dim == dim)
+            sa.select(d.c.bars, d.c.n_bars, d.c.run_id, d.c.config_hash).where(
+                d.c.portfolio_id == pid, d.c.config_hash == chosen, d.c.window_end == day, d.c.dim == dim
+            )
         ).first()
     if row is None:
         raise NotFoundError(
@@ -177,5 +212,6 @@ def read_diagram(engine: Engine, portfolio: str, window_end: object, dim: int,
         )
     bars = np.frombuffer(bytes(row.bars), dtype=BAR_DTYPE).reshape(int(row.n_bars), 2).copy()
     bars.setflags(write=False)
-    return Diagram(portfolio=portfolio, window_end=day, dim=dim, config_hash=row.config_hash, run_id=int(row.run_id),
-                   bars=bars)
+    return Diagram(
+        portfolio=portfolio, window_end=day, dim=dim, config_hash=row.config_hash, run_id=int(row.run_id), bars=bars
+    )

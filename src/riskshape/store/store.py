@@ -81,7 +81,7 @@ class Store:
         self.url = url
         self.revision = revision
 
-    def __enter__(self) -> "Store":
+    def __enter__(self) -> Store:
         return self
 
     def __exit__(self, *exc: object) -> None:
@@ -145,8 +145,15 @@ class Store:
             return pricebook.append_prices(connection, pid, valid, datetime.now(timezone.utc))
 
     @_database_errors
-    def read_prices(self, portfolio: str, *, start: object = None, end: object = None,
-                    assets: Sequence[str] | None = None, as_of_run: int | None = None) -> pd.DataFrame:
+    def read_prices(
+        self,
+        portfolio: str,
+        *,
+        start: object = None,
+        end: object = None,
+        assets: Sequence[str] | None = None,
+        as_of_run: int | None = None,
+    ) -> pd.DataFrame:
         """Prices as a wide DataFrame (latest revision of every cell).
 
         Parameters
@@ -178,8 +185,9 @@ class Store:
             return pricebook.read_prices(connection, pid, first, last, columns, through)
 
     @_database_errors
-    def list_corrections(self, portfolio: str, *, start: object = None,
-                         end: object = None) -> tuple[PriceCorrection, ...]:
+    def list_corrections(
+        self, portfolio: str, *, start: object = None, end: object = None
+    ) -> tuple[PriceCorrection, ...]:
         """Every corrected price cell (revision > 0) with the price it replaced, by date and asset."""
         first = None if start is None else ledger.to_date(start, "start")
         last = None if end is None else ledger.to_date(end, "end")
@@ -222,16 +230,32 @@ class Store:
         return series.window_ends(self.engine, portfolio, config_hash)
 
     @_database_errors
-    def read_features(self, portfolio: str, *, start: object = None, end: object = None,
-                      columns: Sequence[str] | None = None, limit: int | None = None, offset: int = 0,
-                      config_hash: str | None = None) -> FeaturesPage:
+    def read_features(
+        self,
+        portfolio: str,
+        *,
+        start: object = None,
+        end: object = None,
+        columns: Sequence[str] | None = None,
+        limit: int | None = None,
+        offset: int = 0,
+        config_hash: str | None = None,
+    ) -> FeaturesPage:
         """A page of the features series (window ends ascending).
 
         ``config_hash`` defaults to that of the portfolio's latest run. ``columns`` selects and orders
         columns (an unknown name raises StoreError listing the archived ones).
         """
-        return series.read_features(self.engine, portfolio, start=start, end=end, columns=columns, limit=limit,
-                                    offset=offset, config_hash=config_hash)
+        return series.read_features(
+            self.engine,
+            portfolio,
+            start=start,
+            end=end,
+            columns=columns,
+            limit=limit,
+            offset=offset,
+            config_hash=config_hash,
+        )
 
     @_database_errors
     def write_diagrams(self, run_id: int, diagrams: Iterable[tuple[object, int, np.ndarray]]) -> WriteCount:
@@ -254,13 +278,32 @@ class Store:
         return ledger.append_alerts(self.engine, alerts, run_id)
 
     @_database_errors
-    def list_alerts(self, *, portfolio: str | None = None, since: object = None, until: object = None,
-                    severity: str | Sequence[str] | None = None, rule: str | None = None,
-                    reviewed: bool | None = None, limit: int | None = 100, offset: int = 0) -> AlertPage:
+    def list_alerts(
+        self,
+        *,
+        portfolio: str | None = None,
+        since: object = None,
+        until: object = None,
+        severity: str | Sequence[str] | None = None,
+        rule: str | None = None,
+        reviewed: bool | None = None,
+        limit: int | None = 100,
+        offset: int = 0,
+    ) -> AlertPage:
         """Alerts by window end (then id). ``since``/``until`` bound the window end (inclusive);
-        ``reviewed`` True/False keeps alerts with / without any review."""
-        return ledger.list_alerts(self.engine, portfolio=portfolio, since=since, until=until, severity=severity,
-                                  rule=rule, reviewed=reviewed, limit=limit, offset=offset)
+        ``reviewed`` True/False keeps alerts with / without any review.
+        """
+        return ledger.list_alerts(
+            self.engine,
+            portfolio=portfolio,
+            since=since,
+            until=until,
+            severity=severity,
+            rule=rule,
+            reviewed=reviewed,
+            limit=limit,
+            offset=offset,
+        )
 
     @_database_errors
     def get_alert(self, alert_id: int) -> AlertDetail:
@@ -353,4 +396,3 @@ def chain_head(store: Store) -> Head:
     with read_transaction(store.engine) as connection:
         seq, head = ledger.ledger_head(connection)
     return Head(count=seq, head_hash=head)
-
