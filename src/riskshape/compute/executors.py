@@ -182,7 +182,12 @@ class DaskExecutor:
     """Sends jobs to a running Dask distributed scheduler (or to a ``distributed.Client`` given)."""
 
     def __init__(self, scheduler: str | None = None, client: Any = None) -> None:
-        from distributed import Client
+        try:
+            from distributed import Client
+        except ModuleNotFoundError:
+            raise ConfigError(
+                "executor 'dask' needs Dask distributed: pip install 'riskshape[dask]', or set executor = 'process'"
+            ) from None
 
         if client is None:
             if not scheduler:
