@@ -26,7 +26,7 @@ def test_schema_from_migrations_matches_the_models(store: Store) -> None:
     with store.engine.connect() as connection:
         context = MigrationContext.configure(connection, opts={"compare_type": True})
         assert compare_metadata(context, metadata) == []
-    assert store.revision == "0001"
+    assert store.revision == "0002"
 
 
 def test_reopening_runs_no_migration_and_keeps_data(store_url: str) -> None:
@@ -256,7 +256,10 @@ def test_reviews_join_the_chain(store: Store, run, rng: np.random.Generator) -> 
 def test_history_tables_refuse_update_and_delete(store: Store, run, rng: np.random.Generator, table: str) -> None:
     alert = store.append_alerts(make_alerts(rng, 1), run.id).added[0]
     store.append_review(alert.id, "acknowledge", "Reviewer One")
-    column = {"ledger": "kind", "alerts": "rule", "reviews": "comment", "prices": "asset", "runs": "source"}[table]
+    store.append_event("day_closed", {"date": "2030-01-02"})
+    column = {"ledger": "kind", "alerts": "rule", "reviews": "comment", "events": "actor", "prices": "asset"}.get(
+        table, "source"
+    )
     for statement in (f"UPDATE {table} SET {column} = 'x'", f"DELETE FROM {table}"):
         with store.engine.connect() as connection, pytest.raises(sa.exc.DatabaseError, match="append-only"):
             with connection.begin():

@@ -17,7 +17,7 @@ import math
 from collections.abc import Mapping
 from datetime import date, datetime, timezone
 
-__all__ = ["ALERT_FIELDS", "REVIEW_FIELDS", "canonical_bytes", "entry_hash", "canonical_value"]
+__all__ = ["ALERT_FIELDS", "REVIEW_FIELDS", "EVENT_FIELDS", "canonical_bytes", "entry_hash", "canonical_value"]
 
 ALERT_FIELDS = (
     "id",
@@ -44,7 +44,21 @@ ALERT_FIELDS = (
 REVIEW_FIELDS = ("id", "seq", "prev_hash", "alert_id", "action", "reviewer", "comment", "created_at")
 """Stored fields of a review that its hash covers (every column but ``entry_hash``)."""
 
-_FIELDS = {"alerts": ALERT_FIELDS, "reviews": REVIEW_FIELDS}
+EVENT_FIELDS = (
+    "id",
+    "seq",
+    "prev_hash",
+    "kind",
+    "portfolio_id",
+    "portfolio",
+    "subject",
+    "payload",
+    "actor",
+    "recorded_at",
+)
+"""Stored fields of an event that its hash covers (every column but ``entry_hash``)."""
+
+_FIELDS = {"alerts": ALERT_FIELDS, "reviews": REVIEW_FIELDS, "events": EVENT_FIELDS}
 
 
 def canonical_value(value: object) -> object:
@@ -67,7 +81,7 @@ def canonical_value(value: object) -> object:
 
 
 def canonical_bytes(table: str, record: Mapping[str, object]) -> bytes:
-    """The bytes hashed for a record of ``table`` (``alerts`` or ``reviews``)."""
+    """The bytes hashed for a record of ``table`` (``alerts``, ``reviews`` or ``events``)."""
     payload: dict[str, object] = {"table": table}
     for name in _FIELDS[table]:
         payload[name] = canonical_value(record[name])

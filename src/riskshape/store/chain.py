@@ -1,6 +1,6 @@
 """Verifying the ledger: recompute every hash, in order, and name the first record that fails.
 
-What is caught: a changed byte in any hashed field of an alert or review (its hash no longer
+What is caught: a changed byte in any hashed field of an alert, review or event (its hash no longer
 matches), a deleted record (a gap in ``seq``, or a ledger entry without its record), records
 swapped or renumbered (``prev_hash`` or the hash breaks), a row inserted around the ledger or a
 row whose hash is not the hash of its content. A chain alone cannot see records cut off its tail,
@@ -28,7 +28,7 @@ __all__ = ["parse_head", "verify_ledger", "ledger_summary"]
 
 CHUNK = 5000
 _HEAD = re.compile(r"^(?:(\d+):)?([0-9a-f]{64})$")
-_TABLE_OF_KIND = {"alert": "alerts", "review": "reviews"}
+_TABLE_OF_KIND = {"alert": "alerts", "review": "reviews", "event": "events"}
 
 
 def parse_head(text: str) -> tuple[int | None, str]:
@@ -51,7 +51,7 @@ def parse_head(text: str) -> tuple[int | None, str]:
 def ledger_summary(connection: Connection) -> tuple[int, int]:
     """(lowest, highest) seq found in the ledger, alerts and reviews ((1, 0) when all are empty)."""
     lows, highs = [1], [0]
-    for table in (t.ledger, t.alerts, t.reviews):
+    for table in (t.ledger, t.alerts, t.reviews, t.events):
         low, high = connection.execute(sa.select(sa.func.min(table.c.seq), sa.func.max(table.c.seq))).one()
         if low is not None:
             lows.append(int(low))
@@ -69,7 +69,7 @@ def _chunks(connection: Connection, low: int, high: int) -> Iterator[tuple[int, 
             int(r.seq): r for r in connection.execute(sa.select(t.ledger).where(t.ledger.c.seq.between(start, stop)))
         }
         records: dict[int, list[tuple[str, Any]]] = defaultdict(list)
-        for name, table in (("alerts", t.alerts), ("reviews", t.reviews)):
+        for name, table in (("alerts", t.alerts), ("reviews", t.reviews), ("events", t.events)):
             for row in connection.execute(sa.select(table).where(table.c.seq.between(start, stop))):
                 records[int(row.seq)].append((name, row))
         for seq in range(start, stop + 1):
@@ -83,7 +83,7 @@ def _check(seq: int, entry: Any, found: list[tuple[str, Any]], prev: str) -> tup
         return BadRecord(seq, name, getattr(row, "id", None), "seq below 1: the ledger starts at seq 1"), prev
     if entry is None and not found:
         return BadRecord(
-            seq, "ledger", None, "record missing: no ledger entry and no alert or review has this seq (deleted?)"
+            seq, "ledger", None, "record missing: no ledger entry and no alert, review or event has this seq (deleted?)"
         ), prev
     if len(found) > 1:
         names = ", ".join(f"{n} id {r.id}" for n, r in found)

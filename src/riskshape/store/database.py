@@ -129,6 +129,37 @@ def write_transaction(engine: Engine) -> Iterator[Connection]:
 
 
 @contextmanager
+def _migration_transaction(engine: Engine) -> Iterator[Connection]:
+    """A write transaction for schema migrations.
+
+    SQLite changes some schema (a CHECK constraint, say) only by rebuilding a table, which its
+    documentation says to do with foreign keys off (https://sqlite.org/lang_altertable.html,
+    section 7): they are turned off before the transaction begins, checked with
+    ``PRAGMA foreign_key_check`` before it commits (a violation rolls the migration back), and
+    turned on again afterwards. PostgreSQL changes constraints in place: a plain write transaction.
+    """
+    if engine.dialect.name != "sqlite":
+        with write_transaction(engine) as connection:
+            yield connection
+        return
+    with engine.connect() as connection:
+        driver: Any = connection.connection.driver_connection
+        driver.execute("PRAGMA foreign_keys = OFF")  # at the driver, outside any transaction, where it takes effect
+        try:
+            connection.execution_options(**{WRITE_OPTION: True})
+            with connection.begin():
+                yield connection
+                broken = connection.exec_driver_sql("PRAGMA foreign_key_check").first()
+                if broken is not None:
+                    raise StoreError(
+                        f"schema migration left a broken reference in table {broken[0]!r} (row {broken[1]}); "
+                        "nothing was changed"
+                    )
+        finally:
+            driver.execute("PRAGMA foreign_keys = ON")
+
+
+@contextmanager
 def read_transaction(engine: Engine) -> Iterator[Connection]:
     """A read transaction (one consistent snapshot on SQLite; statement snapshots on PostgreSQL)."""
     with engine.connect() as connection, connection.begin():
@@ -192,7 +223,7 @@ def upgrade(engine: Engine) -> str:
             f"archive schema revision {current!r} is newer than this riskshape knows ({head!r}); "
             "upgrade riskshape to open it"
         )
-    with write_transaction(engine) as connection:
+    with _migration_transaction(engine) as connection:
         config.attributes["connection"] = connection
         command.upgrade(config, "head")
     return head

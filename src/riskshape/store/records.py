@@ -27,6 +27,7 @@ __all__ = [
     "Diagram",
     "AlertRecord",
     "ReviewRecord",
+    "EventRecord",
     "AlertDetail",
     "AlertPage",
     "AlertAppend",
@@ -227,6 +228,34 @@ class ReviewRecord:
     reviewer: str
     comment: str
     created_at: datetime
+
+
+@dataclass(frozen=True)
+class EventRecord:
+    """A chained record that is neither an alert nor a review (see :mod:`riskshape.store.events`).
+
+    ``payload`` is the canonical JSON text that the hash covers; :attr:`data` reads it.
+    """
+
+    id: int
+    seq: int
+    prev_hash: str
+    entry_hash: str
+    kind: str
+    portfolio_id: int | None
+    portfolio: str | None
+    subject: str | None
+    payload: str
+    actor: str | None
+    recorded_at: datetime
+
+    @property
+    def data(self) -> dict[str, object]:
+        """The payload as a mapping."""
+        import json
+
+        loaded: dict[str, object] = json.loads(self.payload)
+        return loaded
 
 
 @dataclass(frozen=True)

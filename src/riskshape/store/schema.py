@@ -10,11 +10,14 @@ Design notes
   behaves identically on SQLite and PostgreSQL (NaN is written as ``null``).
 * ``diagrams`` keeps the finite bars of a window and dimension as little-endian float32 bytes
   (ripser computes in float32, so nothing is lost).
-* ``ledger`` is the single append-only sequence shared by ``alerts`` and ``reviews``: its primary
+* ``ledger`` is the single append-only sequence shared by ``alerts``, ``reviews`` and ``events``: its primary
   key ``seq`` and the UNIQUE ``prev_hash`` make two records claiming the same place impossible.
-  Every alert and review row repeats its ``seq``, ``prev_hash`` and ``entry_hash``.
+  Every alert, review and event row repeats its ``seq``, ``prev_hash`` and ``entry_hash``.
+* ``events`` holds every other chained record (a day closed, a window superseded, a period signed
+  off, ...): a ``kind``, the portfolio and subject it concerns, who recorded it, and a canonical
+  JSON ``payload``; see :mod:`riskshape.store.events`.
 * Triggers (created by the migration) refuse UPDATE and DELETE on ``ledger``, ``alerts``,
-  ``reviews``, ``prices`` and ``runs``.
+  ``reviews``, ``events``, ``prices`` and ``runs``.
 """
 
 from __future__ import annotations
@@ -35,11 +38,12 @@ __all__ = [
     "ledger",
     "alerts",
     "reviews",
+    "events",
     "api_keys",
     "APPEND_ONLY_TABLES",
 ]
 
-APPEND_ONLY_TABLES = ("ledger", "alerts", "reviews", "prices", "runs")
+APPEND_ONLY_TABLES = ("ledger", "alerts", "reviews", "events", "prices", "runs")
 
 HASH = sa.String(64)
 NAME = sa.String(200)
@@ -144,7 +148,7 @@ ledger = sa.Table(
     sa.Column("kind", sa.String(8), nullable=False),
     sa.Column("prev_hash", HASH, nullable=False, unique=True),
     sa.Column("entry_hash", HASH, nullable=False, unique=True),
-    sa.CheckConstraint("kind IN ('alert', 'review')", name="ck_ledger_kind"),
+    sa.CheckConstraint("kind IN ('alert', 'review', 'event')", name="ck_ledger_kind"),
     sa.CheckConstraint("seq >= 1", name="ck_ledger_seq"),
 )
 
@@ -185,7 +189,23 @@ reviews = sa.Table(
     sa.Column("reviewer", NAME, nullable=False),
     sa.Column("comment", sa.Text, nullable=False),
     sa.Column("created_at", UtcDateTime, nullable=False),
-    sa.CheckConstraint("action IN ('acknowledge', 'dismiss', 'escalate')", name="ck_reviews_action"),
+    sa.CheckConstraint("action IN ('acknowledge', 'dismiss', 'escalate', 'close')", name="ck_reviews_action"),
+)
+
+events = sa.Table(
+    "events",
+    metadata,
+    sa.Column("id", sa.Integer, primary_key=True, autoincrement=False),
+    sa.Column("seq", sa.Integer, sa.ForeignKey("ledger.seq"), nullable=False, unique=True),
+    sa.Column("prev_hash", HASH, nullable=False, unique=True),
+    sa.Column("entry_hash", HASH, nullable=False, unique=True),
+    sa.Column("kind", sa.String(32), nullable=False, index=True),
+    sa.Column("portfolio_id", sa.Integer, sa.ForeignKey("portfolios.id"), nullable=True, index=True),
+    sa.Column("portfolio", NAME, nullable=True),
+    sa.Column("subject", NAME, nullable=True),
+    sa.Column("payload", sa.Text, nullable=False),
+    sa.Column("actor", NAME, nullable=True),
+    sa.Column("recorded_at", UtcDateTime, nullable=False),
 )
 
 api_keys = sa.Table(

@@ -8,7 +8,7 @@ Every method runs in its own transaction; writes hold the archive's write lock (
 from __future__ import annotations
 
 import functools
-from collections.abc import Callable, Iterable, Sequence
+from collections.abc import Callable, Iterable, Mapping, Sequence
 from datetime import date, datetime, timezone
 from typing import ParamSpec, TypeVar
 
@@ -19,7 +19,7 @@ from sqlalchemy.engine import Engine
 
 from riskshape.alerts.model import Alert
 from riskshape.errors import ConflictError, StoreError
-from riskshape.store import catalog, keys, ledger, pricebook, series
+from riskshape.store import catalog, events, keys, ledger, pricebook, series
 from riskshape.store.chain import verify_ledger
 from riskshape.store.database import (
     archive_exists,
@@ -34,6 +34,7 @@ from riskshape.store.records import (
     AlertPage,
     ApiKey,
     Diagram,
+    EventRecord,
     FeaturesPage,
     Head,
     NewApiKey,
@@ -314,6 +315,52 @@ class Store:
     def append_review(self, alert_id: int, action: str, reviewer: str, comment: str = "") -> ReviewRecord:
         """Append a review (``acknowledge``, ``dismiss`` as noise, or ``escalate``) of an alert."""
         return ledger.append_review(self.engine, alert_id, action, reviewer, comment)
+
+    # -- other chained events ----------------------------------------------------------------------
+    @_database_errors
+    def append_event(
+        self,
+        kind: str,
+        data: Mapping[str, object],
+        *,
+        portfolio: str | None = None,
+        subject: str | None = None,
+        actor: str | None = None,
+    ) -> EventRecord:
+        """Append a chained event (neither an alert nor a review) to the ledger.
+
+        Parameters
+        ----------
+        kind : str
+            What happened, as 1 to 32 lowercase letters, digits or underscores (e.g. ``day_closed``).
+        data : mapping
+            The event's facts; archived as canonical JSON and covered by its hash.
+        portfolio : str, optional
+            The portfolio it concerns (must exist).
+        subject : str, optional
+            What it concerns within the portfolio (a date, an alert id, a period).
+        actor : str, optional
+            Who recorded it (the owner of the API key, or the person at the command line).
+
+        Returns
+        -------
+        EventRecord
+
+        Raises
+        ------
+        StoreError
+            If the kind, subject, actor or payload cannot be archived (the message says which).
+        NotFoundError
+            If ``portfolio`` is not in the archive.
+        """
+        return events.append_event(self.engine, kind, data, portfolio=portfolio, subject=subject, actor=actor)
+
+    @_database_errors
+    def list_events(
+        self, *, kind: str | None = None, portfolio: str | None = None, subject: str | None = None
+    ) -> tuple[EventRecord, ...]:
+        """Chained events in ledger order, optionally of one kind, portfolio and subject."""
+        return events.list_events(self.engine, kind=kind, portfolio=portfolio, subject=subject)
 
     # -- API keys --------------------------------------------------------------------------------
     @_database_errors
