@@ -4,8 +4,11 @@
 its manifest, features, diagrams, and appends the alerts its rules raise (idempotently: a second
 run over the same data adds nothing; a run over new days adds only what is new).
 
-:func:`reproduce_alert` reads back the prices the run saw and its configuration, recomputes the
-windows up to the alert's window through :func:`riskshape.monitor` and re-decides the rule with
+:func:`recompute_run` is the one way back from the archive to a run's windows: it reads the
+prices the run saw and its configuration and recomputes the windows up to a date through
+:func:`riskshape.monitor` (the review report uses it for explanations the archive does not hold).
+
+:func:`reproduce_alert` recomputes the run with it and re-decides the rule with
 :func:`riskshape.alerts.rules.recheck_firing`; it confirms the archived value, threshold, window
 inputs hash and decision.
 """
@@ -32,7 +35,9 @@ __all__ = [
     "RunReport",
     "Check",
     "ReproduceReport",
+    "Recomputation",
     "archive_run",
+    "recompute_run",
     "reproduce_alert",
     "reproduce_alerts",
     "VALUE_RTOL",
@@ -176,6 +181,111 @@ def archive_run(
     )
 
 
+@dataclass(frozen=True)
+class Recomputation:
+    """A run's windows recomputed from the archive (see :func:`recompute_run`).
+
+    Attributes
+    ----------
+    run : Run
+        The archived run.
+    config : Config or None
+        Its configuration as read back (``compute`` replaced if asked); None if it does not read.
+    checks : tuple of Check
+        The configuration reads, it hashes to the run's configuration hash, and the archived
+        prices hash to the run's input hash.
+    result : MonitorResult or None
+        The windows up to the date asked for; None if they were not recomputed.
+    failure : str or None
+        Why the monitor refused the archived prices, if it did.
+    """
+
+    run: Run
+    config: Config | None
+    checks: tuple[Check, ...]
+    result: MonitorResult | None
+    failure: str | None
+
+    @property
+    def consistent(self) -> bool:
+        """Whether the configuration reads and it and the prices hash to what the run recorded."""
+        return all(c.ok for c in self.checks)
+
+    @property
+    def reason(self) -> str:
+        """Why there is no result (the monitor's refusal, or the first failed check); empty if there is one."""
+        if self.result is not None:
+            return ""
+        if self.failure is not None:
+            return self.failure
+        failed = next((c for c in self.checks if not c.ok), None)
+        return failed.recomputed if failed is not None else ""
+
+
+def recompute_run(
+    store: Store,
+    run: Run,
+    upto: object,
+    *,
+    compute: ComputeConfig | None = None,
+    require_hashes: bool = True,
+) -> Recomputation:
+    """Recompute a run's windows up to ``upto`` from its archived prices and configuration.
+
+    Reads the prices as of the run (later corrections left out) and the run's configuration,
+    checks that they hash to what the run recorded, and runs :func:`riskshape.monitor` over the
+    prices up to ``upto``.
+
+    Parameters
+    ----------
+    store : Store
+    run : Run
+        The archived run (``store.get_run``).
+    upto : date-like
+        Last date of the prices used (the latest window end of interest).
+    compute : ComputeConfig, optional
+        Where to compute (never changes a result); defaults to the run's own compute settings.
+    require_hashes : bool
+        Recompute only when the configuration and the prices hash to what the run recorded
+        (default); ``False`` recomputes whenever the configuration reads.
+
+    Returns
+    -------
+    Recomputation
+        With ``result`` None when the configuration does not read, a hash differs (with
+        ``require_hashes``), or the monitor refuses the prices (``failure`` says why).
+
+    Raises
+    ------
+    StoreError
+        If the archive cannot be read.
+    """
+    checks: list[Check] = []
+    config: Config | None = None
+    try:
+        config = Config.from_mapping(run.config, where=f"run {run.id} configuration")
+    except ConfigError as err:
+        checks.append(Check("configuration readable", False, "the run's configuration", str(err)))
+    if config is not None:
+        again = config.hash()
+        checks.append(Check("configuration hash", again == run.config_hash, run.config_hash, again))
+        if compute is not None:
+            config = config.replace(compute=compute)
+    prices = store.read_prices(
+        run.portfolio, start=run.first_date, end=run.last_date, assets=run.assets, as_of_run=run.id
+    )
+    archived_hash = hash_prices(prices)
+    checks.append(Check("run prices hash", archived_hash == run.input_hash, run.input_hash, archived_hash))
+    result: MonitorResult | None = None
+    failure: str | None = None
+    if config is not None and (not require_hashes or all(c.ok for c in checks)):
+        try:
+            result = monitor(prices.loc[: pd.Timestamp(upto)], config)
+        except RiskshapeError as err:
+            failure = str(err)
+    return Recomputation(run=run, config=config, checks=tuple(checks), result=result, failure=failure)
+
+
 def _close(archived: float, recomputed: float) -> bool:
     return math.isclose(archived, recomputed, rel_tol=VALUE_RTOL, abs_tol=VALUE_ATOL)
 
@@ -244,36 +354,14 @@ def reproduce_alerts(
     reports: dict[int, ReproduceReport] = {}
     for run_id, group in by_run.items():
         run = store.get_run(run_id)
-        base: list[Check] = []
-        config: Config | None = None
-        try:
-            config = Config.from_mapping(run.config, where=f"run {run_id} configuration")
-        except ConfigError as err:
-            base.append(Check("configuration readable", False, "the run's configuration", str(err)))
-        if config is not None:
-            again = config.hash()
-            base.append(Check("configuration hash", again == run.config_hash, run.config_hash, again))
-            if compute is not None:
-                config = config.replace(compute=compute)
-        prices = store.read_prices(
-            run.portfolio, start=run.first_date, end=run.last_date, assets=run.assets, as_of_run=run.id
-        )
-        archived_hash = hash_prices(prices)
-        base.append(Check("run prices hash", archived_hash == run.input_hash, run.input_hash, archived_hash))
-        result: MonitorResult | None = None
-        failure: str | None = None
-        if config is not None and all(c.ok for c in base):
-            last = max(pd.Timestamp(a.window_end) for a in group)
-            try:
-                result = monitor(prices.loc[:last], config)
-            except RiskshapeError as err:
-                failure = str(err)
+        last = max(pd.Timestamp(a.window_end) for a in group)
+        again = recompute_run(store, run, last, compute=compute)
         for alert in group:
             own = Check(
                 "alert configuration hash", alert.config_hash == run.config_hash, alert.config_hash, run.config_hash
             )
-            report = _checks_for(alert, config or Config(), result, failure)
-            checks = tuple(base) + (own,) + report.checks
+            report = _checks_for(alert, again.config or Config(), again.result, again.failure)
+            checks = again.checks + (own,) + report.checks
             ok = all(c.ok for c in checks)
             reports[alert.id] = ReproduceReport(alert.id, ok=ok, exact=ok and report.exact, checks=checks)
     return tuple(reports[i] for i in alert_ids)
@@ -283,7 +371,7 @@ def reproduce_alert(store: Store, alert_id: int, compute: ComputeConfig | None =
     """Recompute one archived alert from the archive alone and compare.
 
     Reads the prices as of the alert's run (later corrections left out) and the run's
-    configuration, recomputes the windows up to the alert's window with :func:`riskshape.monitor`,
+    configuration, recomputes the windows up to the alert's window with :func:`recompute_run`,
     and re-decides the rule with :func:`riskshape.alerts.rules.recheck_firing`. Checks: the
     configuration hashes, the archived prices hash to the run's input hash, the window's inputs
     hash, the decision (it fires), the value and threshold (within :data:`VALUE_RTOL` /

@@ -8,7 +8,7 @@ import pytest
 import sqlalchemy as sa
 
 from riskshape import monitor
-from riskshape.archive import archive_run, reproduce_alert, reproduce_alerts
+from riskshape.archive import archive_run, recompute_run, reproduce_alert, reproduce_alerts
 from riskshape.compute.monitor import MonitorResult
 from riskshape.store import Store, verify_chain
 from tests.kit.archive import around_triggers
@@ -102,3 +102,26 @@ def test_archive_refuses_a_configuration_the_result_was_not_computed_with(
 
     with pytest.raises(ConfigError, match="not the one the result was computed with"):
         archive_run(store, "Fund Scenario", computed, computed.config.replace(window=25))
+
+
+def test_recompute_run_gives_the_runs_windows_up_to_a_date(store: Store, computed: MonitorResult) -> None:
+    run = archive_run(store, "Fund Scenario", computed).run
+    end = computed.window_ends[50]
+    again = recompute_run(store, store.get_run(run.id), end)
+    assert again.consistent and again.failure is None and again.reason == ""
+    assert [c.name for c in again.checks] == ["configuration hash", "run prices hash"]
+    assert again.result is not None and again.result.window_ends[-1] == end
+    # windows are anchored at the first one: the windows up to a date are those of the whole run
+    pd.testing.assert_frame_equal(again.result.features, computed.features.loc[:end])
+
+
+def test_recompute_run_holds_back_on_prices_changed_behind_its_back(store: Store, computed: MonitorResult) -> None:
+    run = archive_run(store, "Fund Scenario", computed).run
+    with around_triggers(store) as connection:
+        connection.execute(sa.text("UPDATE prices SET price = price * 1.001 WHERE id = 7"))
+    held = recompute_run(store, store.get_run(run.id), computed.window_ends[-1])
+    assert held.result is None and not held.consistent
+    assert [c.name for c in held.checks if not c.ok] == ["run prices hash"]
+    assert held.reason == held.checks[-1].recomputed  # the hash the archived prices give now
+    anyway = recompute_run(store, store.get_run(run.id), computed.window_ends[-1], require_hashes=False)
+    assert anyway.result is not None and not anyway.consistent

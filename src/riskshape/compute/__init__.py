@@ -11,6 +11,7 @@ One module per step, in the order the data flow through them:
 - :mod:`~riskshape.compute.summaries`: per-diagram summaries and the distances to the previous window;
 - :mod:`~riskshape.compute.batch`: one window end to end, and a batch of consecutive windows;
 - :mod:`~riskshape.compute.executors`: where batches run (serial, a process pool, Dask);
+- :mod:`~riskshape.compute.window_view`: one computed window opened up (returns, distances, diagrams);
 - :mod:`~riskshape.compute.monitor`: the one orchestrator, ``monitor(prices, config)``.
 
 The public entry points are re-exported by :mod:`riskshape` (``riskshape.monitor``,

@@ -18,7 +18,15 @@ from riskshape.compute.distance import correlation_matrix, correlation_to_distan
 from riskshape.compute.moments import RollingMoments, is_rebuild_point
 from riskshape.compute.persistence import EMPTY_DIAGRAM, compute_diagrams
 from riskshape.compute.summaries import SUMMARY_NAMES, bottleneck_distance, summarize_diagram, wasserstein_distance
-from riskshape.compute.windows import Selection, select_assets
+from riskshape.compute.windows import (
+    Selection,
+    is_on_grid,
+    select_assets,
+    select_window,
+    window_end_row,
+    window_index,
+    window_rows,
+)
 
 __all__ = [
     "WindowSettings",
@@ -234,8 +242,7 @@ def compute_batch(
     last_used: np.ndarray | None = None
     for end in ends:
         end = int(end)
-        block = rows[end - settings.window + 1 : end + 1]
-        selection = select_assets(block, settings.min_coverage)
+        selection = select_window(rows, end, settings.window, settings.min_coverage)
         if last_used is not None and np.array_equal(selection.used, last_used):
             # share one array between windows with the same assets (pickled once per batch)
             selection = Selection(last_used, selection.block, selection.left_out)
@@ -255,13 +262,13 @@ def first_row_needed(end: int, settings: WindowSettings) -> int:
     The window's first row, or with running sums the first row of the rebuild point before it
     (:func:`riskshape.compute.moments.is_rebuild_point`), whichever is earlier.
     """
-    start = end - settings.window + 1
-    if not _rolling_applies(settings) or (end - (settings.window - 1)) % settings.step:
+    start = window_rows(end, settings.window).start
+    if not _rolling_applies(settings) or not is_on_grid(end, settings.window, settings.step):
         return start
-    index = (end - (settings.window - 1)) // settings.step
+    index = window_index(end, settings.window, settings.step)
     while not is_rebuild_point(index):
         index -= 1
-    return min(start, index * settings.step)
+    return min(start, window_rows(window_end_row(index, settings.window, settings.step), settings.window).start)
 
 
 def preload(settings: WindowSettings) -> None:
@@ -291,15 +298,12 @@ class _Rolling:
         self.moments: RollingMoments | None = None
         self.end = -1  # relative end of the window the moments describe
 
-    def _index(self, end: int) -> int:
-        return (end + self.offset - (self.window - 1)) // self.step
-
     def _rebuild_end(self, end: int) -> int:
         """Relative end of the rebuild point at or before the window ending at ``end``."""
-        index = self._index(end)
+        index = window_index(end + self.offset, self.window, self.step)
         while not is_rebuild_point(index):
             index -= 1
-        return index * self.step + self.window - 1 - self.offset
+        return window_end_row(index, self.window, self.step) - self.offset
 
     def correlation(self, end: int, used: np.ndarray) -> np.ndarray | None:
         """Correlation of ``used`` in the window ending at ``end`` from running sums, or None.
@@ -307,17 +311,18 @@ class _Rolling:
         None when the window is off the step grid, when the rebuild point lies before ``rows``,
         or when an admitted asset misses a return there (the coverage policy imputed it).
         """
-        if (end + self.offset - (self.window - 1)) % self.step:
+        if not is_on_grid(end + self.offset, self.window, self.step):
             return None
         rebuild = self._rebuild_end(end)
-        if rebuild - self.window + 1 < 0:
+        rebuild_rows = window_rows(rebuild, self.window)
+        if rebuild_rows.start < 0:
             self.moments = None
             return None
         if self.moments is None or not rebuild <= self.end <= end:
-            self.moments = RollingMoments(self.rows[rebuild - self.window + 1 : rebuild + 1])
+            self.moments = RollingMoments(self.rows[rebuild_rows])
             self.end = rebuild
         while self.end < end:
-            first = self.end - self.window + 1
+            first = window_rows(self.end, self.window).start
             self.moments.slide(self.rows[first : first + self.step], self.rows[self.end + 1 : self.end + 1 + self.step])
             self.end += self.step
         if not self.moments.complete(used):

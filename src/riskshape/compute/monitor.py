@@ -25,7 +25,8 @@ from riskshape.compute.batch import (
 from riskshape.compute.executors import Executor, make_executor
 from riskshape.compute.returns import to_returns
 from riskshape.compute.summaries import DISTANCE_NAMES, SUMMARY_NAMES
-from riskshape.compute.windows import window_end_positions
+from riskshape.compute.window_view import Window, open_window
+from riskshape.compute.windows import window_end_positions, window_rows
 from riskshape.config import Config
 from riskshape.errors import DataError
 from riskshape.prices import hash_prices, validate_prices
@@ -48,7 +49,8 @@ class MonitorResult:
     """Per-window summaries, diagrams and provenance of one monitoring run.
 
     Use :func:`monitor` to make one. ``features`` is indexed by window end; ``diagram``,
-    ``assets`` and ``window_inputs_hash`` look up one window.
+    ``assets`` and ``window_inputs_hash`` look up one window, and ``window`` opens it up (its
+    returns, correlations, distances and diagrams).
     """
 
     config: Config
@@ -115,12 +117,30 @@ class MonitorResult:
         used = self.windows[self._position(window_end)].used
         return tuple(self.prices.columns[used])
 
+    def _window_frame(self, pos: int) -> pd.DataFrame:
+        """Rows of the returns table (every asset) of the window at position ``pos``."""
+        end = self.returns.index.get_loc(self.window_ends[pos])
+        return self.returns.iloc[window_rows(end, self.config.window)]
+
+    def window(self, window_end: object) -> Window:
+        """The window ending at ``window_end``, as the engine computed it.
+
+        Its end, admitted and left-out assets, exact returns, the returns block the engine used,
+        the correlation and distance matrices (rebuilt with the engine's own functions and this
+        run's settings) and the diagrams (see :class:`riskshape.compute.window_view.Window`).
+
+        Raises
+        ------
+        DataError
+            If no window ends on that date.
+        """
+        pos = self._position(window_end)
+        return open_window(self._window_frame(pos), self.windows[pos], settings_of(self.config))
+
     def window_returns(self, window_end: object) -> pd.DataFrame:
         """The exact returns (admitted assets, NaN kept) of the window ending at ``window_end``."""
         pos = self._position(window_end)
-        end = self.returns.index.get_loc(self.window_ends[pos])
-        block = self.returns.iloc[end - self.config.window + 1 : end + 1]
-        return block[list(self.assets(window_end))]
+        return self._window_frame(pos)[list(self.assets(window_end))]
 
     def window_inputs_hash(self, window_end: object) -> str:
         """SHA-256 of the window's exact inputs: asset names, dates and returns (float64, NaN kept)."""

@@ -18,7 +18,16 @@ from dataclasses import dataclass
 
 import numpy as np
 
-__all__ = ["window_end_positions", "select_assets", "Selection"]
+__all__ = [
+    "window_end_positions",
+    "window_rows",
+    "window_index",
+    "is_on_grid",
+    "window_end_row",
+    "select_assets",
+    "select_window",
+    "Selection",
+]
 
 
 def window_end_positions(n_returns: int, window: int, step: int) -> np.ndarray:
@@ -42,6 +51,54 @@ def window_end_positions(n_returns: int, window: int, step: int) -> np.ndarray:
     [3, 6, 9]
     """
     return np.arange(window - 1, n_returns, step, dtype=np.int64)
+
+
+def window_rows(end_row: int, window: int) -> slice:
+    """Rows (in the returns table) of the window ending at row ``end_row``, that row included.
+
+    Examples
+    --------
+    >>> window_rows(9, 4)
+    slice(6, 10, None)
+    """
+    return slice(end_row - window + 1, end_row + 1)
+
+
+def window_index(end_row: int, window: int, step: int) -> int:
+    """Index (0 = the first window) of the window ending at row ``end_row``, rounded down off the grid.
+
+    The inverse of :func:`window_end_row` on the grid of :func:`window_end_positions`.
+
+    Examples
+    --------
+    >>> window_index(9, 4, 3), window_index(10, 4, 3)
+    (2, 2)
+    """
+    return (end_row - (window - 1)) // step
+
+
+def is_on_grid(end_row: int, window: int, step: int) -> bool:
+    """Whether row ``end_row`` lies on the step grid of :func:`window_end_positions` (rows from ``window - 1``).
+
+    Examples
+    --------
+    >>> is_on_grid(9, 4, 3), is_on_grid(10, 4, 3)
+    (True, False)
+    """
+    return (end_row - (window - 1)) % step == 0
+
+
+def window_end_row(index: int, window: int, step: int) -> int:
+    """Row at which the window with this index ends (0 = the first window).
+
+    Examples
+    --------
+    >>> window_end_row(2, 4, 3)
+    9
+    >>> window_end_row(window_index(9, 4, 3), 4, 3)
+    9
+    """
+    return index * step + window - 1
 
 
 @dataclass(frozen=True)
@@ -109,3 +166,35 @@ def select_assets(block: np.ndarray, min_coverage: float) -> Selection:
         means = np.nanmean(sub, axis=0)
         sub = np.where(np.isnan(sub), means, sub)
     return Selection(used=used_arr, block=np.ascontiguousarray(sub, dtype=float), left_out=left_out)
+
+
+def select_window(values: np.ndarray, end_row: int, window: int, min_coverage: float) -> Selection:
+    """Apply the coverage policy to the window ending at row ``end_row`` of a returns table.
+
+    The one way a window's block is cut from the table (:func:`window_rows`) and admitted
+    (:func:`select_assets`): the engine, the baselines and every other reader of a window use it.
+
+    Parameters
+    ----------
+    values : numpy.ndarray
+        (rows, n_assets) the returns table, NaN where missing.
+    end_row : int
+        Row of the window's last day.
+    window : int
+        Window length, in rows.
+    min_coverage : float
+        Fraction in (0, 1] of the window's returns an asset needs.
+
+    Returns
+    -------
+    Selection
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> table = np.array([[0.01, 0.02], [0.02, np.nan], [-0.01, 0.01], [0.03, -0.02]])
+    >>> s = select_window(table, 3, 3, 0.6)
+    >>> s.used.tolist(), s.block[0].tolist()
+    ([0, 1], [0.02, -0.005])
+    """
+    return select_assets(values[window_rows(end_row, window)], min_coverage)

@@ -1,10 +1,9 @@
 """The geometry of one window of a run, recomputed exactly as the engine computed it.
 
 The engine keeps only diagrams; explanations need the assets, their correlations and the
-distance matrix the diagrams came from. :func:`window_geometry` rebuilds them from
-``MonitorResult.window_returns`` with the engine's own building blocks and settings
-(:func:`riskshape.compute.windows.select_assets`, :func:`riskshape.compute.distance.correlation_matrix`,
-:func:`riskshape.compute.batch.embedding_distance`).
+distance matrix the diagrams came from. :func:`window_geometry` takes them from
+``MonitorResult.window`` (:class:`riskshape.compute.window_view.Window`), which rebuilds them with
+the engine's own building blocks and settings.
 """
 
 from __future__ import annotations
@@ -15,10 +14,8 @@ from datetime import date
 import numpy as np
 import pandas as pd
 
-from riskshape.compute.batch import embedding_distance
-from riskshape.compute.distance import correlation_matrix, correlation_to_distance
+from riskshape.compute.distance import correlation_to_distance
 from riskshape.compute.monitor import MonitorResult
-from riskshape.compute.windows import select_assets
 from riskshape.errors import DataError
 
 __all__ = ["WindowGeometry", "window_geometry", "as_date"]
@@ -78,20 +75,13 @@ def window_geometry(result: MonitorResult, window_end: object) -> WindowGeometry
     DataError
         If no window ends on that date.
     """
-    config = result.config
-    frame = result.window_returns(window_end)
-    assets = tuple(str(a) for a in frame.columns)
-    selection = select_assets(frame.to_numpy(dtype=float), config.min_coverage)
-    block = selection.block
-    used = tuple(assets[j] for j in selection.used)
+    window = result.window(window_end)
+    used = window.assets
     end = as_date(window_end)
     if len(used) < 2:
         empty = np.zeros((len(used), len(used)))
         return WindowGeometry(end, used, empty, empty, used, empty)
-    corr = correlation_matrix(block, config.correlation)
-    asset_distance = correlation_to_distance(corr)
-    if config.embedding != "point_cloud":
-        return WindowGeometry(end, used, corr, asset_distance, used, asset_distance)
-    days = tuple(d.date().isoformat() for d in pd.DatetimeIndex(frame.index))
-    distance = embedding_distance(block, corr, config.embedding, config.standardize_cloud)
-    return WindowGeometry(end, used, corr, asset_distance, days, distance)
+    if result.config.embedding != "point_cloud":
+        return WindowGeometry(end, used, window.correlation, window.distance, used, window.distance)
+    asset_distance = correlation_to_distance(window.correlation)
+    return WindowGeometry(end, used, window.correlation, asset_distance, window.days, window.distance)

@@ -24,9 +24,8 @@ from scipy.spatial.distance import squareform
 
 from riskshape.alerts.model import Firing
 from riskshape.caution import CAUTION_SHORT
-from riskshape.compute.distance import correlation_matrix, correlation_to_distance
+from riskshape.compute.distance import correlation_to_distance
 from riskshape.compute.monitor import MonitorResult
-from riskshape.compute.windows import select_assets
 from riskshape.research.events import DrawdownEvents
 
 __all__ = [
@@ -237,8 +236,8 @@ def plot_correlation_heatmap(corr: np.ndarray, labels: Sequence[str], *, ax: Axe
 
 def window_correlation(result: MonitorResult, window_end: object) -> tuple[np.ndarray, tuple[str, ...]]:
     """Correlation matrix and asset names of one window of a run, as the monitor computed them."""
-    block = select_assets(result.window_returns(window_end).to_numpy(dtype=float), result.config.min_coverage).block
-    return correlation_matrix(block, result.config.correlation), result.assets(window_end)
+    window = result.window(window_end)
+    return window.correlation, window.assets
 
 
 def plot_window(result: MonitorResult, window_end: object) -> Figure:

@@ -26,9 +26,8 @@ from typing import Literal
 import pandas as pd
 
 from riskshape._version import __version__
+from riskshape.archive import recompute_run
 from riskshape.caution import CAUTION
-from riskshape.compute.monitor import monitor
-from riskshape.config import Config
 from riskshape.errors import ConfigError, RiskshapeError, StoreError
 from riskshape.explain import Explanation, explain_alert
 from riskshape.store import AlertRecord, ReviewRecord, Run, Store, VerifyReport, verify_chain
@@ -103,17 +102,15 @@ def _recompute(store: Store, alerts: list[AlertRecord]) -> dict[int, tuple[Expla
     for a in alerts:
         by_run.setdefault(a.run_id, []).append(a)
     for run_id, group in by_run.items():
+        last = max(pd.Timestamp(a.window_end) for a in group)
         try:
-            run = store.get_run(run_id)
-            config = Config.from_mapping(run.config, where=f"run {run_id} configuration")
-            prices = store.read_prices(
-                run.portfolio, start=run.first_date, end=run.last_date, assets=run.assets, as_of_run=run.id
-            )
-            last = max(pd.Timestamp(a.window_end) for a in group)
-            result = monitor(prices.loc[:last], config)
+            again = recompute_run(store, store.get_run(run_id), last, require_hashes=False)
+            config, result, reason = again.config, again.result, again.reason
         except RiskshapeError as err:
+            config, result, reason = None, None, str(err)
+        if config is None or result is None:
             for a in group:
-                out[a.id] = (None, "unavailable", f"could not recompute run {run_id}: {err}")
+                out[a.id] = (None, "unavailable", f"could not recompute run {run_id}: {reason}")
             continue
         for a in group:
             end = pd.Timestamp(a.window_end)

@@ -20,7 +20,7 @@ Each function takes one window's returns block (days x assets, complete: no NaN)
   defined when it is singular (fewer days than assets, or collinear assets).
 
 :func:`compute_baselines` runs them over a whole price (or returns) table on the windows of
-:func:`riskshape.compute.windows.window_end_positions` and :func:`riskshape.compute.windows.select_assets`, so
+:func:`riskshape.compute.windows.window_end_positions` and :func:`riskshape.compute.windows.select_window`, so
 its index is the ``window_end`` index of ``monitor(...).features``.
 """
 
@@ -34,7 +34,7 @@ import pandas as pd
 
 from riskshape.compute.distance import correlation_matrix, mean_offdiagonal
 from riskshape.compute.returns import to_returns
-from riskshape.compute.windows import select_assets, window_end_positions
+from riskshape.compute.windows import select_window, window_end_positions
 from riskshape.config import Config
 from riskshape.errors import DataError
 
@@ -193,7 +193,7 @@ def compute_baselines(
     ends = window_end_positions(len(returns), cfg.window, cfg.step)
     rows = []
     for end in ends:
-        block = select_assets(values[end - cfg.window + 1 : end + 1], cfg.min_coverage).block
+        block = select_window(values, int(end), cfg.window, cfg.min_coverage).block
         rows.append(
             (
                 block.shape[1],

@@ -43,7 +43,6 @@ from riskshape.compute.batch import WindowSettings, compute_window
 from riskshape.compute.executors import make_executor
 from riskshape.compute.monitor import MonitorResult, settings_of
 from riskshape.compute.summaries import SUMMARY_NAMES, summarize_diagram
-from riskshape.compute.windows import select_assets
 from riskshape.errors import ConfigError, DataError
 
 __all__ = [
@@ -277,6 +276,7 @@ class WindowSummaries:
     settings: WindowSettings
 
     def __call__(self, block: np.ndarray) -> dict[str, float]:
+        """The summaries of one (days, assets) block, by name."""
         result = compute_window(block, self.settings)
         values = {"mean_correlation": float(result.mean_correlation)}
         for k, dgm in enumerate(result.diagrams):
@@ -287,14 +287,13 @@ class WindowSummaries:
 
 def _one_window(
     window_end: pd.Timestamp,
-    raw: np.ndarray,
+    block: np.ndarray,
     settings: WindowSettings,
     n: int,
     method: Method,
     rng: np.random.Generator,
     block_size: int | None,
 ) -> pd.DataFrame:
-    block = select_assets(raw, settings.min_coverage).block
     table = surrogate_zscores(block, WindowSummaries(settings), n, method, rng, block_size=block_size).table()
     table.index.name = "summary"
     return table.reset_index().assign(window_end=window_end)
@@ -335,8 +334,8 @@ def rolling_surrogate_zscores(
     settings = settings_of(result.config)
     jobs = []
     for end, child in zip(ends, rng.spawn(len(ends))):
-        returns = result.window_returns(end)  # validates the date; admitted assets only
-        jobs.append((pd.Timestamp(end), returns.to_numpy(dtype=float), settings, n, method, child, block_size))
+        block = result.window(end).block  # validates the date; the engine's block of admitted assets
+        jobs.append((pd.Timestamp(end), block, settings, n, method, child, block_size))
     executor = make_executor(result.config.compute, len(jobs))
     try:
         parts = list(executor.map(_one_window, jobs))
