@@ -1,0 +1,1 @@
+"""Speed and memory figures for riskshape (ratios measured side by side); not tests."""

@@ -384,10 +384,10 @@ def distance_solvers(quick: bool) -> list[Row]:
         for dim in (0, 1):
             x, y = a[dim], b[dim]
             timings = {
-                "W plain (scipy assignment)": _best(lambda: assignment_wasserstein(x, y, 1.0), repeats),
-                "W fast": _best(lambda: wasserstein_distance(x, y, 1.0), repeats),
-                "B plain (persim)": _best(lambda: persim_bottleneck(x, y), repeats),
-                "B fast": _best(lambda: bottleneck_distance(x, y), repeats),
+                "W plain (scipy assignment)": _best(partial(assignment_wasserstein, x, y, 1.0), repeats),
+                "W fast": _best(partial(wasserstein_distance, x, y, 1.0), repeats),
+                "B plain (persim)": _best(partial(persim_bottleneck, x, y), repeats),
+                "B fast": _best(partial(bottleneck_distance, x, y), repeats),
             }
             assert abs(wasserstein_distance(x, y) - assignment_wasserstein(x, y, 1.0)) < 1e-9
             assert abs(bottleneck_distance(x, y) - persim_bottleneck(x, y)) < 1e-12

@@ -248,8 +248,8 @@ def main() -> None:
     if feed:
         ms = np.asarray(feed) * 1000
         print(
-            f"daily feed: one new day posted to each of {len(feed)} portfolios ({prices.shape[1]} assets, {len(prices)} "
-            f"dates held each) in {sum(feed):.2f} s: p50 {np.percentile(ms, 50):.0f} ms, "
+            f"daily feed: one new day posted to each of {len(feed)} portfolios ({prices.shape[1]} assets, "
+            f"{len(prices)} dates held each) in {sum(feed):.2f} s: p50 {np.percentile(ms, 50):.0f} ms, "
             f"max {ms.max():.0f} ms per portfolio (1 window computed and archived each)"
         )
     if errors:

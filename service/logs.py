@@ -29,6 +29,7 @@ class JsonFormatter(logging.Formatter):
     """
 
     def format(self, record: logging.LogRecord) -> str:
+        """The record as one line of JSON."""
         entry: dict[str, Any] = {
             "time": datetime.fromtimestamp(record.created, tz=timezone.utc).isoformat(timespec="milliseconds"),
             "level": record.levelname.lower(),
@@ -53,6 +54,7 @@ class RequestIdFilter(logging.Filter):
     """
 
     def filter(self, record: logging.LogRecord) -> bool:
+        """Set ``record.request_id`` where it is unset; always keep the record."""
         if getattr(record, "request_id", None) is None:
             record.request_id = REQUEST_ID.get()
         return True

@@ -75,6 +75,7 @@ class RequestContextMiddleware:
         self.max_body_bytes = max_body_bytes
 
     async def __call__(self, scope: Scope, receive: Receive, send: Send) -> None:
+        """Serve one ASGI connection; HTTP requests get the id, caution, limit, log and metrics."""
         if scope["type"] != "http":
             await self.app(scope, receive, send)
             return

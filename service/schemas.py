@@ -75,6 +75,8 @@ class _Input(BaseModel):
 
 # -- errors and health ---------------------------------------------------------------------------
 class FieldError(BaseModel):
+    """One invalid part of a request: where it is and what is wrong with it."""
+
     field: str = Field(description="where in the request, e.g. body.rows.3.price or query.limit")
     message: str
 
@@ -88,6 +90,8 @@ class ErrorOut(Cautioned):
 
 
 class StoreStatus(BaseModel):
+    """Whether the archive can be read, with its database dialect and schema revision."""
+
     ok: bool
     dialect: str | None = None
     revision: str | None = Field(None, description="schema revision of the archive")
@@ -95,6 +99,8 @@ class StoreStatus(BaseModel):
 
 
 class HealthOut(Cautioned):
+    """The service's health: its version and the archive's status (``degraded`` when unreadable)."""
+
     status: Literal["ok", "degraded"]
     version: str
     store: StoreStatus
@@ -102,15 +108,21 @@ class HealthOut(Cautioned):
 
 # -- portfolios ----------------------------------------------------------------------------------
 class PortfolioOut(BaseModel):
+    """A portfolio: its name and when it was created."""
+
     name: str
     created_at: datetime
 
 
 class PortfolioList(Cautioned):
+    """Every portfolio, by name."""
+
     items: list[PortfolioOut]
 
 
 class PortfolioIn(_Input):
+    """A new portfolio: only its name; its assets are those of the first prices posted to it."""
+
     name: str = Field(
         min_length=1,
         max_length=200,
@@ -120,11 +132,15 @@ class PortfolioIn(_Input):
 
 
 class PortfolioCreated(Cautioned):
+    """The portfolio just created."""
+
     portfolio: PortfolioOut
 
 
 # -- alerts and reviews --------------------------------------------------------------------------
 class AlertOut(BaseModel):
+    """An archived alert: which rule fired, on which window, the value and the threshold it crossed."""
+
     id: int
     portfolio: str
     rule: str
@@ -138,6 +154,10 @@ class AlertOut(BaseModel):
 
 
 class ProvenanceOut(BaseModel):
+    """Where an alert came from (configuration, inputs, package version, run) and its place in
+    the hash chain.
+    """
+
     config_hash: str
     inputs_hash: str = Field(description="SHA-256 of the exact returns the window used")
     package_version: str
@@ -148,6 +168,10 @@ class ProvenanceOut(BaseModel):
 
 
 class ReviewOut(BaseModel):
+    """An archived review of an alert: the action, who took it, the comment and its place in the
+    hash chain.
+    """
+
     id: int
     alert_id: int
     action: ReviewAction
@@ -159,6 +183,8 @@ class ReviewOut(BaseModel):
 
 
 class AlertDetailOut(Cautioned):
+    """One alert in full: the alert, its provenance, why it fired, and its reviews."""
+
     alert: AlertOut
     provenance: ProvenanceOut
     explanation: dict[str, Any] | None = Field(
@@ -171,6 +197,8 @@ class AlertDetailOut(Cautioned):
 
 
 class AlertPageOut(Cautioned):
+    """One page of archived alerts matching the filters, with the total and the next page's offset."""
+
     items: list[AlertOut]
     total: int = Field(description="alerts matching the filters")
     offset: int
@@ -186,11 +214,17 @@ class ReviewIn(_Input):
 
 
 class ReviewCreated(Cautioned):
+    """The review just archived."""
+
     review: ReviewOut
 
 
 # -- series, latest state, diagrams --------------------------------------------------------------
 class RuleStateOut(BaseModel):
+    """Where one alert rule stands at the last window: value, threshold, clear level and whether
+    it is active.
+    """
+
     rule: str
     summary: str
     severity: str
@@ -203,6 +237,10 @@ class RuleStateOut(BaseModel):
 
 
 class LatestOut(Cautioned):
+    """A portfolio's latest state: the last window's summaries, the alert rules' states and the
+    alerts still active.
+    """
+
     portfolio: str
     config_hash: str | None = Field(description="configuration of the latest run; null before the first window")
     n_windows: int
@@ -213,11 +251,15 @@ class LatestOut(Cautioned):
 
 
 class SeriesRow(BaseModel):
+    """One window of the series: its last date and one value per column."""
+
     window_end: date
     values: list[Number] = Field(description="one value per entry of `columns`")
 
 
 class SeriesOut(Cautioned):
+    """One page of a portfolio's per-window summaries, oldest window first, as columns and rows."""
+
     portfolio: str
     config_hash: str | None
     columns: list[str]
@@ -229,6 +271,8 @@ class SeriesOut(Cautioned):
 
 
 class DiagramOut(Cautioned):
+    """One window's persistence diagram in one homology dimension: its finite bars."""
+
     portfolio: str
     window_end: date
     dim: int
@@ -240,12 +284,16 @@ class DiagramOut(Cautioned):
 
 # -- ingest --------------------------------------------------------------------------------------
 class LongRow(_Input):
+    """One price in the long layout: a date, an asset and its price (null where missing)."""
+
     date: date
     asset: AssetName
     price: Price | None
 
 
 class WideRow(_Input):
+    """One date in the wide layout: the date and each asset's price on it (null where missing)."""
+
     date: date
     prices: dict[AssetName, Price | None] = Field(description="asset -> price on that date")
 
@@ -264,6 +312,8 @@ class PricesIn(_Input):
 
 
 class IngestOut(Cautioned):
+    """What posting prices did: prices archived, corrections, windows computed and alerts raised."""
+
     portfolio: str
     prices_added: int = Field(description="price cells archived for the first time")
     corrections: int = Field(description="price cells archived as corrections (new revisions)")
@@ -281,6 +331,8 @@ class IngestOut(Cautioned):
 
 # -- audit ---------------------------------------------------------------------------------------
 class ChainHead(BaseModel):
+    """The hash chain's head: the number of records and the hash of the last one."""
+
     count: int = Field(description="records in the ledger")
     head_hash: str
     head: str = Field(description="COUNT:HASH, the form verify's expect_head reads back")
@@ -291,6 +343,8 @@ class HeadOut(Cautioned, ChainHead):
 
 
 class BadRecordOut(BaseModel):
+    """The first record of the chain that does not verify: its place, table, id and why."""
+
     seq: int
     table: str
     record_id: int | None
@@ -298,6 +352,10 @@ class BadRecordOut(BaseModel):
 
 
 class VerifyOut(Cautioned):
+    """The outcome of verifying the hash chain: whether every record verifies (and the expected head,
+    if given, is found), records checked, the head, and the first bad record (null when ``ok``).
+    """
+
     ok: bool
     checked: int
     head: ChainHead

@@ -19,6 +19,7 @@ Severity = Literal["info", "warning", "critical"]
 
 
 def make_router(settings: ServiceSettings) -> APIRouter:
+    """The router of ``/v1/alerts``: the alert list with its filters, and one alert in detail."""
     router = APIRouter(prefix=f"{API_PREFIX}/alerts", tags=["alerts"])
     cap = settings.max_page_size
 

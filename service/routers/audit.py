@@ -21,6 +21,7 @@ def _head(head: Head) -> ChainHead:
 
 
 def make_router(settings: ServiceSettings) -> APIRouter:
+    """The router of ``/v1/audit``: verify the hash chain and read its head (reviewer or admin)."""
     router = APIRouter(prefix=f"{API_PREFIX}/audit", tags=["audit"])
 
     @router.get("/verify", response_model=VerifyOut, responses=errors(401, 403, 422, 429))

@@ -17,6 +17,7 @@ __all__ = ["make_router"]
 
 
 def make_router(settings: ServiceSettings) -> APIRouter:
+    """The router of ``/v1/portfolios/{name}/diagrams/{window_end}``: one window's persistence diagram."""
     router = APIRouter(prefix=f"{API_PREFIX}/portfolios", tags=["diagrams"])
 
     @router.get("/{name}/diagrams/{window_end}", response_model=DiagramOut, responses=errors(401, 403, 404, 422, 429))

@@ -20,6 +20,7 @@ MEDIA_TYPES = {"csv": "text/csv; charset=utf-8", "jsonl": "application/x-ndjson"
 
 
 def make_router(settings: ServiceSettings) -> APIRouter:
+    """The router of ``/v1/export/alerts``: alerts as CSV or JSON Lines (reviewer or admin)."""
     router = APIRouter(prefix=f"{API_PREFIX}/export", tags=["export"])
 
     @router.get(

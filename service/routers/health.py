@@ -1,4 +1,4 @@
-"""``GET /v1/health``: is the service up, and can it read the archive? (No key needed.)"""
+"""``GET /v1/health``: whether the service is up and can read the archive (no key needed)."""
 
 from __future__ import annotations
 
@@ -17,6 +17,7 @@ __all__ = ["make_router"]
 
 
 def make_router(settings: ServiceSettings) -> APIRouter:
+    """The router of ``/v1/health``: service version and archive status, no key needed."""
     router = APIRouter(prefix=API_PREFIX, tags=["health"])
 
     @router.get(

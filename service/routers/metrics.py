@@ -14,6 +14,7 @@ __all__ = ["make_router"]
 
 
 def make_router(settings: ServiceSettings) -> APIRouter:
+    """The router of ``/metrics``: the service's counters in the Prometheus text format."""
     router = APIRouter(tags=["metrics"])
 
     @router.get(

@@ -26,6 +26,7 @@ PortfolioName = Annotated[str, Path(min_length=1, max_length=200, description="p
 
 
 def make_router(settings: ServiceSettings) -> APIRouter:
+    """The router of ``/v1/portfolios``: list, create (admin) and each portfolio's latest state."""
     router = APIRouter(prefix=f"{API_PREFIX}/portfolios", tags=["portfolios"])
 
     @router.get("", response_model=PortfolioList, responses=errors(401, 403, 429))

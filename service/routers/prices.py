@@ -102,6 +102,7 @@ def _ingest_out(report: IngestReport) -> IngestOut:
 
 
 def make_router(settings: ServiceSettings) -> APIRouter:
+    """The router of ``POST /v1/portfolios/{name}/prices``: archive prices and compute what they complete."""
     router = APIRouter(prefix=f"{API_PREFIX}/portfolios", tags=["prices"])
 
     @router.post(

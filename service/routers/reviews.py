@@ -15,6 +15,7 @@ __all__ = ["make_router"]
 
 
 def make_router(settings: ServiceSettings) -> APIRouter:
+    """The router of ``POST /v1/alerts/{alert_id}/reviews``: append a review to an alert (reviewer)."""
     router = APIRouter(prefix=f"{API_PREFIX}/alerts", tags=["reviews"])
 
     @router.post(

@@ -16,6 +16,7 @@ __all__ = ["make_router"]
 
 
 def make_router(settings: ServiceSettings) -> APIRouter:
+    """The router of ``/v1/portfolios/{name}/series``: the per-window summaries, paged."""
     router = APIRouter(prefix=f"{API_PREFIX}/portfolios", tags=["series"])
     cap = settings.max_page_size
 

@@ -25,7 +25,8 @@ def test_the_documented_defaults_are_the_defaults() -> None:
         ("[monitor]\nwindwo = 60\n", ("unknown key 'monitor.windwo'",)),
         ("[compute]\nexecutor = 'gpu'\n", ("'compute.executor'", "'gpu'")),
         (
-            "[alerts]\n[[alerts.rules]]\nname = 'q'\nsummary = 'mean_correlation'\nkind = 'quantile'\nthreshold = 1.5\n",
+            "[alerts]\n[[alerts.rules]]\nname = 'q'\nsummary = 'mean_correlation'\n"
+            "kind = 'quantile'\nthreshold = 1.5\n",
             ("'alerts.rules.0'", "must lie in (0, 1)", "1.5"),
         ),
         ("[monitors]\nwindow = 60\n", ("unknown section", "monitors")),

@@ -261,20 +261,26 @@ def test_history_tables_refuse_update_and_delete(store: Store, run, rng: np.rand
         table, "source"
     )
     for statement in (f"UPDATE {table} SET {column} = 'x'", f"DELETE FROM {table}"):
-        with store.engine.connect() as connection, pytest.raises(sa.exc.DatabaseError, match="append-only"):
-            with connection.begin():
-                connection.exec_driver_sql(statement)
+        with (
+            store.engine.connect() as connection,
+            pytest.raises(sa.exc.DatabaseError, match="append-only"),
+            connection.begin(),
+        ):
+            connection.exec_driver_sql(statement)
     assert verify_chain(store).ok
 
 
 def test_a_fork_is_refused_by_unique_constraints(store: Store, run, rng: np.random.Generator) -> None:
     first = store.append_alerts(make_alerts(rng, 1), run.id).added[0]
-    with store.engine.connect() as connection, pytest.raises(sa.exc.IntegrityError):
-        with connection.begin():  # a second record claiming the genesis as its predecessor
-            connection.execute(
-                sa.text("INSERT INTO ledger (seq, kind, prev_hash, entry_hash) VALUES (2, 'alert', :prev, :own)"),
-                {"prev": first.prev_hash, "own": "f" * 64},
-            )
+    with (
+        store.engine.connect() as connection,
+        pytest.raises(sa.exc.IntegrityError),
+        connection.begin(),  # a second record claiming the genesis as its predecessor
+    ):
+        connection.execute(
+            sa.text("INSERT INTO ledger (seq, kind, prev_hash, entry_hash) VALUES (2, 'alert', :prev, :own)"),
+            {"prev": first.prev_hash, "own": "f" * 64},
+        )
 
 
 def test_api_keys(store: Store) -> None:

@@ -117,7 +117,8 @@ def explain_alert(
     --------
     >>> from riskshape import Config, monitor
     >>> from riskshape.demo.scenario import generate_scenario
-    >>> run = monitor(generate_scenario(seed=1, n_days=80).prices, Config(window=60, step=10, compute={"executor": "serial"}))
+    >>> config = Config(window=60, step=10, compute={"executor": "serial"})
+    >>> run = monitor(generate_scenario(seed=1, n_days=80).prices, config)
     >>> e = explain_alert(run, run.window_ends[-1], "h0_total_persistence")
     >>> e.clusters is not None, e.loops is None
     (True, True)

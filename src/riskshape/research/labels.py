@@ -1,4 +1,4 @@
-"""Labels for event studies: does an event start within the next ``H`` trading days?
+"""Labels for event studies: whether an event starts within the next ``H`` trading days.
 
 Time is counted in trading days of the events' calendar (``DrawdownEvents.calendar``). See
 :mod:`riskshape.research.study` for how the labels are used.
@@ -28,6 +28,7 @@ def positions(index: pd.DatetimeIndex, calendar: pd.DatetimeIndex, what: str) ->
 
 
 def event_positions(events: DrawdownEvents) -> tuple[np.ndarray, np.ndarray]:
+    """Positions in ``events.calendar`` of each event's start and of its trough (DataError if off it)."""
     cal = events.calendar
     starts = positions(pd.DatetimeIndex(events.table["start"]), cal, "event start")
     troughs = positions(pd.DatetimeIndex(events.table["trough"]), cal, "event trough")

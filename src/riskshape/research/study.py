@@ -1,4 +1,4 @@
-"""Event study: does a summary (or an alert rule on it) move before stress events?
+"""Event study: whether a summary (or an alert rule on it) moves before stress events.
 
 Time is counted in trading days of the events' calendar (``DrawdownEvents.calendar``); a
 signal is indexed by window ends, which are days of that calendar. For an event starting on day

@@ -57,6 +57,7 @@ class UtcDateTime(sa.types.TypeDecorator[datetime]):
     cache_ok = True
 
     def process_bind_param(self, value: datetime | None, dialect: Any) -> datetime | None:
+        """The value to write, in UTC (naive on SQLite, which keeps no timezone); a naive value is refused."""
         if value is None:
             return None
         if value.tzinfo is None:
@@ -65,6 +66,7 @@ class UtcDateTime(sa.types.TypeDecorator[datetime]):
         return value.replace(tzinfo=None) if dialect.name == "sqlite" else value
 
     def process_result_value(self, value: datetime | None, dialect: Any) -> datetime | None:
+        """The value read back, timezone-aware in UTC."""
         if value is None:
             return None
         if value.tzinfo is None:
