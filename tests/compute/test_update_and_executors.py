@@ -97,23 +97,25 @@ def test_dask_executor_equals_serial(small_scenario: Scenario) -> None:
     prices = _prices(small_scenario)
     config = _config(1)
     serial = monitor(prices, config)
-    with distributed.LocalCluster(n_workers=1, processes=False, dashboard_address=None) as cluster:
-        with distributed.Client(cluster) as client:
-            # the executor given a client, over the engine's unit of work
-            settings = settings_of(config)
-            values = serial.returns.to_numpy()
-            ends = np.arange(WINDOW - 1, len(values))
-            jobs = [(values, ends[:10], settings, None), (values, ends[10:], settings, None)]
-            executor = DaskExecutor(client=client)
-            remote = list(executor.map(compute_batch, jobs))
-            executor.close()
-            local = list(SerialExecutor().map(compute_batch, jobs))
-            for remote_batch, local_batch in zip(remote, local):
-                for x, y in zip(remote_batch, local_batch):
-                    np.testing.assert_array_equal(x.used, y.used)
-                    np.testing.assert_array_equal(x.distances, y.distances)
-                    for dx, dy in zip(x.diagrams, y.diagrams):
-                        np.testing.assert_array_equal(dx, dy)
-            # the whole monitor through the configuration's scheduler address
-            remote_config = _config(1, executor="dask", scheduler=cluster.scheduler_address)
-            assert_same_result(monitor(prices, remote_config), serial)
+    with (
+        distributed.LocalCluster(n_workers=1, processes=False, dashboard_address=None) as cluster,
+        distributed.Client(cluster) as client,
+    ):
+        # the executor given a client, over the engine's unit of work
+        settings = settings_of(config)
+        values = serial.returns.to_numpy()
+        ends = np.arange(WINDOW - 1, len(values))
+        jobs = [(values, ends[:10], settings, None), (values, ends[10:], settings, None)]
+        executor = DaskExecutor(client=client)
+        remote = list(executor.map(compute_batch, jobs))
+        executor.close()
+        local = list(SerialExecutor().map(compute_batch, jobs))
+        for remote_batch, local_batch in zip(remote, local):
+            for x, y in zip(remote_batch, local_batch):
+                np.testing.assert_array_equal(x.used, y.used)
+                np.testing.assert_array_equal(x.distances, y.distances)
+                for dx, dy in zip(x.diagrams, y.diagrams):
+                    np.testing.assert_array_equal(dx, dy)
+        # the whole monitor through the configuration's scheduler address
+        remote_config = _config(1, executor="dask", scheduler=cluster.scheduler_address)
+        assert_same_result(monitor(prices, remote_config), serial)

@@ -58,11 +58,13 @@ class SerialExecutor:
     """
 
     def map(self, fn: Callable[..., T], jobs: Sequence[tuple[Any, ...]]) -> Iterator[T]:
+        """``fn(*job)`` for each job, in order, in this process with BLAS on one thread."""
         with _one_blas_thread():
             for job in jobs:
                 yield fn(*job)
 
     def close(self) -> None:
+        """Nothing to release."""
         return None
 
 
@@ -151,6 +153,7 @@ class ProcessExecutor:
         self._pool: ProcessPoolExecutor | None = None
 
     def map(self, fn: Callable[..., T], jobs: Sequence[tuple[Any, ...]]) -> Iterator[T]:
+        """``fn(*job)`` for each job on the pool's workers, yielded in job order (the pool starts on first use)."""
         if self._pool is None:
             method = _start_method()
             forked = method == "fork"
@@ -173,6 +176,7 @@ class ProcessExecutor:
                 yield future.result()
 
     def close(self) -> None:
+        """Shut the worker processes down (a later ``map`` starts new ones)."""
         if self._pool is not None:
             self._pool.shutdown()
             self._pool = None
@@ -211,11 +215,13 @@ class DaskExecutor:
         return max(1, sum(threads.values()))
 
     def map(self, fn: Callable[..., T], jobs: Sequence[tuple[Any, ...]]) -> Iterator[T]:
+        """``fn(*job)`` for each job on the cluster's workers (BLAS pinned there), yielded in job order."""
         futures = [self.client.submit(_pinned_call, fn, *job, pure=False) for job in jobs]
         for future in futures:
             yield future.result()
 
     def close(self) -> None:
+        """Close the client if this executor opened it (a client given by the caller stays open)."""
         if self._owns_client:
             self.client.close()
 
