@@ -1,12 +1,13 @@
 """Alerts: list them with filters, and one alert with its provenance and reviews."""
 
 from datetime import date
-from typing import Annotated, Literal
+from typing import Annotated
 
 from fastapi import APIRouter, Path, Query
 
 from riskshape.config import ServiceSettings
 from riskshape.explain.archived import explanation_object, explanation_text
+from riskshape.types import Severity
 from riskshape_service.convert import alert_out, provenance_out, review_out
 from riskshape_service.deps import ReaderDep, StoreDep
 from riskshape_service.routers import API_PREFIX, MAX_ID, errors
@@ -15,7 +16,6 @@ from riskshape_service.schemas import AlertDetailOut, AlertPageOut
 __all__ = ["make_router", "AlertId"]
 
 AlertId = Annotated[int, Path(ge=1, le=MAX_ID, description="alert id")]
-Severity = Literal["info", "warning", "critical"]
 
 
 def make_router(settings: ServiceSettings) -> APIRouter:

@@ -23,6 +23,16 @@ from typing import Any, Literal
 from pydantic import BaseModel, ConfigDict, Field, ValidationError, model_validator
 
 from riskshape.errors import ConfigError
+from riskshape.types import (
+    CorrelationEstimator,
+    Direction,
+    Embedding,
+    ExecutorKind,
+    ReturnsKind,
+    RipsBackend,
+    RuleKind,
+    Severity,
+)
 
 if sys.version_info >= (3, 11):
     import tomllib
@@ -39,8 +49,6 @@ __all__ = [
     "default_rules",
     "store_url_from_env",
 ]
-
-Severity = Literal["info", "warning", "critical"]
 
 
 def format_validation_error(
@@ -118,7 +126,7 @@ class _Frozen(BaseModel):
 class ComputeConfig(_Frozen):
     """Where windows are computed; never changes a result."""
 
-    executor: Literal["serial", "process", "dask"] = "process"
+    executor: ExecutorKind = "process"
     workers: int = Field(0, ge=0, description="processes for the local pool; 0 means one per core")
     scheduler: str | None = Field(None, description="Dask scheduler address, e.g. tcp://10.0.0.5:8786")
     batch_windows: int = Field(
@@ -136,10 +144,10 @@ class RuleConfig(_Frozen):
 
     name: str = Field(min_length=1, max_length=80, pattern=r"^[A-Za-z0-9_.-]+$")
     summary: str = Field(min_length=1)
-    kind: Literal["level", "quantile", "zscore"]
+    kind: RuleKind
     threshold: float
     clear: float | None = None
-    direction: Literal["above", "below"] = "above"
+    direction: Direction = "above"
     lookback: int = Field(250, ge=2, description="trailing windows used by quantile and zscore")
     min_history: int = Field(60, ge=0, description="windows of history needed before the rule may fire")
     consecutive: int = Field(1, ge=1, description="windows in a row beyond the threshold before it fires")
@@ -216,12 +224,12 @@ class Config(_Frozen):
     window: int = Field(60, ge=5, le=5000)
     step: int = Field(1, ge=1)
     min_coverage: float = Field(0.9, gt=0.0, le=1.0)
-    returns: Literal["log", "simple"] = "log"
-    correlation: Literal["pearson", "spearman"] = "pearson"
+    returns: ReturnsKind = "log"
+    correlation: CorrelationEstimator = "pearson"
     maxdim: int = Field(1, ge=0, le=2)
     order_p: float = Field(1.0, ge=1.0)
-    engine: Literal["auto", "ripser", "giotto"] = "auto"
-    embedding: Literal["correlation", "point_cloud"] = "correlation"
+    engine: RipsBackend = "auto"
+    embedding: Embedding = "correlation"
     standardize_cloud: bool = True
     compute: ComputeConfig = ComputeConfig()
     alerts: AlertsConfig = AlertsConfig()

@@ -20,12 +20,13 @@ import os
 import warnings
 from collections.abc import Callable
 from pathlib import Path
-from typing import IO
+from typing import IO, cast
 
 import numpy as np
 import pandas as pd
 
 from riskshape.errors import DataError, DataQualityWarning
+from riskshape.types import FloatArray, IntArray
 
 __all__ = ["read_prices", "validate_prices", "csv_table", "hash_prices", "MIN_ASSETS"]
 
@@ -221,7 +222,7 @@ def _to_wide(table: pd.DataFrame, source: str, first_line: int, row_label: str) 
     return wide
 
 
-def _parse_dates(column: pd.Series, source: str, lines: np.ndarray, row_label: str) -> pd.Series:
+def _parse_dates(column: pd.Series, source: str, lines: IntArray, row_label: str) -> pd.Series:
     if pd.api.types.is_datetime64_any_dtype(column):
         parsed = pd.to_datetime(column)
         if getattr(parsed.dt, "tz", None) is not None:
@@ -263,7 +264,7 @@ def _pivot_long(table: pd.DataFrame, source: str, row_label: str) -> pd.DataFram
     return prices
 
 
-def _parse_prices(column: pd.Series, where: Callable[[int], str]) -> np.ndarray:
+def _parse_prices(column: pd.Series, where: Callable[[int], str]) -> FloatArray:
     """Parse price cells to float64: empty cells become NaN; text, infinite, zero or negative is an error.
 
     ``where(i)`` names the place of cell ``i`` (file, line, date, column) for the message.
@@ -291,4 +292,4 @@ def _parse_prices(column: pd.Series, where: Callable[[int], str]) -> np.ndarray:
         raise DataError(
             f"{where(i)}: price {numbers[i]:g} is not positive; prices must be > 0 (leave a cell empty if unknown)"
         )
-    return numbers
+    return cast("FloatArray", numbers)

@@ -17,6 +17,14 @@ Arrays
     One ``Diagram`` per dimension, H0 first.
 ``Positions``
     int64 positions (of columns or rows).
+``IntArray``
+    int64 values that are not positions (counts, labels, sector numbers).
+``BoolArray``
+    A mask.
+``Float32Array``
+    float32 values (ripser's arithmetic, kept as it computed them).
+``CompactBars``
+    Bars of several diagrams stacked in one array, float32 where that is lossless, float64 otherwise.
 
 Frames
 ------
@@ -48,6 +56,10 @@ __all__ = [
     "Diagram",
     "Diagrams",
     "Positions",
+    "IntArray",
+    "BoolArray",
+    "Float32Array",
+    "CompactBars",
     "PriceFrame",
     "ReturnsFrame",
     "RipsBackend",
@@ -68,6 +80,10 @@ DistanceMatrix: TypeAlias = "npt.NDArray[np.float64]"
 Diagram: TypeAlias = "npt.NDArray[np.float64]"
 Diagrams: TypeAlias = tuple[Diagram, ...]
 Positions: TypeAlias = "npt.NDArray[np.int64]"
+IntArray: TypeAlias = "npt.NDArray[np.int64]"
+BoolArray: TypeAlias = "npt.NDArray[np.bool_]"
+Float32Array: TypeAlias = "npt.NDArray[np.float32]"
+CompactBars: TypeAlias = "npt.NDArray[np.float32] | npt.NDArray[np.float64]"
 
 PriceFrame: TypeAlias = "pd.DataFrame"
 ReturnsFrame: TypeAlias = "pd.DataFrame"

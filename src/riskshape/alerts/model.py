@@ -7,6 +7,8 @@ from datetime import datetime
 
 import pandas as pd
 
+from riskshape.types import RuleKind, Severity
+
 __all__ = ["Firing", "Alert"]
 
 
@@ -34,11 +36,11 @@ class Firing:
 
     rule: str
     summary: str
-    kind: str
+    kind: RuleKind
     window_end: pd.Timestamp
     value: float
     threshold: float
-    severity: str
+    severity: Severity
 
 
 @dataclass(frozen=True)

@@ -46,6 +46,7 @@ from riskshape.alerts.model import Firing
 from riskshape.alerts.thresholds import MIN_PAST_VALUES, clean_values, trailing_levels
 from riskshape.config import RuleConfig
 from riskshape.errors import ConfigError, DataError
+from riskshape.types import FloatArray, IntArray, Positions, Severity
 
 __all__ = [
     "RuleState",
@@ -104,18 +105,18 @@ class RuleState:
     active_since: pd.Timestamp | None
     last_fired: pd.Timestamp | None
     cooldown_left: int
-    severity: str
+    severity: Severity
 
 
 @dataclass(frozen=True)
 class _Trace:
     """The state machine's output over a whole series (internal)."""
 
-    values: np.ndarray
-    threshold: np.ndarray
-    clear: np.ndarray
-    history: np.ndarray
-    fired: np.ndarray  # positions where it fired
+    values: FloatArray
+    threshold: FloatArray
+    clear: FloatArray
+    history: IntArray
+    fired: Positions  # positions where it fired
     run: int  # at the last window
     active_since: int | None  # position, after the last window
     last_fired: int | None

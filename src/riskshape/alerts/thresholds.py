@@ -25,6 +25,7 @@ import numpy as np
 import pandas as pd
 
 from riskshape.config import RuleConfig
+from riskshape.types import FloatArray, IntArray
 
 __all__ = ["RuleLevels", "clean_values", "trailing_levels", "MIN_PAST_VALUES"]
 
@@ -46,9 +47,9 @@ class RuleLevels:
         Clear level in force at each window, in the summary's units (NaN where undefined).
     """
 
-    history: np.ndarray
-    threshold: np.ndarray
-    clear: np.ndarray
+    history: IntArray
+    threshold: FloatArray
+    clear: FloatArray
 
 
 def clean_values(series: pd.Series) -> pd.Series:

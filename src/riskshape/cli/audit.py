@@ -7,6 +7,7 @@ import click
 from riskshape.caution import CAUTION
 from riskshape.config import ComputeConfig, store_url_from_env
 from riskshape.store import chain_head, open_store, verify_chain
+from riskshape.types import ExecutorKind
 
 __all__ = ["audit", "STORE_OPTION"]
 
@@ -75,7 +76,7 @@ def head(store_url: str) -> None:
     show_default=True,
     help="Where the windows are recomputed (never changes a result).",
 )
-def reproduce(alert_id: int, store_url: str, executor: str) -> None:
+def reproduce(alert_id: int, store_url: str, executor: ExecutorKind) -> None:
     """Recompute ALERT_ID from the archived prices and configuration; exit 1 unless it is confirmed."""
     from riskshape.archive import reproduce_alert  # the engine loads only for this command
 

@@ -15,6 +15,7 @@ from riskshape.errors import DataError
 from riskshape.outputs.run_folder import write_run
 from riskshape.prices import read_prices
 from riskshape.store import open_store
+from riskshape.types import ExecutorKind
 
 __all__ = ["run", "load_config"]
 
@@ -58,7 +59,7 @@ def run(
     prices_path: Path,
     config_path: Path | None,
     out_dir: Path,
-    executor: str | None,
+    executor: ExecutorKind | None,
     scheduler: str | None,
     store_url: str | None,
     portfolio: str | None,

@@ -9,7 +9,7 @@ beyond rounding (:mod:`riskshape.compute.moments`).
 from __future__ import annotations
 
 from dataclasses import dataclass
-from typing import Literal
+from typing import cast
 
 import numpy as np
 from scipy.spatial.distance import pdist, squareform
@@ -26,6 +26,18 @@ from riskshape.compute.windows import (
     window_end_row,
     window_index,
     window_rows,
+)
+from riskshape.types import (
+    CompactBars,
+    CorrelationEstimator,
+    CorrelationMatrix,
+    Diagrams,
+    DistanceMatrix,
+    Embedding,
+    FloatArray,
+    Positions,
+    ReturnsBlock,
+    RipsBackend,
 )
 
 __all__ = [
@@ -50,11 +62,11 @@ class WindowSettings:
 
     window: int
     min_coverage: float
-    correlation: Literal["pearson", "spearman"]
+    correlation: CorrelationEstimator
     maxdim: int
     order_p: float
-    engine: Literal["auto", "ripser", "giotto"]
-    embedding: Literal["correlation", "point_cloud"]
+    engine: RipsBackend
+    embedding: Embedding
     standardize_cloud: bool
     step: int = 1
     rolling: bool = True
@@ -88,21 +100,21 @@ class WindowResult:
         (:func:`riskshape.compute.summaries.summarize_diagram`), computed with the diagrams (in the worker).
     """
 
-    used: np.ndarray
+    used: Positions
     left_out: tuple[tuple[int, str], ...]
     mean_correlation: float
-    bars: np.ndarray
+    bars: CompactBars
     sizes: tuple[int, ...]
-    summaries: np.ndarray
-    distances: np.ndarray
+    summaries: FloatArray
+    distances: FloatArray
 
     def __init__(
         self,
-        used: np.ndarray,
+        used: Positions,
         left_out: tuple[tuple[int, str], ...],
         mean_correlation: float,
-        diagrams: tuple[np.ndarray, ...],
-        distances: np.ndarray,
+        diagrams: Diagrams,
+        distances: FloatArray,
     ) -> None:
         bars = (
             np.concatenate([np.asarray(d, dtype=float).reshape(-1, 2) for d in diagrams]) if diagrams else EMPTY_DIAGRAM
@@ -123,12 +135,12 @@ class WindowResult:
             object.__setattr__(self, name, value)
 
     @property
-    def diagrams(self) -> tuple[np.ndarray, ...]:
+    def diagrams(self) -> Diagrams:
         """H0..Hmaxdim finite bars, each an (n, 2) float64 array."""
         bounds = np.cumsum((0,) + self.sizes)
         return tuple(self.bars[lo:hi].astype(float) for lo, hi in zip(bounds[:-1], bounds[1:]))
 
-    def with_distances(self, distances: np.ndarray) -> WindowResult:
+    def with_distances(self, distances: FloatArray) -> WindowResult:
         """A copy with ``distances`` set."""
         copy = object.__new__(WindowResult)
         copy.__dict__.update(self.__dict__)
@@ -136,7 +148,7 @@ class WindowResult:
         return copy
 
 
-def compute_window(block: np.ndarray, settings: WindowSettings) -> WindowResult:
+def compute_window(block: ReturnsBlock, settings: WindowSettings) -> WindowResult:
     """Diagrams and correlation level of one window of returns (the plain path).
 
     Parameters
@@ -153,7 +165,7 @@ def compute_window(block: np.ndarray, settings: WindowSettings) -> WindowResult:
     return _from_selection(select_assets(block, settings.min_coverage), settings, None)
 
 
-def _from_selection(selection: Selection, settings: WindowSettings, corr: np.ndarray | None) -> WindowResult:
+def _from_selection(selection: Selection, settings: WindowSettings, corr: CorrelationMatrix | None) -> WindowResult:
     """A window's result from its admitted assets; ``corr`` is their correlation if known already."""
     nan_distances = np.full((settings.maxdim + 1, 2), np.nan)
     if len(selection.used) < 2:
@@ -167,11 +179,11 @@ def _from_selection(selection: Selection, settings: WindowSettings, corr: np.nda
 
 
 def embedding_distance(
-    block: np.ndarray,
-    corr: np.ndarray,
-    embedding: Literal["correlation", "point_cloud"],
+    block: ReturnsBlock,
+    corr: CorrelationMatrix,
+    embedding: Embedding,
     standardize_cloud: bool,
-) -> np.ndarray:
+) -> DistanceMatrix:
     """The distance matrix whose Vietoris-Rips filtration gives a window's diagrams.
 
     Parameters
@@ -193,11 +205,11 @@ def embedding_distance(
         points = block
         if standardize_cloud:
             points = (points - points.mean(axis=0)) / points.std(axis=0)
-        return squareform(pdist(points))
+        return cast("DistanceMatrix", squareform(pdist(points)))
     return correlation_to_distance(corr)
 
 
-def diagram_distances(previous: tuple[np.ndarray, ...], current: tuple[np.ndarray, ...], order_p: float) -> np.ndarray:
+def diagram_distances(previous: Diagrams, current: Diagrams, order_p: float) -> FloatArray:
     """(maxdim + 1, 2) array of Wasserstein (order ``order_p``) and bottleneck distances per dimension."""
     return np.array(
         [[wasserstein_distance(a, b, order_p), bottleneck_distance(a, b)] for a, b in zip(previous, current)]
@@ -205,10 +217,10 @@ def diagram_distances(previous: tuple[np.ndarray, ...], current: tuple[np.ndarra
 
 
 def compute_batch(
-    rows: np.ndarray,
-    ends: np.ndarray,
+    rows: FloatArray,
+    ends: Positions,
     settings: WindowSettings,
-    previous: tuple[np.ndarray, ...] | None = None,
+    previous: Diagrams | None = None,
     row_offset: int = 0,
 ) -> list[WindowResult]:
     """Compute consecutive windows over a slice of the returns table.
@@ -239,7 +251,7 @@ def compute_batch(
     rows = np.ascontiguousarray(rows, dtype=float)
     rolling = _Rolling(rows, settings, row_offset) if _rolling_applies(settings) else None
     results: list[WindowResult] = []
-    last_used: np.ndarray | None = None
+    last_used: Positions | None = None
     for end in ends:
         end = int(end)
         selection = select_window(rows, end, settings.window, settings.min_coverage)
@@ -262,13 +274,13 @@ def first_row_needed(end: int, settings: WindowSettings) -> int:
     The window's first row, or with running sums the first row of the rebuild point before it
     (:func:`riskshape.compute.moments.is_rebuild_point`), whichever is earlier.
     """
-    start = window_rows(end, settings.window).start
+    start = int(window_rows(end, settings.window).start)
     if not _rolling_applies(settings) or not is_on_grid(end, settings.window, settings.step):
         return start
     index = window_index(end, settings.window, settings.step)
     while not is_rebuild_point(index):
         index -= 1
-    return min(start, window_rows(window_end_row(index, settings.window, settings.step), settings.window).start)
+    return min(start, int(window_rows(window_end_row(index, settings.window, settings.step), settings.window).start))
 
 
 def preload(settings: WindowSettings) -> None:
@@ -290,7 +302,7 @@ def _rolling_applies(settings: WindowSettings) -> bool:
 class _Rolling:
     """Running sums for the windows of one batch, rebuilt at fixed positions of the returns table."""
 
-    def __init__(self, rows: np.ndarray, settings: WindowSettings, row_offset: int) -> None:
+    def __init__(self, rows: FloatArray, settings: WindowSettings, row_offset: int) -> None:
         self.rows = rows
         self.window = settings.window
         self.step = settings.step
@@ -305,7 +317,7 @@ class _Rolling:
             index -= 1
         return window_end_row(index, self.window, self.step) - self.offset
 
-    def correlation(self, end: int, used: np.ndarray) -> np.ndarray | None:
+    def correlation(self, end: int, used: Positions) -> CorrelationMatrix | None:
         """Correlation of ``used`` in the window ending at ``end`` from running sums, or None.
 
         None when the window is off the step grid, when the rebuild point lies before ``rows``,

@@ -8,15 +8,17 @@ not change when an asset's volatility does.
 
 from __future__ import annotations
 
-from typing import Literal
+from typing import cast
 
 import numpy as np
 from scipy.stats import rankdata
 
+from riskshape.types import CorrelationEstimator, CorrelationMatrix, DistanceMatrix, FloatArray, ReturnsBlock
+
 __all__ = ["correlation_matrix", "correlation_to_distance", "mean_offdiagonal"]
 
 
-def correlation_matrix(block: np.ndarray, method: Literal["pearson", "spearman"] = "pearson") -> np.ndarray:
+def correlation_matrix(block: ReturnsBlock, method: CorrelationEstimator = "pearson") -> CorrelationMatrix:
     """Correlation matrix of the columns of a complete (no NaN) block of returns.
 
     Parameters
@@ -32,13 +34,13 @@ def correlation_matrix(block: np.ndarray, method: Literal["pearson", "spearman"]
         (assets, assets) symmetric, unit diagonal, entries in [-1, 1].
     """
     data = rankdata(block, axis=0) if method == "spearman" else block
-    corr = np.corrcoef(data, rowvar=False)
+    corr = cast("CorrelationMatrix", np.corrcoef(data, rowvar=False))
     corr = np.clip((corr + corr.T) / 2.0, -1.0, 1.0)
     np.fill_diagonal(corr, 1.0)
     return corr
 
 
-def correlation_to_distance(corr: np.ndarray) -> np.ndarray:
+def correlation_to_distance(corr: CorrelationMatrix) -> DistanceMatrix:
     """Mantegna's correlation distance sqrt(2 (1 - rho)), clipped to [0, 2], zero diagonal.
 
     Examples
@@ -55,7 +57,7 @@ def correlation_to_distance(corr: np.ndarray) -> np.ndarray:
     return dist
 
 
-def mean_offdiagonal(matrix: np.ndarray) -> float:
+def mean_offdiagonal(matrix: FloatArray) -> float:
     """Mean of the off-diagonal entries of a square matrix (NaN below 2 rows)."""
     n = matrix.shape[0]
     if n < 2:

@@ -19,7 +19,7 @@ import threading
 from collections.abc import Callable, Iterable, Iterator, Sequence
 from concurrent.futures import ProcessPoolExecutor
 from contextlib import AbstractContextManager, nullcontext
-from typing import Any, Protocol, TypeVar
+from typing import Any, Protocol, TypeVar, cast
 
 from riskshape.config import ComputeConfig
 from riskshape.errors import ConfigError
@@ -99,7 +99,7 @@ def _one_blas_thread() -> AbstractContextManager[Any]:
         return nullcontext()
     from threadpoolctl import threadpool_limits
 
-    return threadpool_limits(1)
+    return cast(AbstractContextManager[Any], threadpool_limits(1))
 
 
 def _pin_blas() -> None:
@@ -212,7 +212,7 @@ class DaskExecutor:
             threads = self.client.nthreads()
         except (OSError, TimeoutError):  # pragma: no cover - a cluster gone away
             return 1
-        return max(1, sum(threads.values()))
+        return max(1, cast(int, sum(threads.values())))
 
     def map(self, fn: Callable[..., T], jobs: Sequence[tuple[Any, ...]]) -> Iterator[T]:
         """``fn(*job)`` for each job on the cluster's workers (BLAS pinned there), yielded in job order."""

@@ -56,6 +56,8 @@ from scipy.optimize import linear_sum_assignment
 from scipy.sparse import csr_matrix
 from scipy.sparse.csgraph import maximum_bipartite_matching
 
+from riskshape.types import BoolArray, Diagram, FloatArray
+
 __all__ = [
     "sorted_matching_is_optimal",
     "sorted_bottleneck_is_optimal",
@@ -66,11 +68,11 @@ __all__ = [
 ]
 
 
-def _half_lifetimes(dgm: np.ndarray) -> np.ndarray:
+def _half_lifetimes(dgm: Diagram) -> FloatArray:
     return (dgm[:, 1] - dgm[:, 0]) / 2.0
 
 
-def sorted_matching_is_optimal(da: np.ndarray, db: np.ndarray, order_p: float) -> bool:
+def sorted_matching_is_optimal(da: Diagram, db: Diagram, order_p: float) -> bool:
     """Whether matching sorted deaths ``da[i] <-> db[i]`` is an optimal Wasserstein-p matching.
 
     Parameters
@@ -106,7 +108,7 @@ def sorted_matching_is_optimal(da: np.ndarray, db: np.ndarray, order_p: float) -
     return bool(np.all(lo <= hi + 1e-12 * scale))
 
 
-def sorted_bottleneck_is_optimal(da: np.ndarray, db: np.ndarray) -> bool:
+def sorted_bottleneck_is_optimal(da: Diagram, db: Diagram) -> bool:
     """Whether the sorted matching of two equal-length sorted death lists (births 0) is bottleneck-optimal.
 
     True when its largest pair cost is at most the smallest cost to the diagonal, min death / 2.
@@ -114,12 +116,12 @@ def sorted_bottleneck_is_optimal(da: np.ndarray, db: np.ndarray) -> bool:
     return bool(np.max(np.abs(da - db)) <= min(float(da[0]), float(db[0])) / 2.0)
 
 
-def _pair_costs(a: np.ndarray, b: np.ndarray) -> np.ndarray:
+def _pair_costs(a: Diagram, b: Diagram) -> FloatArray:
     """(n, m) L-infinity distances between the points of two diagrams."""
     return np.maximum(np.abs(a[:, None, 0] - b[None, :, 0]), np.abs(a[:, None, 1] - b[None, :, 1]))
 
 
-def assignment_wasserstein(a: np.ndarray, b: np.ndarray, order_p: float) -> float:
+def assignment_wasserstein(a: Diagram, b: Diagram, order_p: float) -> float:
     """Wasserstein-p distance of two non-empty diagrams by the square assignment problem (scipy).
 
     The plain path (see the module notes).
@@ -145,7 +147,7 @@ def assignment_wasserstein(a: np.ndarray, b: np.ndarray, order_p: float) -> floa
     return float(cost[rows, cols].sum() ** (1.0 / order_p))
 
 
-def reduced_assignment_wasserstein(a: np.ndarray, b: np.ndarray, order_p: float) -> float:
+def reduced_assignment_wasserstein(a: Diagram, b: Diagram, order_p: float) -> float:
     """Wasserstein-p distance of two non-empty diagrams by the reduced assignment problem (scipy).
 
     The fast path (see the module notes): an n x (m + n) matrix, n the smaller diagram's size.
@@ -177,7 +179,7 @@ def reduced_assignment_wasserstein(a: np.ndarray, b: np.ndarray, order_p: float)
     return float(total ** (1.0 / order_p))
 
 
-def persim_bottleneck(a: np.ndarray, b: np.ndarray) -> float:
+def persim_bottleneck(a: Diagram, b: Diagram) -> float:
     """Persim's exact bottleneck distance of two non-empty diagrams of finite bars."""
     from persim import bottleneck
 
@@ -187,7 +189,7 @@ def persim_bottleneck(a: np.ndarray, b: np.ndarray) -> float:
         return float(bottleneck(a, b))
 
 
-def threshold_bottleneck(a: np.ndarray, b: np.ndarray) -> float:
+def threshold_bottleneck(a: Diagram, b: Diagram) -> float:
     """Exact bottleneck distance of two non-empty diagrams: smallest feasible threshold.
 
     Parameters
@@ -239,7 +241,7 @@ def threshold_bottleneck(a: np.ndarray, b: np.ndarray) -> float:
     return float(candidates[lo])
 
 
-def _covers(allowed: np.ndarray) -> bool:
+def _covers(allowed: BoolArray) -> bool:
     """Whether the bipartite graph ``allowed`` (rows x columns) has a matching covering every row."""
     rows, cols = allowed.shape
     if rows == 0:

@@ -20,7 +20,11 @@ block.
 
 from __future__ import annotations
 
+from typing import cast
+
 import numpy as np
+
+from riskshape.types import CorrelationMatrix, FloatArray, Positions
 
 __all__ = ["RollingMoments", "RECOMPUTE_EVERY", "is_rebuild_point"]
 
@@ -46,7 +50,7 @@ class RollingMoments:
         (window, n_assets) returns of the first window, NaN where missing.
     """
 
-    def __init__(self, rows: np.ndarray) -> None:
+    def __init__(self, rows: FloatArray) -> None:
         present = ~np.isnan(rows)
         counts = present.sum(axis=0)
         totals = np.where(present, rows, 0.0).sum(axis=0)
@@ -57,23 +61,23 @@ class RollingMoments:
         self.cross = centred.T @ centred
         self.missing = (~present).sum(axis=0)
 
-    def _centre(self, rows: np.ndarray) -> np.ndarray:
+    def _centre(self, rows: FloatArray) -> FloatArray:
         centred = rows - self.shift
         centred[np.isnan(centred)] = 0.0
-        return centred
+        return cast("FloatArray", centred)
 
-    def slide(self, leaving: np.ndarray, entering: np.ndarray) -> None:
+    def slide(self, leaving: FloatArray, entering: FloatArray) -> None:
         """Drop the rows ``leaving`` from the window and add the rows ``entering`` (same count)."""
         old, new = self._centre(leaving), self._centre(entering)
         self.sums += new.sum(axis=0) - old.sum(axis=0)
         self.cross += np.vstack([new, old]).T @ np.vstack([new, -old])
         self.missing += np.isnan(entering).sum(axis=0) - np.isnan(leaving).sum(axis=0)
 
-    def complete(self, columns: np.ndarray) -> bool:
+    def complete(self, columns: Positions) -> bool:
         """Whether every one of ``columns`` has all its returns in the current window."""
         return bool(np.all(self.missing[columns] == 0))
 
-    def correlation(self, columns: np.ndarray) -> np.ndarray | None:
+    def correlation(self, columns: Positions) -> CorrelationMatrix | None:
         """Pearson correlation matrix of ``columns`` (complete ones), or None if a variance is not positive.
 
         Symmetrised, clipped to [-1, 1], unit diagonal, as

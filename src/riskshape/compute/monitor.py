@@ -30,6 +30,7 @@ from riskshape.compute.windows import window_end_positions, window_rows
 from riskshape.config import Config
 from riskshape.errors import DataError
 from riskshape.prices import hash_prices, validate_prices
+from riskshape.types import Diagram, Diagrams, FloatArray, Positions
 
 __all__ = ["monitor", "MonitorResult", "feature_columns"]
 
@@ -91,7 +92,7 @@ class MonitorResult:
         return hash_prices(self.prices)
 
     def _position(self, window_end: object) -> int:
-        stamp = pd.Timestamp(window_end)  # type: ignore[arg-type]
+        stamp = pd.Timestamp(window_end)
         pos = self.window_ends.get_indexer([stamp])[0]
         if pos < 0:
             raise DataError(
@@ -100,7 +101,7 @@ class MonitorResult:
             )
         return int(pos)
 
-    def diagram(self, window_end: object, dim: int) -> np.ndarray:
+    def diagram(self, window_end: object, dim: int) -> Diagram:
         """Finite bars (birth, death) of the window ending at ``window_end`` in dimension ``dim``.
 
         Raises
@@ -261,10 +262,10 @@ def settings_of(config: Config) -> WindowSettings:
 
 
 def _compute_windows(
-    values: np.ndarray,
-    ends: np.ndarray,
+    values: FloatArray,
+    ends: Positions,
     config: Config,
-    previous: tuple[np.ndarray, ...] | None,
+    previous: Diagrams | None,
     progress: ProgressFn | None,
     executor: Executor | None = None,
 ) -> list[WindowResult]:

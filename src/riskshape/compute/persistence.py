@@ -25,7 +25,7 @@ from __future__ import annotations
 
 import importlib.util
 from functools import lru_cache
-from typing import Literal
+from typing import cast
 
 import numpy as np
 from ripser import ripser
@@ -33,11 +33,11 @@ from scipy.cluster.hierarchy import linkage
 from scipy.spatial.distance import squareform
 
 from riskshape.errors import ConfigError
+from riskshape.types import Diagram, Diagrams, DistanceMatrix, FloatArray, Positions, ResolvedRipsBackend, RipsBackend
 
 __all__ = ["compute_diagrams", "h0_from_single_linkage", "resolve_engine", "vertex_order", "EMPTY_DIAGRAM"]
 
 EMPTY_DIAGRAM = np.empty((0, 2), dtype=float)
-Engine = Literal["auto", "ripser", "giotto"]
 
 
 @lru_cache(maxsize=1)
@@ -45,7 +45,7 @@ def _giotto_available() -> bool:
     return importlib.util.find_spec("gph") is not None
 
 
-def resolve_engine(engine: Engine) -> Literal["ripser", "giotto"]:
+def resolve_engine(engine: RipsBackend) -> ResolvedRipsBackend:
     """The engine that ``engine`` stands for on this machine.
 
     Raises
@@ -60,7 +60,7 @@ def resolve_engine(engine: Engine) -> Literal["ripser", "giotto"]:
     return engine
 
 
-def compute_diagrams(distance: np.ndarray, maxdim: int = 1, engine: Engine = "auto") -> tuple[np.ndarray, ...]:
+def compute_diagrams(distance: DistanceMatrix, maxdim: int = 1, engine: RipsBackend = "auto") -> Diagrams:
     """Vietoris-Rips persistence diagrams H0..H``maxdim`` of a distance matrix.
 
     Parameters
@@ -100,7 +100,7 @@ def compute_diagrams(distance: np.ndarray, maxdim: int = 1, engine: Engine = "au
     return tuple(_finite_bars(dgm) for dgm in raw)
 
 
-def vertex_order(distance: np.ndarray) -> np.ndarray:
+def vertex_order(distance: DistanceMatrix) -> Positions:
     """The numbering of the points handed to the Rips engine (see the module notes).
 
     Parameters
@@ -118,7 +118,7 @@ def vertex_order(distance: np.ndarray) -> np.ndarray:
     return np.argsort(np.count_nonzero(distance <= radius, axis=1), kind="stable")
 
 
-def h0_from_single_linkage(distance: np.ndarray) -> np.ndarray:
+def h0_from_single_linkage(distance: DistanceMatrix) -> Diagram:
     """H0 diagram from single-linkage merge heights (float32 rounded, zero-length bars dropped).
 
     Parameters
@@ -137,9 +137,9 @@ def h0_from_single_linkage(distance: np.ndarray) -> np.ndarray:
     return np.column_stack([np.zeros_like(heights), heights])
 
 
-def _finite_bars(dgm: np.ndarray) -> np.ndarray:
+def _finite_bars(dgm: FloatArray) -> Diagram:
     bars = np.asarray(dgm, dtype=np.float32).astype(float).reshape(-1, 2)
     keep = np.isfinite(bars[:, 1]) & (bars[:, 1] > bars[:, 0])
     bars = bars[keep]
     order = np.lexsort((bars[:, 0], bars[:, 1]))
-    return bars[order]
+    return cast("Diagram", bars[order])

@@ -2,15 +2,15 @@
 
 from __future__ import annotations
 
-from typing import Literal
-
 import numpy as np
 import pandas as pd
+
+from riskshape.types import PriceFrame, ReturnsFrame, ReturnsKind
 
 __all__ = ["to_returns"]
 
 
-def to_returns(prices: pd.DataFrame, kind: Literal["log", "simple"] = "log") -> pd.DataFrame:
+def to_returns(prices: PriceFrame, kind: ReturnsKind = "log") -> ReturnsFrame:
     """Daily returns of each asset from consecutive rows of a validated price table.
 
     A return at row t needs prices at rows t - 1 and t; where either is missing the return is

@@ -34,6 +34,7 @@ from riskshape.compute.matching import (
     sorted_matching_is_optimal,
     threshold_bottleneck,
 )
+from riskshape.types import Diagram, FloatArray
 
 __all__ = [
     "DiagramSummary",
@@ -48,11 +49,11 @@ __all__ = [
 ]
 
 
-def _lifetimes(dgm: np.ndarray) -> np.ndarray:
+def _lifetimes(dgm: Diagram) -> FloatArray:
     return dgm[:, 1] - dgm[:, 0] if len(dgm) else np.empty(0)
 
 
-def total_persistence(dgm: np.ndarray) -> float:
+def total_persistence(dgm: Diagram) -> float:
     """Sum of the bars' lifetimes.
 
     Examples
@@ -64,7 +65,7 @@ def total_persistence(dgm: np.ndarray) -> float:
     return float(_lifetimes(dgm).sum())
 
 
-def persistent_entropy(dgm: np.ndarray) -> float:
+def persistent_entropy(dgm: Diagram) -> float:
     """Shannon entropy (natural log) of the lifetimes normalised to sum to one; 0 if empty.
 
     Examples
@@ -76,7 +77,7 @@ def persistent_entropy(dgm: np.ndarray) -> float:
     return _entropy(_lifetimes(dgm))
 
 
-def _entropy(life: np.ndarray) -> float:
+def _entropy(life: FloatArray) -> float:
     total = life.sum()
     if total <= 0:
         return 0.0
@@ -84,7 +85,7 @@ def _entropy(life: np.ndarray) -> float:
     return float(-(p * np.log(p)).sum())
 
 
-def landscape_norm(dgm: np.ndarray, p: float = 1.0) -> float:
+def landscape_norm(dgm: Diagram, p: float = 1.0) -> float:
     """Exact L^p norm of the persistence landscape over all layers (Bubenik 2015).
 
     Parameters
@@ -107,7 +108,7 @@ def landscape_norm(dgm: np.ndarray, p: float = 1.0) -> float:
     return _landscape_norm(_lifetimes(dgm) / 2.0, p)
 
 
-def _landscape_norm(half: np.ndarray, p: float) -> float:
+def _landscape_norm(half: FloatArray, p: float) -> float:
     if len(half) == 0:
         return 0.0
     if np.isinf(p):
@@ -116,8 +117,8 @@ def _landscape_norm(half: np.ndarray, p: float) -> float:
 
 
 def wasserstein_distance(
-    a: np.ndarray,
-    b: np.ndarray,
+    a: Diagram,
+    b: Diagram,
     order_p: float = 1.0,
     method: Literal["auto", "assignment"] = "auto",
 ) -> float:
@@ -163,7 +164,7 @@ def wasserstein_distance(
     return assignment_wasserstein(a, b, order_p)
 
 
-def bottleneck_distance(a: np.ndarray, b: np.ndarray, method: Literal["auto", "persim"] = "auto") -> float:
+def bottleneck_distance(a: Diagram, b: Diagram, method: Literal["auto", "persim"] = "auto") -> float:
     """Bottleneck distance between two diagrams, L-infinity ground metric (exact).
 
     Parameters
@@ -199,7 +200,7 @@ def bottleneck_distance(a: np.ndarray, b: np.ndarray, method: Literal["auto", "p
     return persim_bottleneck(a, b)
 
 
-def _births_zero(dgm: np.ndarray) -> bool:
+def _births_zero(dgm: Diagram) -> bool:
     return bool(np.all(dgm[:, 0] == 0.0))
 
 
@@ -223,7 +224,7 @@ SUMMARY_NAMES: tuple[str, ...] = tuple(f.name for f in fields(DiagramSummary))
 DISTANCE_NAMES: tuple[str, ...] = ("wasserstein", "bottleneck")
 
 
-def summarize_diagram(dgm: np.ndarray) -> DiagramSummary:
+def summarize_diagram(dgm: Diagram) -> DiagramSummary:
     """All per-diagram summaries of one diagram."""
     life = _lifetimes(dgm)  # once for all summaries (same arithmetic as the functions above)
     half = life / 2.0

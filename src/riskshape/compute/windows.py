@@ -18,6 +18,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from riskshape.types import Positions, ReturnsBlock
+
 __all__ = [
     "window_end_positions",
     "window_rows",
@@ -30,7 +32,7 @@ __all__ = [
 ]
 
 
-def window_end_positions(n_returns: int, window: int, step: int) -> np.ndarray:
+def window_end_positions(n_returns: int, window: int, step: int) -> Positions:
     """Row positions (in the returns table) at which windows end.
 
     Parameters
@@ -115,12 +117,12 @@ class Selection:
         Column position and reason of each asset left out.
     """
 
-    used: np.ndarray
-    block: np.ndarray
+    used: Positions
+    block: ReturnsBlock
     left_out: tuple[tuple[int, str], ...]
 
 
-def select_assets(block: np.ndarray, min_coverage: float) -> Selection:
+def select_assets(block: ReturnsBlock, min_coverage: float) -> Selection:
     """Apply the coverage policy to one window of returns.
 
     Parameters

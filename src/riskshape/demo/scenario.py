@@ -21,6 +21,8 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
+from riskshape.types import IntArray, Positions, PriceFrame, ReturnsBlock
+
 __all__ = ["Scenario", "generate_scenario", "SECTORS", "REGIME_DAYS"]
 
 SECTORS: tuple[str, ...] = ("Orchard", "Foundry", "Harbor", "Lattice", "Meadow", "Quarry")
@@ -62,7 +64,7 @@ class Scenario:
     seed : int
     """
 
-    prices: pd.DataFrame
+    prices: PriceFrame
     sectors: dict[str, str]
     sectors_after: dict[str, str]
     regimes: pd.DataFrame
@@ -143,7 +145,7 @@ def generate_scenario(seed: int = 7, n_days: int | None = None, assets_per_secto
     )
 
 
-def _rewire(sector_of: np.ndarray, rng: np.random.Generator) -> np.ndarray:
+def _rewire(sector_of: IntArray, rng: np.random.Generator) -> IntArray:
     """New sector ties: half of each sector (the ring's sector excepted) moves to another sector."""
     new = sector_of.copy()
     ring_sector = SECTORS.index(_RING_SECTOR)
@@ -157,11 +159,11 @@ def _rewire(sector_of: np.ndarray, rng: np.random.Generator) -> np.ndarray:
 def _regime_returns(
     name: str,
     length: int,
-    sector_of: np.ndarray,
-    rewired_of: np.ndarray,
-    ring_members: np.ndarray,
+    sector_of: IntArray,
+    rewired_of: IntArray,
+    ring_members: Positions,
     rng: np.random.Generator,
-) -> np.ndarray:
+) -> ReturnsBlock:
     m0, m1, s0, s1, vol, drift = _LOADINGS[name]
     n = len(sector_of)
     ramp = np.linspace(0.0, 1.0, length)[:, None]

@@ -33,6 +33,7 @@ from scipy.spatial.distance import squareform
 from riskshape.errors import DataError
 from riskshape.explain.geometry import WindowGeometry
 from riskshape.explain.model import ClusterEvent, ClusterExplanation, Members, PairChange, rounded
+from riskshape.types import CorrelationMatrix, DistanceMatrix, FloatArray
 
 __all__ = [
     "ScaleRule",
@@ -47,14 +48,14 @@ __all__ = [
 ScaleRule = str | float
 
 
-def merge_heights(distance: np.ndarray) -> np.ndarray:
+def merge_heights(distance: DistanceMatrix) -> FloatArray:
     """Single-linkage merge heights (the finite H0 deaths, zero-length ones included), ascending."""
     if distance.shape[0] < 2:
         return np.empty(0)
     return np.sort(linkage(squareform(distance, checks=False), method="single")[:, 2])
 
 
-def choose_scale(distance: np.ndarray, rule: ScaleRule = "persistent") -> tuple[float, str]:
+def choose_scale(distance: DistanceMatrix, rule: ScaleRule = "persistent") -> tuple[float, str]:
     """The cut distance and a sentence stating how it was chosen.
 
     Parameters
@@ -105,7 +106,7 @@ def choose_scale(distance: np.ndarray, rule: ScaleRule = "persistent") -> tuple[
     raise DataError(f"cluster scale {rule!r} is not known; use 'persistent', 'median' or a distance")
 
 
-def clusters_at(distance: np.ndarray, names: Sequence[str], scale: float) -> tuple[Members, ...]:
+def clusters_at(distance: DistanceMatrix, names: Sequence[str], scale: float) -> tuple[Members, ...]:
     """Single-linkage clusters at ``scale`` (pairs at distance <= scale are linked).
 
     Returns
@@ -169,7 +170,7 @@ def match_clusters(before: Sequence[Members], after: Sequence[Members]) -> tuple
 
 
 def top_pair_changes(
-    names: Sequence[str], before: np.ndarray, after: np.ndarray, n_pairs: int
+    names: Sequence[str], before: CorrelationMatrix, after: CorrelationMatrix, n_pairs: int
 ) -> tuple[PairChange, ...]:
     """The ``n_pairs`` pairs with the largest absolute change between two correlation matrices.
 

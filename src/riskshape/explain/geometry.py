@@ -10,6 +10,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 from datetime import date
+from typing import cast
 
 import numpy as np
 import pandas as pd
@@ -17,6 +18,7 @@ import pandas as pd
 from riskshape.compute.distance import correlation_to_distance
 from riskshape.compute.monitor import MonitorResult
 from riskshape.errors import DataError
+from riskshape.types import CorrelationMatrix, DistanceMatrix
 
 __all__ = ["WindowGeometry", "window_geometry", "as_date"]
 
@@ -43,16 +45,16 @@ class WindowGeometry:
 
     window_end: date
     assets: tuple[str, ...]
-    correlation: np.ndarray
-    asset_distance: np.ndarray
+    correlation: CorrelationMatrix
+    asset_distance: DistanceMatrix
     points: tuple[str, ...]
-    distance: np.ndarray
+    distance: DistanceMatrix
 
 
 def as_date(value: object) -> date:
     """A window end (date, Timestamp, ISO string) as a :class:`datetime.date`."""
     try:
-        return pd.Timestamp(value).date()  # type: ignore[arg-type]
+        return cast(date, pd.Timestamp(value).date())
     except (ValueError, TypeError):
         raise DataError(f"window end: cannot read {value!r} as a date; give YYYY-MM-DD") from None
 

@@ -40,6 +40,7 @@ from scipy.sparse.csgraph import csgraph_from_dense, shortest_path
 
 from riskshape.explain.geometry import WindowGeometry
 from riskshape.explain.model import Loop, LoopExplanation, Members, rounded
+from riskshape.types import BoolArray, DistanceMatrix, Float32Array, IntArray
 
 __all__ = [
     "Cycle",
@@ -86,7 +87,7 @@ def canonical_cycle(points: list[int]) -> tuple[int, ...]:
     return tuple(rotated)
 
 
-def _path(distance32: np.ndarray, scale: np.float32, banned: np.ndarray, source: int, target: int) -> list[int] | None:
+def _path(distance32: Float32Array, scale: np.float32, banned: BoolArray, source: int, target: int) -> list[int] | None:
     """Shortest path source -> target over edges of length <= scale that are not banned."""
     weights = np.where((distance32 <= scale) & ~banned, distance32.astype(float) ** 2, np.inf)
     np.fill_diagonal(weights, np.inf)
@@ -100,7 +101,7 @@ def _path(distance32: np.ndarray, scale: np.float32, banned: np.ndarray, source:
     return path[::-1]
 
 
-def cycle_from_cocycle(distance: np.ndarray, birth: float, death: float, cocycle: np.ndarray) -> Cycle | None:
+def cycle_from_cocycle(distance: DistanceMatrix, birth: float, death: float, cocycle: IntArray) -> Cycle | None:
     """Recover a representative cycle of one H1 bar from its ripser cocycle (see the module notes).
 
     Parameters
@@ -136,7 +137,7 @@ def cycle_from_cocycle(distance: np.ndarray, birth: float, death: float, cocycle
     return None
 
 
-def representative_cycles(distance: np.ndarray, n_loops: int = 3) -> list[Cycle]:
+def representative_cycles(distance: DistanceMatrix, n_loops: int = 3) -> list[Cycle]:
     """The ``n_loops`` most persistent H1 bars of a distance matrix, each with a representative cycle.
 
     Parameters

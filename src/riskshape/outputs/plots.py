@@ -10,7 +10,7 @@ from __future__ import annotations
 
 from collections.abc import Mapping, Sequence
 from pathlib import Path
-from typing import TypeVar
+from typing import TypeVar, cast
 
 import numpy as np
 import pandas as pd
@@ -27,6 +27,7 @@ from riskshape.caution import CAUTION_SHORT
 from riskshape.compute.distance import correlation_to_distance
 from riskshape.compute.monitor import MonitorResult
 from riskshape.research.events import DrawdownEvents
+from riskshape.types import CorrelationMatrix, Diagram, FloatArray
 
 __all__ = [
     "add_caution",
@@ -161,7 +162,7 @@ def plot_summaries(
     return add_caution(fig)
 
 
-def plot_diagram(diagrams: Sequence[np.ndarray], *, ax: Axes | None = None) -> Axes:
+def plot_diagram(diagrams: Sequence[Diagram], *, ax: Axes | None = None) -> Axes:
     """Persistence diagram: (birth, death) of each finite bar, one colour per dimension."""
     ax = new_axes(ax, (4.5, 4.5))
     top = max([float(d[:, 1].max()) for d in diagrams if len(d)] or [1.0])
@@ -174,7 +175,7 @@ def plot_diagram(diagrams: Sequence[np.ndarray], *, ax: Axes | None = None) -> A
     return ax
 
 
-def plot_barcode(diagrams: Sequence[np.ndarray], *, ax: Axes | None = None) -> Axes:
+def plot_barcode(diagrams: Sequence[Diagram], *, ax: Axes | None = None) -> Axes:
     """Barcode: one horizontal bar per finite bar, grouped by dimension, longest first."""
     ax = new_axes(ax, (5.0, 4.5))
     y = 0
@@ -192,7 +193,7 @@ def plot_barcode(diagrams: Sequence[np.ndarray], *, ax: Axes | None = None) -> A
 
 
 def plot_landscape(
-    dgm: np.ndarray, *, dim: int = 1, layers: int = 5, num_steps: int = 500, ax: Axes | None = None
+    dgm: Diagram, *, dim: int = 1, layers: int = 5, num_steps: int = 500, ax: Axes | None = None
 ) -> Axes:
     """First ``layers`` layers of the persistence landscape of one diagram (persim's PersLandscapeApprox)."""
     ax = new_axes(ax)
@@ -210,11 +211,11 @@ def plot_landscape(
     return ax
 
 
-def _single_linkage(corr: np.ndarray) -> np.ndarray:
-    return linkage(squareform(correlation_to_distance(corr), checks=False), method="single")
+def _single_linkage(corr: CorrelationMatrix) -> FloatArray:
+    return cast("FloatArray", linkage(squareform(correlation_to_distance(corr), checks=False), method="single"))
 
 
-def plot_dendrogram(corr: np.ndarray, labels: Sequence[str], *, ax: Axes | None = None) -> Axes:
+def plot_dendrogram(corr: CorrelationMatrix, labels: Sequence[str], *, ax: Axes | None = None) -> Axes:
     """Single-linkage dendrogram of the assets on d = sqrt(2 (1 - rho)) (scipy)."""
     ax = new_axes(ax, (8.0, 4.0))
     dendrogram(_single_linkage(corr), labels=list(labels), ax=ax, leaf_font_size=6, color_threshold=0)
@@ -222,7 +223,7 @@ def plot_dendrogram(corr: np.ndarray, labels: Sequence[str], *, ax: Axes | None 
     return ax
 
 
-def plot_correlation_heatmap(corr: np.ndarray, labels: Sequence[str], *, ax: Axes | None = None) -> Axes:
+def plot_correlation_heatmap(corr: CorrelationMatrix, labels: Sequence[str], *, ax: Axes | None = None) -> Axes:
     """Correlation matrix with rows and columns in the single-linkage dendrogram's leaf order."""
     ax = new_axes(ax, (6.0, 5.0))
     order = leaves_list(_single_linkage(corr)) if len(labels) > 1 else np.arange(len(labels))
@@ -234,7 +235,7 @@ def plot_correlation_heatmap(corr: np.ndarray, labels: Sequence[str], *, ax: Axe
     return ax
 
 
-def window_correlation(result: MonitorResult, window_end: object) -> tuple[np.ndarray, tuple[str, ...]]:
+def window_correlation(result: MonitorResult, window_end: object) -> tuple[CorrelationMatrix, tuple[str, ...]]:
     """Correlation matrix and asset names of one window of a run, as the monitor computed them."""
     window = result.window(window_end)
     return window.correlation, window.assets

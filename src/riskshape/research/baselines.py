@@ -27,7 +27,6 @@ its index is the ``window_end`` index of ``monitor(...).features``.
 from __future__ import annotations
 
 import math
-from typing import Literal
 
 import numpy as np
 import pandas as pd
@@ -37,6 +36,7 @@ from riskshape.compute.returns import to_returns
 from riskshape.compute.windows import select_window, window_end_positions
 from riskshape.config import Config
 from riskshape.errors import DataError
+from riskshape.types import CorrelationEstimator, ReturnsBlock
 
 __all__ = [
     "TRADING_DAYS_PER_YEAR",
@@ -52,7 +52,7 @@ TRADING_DAYS_PER_YEAR = 252
 BASELINE_COLUMNS: tuple[str, ...] = ("ew_volatility", "mean_correlation", "absorption_ratio", "turbulence")
 
 
-def portfolio_volatility(block: np.ndarray, periods_per_year: int = TRADING_DAYS_PER_YEAR) -> float:
+def portfolio_volatility(block: ReturnsBlock, periods_per_year: int = TRADING_DAYS_PER_YEAR) -> float:
     """Annualised realized volatility of the equal-weight portfolio over the window.
 
     Parameters
@@ -80,7 +80,7 @@ def portfolio_volatility(block: np.ndarray, periods_per_year: int = TRADING_DAYS
     return float(portfolio.std(ddof=1) * math.sqrt(periods_per_year))
 
 
-def mean_pairwise_correlation(block: np.ndarray, method: Literal["pearson", "spearman"] = "pearson") -> float:
+def mean_pairwise_correlation(block: ReturnsBlock, method: CorrelationEstimator = "pearson") -> float:
     """Mean off-diagonal correlation of the window's assets (NaN with fewer than two assets).
 
     Examples
@@ -95,7 +95,7 @@ def mean_pairwise_correlation(block: np.ndarray, method: Literal["pearson", "spe
     return mean_offdiagonal(correlation_matrix(block, method))
 
 
-def absorption_ratio(block: np.ndarray, k: int | None = None) -> float:
+def absorption_ratio(block: ReturnsBlock, k: int | None = None) -> float:
     """Absorption ratio: top-``k`` eigenvalues of the sample covariance over their total.
 
     Parameters
@@ -131,7 +131,7 @@ def absorption_ratio(block: np.ndarray, k: int | None = None) -> float:
     return float(eig[-top:].sum() / total)
 
 
-def turbulence(block: np.ndarray) -> float:
+def turbulence(block: ReturnsBlock) -> float:
     """Turbulence of the window's last day against the window's preceding days.
 
     Parameters

@@ -18,6 +18,7 @@ import pandas as pd
 
 from riskshape.compute.returns import to_returns
 from riskshape.errors import ConfigError, DataError
+from riskshape.types import FloatArray, PriceFrame
 
 __all__ = [
     "DrawdownEvents",
@@ -63,7 +64,7 @@ class DrawdownEvents:
         return len(self.table)
 
 
-def equal_weight_wealth(prices: pd.DataFrame) -> pd.Series:
+def equal_weight_wealth(prices: PriceFrame) -> pd.Series:
     """Wealth of the daily rebalanced equal-weight portfolio, 1 on the first date.
 
     Parameters
@@ -176,13 +177,13 @@ def drawdown_events(wealth: pd.Series, min_depth: float, max_duration: int | Non
     return DrawdownEvents(table=table, wealth=wealth.rename("wealth"), min_depth=float(min_depth))
 
 
-def _last_argmax(values: np.ndarray) -> int:
+def _last_argmax(values: FloatArray) -> int:
     """Position of the last occurrence of the maximum."""
     return len(values) - 1 - int(np.argmax(values[::-1]))
 
 
 def portfolio_drawdown_events(
-    prices: pd.DataFrame, min_depth: float = 0.1, max_duration: int | None = None
+    prices: PriceFrame, min_depth: float = 0.1, max_duration: int | None = None
 ) -> DrawdownEvents:
     """Drawdown events of the equal-weight portfolio of a price table.
 

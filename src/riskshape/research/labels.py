@@ -6,16 +6,19 @@ Time is counted in trading days of the events' calendar (``DrawdownEvents.calend
 
 from __future__ import annotations
 
+from typing import cast
+
 import numpy as np
 import pandas as pd
 
 from riskshape.errors import ConfigError, DataError
 from riskshape.research.events import DrawdownEvents
+from riskshape.types import Positions
 
 __all__ = ["event_labels", "positions", "event_positions"]
 
 
-def positions(index: pd.DatetimeIndex, calendar: pd.DatetimeIndex, what: str) -> np.ndarray:
+def positions(index: pd.DatetimeIndex, calendar: pd.DatetimeIndex, what: str) -> Positions:
     """Positions of ``index`` in ``calendar``; DataError naming ``what`` if a date is not in it."""
     pos = calendar.get_indexer(index)
     if (pos < 0).any():
@@ -24,10 +27,10 @@ def positions(index: pd.DatetimeIndex, calendar: pd.DatetimeIndex, what: str) ->
             f"{what}: date {bad.date()} is not a trading day of the events' calendar "
             f"({calendar[0].date()} .. {calendar[-1].date()}); build the events from the same prices"
         )
-    return pos
+    return cast("Positions", pos)
 
 
-def event_positions(events: DrawdownEvents) -> tuple[np.ndarray, np.ndarray]:
+def event_positions(events: DrawdownEvents) -> tuple[Positions, Positions]:
     """Positions in ``events.calendar`` of each event's start and of its trough (DataError if off it)."""
     cal = events.calendar
     starts = positions(pd.DatetimeIndex(events.table["start"]), cal, "event start")

@@ -48,6 +48,7 @@ from riskshape.errors import ConfigError
 from riskshape.research.baselines import TRADING_DAYS_PER_YEAR
 from riskshape.research.events import DrawdownEvents
 from riskshape.research.labels import event_labels, event_positions, positions
+from riskshape.types import Direction, Positions
 
 __all__ = [
     "EventStudy",
@@ -99,7 +100,7 @@ class EventStudy:
     auc: float
     years: float
     score: pd.Series
-    direction: str
+    direction: Direction
 
     def _count(self, outcome: str) -> int:
         return int((self.alerts["outcome"] == outcome).sum())
@@ -188,7 +189,7 @@ def _ratio(num: float, den: float) -> float:
     return float(num) / float(den) if den else float("nan")
 
 
-def default_rule(summary: str, direction: Literal["above", "below"] = "above") -> RuleConfig:
+def default_rule(summary: str, direction: Direction = "above") -> RuleConfig:
     """The rule :func:`study_table` uses when none is given: the 95 % (or 5 %) trailing quantile.
 
     Lookback 250 windows, at least 60 windows of history (common practice for a one-year
@@ -207,7 +208,7 @@ def default_rule(summary: str, direction: Literal["above", "below"] = "above") -
     )
 
 
-def _alert_dates(signal: pd.Series, alerts: Alerts, direction: Literal["above", "below"]) -> pd.DatetimeIndex:
+def _alert_dates(signal: pd.Series, alerts: Alerts, direction: Direction) -> pd.DatetimeIndex:
     if alerts is None:
         alerts = default_rule(str(signal.name), direction)
     if isinstance(alerts, RuleConfig):
@@ -225,7 +226,7 @@ def event_study(
     horizon: int = 20,
     lookback: int = 120,
     alerts: Alerts = None,
-    direction: Literal["above", "below"] = "above",
+    direction: Direction = "above",
     trend: Literal["level", "variance"] = "level",
     variance_window: int = 20,
     exclude_in_event: bool = True,
@@ -337,7 +338,7 @@ _PER_EVENT_COLUMNS = (
 
 
 def _alert_outcomes(
-    alert_pos: np.ndarray, starts: np.ndarray, troughs: np.ndarray, horizon: int, n_days: int
+    alert_pos: Positions, starts: Positions, troughs: Positions, horizon: int, n_days: int
 ) -> list[str]:
     outcomes = []
     for a in alert_pos:
@@ -358,7 +359,7 @@ def study_table(
     events: DrawdownEvents,
     *,
     columns: Sequence[str] | None = None,
-    directions: Mapping[str, Literal["above", "below"]] | None = None,
+    directions: Mapping[str, Direction] | None = None,
     rules: Sequence[RuleConfig] = (),
     horizon: int = 20,
     lookback: int = 120,

@@ -44,6 +44,7 @@ from riskshape.compute.executors import make_executor
 from riskshape.compute.monitor import MonitorResult, settings_of
 from riskshape.compute.summaries import SUMMARY_NAMES, summarize_diagram
 from riskshape.errors import ConfigError, DataError
+from riskshape.types import FloatArray, ReturnsBlock
 
 __all__ = [
     "METHODS",
@@ -58,7 +59,7 @@ Method = Literal["shuffle", "gaussian", "phase", "iaaft", "stationary_bootstrap"
 METHODS: tuple[str, ...] = ("shuffle", "gaussian", "phase", "iaaft", "stationary_bootstrap", "moving_block_bootstrap")
 
 
-def _complete(block: np.ndarray, method: str) -> np.ndarray:
+def _complete(block: ReturnsBlock, method: str) -> ReturnsBlock:
     data = np.asarray(block, dtype=float)
     if data.ndim != 2 or data.shape[0] < 4:
         raise DataError(
@@ -72,16 +73,16 @@ def _complete(block: np.ndarray, method: str) -> np.ndarray:
     return data
 
 
-def _shuffle(x: np.ndarray, rng: np.random.Generator) -> np.ndarray:
+def _shuffle(x: ReturnsBlock, rng: np.random.Generator) -> ReturnsBlock:
     return rng.permuted(x, axis=0)
 
 
-def _gaussian(x: np.ndarray, rng: np.random.Generator) -> np.ndarray:
+def _gaussian(x: ReturnsBlock, rng: np.random.Generator) -> ReturnsBlock:
     cov = np.atleast_2d(np.cov(x, rowvar=False))
     return rng.multivariate_normal(x.mean(axis=0), cov, size=x.shape[0], method="eigh")
 
 
-def _random_phases(n_days: int, rng: np.random.Generator) -> np.ndarray:
+def _random_phases(n_days: int, rng: np.random.Generator) -> FloatArray:
     """One random phase per rfft frequency; 0 at frequency 0 and at Nyquist (they must stay real)."""
     n_freq = n_days // 2 + 1
     phases = rng.uniform(0.0, 2.0 * np.pi, n_freq)
@@ -91,19 +92,19 @@ def _random_phases(n_days: int, rng: np.random.Generator) -> np.ndarray:
     return phases
 
 
-def _phase(x: np.ndarray, rng: np.random.Generator) -> np.ndarray:
+def _phase(x: ReturnsBlock, rng: np.random.Generator) -> ReturnsBlock:
     spectrum = np.fft.rfft(x, axis=0)
     rotated = spectrum * np.exp(1j * _random_phases(x.shape[0], rng))[:, None]
     return np.fft.irfft(rotated, n=x.shape[0], axis=0)
 
 
-def _rank_order(target_sorted: np.ndarray, y: np.ndarray) -> np.ndarray:
+def _rank_order(target_sorted: ReturnsBlock, y: ReturnsBlock) -> ReturnsBlock:
     """Each column of ``y`` replaced by ``target_sorted``'s values in ``y``'s rank order."""
     ranks = (rankdata(y, axis=0, method="ordinal") - 1).astype(np.int64)
     return np.take_along_axis(target_sorted, ranks, axis=0)
 
 
-def _iaaft(x: np.ndarray, rng: np.random.Generator, max_iter: int = 200) -> np.ndarray:
+def _iaaft(x: ReturnsBlock, rng: np.random.Generator, max_iter: int = 200) -> ReturnsBlock:
     n_days = x.shape[0]
     target_sorted = np.sort(x, axis=0)
     spectrum = np.fft.rfft(x, axis=0)
@@ -122,7 +123,7 @@ def _iaaft(x: np.ndarray, rng: np.random.Generator, max_iter: int = 200) -> np.n
     return y
 
 
-def _bootstrap(x: np.ndarray, rng: np.random.Generator, kind: str, block_size: int | None) -> np.ndarray:
+def _bootstrap(x: ReturnsBlock, rng: np.random.Generator, kind: str, block_size: int | None) -> ReturnsBlock:
     size = block_size or max(1, int(round(x.shape[0] ** (1.0 / 3.0))))  # T^(1/3): common practice
     scheme = StationaryBootstrap if kind == "stationary_bootstrap" else MovingBlockBootstrap
     resampler = scheme(size, x, seed=rng)
@@ -131,8 +132,8 @@ def _bootstrap(x: np.ndarray, rng: np.random.Generator, kind: str, block_size: i
 
 
 def surrogate(
-    block: np.ndarray, method: Method, rng: np.random.Generator, *, block_size: int | None = None
-) -> np.ndarray:
+    block: ReturnsBlock, method: Method, rng: np.random.Generator, *, block_size: int | None = None
+) -> ReturnsBlock:
     """One surrogate of a complete returns block.
 
     Parameters
@@ -225,8 +226,8 @@ class SurrogateTest:
 
 
 def surrogate_zscores(
-    block: np.ndarray,
-    summary_fn: Callable[[np.ndarray], Mapping[str, float]],
+    block: ReturnsBlock,
+    summary_fn: Callable[[ReturnsBlock], Mapping[str, float]],
     n: int,
     method: Method,
     rng: np.random.Generator,
@@ -275,7 +276,7 @@ class WindowSummaries:
 
     settings: WindowSettings
 
-    def __call__(self, block: np.ndarray) -> dict[str, float]:
+    def __call__(self, block: ReturnsBlock) -> dict[str, float]:
         """The summaries of one (days, assets) block, by name."""
         result = compute_window(block, self.settings)
         values = {"mean_correlation": float(result.mean_correlation)}
@@ -287,7 +288,7 @@ class WindowSummaries:
 
 def _one_window(
     window_end: pd.Timestamp,
-    block: np.ndarray,
+    block: ReturnsBlock,
     settings: WindowSettings,
     n: int,
     method: Method,

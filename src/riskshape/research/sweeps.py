@@ -11,7 +11,6 @@ from __future__ import annotations
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 from itertools import product
-from typing import Literal
 
 import pandas as pd
 
@@ -22,6 +21,7 @@ from riskshape.errors import ConfigError
 from riskshape.research.baselines import compute_baselines
 from riskshape.research.events import DrawdownEvents
 from riskshape.research.study import study_table
+from riskshape.types import Direction, PriceFrame
 
 __all__ = ["SweepResult", "sweep"]
 
@@ -54,11 +54,11 @@ class SweepResult:
 
 
 def _one_point(
-    prices: pd.DataFrame,
+    prices: PriceFrame,
     config: Config,
     events: DrawdownEvents,
     columns: Sequence[str] | None,
-    directions: Mapping[str, Literal["above", "below"]] | None,
+    directions: Mapping[str, Direction] | None,
     horizon: int,
     lookback: int,
     post_event_days: int | None,
@@ -79,14 +79,14 @@ def _one_point(
 
 
 def sweep(
-    prices: pd.DataFrame,
+    prices: PriceFrame,
     events: DrawdownEvents,
     *,
     windows: Sequence[int],
     steps: Sequence[int] = (1,),
     config: Config | None = None,
     columns: Sequence[str] | None = None,
-    directions: Mapping[str, Literal["above", "below"]] | None = None,
+    directions: Mapping[str, Direction] | None = None,
     horizon: int = 20,
     lookback: int = 120,
     post_event_days: int | None = None,

@@ -34,6 +34,7 @@ from sklearn.preprocessing import StandardScaler
 from riskshape.errors import ConfigError
 from riskshape.research.events import drawdown_events
 from riskshape.research.labels import event_labels
+from riskshape.types import FloatArray, IntArray
 
 __all__ = ["WalkForward", "walk_forward"]
 
@@ -75,7 +76,7 @@ class WalkForward:
         return pd.DataFrame.from_dict(rows, orient="index")
 
 
-def _auc(y: np.ndarray, p: np.ndarray) -> float:
+def _auc(y: IntArray, p: FloatArray) -> float:
     return float(roc_auc_score(y, p)) if len(np.unique(y)) == 2 else float("nan")
 
 
@@ -186,7 +187,7 @@ def walk_forward(
     )
 
 
-def _fit_predict(train_x: pd.DataFrame, train_y: pd.Series, test_x: pd.DataFrame, regularization: float) -> np.ndarray:
+def _fit_predict(train_x: pd.DataFrame, train_y: pd.Series, test_x: pd.DataFrame, regularization: float) -> FloatArray:
     """Fitted probabilities on ``test_x``; NaN where a row has a missing feature or training has one class."""
     usable = train_y.notna() & np.isfinite(train_x.to_numpy(dtype=float)).all(axis=1)
     x, y = train_x[usable].to_numpy(dtype=float), train_y[usable].to_numpy()

@@ -76,7 +76,7 @@ def canonical_value(value: object) -> object:
     if isinstance(value, date):
         return value.isoformat()
     if hasattr(value, "item"):  # numpy scalar
-        return canonical_value(value.item())  # type: ignore[union-attr]
+        return canonical_value(value.item())
     raise TypeError(f"no canonical form for {type(value).__name__} value {value!r}")
 
 

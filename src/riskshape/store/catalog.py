@@ -17,6 +17,7 @@ from riskshape.store import schema as t
 from riskshape.store.database import read_transaction, write_transaction
 from riskshape.store.pricebook import append_prices, max_price_id, validated
 from riskshape.store.records import Portfolio, PriceWrite, Run, RunManifest
+from riskshape.types import PriceFrame
 
 __all__ = [
     "check_name",
@@ -125,7 +126,7 @@ def _run_query() -> sa.Select[Any]:
     return sa.select(t.runs, t.portfolios.c.name).join(t.portfolios, t.portfolios.c.id == t.runs.c.portfolio_id)
 
 
-def create_run(engine: Engine, portfolio: str, manifest: RunManifest, prices: pd.DataFrame | None = None) -> Run:
+def create_run(engine: Engine, portfolio: str, manifest: RunManifest, prices: PriceFrame | None = None) -> Run:
     """Archive the prices of a run (as corrections where they differ) and record its manifest, in one
     transaction. See :meth:`riskshape.store.Store.create_run`.
     """

@@ -42,9 +42,9 @@ def _plain(value: object, where: str) -> object:
             raise StoreError(f"{where}: {value!r} is not a finite number; write null for a missing value")
         return value
     if hasattr(value, "item"):  # numpy scalar
-        return _plain(value.item(), where)  # type: ignore[union-attr]
+        return _plain(value.item(), where)
     if hasattr(value, "isoformat"):
-        return value.isoformat()  # type: ignore[union-attr]
+        return value.isoformat()
     if isinstance(value, Mapping):
         return {str(k): _plain(v, f"{where}.{k}") for k, v in value.items()}
     if isinstance(value, (list, tuple)):

@@ -10,7 +10,7 @@ import math
 import re
 from collections.abc import Sequence
 from datetime import date, datetime, timezone
-from typing import Any
+from typing import Any, cast
 
 import pandas as pd
 import sqlalchemy as sa
@@ -56,7 +56,7 @@ def to_date(value: object, what: str) -> date:
         raise StoreError(f"{what}: cannot read {value!r} as a date; write it as YYYY-MM-DD") from None
     if stamp is pd.NaT or stamp != stamp.normalize():
         raise StoreError(f"{what}: {value!r} is not a whole day; give a date (YYYY-MM-DD)")
-    return stamp.date()
+    return cast(date, stamp.date())
 
 
 def ledger_head(connection: Connection) -> tuple[int, str]:

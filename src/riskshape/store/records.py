@@ -9,10 +9,10 @@ from __future__ import annotations
 from dataclasses import dataclass
 from datetime import date, datetime
 
-import numpy as np
 import pandas as pd
 
 from riskshape.alerts.model import Alert, Firing
+from riskshape.types import Float32Array, RuleKind, Severity
 
 __all__ = [
     "GENESIS_HASH",
@@ -166,7 +166,7 @@ class Diagram:
     dim: int
     config_hash: str
     run_id: int
-    bars: np.ndarray
+    bars: Float32Array
 
 
 @dataclass(frozen=True)
@@ -181,11 +181,11 @@ class AlertRecord:
     portfolio: str
     rule: str
     summary: str
-    kind: str
+    kind: RuleKind
     window_end: date
     value: float
     threshold: float
-    severity: str
+    severity: Severity
     raised_at: datetime
     config_hash: str
     inputs_hash: str

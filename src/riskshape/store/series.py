@@ -25,6 +25,7 @@ from riskshape.store.database import read_transaction, write_transaction
 from riskshape.store.ledger import to_date
 from riskshape.store.pricebook import INDEX_UNIT
 from riskshape.store.records import Diagram, FeaturesPage, WriteCount
+from riskshape.types import Diagram as DiagramArray
 
 __all__ = ["write_features", "read_features", "window_ends", "write_diagrams", "read_diagram", "latest_config_hash"]
 
@@ -143,7 +144,7 @@ def read_features(
     return FeaturesPage(frame=frame, total=total, offset=offset, config_hash=chosen)
 
 
-def write_diagrams(engine: Engine, run_id: int, diagrams: Iterable[tuple[object, int, np.ndarray]]) -> WriteCount:
+def write_diagrams(engine: Engine, run_id: int, diagrams: Iterable[tuple[object, int, DiagramArray]]) -> WriteCount:
     """Archive diagrams of a run as float32 bars. See :meth:`riskshape.store.Store.write_diagrams`."""
     prepared: list[tuple[date, int, int, bytes]] = []
     for window_end, dim, bars in diagrams:

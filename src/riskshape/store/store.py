@@ -12,7 +12,6 @@ from collections.abc import Callable, Iterable, Mapping, Sequence
 from datetime import date, datetime, timezone
 from typing import ParamSpec, TypeVar
 
-import numpy as np
 import pandas as pd
 import sqlalchemy as sa
 from sqlalchemy.engine import Engine
@@ -47,6 +46,8 @@ from riskshape.store.records import (
     VerifyReport,
     WriteCount,
 )
+from riskshape.types import Diagram as DiagramArray
+from riskshape.types import PriceFrame
 
 __all__ = ["Store", "open_store", "verify_chain", "chain_head"]
 
@@ -196,7 +197,7 @@ class Store:
             return pricebook.list_corrections(connection, catalog.portfolio_id(connection, portfolio), first, last)
 
     @_database_errors
-    def create_run(self, portfolio: str, manifest: RunManifest, prices: pd.DataFrame | None = None) -> Run:
+    def create_run(self, portfolio: str, manifest: RunManifest, prices: PriceFrame | None = None) -> Run:
         """Record a run: archive its prices (corrections where they differ) and its manifest, atomically.
 
         The run remembers the extent of the prices (dates, assets, highest price row), so
@@ -259,7 +260,7 @@ class Store:
         )
 
     @_database_errors
-    def write_diagrams(self, run_id: int, diagrams: Iterable[tuple[object, int, np.ndarray]]) -> WriteCount:
+    def write_diagrams(self, run_id: int, diagrams: Iterable[tuple[object, int, DiagramArray]]) -> WriteCount:
         """Archive (window_end, dim, bars) triples of a run as float32; idempotent like features."""
         return series.write_diagrams(self.engine, run_id, diagrams)
 
