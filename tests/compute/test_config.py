@@ -56,6 +56,17 @@ def test_changing_a_result_setting_changes_the_hash_and_compute_does_not() -> No
     assert base.replace(compute={"executor": "serial"}).hash() == base.hash()
 
 
+# Config.hash() of Config(), computed at commit 8dd5e83 (before the Rips backend key was renamed from
+# `engine` to `rips_backend`) with `Config().hash()`. Archived runs are looked up by this hash, so a
+# change of key names must leave it as it was.
+DEFAULT_CONFIG_HASH = "2f40e80623e93a41b6818cf50743cb668b66e964d9e392b2fc26dd7b3155f7ab"
+
+
+def test_the_default_hash_is_the_one_archived_runs_were_stored_under() -> None:
+    assert Config().hash() == DEFAULT_CONFIG_HASH
+    assert Config.from_toml(REPO / "config" / "default.toml").hash() == DEFAULT_CONFIG_HASH
+
+
 def test_service_settings_from_the_environment() -> None:
     settings = ServiceSettings.from_env({"RISKSHAPE_STORE_URL": "sqlite:///x.sqlite", "RISKSHAPE_MAX_PAGE_SIZE": "50"})
     assert settings.store_url == "sqlite:///x.sqlite" and settings.max_page_size == 50
