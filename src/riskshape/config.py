@@ -13,6 +13,7 @@ import hashlib
 import json
 import os
 import sys
+import warnings
 from collections.abc import Callable, Mapping
 from contextvars import ContextVar
 from functools import lru_cache
@@ -21,8 +22,10 @@ from pathlib import Path
 from typing import Any, Literal
 
 from pydantic import BaseModel, ConfigDict, Field, ValidationError, model_validator
+from pydantic_core import InitErrorDetails, PydanticCustomError
 
 from riskshape.errors import ConfigError
+from riskshape.types import RipsBackend
 
 if sys.version_info >= (3, 11):
     import tomllib
@@ -74,6 +77,16 @@ def format_validation_error(
         else:
             lines.append(f"{where}: '{key}': {problem['msg']} (got {got!r})")
     return "\n".join(lines)
+
+
+def _key_error(model: str, key: tuple[str | int, ...], value: Any, message: str) -> ValidationError:
+    """A validation error of one key (its path inside ``model``), for a check that spans several keys.
+
+    Raised from a validator, it keeps its path, prefixed by the path of the section that holds it, so
+    the message names the key as written (``alerts.rules.2.summary``), not only its section.
+    """
+    problem = PydanticCustomError("riskshape_config", message.replace("{", "{{").replace("}", "}}"))
+    return ValidationError.from_exception_data(model, [InitErrorDetails(type=problem, loc=key, input=value)])
 
 
 # How deep the construction of nested sections is (pydantic runs a custom __init__ for nested models
@@ -152,14 +165,31 @@ class RuleConfig(_Frozen):
             for key in ("threshold", "clear"):
                 value = getattr(self, key)
                 if value is not None and not 0.0 < value < 1.0:
-                    raise ValueError(f"{key} of a quantile rule must lie in (0, 1), got {value}")
+                    raise _key_error(
+                        "RuleConfig",
+                        (key,),
+                        value,
+                        f"rule '{self.name}': {key} of a quantile rule must lie in (0, 1), got {value}; "
+                        "write the quantile itself (0.99 for the 99th percentile), or use kind = 'level'",
+                    )
         if self.clear is not None:
             wrong_side = self.clear > self.threshold if self.direction == "above" else self.clear < self.threshold
             if wrong_side:
-                raise ValueError(
-                    f"clear ({self.clear}) must be on the calm side of threshold ({self.threshold}) "
-                    f"for a rule that fires {self.direction} it"
+                raise _key_error(
+                    "RuleConfig",
+                    ("clear",),
+                    self.clear,
+                    f"rule '{self.name}': clear ({self.clear}) must be on the calm side of threshold "
+                    f"({self.threshold}) for a rule that fires {self.direction} it",
                 )
+        if self.min_history > self.lookback:
+            raise _key_error(
+                "RuleConfig",
+                ("min_history",),
+                self.min_history,
+                f"rule '{self.name}': min_history ({self.min_history}) exceeds lookback ({self.lookback}), "
+                "the windows in which history is counted, so it could never fire; lower min_history or raise lookback",
+            )
         return self
 
 
@@ -175,6 +205,20 @@ class AlertsConfig(_Frozen):
     """The alert rules; by default those of ``config/default.toml``. ``rules = []`` turns them off."""
 
     rules: tuple[RuleConfig, ...] = Field(default_factory=default_rules)
+
+    @model_validator(mode="after")
+    def _check_names(self) -> AlertsConfig:
+        seen: set[str] = set()
+        for i, rule in enumerate(self.rules):
+            if rule.name in seen:
+                raise _key_error(
+                    "AlertsConfig",
+                    ("rules", i, "name"),
+                    rule.name,
+                    f"alerts rule name '{rule.name}' is used twice; give each rule its own name",
+                )
+            seen.add(rule.name)
+        return self
 
 
 class Config(_Frozen):
@@ -197,8 +241,9 @@ class Config(_Frozen):
         Highest homology dimension computed (0, 1 or 2).
     order_p : float
         Order of the Wasserstein distance to the previous window (ground metric L-infinity).
-    engine : {"auto", "ripser", "giotto"}
-        Vietoris-Rips engine; ``auto`` uses giotto-ph where it is installed, else ripser.
+    rips_backend : {"auto", "ripser", "giotto"}
+        Vietoris-Rips backend; ``auto`` uses giotto-ph where it is installed, else ripser. The old
+        name of this key, ``engine``, is still read, with a :class:`DeprecationWarning`.
     embedding : {"correlation", "point_cloud"}
         ``correlation``: assets are points, d = sqrt(2 (1 - rho)). ``point_cloud``: the days of the
         window are points in R^n (one coordinate per asset).
@@ -220,11 +265,67 @@ class Config(_Frozen):
     correlation: Literal["pearson", "spearman"] = "pearson"
     maxdim: int = Field(1, ge=0, le=2)
     order_p: float = Field(1.0, ge=1.0)
-    engine: Literal["auto", "ripser", "giotto"] = "auto"
+    rips_backend: RipsBackend = "auto"
     embedding: Literal["correlation", "point_cloud"] = "correlation"
     standardize_cloud: bool = True
     compute: ComputeConfig = ComputeConfig()
     alerts: AlertsConfig = AlertsConfig()
+
+    @model_validator(mode="before")
+    @classmethod
+    def _renamed_keys(cls, data: Any) -> Any:
+        """Read ``engine``, the old name of ``rips_backend`` (files and archived runs still hold it)."""
+        if not isinstance(data, Mapping) or "engine" not in data:
+            return data
+        renamed = dict(data)
+        value = renamed.pop("engine")
+        if "rips_backend" in renamed and renamed["rips_backend"] != value:
+            raise _key_error(
+                "Config",
+                ("engine",),
+                value,
+                f"'engine' is the old name of 'rips_backend', which is also given ({renamed['rips_backend']!r}); "
+                "keep only rips_backend",
+            )
+        warnings.warn(
+            f"configuration key 'engine' is renamed 'rips_backend'; write rips_backend = {value!r} instead",
+            DeprecationWarning,
+            stacklevel=2,
+        )
+        renamed["rips_backend"] = value
+        return renamed
+
+    @model_validator(mode="after")
+    def _check_rule_summaries(self) -> Config:
+        """Each configured rule watches a summary this configuration computes.
+
+        The shipped default rules, when no rules are given, are left to rule evaluation: they watch
+        H1 summaries, and ``maxdim = 0`` without alert rules (research, a quick H0 look) is a sound
+        configuration.
+        """
+        if "alerts" not in self.model_fields_set or "rules" not in self.alerts.model_fields_set:
+            return self
+        from riskshape.compute.monitor import feature_columns  # lazy: the computation imports this module
+
+        computed = feature_columns(self.maxdim)
+        for i, rule in enumerate(self.alerts.rules):
+            if rule.summary in computed:
+                continue
+            key = ("alerts", "rules", i, "summary")
+            if rule.summary in feature_columns(2):
+                dim = int(rule.summary[1])
+                message = (
+                    f"rule '{rule.name}' watches {rule.summary}, an H{dim} summary, but maxdim = {self.maxdim} "
+                    f"computes H0..H{self.maxdim} only; set maxdim = {dim} (in [monitor]), or watch another summary, "
+                    "or remove the rule"
+                )
+            else:
+                message = (
+                    f"rule '{rule.name}' watches {rule.summary!r}, which is not a summary; "
+                    f"use one of: {', '.join(computed)}"
+                )
+            raise _key_error("Config", key, rule.summary, message)
+        return self
 
     @classmethod
     def from_toml(cls, path: str | os.PathLike[str]) -> Config:
@@ -284,13 +385,16 @@ class Config(_Frozen):
 
     def replace(self, **changes: Any) -> Config:
         """A copy with some fields changed, validated like a new Config."""
-        data = self.model_dump()
+        data = self.model_dump(exclude_unset=True)  # what was left to its default stays so (see the rule check)
         data.update(changes)
         return type(self)(**data)
 
     def hash(self) -> str:
         """SHA-256 (hex) of the canonical JSON of every setting that can change a result."""
         payload = self.model_dump(mode="json", exclude={"compute"})
+        # Hashed under its old name: archived runs are looked up by this hash, and they were stored
+        # when the key was called `engine`; renaming it must not change the hash of any configuration.
+        payload["engine"] = payload.pop("rips_backend")
         text = json.dumps(payload, sort_keys=True, separators=(",", ":"), allow_nan=False)
         return hashlib.sha256(text.encode("utf-8")).hexdigest()
 
