@@ -1,4 +1,6 @@
-"""Configuration: the only module that reads TOML files or the environment.
+"""Configuration: the only module of the library that reads TOML files or the environment.
+
+(The HTTP service reads its own settings from the environment: ``riskshape_service.settings``.)
 
 A :class:`Config` is frozen and validated once, here. ``Config(window=90)`` takes
 keyword arguments; :meth:`Config.from_toml` reads a file laid out like
@@ -37,7 +39,6 @@ __all__ = [
     "ComputeConfig",
     "AlertsConfig",
     "RuleConfig",
-    "ServiceSettings",
     "format_validation_error",
     "default_rules",
     "store_url_from_env",
@@ -403,55 +404,3 @@ def store_url_from_env(environ: Mapping[str, str] | None = None) -> str | None:
     """The archive URL in ``RISKSHAPE_STORE_URL``, if set (the CLI's default for ``--store``)."""
     env = os.environ if environ is None else environ
     return env.get("RISKSHAPE_STORE_URL") or None
-
-
-class ServiceSettings(_Frozen):
-    """Settings of the HTTP service, read from ``RISKSHAPE_*`` environment variables by :meth:`from_env`
-    (``RISKSHAPE_STORE_URL``, ``RISKSHAPE_MAX_BODY_BYTES``, ...).
-
-    Parameters
-    ----------
-    store_url : str
-        Archive URL (``sqlite:///path`` or ``postgresql+psycopg://...``).
-    max_body_bytes : int
-        Largest request body accepted, counted as it streams (413 beyond it).
-    max_page_size : int
-        Largest page a paged endpoint returns (422 beyond it).
-    rate_limit_per_minute : int
-        Sustained requests a minute per API key (429 with Retry-After beyond it).
-    rate_limit_burst : int
-        Requests a key may make at once after being idle (the token bucket's size).
-    config_path : str or None
-        TOML configuration for portfolios before their first run (defaults without it); a portfolio
-        with runs keeps the configuration of its latest run.
-    log_level : str
-        Level of the service's JSON logs.
-    result_cache_size : int
-        Portfolios whose latest result the service keeps in memory, so that a new day computes
-        only the windows it completes; the least recently fed beyond it is recomputed from the
-        archive at its next ingest (0.5 s instead of 0.03 s for 24 assets and two years). A result
-        holds the portfolio's prices, returns and float32 diagrams: a few MB for 100 assets and two
-        years (1.5 MB pickled), about 75 MB for 500 assets and 20 years.
-    """
-
-    store_url: str = "sqlite:///riskshape.sqlite"
-    max_body_bytes: int = Field(5_000_000, ge=1024)
-    max_page_size: int = Field(1000, ge=1)
-    rate_limit_per_minute: int = Field(600, ge=1)
-    rate_limit_burst: int = Field(60, ge=1)
-    config_path: str | None = None
-    log_level: Literal["debug", "info", "warning", "error"] = "info"
-    result_cache_size: int = Field(128, ge=0)
-
-    @classmethod
-    def from_env(cls, environ: Mapping[str, str] | None = None, **overrides: Any) -> ServiceSettings:
-        """Read ``RISKSHAPE_STORE_URL``, ``RISKSHAPE_MAX_BODY_BYTES``, ... then apply ``overrides``."""
-        env = os.environ if environ is None else environ
-        data: dict[str, Any] = {}
-        for name in cls.model_fields:
-            key = f"RISKSHAPE_{name.upper()}"
-            if key in env:
-                data[name] = env[key]
-        data.update({k: v for k, v in overrides.items() if v is not None})
-        built: ServiceSettings = cls._build(data, "environment (RISKSHAPE_*)")
-        return built

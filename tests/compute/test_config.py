@@ -7,7 +7,6 @@ from pathlib import Path
 import pytest
 
 from riskshape import Config
-from riskshape.config import ServiceSettings
 from riskshape.errors import ConfigError
 
 REPO = Path(__file__).resolve().parents[2]
@@ -131,13 +130,6 @@ def test_the_old_key_engine_is_read_with_a_warning_and_hashes_alike(tmp_path: Pa
     with pytest.warns(DeprecationWarning):
         assert Config.from_mapping(archived, where="run 1").hash() == DEFAULT_CONFIG_HASH
     assert "engine" not in Config().to_mapping()["monitor"]
-
-
-def test_service_settings_from_the_environment() -> None:
-    settings = ServiceSettings.from_env({"RISKSHAPE_STORE_URL": "sqlite:///x.sqlite", "RISKSHAPE_MAX_PAGE_SIZE": "50"})
-    assert settings.store_url == "sqlite:///x.sqlite" and settings.max_page_size == 50
-    with pytest.raises(ConfigError, match=r"environment \(RISKSHAPE_\*\): 'max_page_size'.*'abc'"):
-        ServiceSettings.from_env({"RISKSHAPE_MAX_PAGE_SIZE": "abc"})
 
 
 def test_window_settings_take_every_result_key_the_windows_use() -> None:
