@@ -90,7 +90,7 @@ def _machine() -> dict[str, object]:
 
     import riskshape
     from riskshape.compute.executors import available_cores
-    from riskshape.compute.persistence import resolve_engine
+    from riskshape.compute.persistence import resolve_backend
 
     return {
         "date": datetime.now(timezone.utc).isoformat(timespec="seconds"),
@@ -99,7 +99,7 @@ def _machine() -> dict[str, object]:
         "python": platform.python_version(),
         "numpy": numpy.__version__,
         "riskshape": riskshape.__version__,
-        "persistence engine": resolve_engine("auto"),
+        "rips backend": resolve_backend("auto"),
         "platform": platform.platform(),
     }
 

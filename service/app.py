@@ -20,7 +20,7 @@ from starlette.middleware.body_limit import RequestBodyLimitMiddleware
 
 from riskshape._version import __version__
 from riskshape.caution import CAUTION
-from riskshape.config import Config, ServiceSettings
+from riskshape.config import Config
 from riskshape.errors import RiskshapeError
 from riskshape.store import open_store
 from riskshape_service.context import ServiceContext
@@ -44,6 +44,7 @@ from riskshape_service.routers import (
     series,
 )
 from riskshape_service.schemas import PricesIn
+from riskshape_service.settings import ServiceSettings
 from riskshape_service.snapshots import Snapshots
 
 __all__ = ["create_app"]

@@ -7,11 +7,12 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-from riskshape.config import Config, ServiceSettings
+from riskshape.config import Config
 from riskshape.store import Store
 from riskshape_service.ingest import Ingestor
 from riskshape_service.metrics import ServiceMetrics
 from riskshape_service.ratelimit import RateLimiter
+from riskshape_service.settings import ServiceSettings
 from riskshape_service.snapshots import Snapshots
 
 __all__ = ["ServiceContext"]

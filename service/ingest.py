@@ -150,7 +150,7 @@ class Ingestor:
         Configuration of a portfolio before its first run.
     cache_size : int
         Portfolios whose result is kept in memory (least recently used dropped first; see
-        :class:`riskshape.config.ServiceSettings`).
+        :class:`riskshape_service.settings.ServiceSettings`).
     """
 
     def __init__(self, default_config: Config, cache_size: int = 128) -> None:

@@ -5,13 +5,13 @@ from typing import Annotated
 
 from fastapi import APIRouter, Path, Query
 
-from riskshape.config import ServiceSettings
 from riskshape.explain.archived import explanation_object, explanation_text
 from riskshape.types import Severity
 from riskshape_service.convert import alert_out, provenance_out, review_out
 from riskshape_service.deps import ReaderDep, StoreDep
 from riskshape_service.routers import API_PREFIX, MAX_ID, errors
 from riskshape_service.schemas import AlertDetailOut, AlertPageOut
+from riskshape_service.settings import ServiceSettings
 
 __all__ = ["make_router", "AlertId"]
 

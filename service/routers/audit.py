@@ -7,11 +7,11 @@ from typing import Annotated
 from fastapi import APIRouter, Query
 from starlette.concurrency import run_in_threadpool
 
-from riskshape.config import ServiceSettings
 from riskshape.store import Head, chain_head, verify_chain
 from riskshape_service.deps import ReviewerDep, StoreDep
 from riskshape_service.routers import API_PREFIX, errors
 from riskshape_service.schemas import BadRecordOut, ChainHead, HeadOut, VerifyOut
+from riskshape_service.settings import ServiceSettings
 
 __all__ = ["make_router"]
 

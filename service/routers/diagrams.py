@@ -7,11 +7,11 @@ from typing import Annotated
 
 from fastapi import APIRouter, Path, Query
 
-from riskshape.config import ServiceSettings
 from riskshape_service.deps import ReaderDep, StoreDep
 from riskshape_service.routers import API_PREFIX, errors
 from riskshape_service.routers.portfolios import PortfolioName
 from riskshape_service.schemas import DiagramOut
+from riskshape_service.settings import ServiceSettings
 
 __all__ = ["make_router"]
 

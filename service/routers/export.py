@@ -9,10 +9,10 @@ from fastapi import APIRouter, Query
 from fastapi.responses import Response
 from starlette.concurrency import run_in_threadpool
 
-from riskshape.config import ServiceSettings
 from riskshape.outputs.export import export_alerts
 from riskshape_service.deps import ReviewerDep, StoreDep
 from riskshape_service.routers import API_PREFIX, errors
+from riskshape_service.settings import ServiceSettings
 
 __all__ = ["make_router", "MEDIA_TYPES"]
 

@@ -6,12 +6,12 @@ from fastapi import APIRouter
 from fastapi.responses import JSONResponse
 
 from riskshape._version import __version__
-from riskshape.config import ServiceSettings
 from riskshape.errors import RiskshapeError
 from riskshape_service.access import store_status
 from riskshape_service.deps import ContextDep
 from riskshape_service.routers import API_PREFIX, errors
 from riskshape_service.schemas import HealthOut, StoreStatus
+from riskshape_service.settings import ServiceSettings
 
 __all__ = ["make_router"]
 

@@ -5,10 +5,10 @@ from __future__ import annotations
 from fastapi import APIRouter
 from fastapi.responses import Response
 
-from riskshape.config import ServiceSettings
 from riskshape_service.deps import ContextDep, ReaderDep
 from riskshape_service.metrics import CONTENT_TYPE_LATEST
 from riskshape_service.routers import errors
+from riskshape_service.settings import ServiceSettings
 
 __all__ = ["make_router"]
 

@@ -6,7 +6,6 @@ from typing import Annotated
 
 from fastapi import APIRouter, Path
 
-from riskshape.config import ServiceSettings
 from riskshape_service import access
 from riskshape_service.convert import alert_out, rule_state_out
 from riskshape_service.deps import AdminDep, ContextDep, ReaderDep, StoreDep
@@ -19,6 +18,7 @@ from riskshape_service.schemas import (
     PortfolioOut,
     finite_or_none,
 )
+from riskshape_service.settings import ServiceSettings
 
 __all__ = ["make_router", "PortfolioName"]
 

@@ -16,7 +16,6 @@ from fastapi.exceptions import RequestValidationError
 from pydantic import ValidationError
 from starlette.concurrency import run_in_threadpool
 
-from riskshape.config import ServiceSettings
 from riskshape_service.bodies import CSV_SOURCE, JSON_SOURCE, table_from_csv, table_from_json, validated_prices
 from riskshape_service.convert import alert_out
 from riskshape_service.deps import ContextDep, IngestDep, StoreDep
@@ -24,6 +23,7 @@ from riskshape_service.ingest import IngestReport
 from riskshape_service.routers import API_PREFIX, errors
 from riskshape_service.routers.portfolios import PortfolioName
 from riskshape_service.schemas import IngestOut, PricesIn
+from riskshape_service.settings import ServiceSettings
 
 __all__ = ["make_router", "PRICES_BODY"]
 

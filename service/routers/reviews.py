@@ -4,12 +4,12 @@ from __future__ import annotations
 
 from fastapi import APIRouter
 
-from riskshape.config import ServiceSettings
 from riskshape_service.convert import review_out
 from riskshape_service.deps import ReviewerDep, StoreDep
 from riskshape_service.routers import API_PREFIX, errors
 from riskshape_service.routers.alerts import AlertId
 from riskshape_service.schemas import ReviewCreated, ReviewIn
+from riskshape_service.settings import ServiceSettings
 
 __all__ = ["make_router"]
 

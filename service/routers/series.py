@@ -5,12 +5,12 @@ from typing import Annotated
 
 from fastapi import APIRouter, Query
 
-from riskshape.config import ServiceSettings
 from riskshape_service import access
 from riskshape_service.deps import ContextDep, ReaderDep, StoreDep
 from riskshape_service.routers import API_PREFIX, MAX_ID, errors
 from riskshape_service.routers.portfolios import PortfolioName
 from riskshape_service.schemas import SeriesOut, SeriesRow, finite_or_none
+from riskshape_service.settings import ServiceSettings
 
 __all__ = ["make_router"]
 

@@ -1,4 +1,6 @@
-"""Configuration: the only module that reads TOML files or the environment.
+"""Configuration: the only module of the library that reads TOML files or the environment.
+
+(The HTTP service reads its own settings from the environment: ``riskshape_service.settings``.)
 
 A :class:`Config` is frozen and validated once, here. ``Config(window=90)`` takes
 keyword arguments; :meth:`Config.from_toml` reads a file laid out like
@@ -13,14 +15,16 @@ import hashlib
 import json
 import os
 import sys
+import warnings
 from collections.abc import Callable, Mapping
 from contextvars import ContextVar
 from functools import lru_cache
 from importlib import resources
 from pathlib import Path
-from typing import Any, Literal
+from typing import Any
 
 from pydantic import BaseModel, ConfigDict, Field, ValidationError, model_validator
+from pydantic_core import InitErrorDetails, PydanticCustomError
 
 from riskshape.errors import ConfigError
 from riskshape.types import (
@@ -44,7 +48,6 @@ __all__ = [
     "ComputeConfig",
     "AlertsConfig",
     "RuleConfig",
-    "ServiceSettings",
     "format_validation_error",
     "default_rules",
     "store_url_from_env",
@@ -82,6 +85,16 @@ def format_validation_error(
         else:
             lines.append(f"{where}: '{key}': {problem['msg']} (got {got!r})")
     return "\n".join(lines)
+
+
+def _key_error(model: str, key: tuple[str | int, ...], value: Any, message: str) -> ValidationError:
+    """A validation error of one key (its path inside ``model``), for a check that spans several keys.
+
+    Raised from a validator, it keeps its path, prefixed by the path of the section that holds it, so
+    the message names the key as written (``alerts.rules.2.summary``), not only its section.
+    """
+    problem = PydanticCustomError("riskshape_config", message.replace("{", "{{").replace("}", "}}"))
+    return ValidationError.from_exception_data(model, [InitErrorDetails(type=problem, loc=key, input=value)])
 
 
 # How deep the construction of nested sections is (pydantic runs a custom __init__ for nested models
@@ -160,14 +173,31 @@ class RuleConfig(_Frozen):
             for key in ("threshold", "clear"):
                 value = getattr(self, key)
                 if value is not None and not 0.0 < value < 1.0:
-                    raise ValueError(f"{key} of a quantile rule must lie in (0, 1), got {value}")
+                    raise _key_error(
+                        "RuleConfig",
+                        (key,),
+                        value,
+                        f"rule '{self.name}': {key} of a quantile rule must lie in (0, 1), got {value}; "
+                        "write the quantile itself (0.99 for the 99th percentile), or use kind = 'level'",
+                    )
         if self.clear is not None:
             wrong_side = self.clear > self.threshold if self.direction == "above" else self.clear < self.threshold
             if wrong_side:
-                raise ValueError(
-                    f"clear ({self.clear}) must be on the calm side of threshold ({self.threshold}) "
-                    f"for a rule that fires {self.direction} it"
+                raise _key_error(
+                    "RuleConfig",
+                    ("clear",),
+                    self.clear,
+                    f"rule '{self.name}': clear ({self.clear}) must be on the calm side of threshold "
+                    f"({self.threshold}) for a rule that fires {self.direction} it",
                 )
+        if self.min_history > self.lookback:
+            raise _key_error(
+                "RuleConfig",
+                ("min_history",),
+                self.min_history,
+                f"rule '{self.name}': min_history ({self.min_history}) exceeds lookback ({self.lookback}), "
+                "the windows in which history is counted, so it could never fire; lower min_history or raise lookback",
+            )
         return self
 
 
@@ -183,6 +213,20 @@ class AlertsConfig(_Frozen):
     """The alert rules; by default those of ``config/default.toml``. ``rules = []`` turns them off."""
 
     rules: tuple[RuleConfig, ...] = Field(default_factory=default_rules)
+
+    @model_validator(mode="after")
+    def _check_names(self) -> AlertsConfig:
+        seen: set[str] = set()
+        for i, rule in enumerate(self.rules):
+            if rule.name in seen:
+                raise _key_error(
+                    "AlertsConfig",
+                    ("rules", i, "name"),
+                    rule.name,
+                    f"alerts rule name '{rule.name}' is used twice; give each rule its own name",
+                )
+            seen.add(rule.name)
+        return self
 
 
 class Config(_Frozen):
@@ -205,8 +249,9 @@ class Config(_Frozen):
         Highest homology dimension computed (0, 1 or 2).
     order_p : float
         Order of the Wasserstein distance to the previous window (ground metric L-infinity).
-    engine : {"auto", "ripser", "giotto"}
-        Vietoris-Rips engine; ``auto`` uses giotto-ph where it is installed, else ripser.
+    rips_backend : {"auto", "ripser", "giotto"}
+        Vietoris-Rips backend; ``auto`` uses giotto-ph where it is installed, else ripser. The old
+        name of this key, ``engine``, is still read, with a :class:`DeprecationWarning`.
     embedding : {"correlation", "point_cloud"}
         ``correlation``: assets are points, d = sqrt(2 (1 - rho)). ``point_cloud``: the days of the
         window are points in R^n (one coordinate per asset).
@@ -228,11 +273,67 @@ class Config(_Frozen):
     correlation: CorrelationEstimator = "pearson"
     maxdim: int = Field(1, ge=0, le=2)
     order_p: float = Field(1.0, ge=1.0)
-    engine: RipsBackend = "auto"
+    rips_backend: RipsBackend = "auto"
     embedding: Embedding = "correlation"
     standardize_cloud: bool = True
     compute: ComputeConfig = ComputeConfig()
     alerts: AlertsConfig = AlertsConfig()
+
+    @model_validator(mode="before")
+    @classmethod
+    def _renamed_keys(cls, data: Any) -> Any:
+        """Read ``engine``, the old name of ``rips_backend`` (files and archived runs still hold it)."""
+        if not isinstance(data, Mapping) or "engine" not in data:
+            return data
+        renamed = dict(data)
+        value = renamed.pop("engine")
+        if "rips_backend" in renamed and renamed["rips_backend"] != value:
+            raise _key_error(
+                "Config",
+                ("engine",),
+                value,
+                f"'engine' is the old name of 'rips_backend', which is also given ({renamed['rips_backend']!r}); "
+                "keep only rips_backend",
+            )
+        warnings.warn(
+            f"configuration key 'engine' is renamed 'rips_backend'; write rips_backend = {value!r} instead",
+            DeprecationWarning,
+            stacklevel=2,
+        )
+        renamed["rips_backend"] = value
+        return renamed
+
+    @model_validator(mode="after")
+    def _check_rule_summaries(self) -> Config:
+        """Each configured rule watches a summary this configuration computes.
+
+        The shipped default rules, when no rules are given, are left to rule evaluation: they watch
+        H1 summaries, and ``maxdim = 0`` without alert rules (research, a quick H0 look) is a sound
+        configuration.
+        """
+        if "alerts" not in self.model_fields_set or "rules" not in self.alerts.model_fields_set:
+            return self
+        from riskshape.compute.monitor import feature_columns  # lazy: the computation imports this module
+
+        computed = feature_columns(self.maxdim)
+        for i, rule in enumerate(self.alerts.rules):
+            if rule.summary in computed:
+                continue
+            key = ("alerts", "rules", i, "summary")
+            if rule.summary in feature_columns(2):
+                dim = int(rule.summary[1])
+                message = (
+                    f"rule '{rule.name}' watches {rule.summary}, an H{dim} summary, but maxdim = {self.maxdim} "
+                    f"computes H0..H{self.maxdim} only; set maxdim = {dim} (in [monitor]), or watch another summary, "
+                    "or remove the rule"
+                )
+            else:
+                message = (
+                    f"rule '{rule.name}' watches {rule.summary!r}, which is not a summary; "
+                    f"use one of: {', '.join(computed)}"
+                )
+            raise _key_error("Config", key, rule.summary, message)
+        return self
 
     @classmethod
     def from_toml(cls, path: str | os.PathLike[str]) -> Config:
@@ -292,13 +393,16 @@ class Config(_Frozen):
 
     def replace(self, **changes: Any) -> Config:
         """A copy with some fields changed, validated like a new Config."""
-        data = self.model_dump()
+        data = self.model_dump(exclude_unset=True)  # what was left to its default stays so (see the rule check)
         data.update(changes)
         return type(self)(**data)
 
     def hash(self) -> str:
         """SHA-256 (hex) of the canonical JSON of every setting that can change a result."""
         payload = self.model_dump(mode="json", exclude={"compute"})
+        # Hashed under its old name: archived runs are looked up by this hash, and they were stored
+        # when the key was called `engine`; renaming it must not change the hash of any configuration.
+        payload["engine"] = payload.pop("rips_backend")
         text = json.dumps(payload, sort_keys=True, separators=(",", ":"), allow_nan=False)
         return hashlib.sha256(text.encode("utf-8")).hexdigest()
 
@@ -307,55 +411,3 @@ def store_url_from_env(environ: Mapping[str, str] | None = None) -> str | None:
     """The archive URL in ``RISKSHAPE_STORE_URL``, if set (the CLI's default for ``--store``)."""
     env = os.environ if environ is None else environ
     return env.get("RISKSHAPE_STORE_URL") or None
-
-
-class ServiceSettings(_Frozen):
-    """Settings of the HTTP service, read from ``RISKSHAPE_*`` environment variables by :meth:`from_env`
-    (``RISKSHAPE_STORE_URL``, ``RISKSHAPE_MAX_BODY_BYTES``, ...).
-
-    Parameters
-    ----------
-    store_url : str
-        Archive URL (``sqlite:///path`` or ``postgresql+psycopg://...``).
-    max_body_bytes : int
-        Largest request body accepted, counted as it streams (413 beyond it).
-    max_page_size : int
-        Largest page a paged endpoint returns (422 beyond it).
-    rate_limit_per_minute : int
-        Sustained requests a minute per API key (429 with Retry-After beyond it).
-    rate_limit_burst : int
-        Requests a key may make at once after being idle (the token bucket's size).
-    config_path : str or None
-        TOML configuration for portfolios before their first run (defaults without it); a portfolio
-        with runs keeps the configuration of its latest run.
-    log_level : str
-        Level of the service's JSON logs.
-    result_cache_size : int
-        Portfolios whose latest result the service keeps in memory, so that a new day computes
-        only the windows it completes; the least recently fed beyond it is recomputed from the
-        archive at its next ingest (0.5 s instead of 0.03 s for 24 assets and two years). A result
-        holds the portfolio's prices, returns and float32 diagrams: a few MB for 100 assets and two
-        years (1.5 MB pickled), about 75 MB for 500 assets and 20 years.
-    """
-
-    store_url: str = "sqlite:///riskshape.sqlite"
-    max_body_bytes: int = Field(5_000_000, ge=1024)
-    max_page_size: int = Field(1000, ge=1)
-    rate_limit_per_minute: int = Field(600, ge=1)
-    rate_limit_burst: int = Field(60, ge=1)
-    config_path: str | None = None
-    log_level: Literal["debug", "info", "warning", "error"] = "info"
-    result_cache_size: int = Field(128, ge=0)
-
-    @classmethod
-    def from_env(cls, environ: Mapping[str, str] | None = None, **overrides: Any) -> ServiceSettings:
-        """Read ``RISKSHAPE_STORE_URL``, ``RISKSHAPE_MAX_BODY_BYTES``, ... then apply ``overrides``."""
-        env = os.environ if environ is None else environ
-        data: dict[str, Any] = {}
-        for name in cls.model_fields:
-            key = f"RISKSHAPE_{name.upper()}"
-            if key in env:
-                data[name] = env[key]
-        data.update({k: v for k, v in overrides.items() if v is not None})
-        built: ServiceSettings = cls._build(data, "environment (RISKSHAPE_*)")
-        return built

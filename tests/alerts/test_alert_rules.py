@@ -294,13 +294,14 @@ def test_unknown_summary_names_rule_and_lists_columns() -> None:
 
 
 def test_duplicate_rule_names_are_refused() -> None:
-    with pytest.raises(ConfigError, match="'twice' is used twice"):
+    with pytest.raises(ConfigError, match="'rules.1.name': alerts rule name 'twice' is used twice"):
         evaluate_rules(_features(), [_rule(name="twice", summary="a"), _rule(name="twice", summary="b")])
 
 
-def test_min_history_above_lookback_is_refused() -> None:
-    with pytest.raises(ConfigError, match=r"rule 'r'.*min_history \(300\) exceeds lookback \(250\)"):
-        evaluate_rule(_series([1.0]), _rule(kind="quantile", threshold=0.9, min_history=300))
+def test_min_history_above_lookback_is_refused_when_the_rule_is_read() -> None:
+    # refused as the rule is built, naming the key: no rule that could never fire reaches evaluation
+    with pytest.raises(ConfigError, match=r"'min_history': rule 'r': min_history \(300\) exceeds lookback \(250\)"):
+        _rule(kind="quantile", threshold=0.9, min_history=300)
 
 
 def test_bad_index_and_unknown_window_are_data_errors() -> None:
@@ -324,12 +325,13 @@ def test_config_rules_feed_the_evaluator(tmp_path: object) -> None:
 
     path = Path(str(tmp_path)) / "rules.toml"
     path.write_text(
-        '[[alerts.rules]]\nname = "high"\nsummary = "a"\nkind = "level"\nthreshold = 4.0\nclear = 3.0\n'
-        "min_history = 0\n",
+        '[[alerts.rules]]\nname = "high"\nsummary = "mean_correlation"\nkind = "level"\nthreshold = 4.0\n'
+        "clear = 3.0\nmin_history = 0\n",
         encoding="utf-8",
     )
     rules = Config.from_toml(path).alerts.rules
-    assert [f.window_end for f in evaluate_rules(_features(), rules)] == list(_features().index[[1, 5]])
+    features = _features().rename(columns={"a": "mean_correlation"})
+    assert [f.window_end for f in evaluate_rules(features, rules)] == list(features.index[[1, 5]])
 
 
 @pytest.fixture

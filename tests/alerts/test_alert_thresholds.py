@@ -40,7 +40,9 @@ def _history(values: np.ndarray, t: int, lookback: int) -> np.ndarray:
 def test_quantile_levels_match_numpy_linear(rng: np.random.Generator, lookback: int, q: float) -> None:
     series = _noisy_series(rng, 200)
     clear_q = q / 2
-    rule = RuleConfig(name="r", summary="x", kind="quantile", threshold=q, clear=clear_q, lookback=lookback)
+    rule = RuleConfig(
+        name="r", summary="x", kind="quantile", threshold=q, clear=clear_q, lookback=lookback, min_history=0
+    )
     levels = trailing_levels(series, rule)
     values = series.to_numpy()
     for t in range(len(values)):
@@ -57,7 +59,7 @@ def test_quantile_levels_match_numpy_linear(rng: np.random.Generator, lookback: 
 @pytest.mark.parametrize("lookback", [2, 9, 60])
 def test_zscore_levels_match_numpy_mean_and_sample_std(rng: np.random.Generator, lookback: int) -> None:
     series = _noisy_series(rng, 200)
-    rule = RuleConfig(name="r", summary="x", kind="zscore", threshold=3.0, clear=-0.5, lookback=lookback)
+    rule = RuleConfig(name="r", summary="x", kind="zscore", threshold=3.0, clear=-0.5, lookback=lookback, min_history=0)
     levels = trailing_levels(series, rule)
     values = series.to_numpy()
     for t in range(len(values)):

@@ -28,7 +28,7 @@ OUTPUTS = {"features.csv", "features.parquet", "diagrams.parquet", "left_out.csv
 def _config_file(folder: Path, window: int = 20, extra: str = "", name: str = "riskshape.toml") -> Path:
     path = folder / name
     path.write_text(
-        f'[monitor]\nwindow = {window}\nstep = 3\nmaxdim = 1\nengine = "ripser"\n{extra}\n'
+        f'[monitor]\nwindow = {window}\nstep = 3\nmaxdim = 1\nrips_backend = "ripser"\n{extra}\n'
         '[compute]\nexecutor = "serial"\n'
     )
     return path

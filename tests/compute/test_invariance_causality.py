@@ -22,7 +22,7 @@ from hypothesis import strategies as st
 from riskshape import Config, MonitorResult, monitor
 from riskshape.demo.scenario import Scenario
 
-CONFIG = Config(window=15, step=2, maxdim=1, engine="ripser", compute={"executor": "serial"})
+CONFIG = Config(window=15, step=2, maxdim=1, rips_backend="ripser", compute={"executor": "serial"})
 FLOAT_COLUMNS_RTOL = 1e-6
 
 

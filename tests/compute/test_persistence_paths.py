@@ -34,8 +34,8 @@ def _distance(rng: np.random.Generator, days: int, assets: int) -> np.ndarray:
 def test_giotto_equals_ripser_bit_for_bit(rng: np.random.Generator, assets: int) -> None:
     pytest.importorskip("gph")
     distance = _distance(rng, 60, assets)
-    fast = compute_diagrams(distance, 1, engine="giotto")
-    plain = compute_diagrams(distance, 1, engine="ripser")
+    fast = compute_diagrams(distance, 1, backend="giotto")
+    plain = compute_diagrams(distance, 1, backend="ripser")
     assert len(plain[1]) > 0
     for x, y in zip(fast, plain):
         np.testing.assert_array_equal(x, y)
@@ -62,7 +62,7 @@ def test_relabelled_points_give_ripsers_bars(rng: np.random.Generator, engine: s
     order = vertex_order(distance)
     assert sorted(order.tolist()) == list(range(assets))
     assert not np.array_equal(order, np.arange(assets))  # the relabelling does something here
-    fast = compute_diagrams(distance, 1, engine=engine)
+    fast = compute_diagrams(distance, 1, backend=engine)
     plain = _plain_ripser(distance)
     assert len(plain[1]) > 0
     for x, y in zip(fast, plain):
@@ -81,7 +81,7 @@ def test_single_linkage_h0_equals_ripser_maxdim0(rng: np.random.Generator, asset
 
 
 def test_landscape_closed_form_equals_persim_exact_landscapes(rng: np.random.Generator) -> None:
-    diagrams = [compute_diagrams(_distance(rng, 50, 30), 1, engine="ripser")[k] for k in (0, 1)]
+    diagrams = [compute_diagrams(_distance(rng, 50, 30), 1, backend="ripser")[k] for k in (0, 1)]
     births = rng.uniform(0.0, 1.0, 9)
     diagrams.append(np.column_stack([births, births + rng.exponential(0.4, 9)]))
     for dgm in diagrams:

@@ -63,7 +63,7 @@ def test_batch_with_running_sums_equals_plain_batch(
     rng: np.random.Generator, monkeypatch: pytest.MonkeyPatch, gaps: bool, step: int
 ) -> None:
     values = _returns(rng, 260, 25, gaps)
-    config = Config(window=40, step=step, maxdim=1, engine="ripser", min_coverage=0.9)
+    config = Config(window=40, step=step, maxdim=1, rips_backend="ripser", min_coverage=0.9)
     settings = settings_of(config)
     plain_settings = type(settings)(**{**settings.__dict__, "rolling": False})
     ends = window_end_positions(len(values), config.window, config.step)
@@ -98,7 +98,7 @@ def test_batch_with_running_sums_equals_plain_batch(
 
 def test_batching_does_not_change_a_bit(small_prices: pd.DataFrame) -> None:
     prices = small_prices.iloc[:150]
-    base = Config(window=30, maxdim=1, engine="ripser", compute={"executor": "serial", "batch_windows": 64})
+    base = Config(window=30, maxdim=1, rips_backend="ripser", compute={"executor": "serial", "batch_windows": 64})
     one = monitor(prices, base)
     other = monitor(prices, base.replace(compute={"executor": "serial", "batch_windows": 7}))
     pd.testing.assert_frame_equal(one.features, other.features, check_exact=True)

@@ -31,7 +31,7 @@ def _config(step: int, **compute: object) -> Config:
         window=WINDOW,
         step=step,
         maxdim=1,
-        engine="ripser",
+        rips_backend="ripser",
         compute={"executor": "serial", "batch_windows": 5, **compute},
     )
 

@@ -37,7 +37,7 @@ def _chord(radius: float, steps: int, n: int) -> float:
 @pytest.mark.parametrize("n", [6, 9, 12, 15, 24])
 @pytest.mark.parametrize("radius", [1.0, 0.37])
 def test_n_divisible_by_three_dies_exactly_at_sqrt3_r(n: int, radius: float) -> None:
-    h1 = compute_diagrams(_circle_distance(n, radius), maxdim=1, engine="ripser")[1]
+    h1 = compute_diagrams(_circle_distance(n, radius), maxdim=1, backend="ripser")[1]
     assert h1.shape == (1, 2)  # one loop, and nothing else in H1
     birth, death = h1[0]
     assert birth == pytest.approx(_chord(radius, 1, n), rel=1e-6)
@@ -47,7 +47,7 @@ def test_n_divisible_by_three_dies_exactly_at_sqrt3_r(n: int, radius: float) -> 
 @pytest.mark.parametrize("n", [7, 8, 10, 11, 13, 20])
 def test_other_n_die_at_the_first_chord_reaching_a_third(n: int) -> None:
     radius = 1.0
-    h1 = compute_diagrams(_circle_distance(n, radius), maxdim=1, engine="ripser")[1]
+    h1 = compute_diagrams(_circle_distance(n, radius), maxdim=1, backend="ripser")[1]
     assert h1.shape == (1, 2)
     birth, death = h1[0]
     assert birth == pytest.approx(_chord(radius, 1, n), rel=1e-6)
@@ -59,6 +59,6 @@ def test_other_n_die_at_the_first_chord_reaching_a_third(n: int) -> None:
 @pytest.mark.parametrize("n", [6, 9, 12])
 def test_wedge_of_two_spheres_at_the_third(n: int) -> None:
     """At k = n/3 the complex is a wedge of n - 2k - 1 = n/3 - 1 two-spheres (cited above)."""
-    h2 = compute_diagrams(_circle_distance(n, 1.0), maxdim=2, engine="ripser")[2]
+    h2 = compute_diagrams(_circle_distance(n, 1.0), maxdim=2, backend="ripser")[2]
     born_at_third = np.isclose(h2[:, 0], math.sqrt(3.0), rtol=1e-6)
     assert int(born_at_third.sum()) == n // 3 - 1

@@ -51,7 +51,7 @@ def _random_matrix(rng: np.random.Generator, n: int, euclidean: bool) -> np.ndar
 def test_h0_bars_alive_equal_threshold_graph_components(rng: np.random.Generator, maxdim: int) -> None:
     for n in (3, 6, 12, 25):
         distance = _random_matrix(rng, n, euclidean=n % 2 == 0)
-        h0 = compute_diagrams(distance, maxdim=maxdim, engine="ripser")[0]
+        h0 = compute_diagrams(distance, maxdim=maxdim, backend="ripser")[0]
         for r in _safe_scales(distance, 15, rng):
             n_components, _ = connected_components(distance <= r, directed=False)
             assert _alive(h0, r) + 1 == n_components, (n, r)
@@ -74,7 +74,7 @@ def test_euler_characteristic_from_simplex_counts_equals_alternating_betti_sum(
     seen_b1 = seen_b2 = False
     for trial in range(6):
         distance = _random_matrix(rng, n, euclidean=trial % 2 == 0)
-        diagrams = compute_diagrams(distance, maxdim=2, engine="ripser")
+        diagrams = compute_diagrams(distance, maxdim=2, backend="ripser")
         higher = ripser(distance, maxdim=max(n - 2, 2), distance_matrix=True)["dgms"][3:]
         for r in _safe_scales(distance, 10, rng):
             chi = int(signs @ _simplex_counts(distance, r))
@@ -95,5 +95,5 @@ def test_octahedron_euler_characteristic_is_two() -> None:
     r = 1.7
     counts = _simplex_counts(distance, r)
     assert counts[:4].tolist() == [6, 12, 8, 0]
-    diagrams = compute_diagrams(distance, maxdim=2, engine="ripser")
+    diagrams = compute_diagrams(distance, maxdim=2, backend="ripser")
     assert [_alive(diagrams[0], r) + 1, _alive(diagrams[1], r), _alive(diagrams[2], r)] == [1, 0, 1]

@@ -45,7 +45,7 @@ def test_h0_deaths_are_single_linkage_heights_on_random_matrices(
 ) -> None:
     for n in (2, 3, 7, 15, 30):
         distance = _random_distance(rng, n, kind)
-        h0 = compute_diagrams(distance, maxdim=maxdim, engine="ripser")[0]
+        h0 = compute_diagrams(distance, maxdim=maxdim, backend="ripser")[0]
         assert np.all(h0[:, 0] == 0.0)  # every H0 bar is born at 0 (all vertices enter at 0)
         np.testing.assert_allclose(np.sort(h0[:, 1]), _scipy_merge_heights(distance), rtol=1e-6, atol=0)
         assert len(h0) == n - 1  # n components merge n - 1 times (no ties in continuous draws)
@@ -59,13 +59,13 @@ def test_h0_with_tied_and_zero_distances(rng: np.random.Generator) -> None:
     expected = _scipy_merge_heights(distance)
     assert len(expected) == 7  # 11 points, 3 merges at height 0 dropped, 7 left
     for maxdim in (0, 1):
-        h0 = compute_diagrams(distance, maxdim=maxdim, engine="ripser")[0]
+        h0 = compute_diagrams(distance, maxdim=maxdim, backend="ripser")[0]
         np.testing.assert_allclose(np.sort(h0[:, 1]), expected, rtol=1e-6, atol=0)
 
 
 def test_h0_on_scenario_windows_matches_single_linkage(small_scenario: Scenario) -> None:
     """Windows of the fictional market, built with the engine's own blocks and through monitor."""
-    config = Config(window=40, step=30, maxdim=1, engine="ripser", compute={"executor": "serial"})
+    config = Config(window=40, step=30, maxdim=1, rips_backend="ripser", compute={"executor": "serial"})
     result = monitor(small_scenario.prices, config)
     assert len(result.window_ends) >= 4
     for end in result.window_ends:
@@ -81,7 +81,7 @@ def test_h0_features_drop_the_infinite_bar_and_sum_the_merge_heights(small_scena
     n - 1 finite bars, and total persistence is the sum of the single-linkage heights (scipy).
     The single-linkage path (maxdim=0) and ripser (maxdim=1) give the same H0 features.
     """
-    base = Config(window=40, step=30, engine="ripser", compute={"executor": "serial"})
+    base = Config(window=40, step=30, rips_backend="ripser", compute={"executor": "serial"})
     with_loops = monitor(small_scenario.prices, base.replace(maxdim=1))
     clusters_only = monitor(small_scenario.prices, base.replace(maxdim=0))
     h0_columns = [c for c in clusters_only.features.columns if c.startswith("h0_")]

@@ -6,7 +6,7 @@ Our diagrams hold finite bars only (the infinite H0 bar is dropped) and are floa
 (ripser computes in float32), so the comparison is of multisets of finite, positive-length bars
 with rtol 1e-6 (a float32 ulp is ~6e-8 relative).
 
-Second check: ``engine="ripser"`` (ripser.py) and ``engine="giotto"`` (giotto-ph's
+Second check: ``backend="ripser"`` (ripser.py) and ``backend="giotto"`` (giotto-ph's
 ``ripser_parallel``) give the same bars.
 """
 
@@ -54,7 +54,7 @@ def test_h0_h1_agree_with_gudhi_rips(rng: np.random.Generator, kind: str) -> Non
     n_checked_h1 = 0
     for n in (4, 8, 12, 16):
         distance = _random_distance(rng, n, kind)
-        ours = compute_diagrams(distance, maxdim=1, engine="ripser")
+        ours = compute_diagrams(distance, maxdim=1, backend="ripser")
         reference = _gudhi_diagrams(distance, maxdim=1)
         for dim in (0, 1):
             assert ours[dim].shape == reference[dim].shape, (n, dim)
@@ -66,7 +66,7 @@ def test_h0_h1_agree_with_gudhi_rips(rng: np.random.Generator, kind: str) -> Non
 def test_h2_agrees_with_gudhi_on_small_matrices(rng: np.random.Generator) -> None:
     for _ in range(3):
         distance = _random_distance(rng, 10, "dissimilarity")
-        ours = compute_diagrams(distance, maxdim=2, engine="ripser")
+        ours = compute_diagrams(distance, maxdim=2, backend="ripser")
         reference = _gudhi_diagrams(distance, maxdim=2)
         for dim in (0, 1, 2):
             np.testing.assert_allclose(_as_multiset(ours[dim]), _as_multiset(reference[dim]), rtol=1e-6, atol=0)
@@ -78,7 +78,7 @@ def test_octahedron_has_one_h2_bar_like_gudhi() -> None:
     """
     points = np.vstack([np.eye(3), -np.eye(3)])
     distance = squareform(pdist(points))
-    ours = compute_diagrams(distance, maxdim=2, engine="ripser")
+    ours = compute_diagrams(distance, maxdim=2, backend="ripser")
     np.testing.assert_allclose(ours[2], [[np.sqrt(2.0), 2.0]], rtol=1e-6)
     np.testing.assert_allclose(ours[2], _gudhi_diagrams(distance, maxdim=2)[2], rtol=1e-6)
     assert len(ours[1]) == 0
@@ -89,8 +89,8 @@ def test_ripser_and_giotto_engines_give_the_same_bars(rng: np.random.Generator, 
     pytest.importorskip("gph", reason="giotto-ph (the 'fast' extra) is not installed")
     for kind in ("euclidean", "correlation", "dissimilarity"):
         distance = _random_distance(rng, 14, kind)
-        a = compute_diagrams(distance, maxdim=maxdim, engine="ripser")
-        b = compute_diagrams(distance, maxdim=maxdim, engine="giotto")
+        a = compute_diagrams(distance, maxdim=maxdim, backend="ripser")
+        b = compute_diagrams(distance, maxdim=maxdim, backend="giotto")
         assert len(a) == len(b) == maxdim + 1
         for dim in range(maxdim + 1):
             assert a[dim].shape == b[dim].shape, (kind, dim)

@@ -12,10 +12,10 @@ import pytest
 from fastapi import FastAPI
 from fastapi.testclient import TestClient
 
-from riskshape.config import ServiceSettings
 from riskshape.demo.scenario import generate_scenario
 from riskshape.store import open_store
 from riskshape_service import create_app
+from riskshape_service.settings import ServiceSettings
 from tests.kit.service import ROLES, write_config
 
 

@@ -11,9 +11,9 @@ import pandas as pd
 import pytest
 from fastapi.testclient import TestClient
 
-from riskshape.config import ServiceSettings
 from riskshape.store import open_store
 from riskshape_service import create_app
+from riskshape_service.settings import ServiceSettings
 from tests.kit.service import cautioned, csv_body, long_rows, wide_rows
 
 Auth = Callable[[str], dict[str, str]]

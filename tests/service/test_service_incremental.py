@@ -14,7 +14,7 @@ from fastapi.testclient import TestClient
 
 from riskshape import monitor
 from riskshape.alerts import evaluate_rules
-from riskshape.config import ServiceSettings
+from riskshape_service.settings import ServiceSettings
 from tests.kit.service import cautioned, wide_rows
 
 Auth = Callable[[str], dict[str, str]]

@@ -9,10 +9,10 @@ from collections.abc import Iterator
 import pytest
 from fastapi.testclient import TestClient
 
-from riskshape.config import ServiceSettings
 from riskshape.demo.scenario import generate_scenario
 from riskshape.store import open_store
 from riskshape_service import create_app
+from riskshape_service.settings import ServiceSettings
 from tests.kit.postgres import fresh_schema_url
 from tests.kit.service import cautioned, csv_body, write_config
 

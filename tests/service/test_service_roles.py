@@ -15,11 +15,11 @@ from pathlib import Path
 import pytest
 from fastapi.testclient import TestClient
 
-from riskshape.config import ServiceSettings
 from riskshape.demo.scenario import generate_scenario
 from riskshape.store import open_store
 from riskshape_service import create_app
 from riskshape_service.auth import Permission, Role, may
+from riskshape_service.settings import ServiceSettings
 from tests.kit.service import ROLES, cautioned, csv_body, write_config
 
 

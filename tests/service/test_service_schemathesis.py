@@ -24,10 +24,10 @@ from schemathesis.specs.openapi.checks import (
 )
 
 from riskshape.caution import CAUTION
-from riskshape.config import ServiceSettings
 from riskshape.demo.scenario import generate_scenario
 from riskshape.store import open_store
 from riskshape_service import create_app
+from riskshape_service.settings import ServiceSettings
 from tests.kit.service import csv_body, write_config
 
 

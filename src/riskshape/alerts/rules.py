@@ -18,7 +18,8 @@ Semantics, for a rule with ``direction="above"`` (``"below"`` mirrors every comp
    not enter any history, and break a run of consecutive windows.
 3. **Minimum history.** Window ``t`` is *judged* only if its value is present, its history
    holds at least ``min_history`` values (and at least 1 for ``quantile``, 2 for ``zscore``),
-   and ``T_t`` is defined. ``min_history`` must not exceed ``lookback`` (for every kind).
+   and ``T_t`` is defined. ``min_history`` never exceeds ``lookback`` (for every kind): a
+   :class:`~riskshape.config.RuleConfig` refuses it when it is read.
 4. **Beyond.** A judged window is beyond the threshold when ``x_t > T_t`` (strictly).
 5. **Run.** ``run_t`` counts the judged-and-beyond windows in a row ending at ``t``; any other
    window (missing, not judged, or not beyond) resets it to 0.
@@ -44,7 +45,7 @@ import pandas as pd
 
 from riskshape.alerts.model import Firing
 from riskshape.alerts.thresholds import MIN_PAST_VALUES, clean_values, trailing_levels
-from riskshape.config import RuleConfig
+from riskshape.config import AlertsConfig, RuleConfig
 from riskshape.errors import ConfigError, DataError
 from riskshape.types import FloatArray, IntArray, Positions, Severity
 
@@ -135,14 +136,6 @@ def _check_series(series: pd.Series, what: str) -> pd.Series:
         raise DataError(f"{what}: values must be numbers, got dtype {series.dtype}") from None
 
 
-def _check_rule(rule: RuleConfig) -> None:
-    if rule.min_history > rule.lookback:
-        raise ConfigError(
-            f"alerts rule '{rule.name}': min_history ({rule.min_history}) exceeds lookback ({rule.lookback}), "
-            f"the windows in which history is counted, so it could never fire; lower min_history or raise lookback"
-        )
-
-
 def _stamp(index: pd.DatetimeIndex, position: int | None) -> pd.Timestamp | None:
     return None if position is None else pd.Timestamp(index[position])
 
@@ -212,8 +205,6 @@ def evaluate_rule(series: pd.Series, rule: RuleConfig) -> list[Firing]:
     ------
     DataError
         If the index is not increasing window_end dates or the values are not numbers.
-    ConfigError
-        If ``min_history`` exceeds ``lookback``.
 
     Examples
     --------
@@ -223,7 +214,6 @@ def evaluate_rule(series: pd.Series, rule: RuleConfig) -> list[Firing]:
     >>> [f.window_end.day for f in evaluate_rule(s, rule)]  # 3.5 does not clear, so 6.0 cannot fire
     [2]
     """
-    _check_rule(rule)
     values = _check_series(series, f"summary '{rule.summary}' (rule '{rule.name}')")
     trace = _trace(values, rule)
     return [_firing(rule, values.index, trace, int(t)) for t in trace.fired]
@@ -240,11 +230,8 @@ def _summary_column(features: pd.DataFrame, rule: RuleConfig) -> pd.Series:
 
 
 def _check_names(rules: Sequence[RuleConfig]) -> None:
-    seen: set[str] = set()
-    for rule in rules:
-        if rule.name in seen:
-            raise ConfigError(f"alerts rule name '{rule.name}' is used twice; give each rule its own name")
-        seen.add(rule.name)
+    """Rules gathered in code, outside a configuration, get the configuration's one check of their names."""
+    AlertsConfig(rules=tuple(rules))
 
 
 def evaluate_rules(features: pd.DataFrame, rules: Sequence[RuleConfig]) -> list[Firing]:
@@ -265,8 +252,8 @@ def evaluate_rules(features: pd.DataFrame, rules: Sequence[RuleConfig]) -> list[
     Raises
     ------
     ConfigError
-        If a rule names a summary that is not a column (the message lists the columns), two
-        rules share a name, or a rule's ``min_history`` exceeds its ``lookback``.
+        If a rule names a summary that is not a column (the message lists the columns), or two
+        rules share a name.
     DataError
         If the index is not increasing window_end dates or a watched column is not numeric.
     """
@@ -295,7 +282,6 @@ def rule_state(series: pd.Series, rule: RuleConfig) -> RuleState:
     DataError
         If the series is empty or badly indexed.
     """
-    _check_rule(rule)
     what = f"summary '{rule.summary}' (rule '{rule.name}')"
     values = _check_series(series, what)
     if values.empty:

@@ -6,7 +6,6 @@ import click
 
 from riskshape.caution import CAUTION
 from riskshape.cli.audit import STORE_OPTION
-from riskshape.config import ServiceSettings
 from riskshape.store import open_store
 
 __all__ = ["serve"]
@@ -26,13 +25,14 @@ __all__ = ["serve"]
 def serve(store_url: str, host: str, port: int, config_path: str | None) -> None:
     """Serve the archive over HTTP: series, diagrams, alerts, reviews, price ingest, audit, export.
 
-    Other settings come from RISKSHAPE_* environment variables (see riskshape.config.ServiceSettings).
+    Other settings come from RISKSHAPE_* environment variables (see riskshape_service.settings.ServiceSettings).
     Logs are JSON lines on standard error.
     """
     import uvicorn
 
     from riskshape_service import create_app
     from riskshape_service.logs import configure_logging
+    from riskshape_service.settings import ServiceSettings
 
     settings = ServiceSettings.from_env(store_url=store_url, config_path=config_path)
     open_store(settings.store_url).close()  # fail here, in one line, if the archive cannot be opened

@@ -8,8 +8,8 @@ beyond rounding (:mod:`riskshape.compute.moments`).
 
 from __future__ import annotations
 
-from dataclasses import dataclass
-from typing import cast
+from dataclasses import dataclass, fields
+from typing import TYPE_CHECKING, cast
 
 import numpy as np
 from scipy.spatial.distance import pdist, squareform
@@ -40,6 +40,9 @@ from riskshape.types import (
     RipsBackend,
 )
 
+if TYPE_CHECKING:
+    from riskshape.config import Config
+
 __all__ = [
     "WindowSettings",
     "WindowResult",
@@ -56,8 +59,10 @@ __all__ = [
 class WindowSettings:
     """The part of :class:`riskshape.Config` a worker needs (small, picklable).
 
-    ``rolling`` (not a configuration key: it never changes a result beyond rounding) lets
-    :func:`compute_batch` take correlations from running sums; ``False`` forces the plain path.
+    Every field but ``rolling`` is the configuration key of the same name; :meth:`from_config`
+    reads them by name. ``rolling`` (not a configuration key: it never changes a result beyond
+    rounding) lets :func:`compute_batch` take correlations from running sums; ``False`` forces
+    the plain path.
     """
 
     window: int
@@ -65,11 +70,35 @@ class WindowSettings:
     correlation: CorrelationEstimator
     maxdim: int
     order_p: float
-    engine: RipsBackend
+    rips_backend: RipsBackend
     embedding: Embedding
     standardize_cloud: bool
     step: int = 1
     rolling: bool = True
+
+    @classmethod
+    def from_config(cls, config: Config, *, rolling: bool = True) -> WindowSettings:
+        """The worker's share of a configuration: each field read from the key of the same name.
+
+        Parameters
+        ----------
+        config : Config
+            The configuration in force.
+        rolling : bool
+            Whether correlations may come from running sums (not a configuration key).
+
+        Returns
+        -------
+        WindowSettings
+
+        Examples
+        --------
+        >>> from riskshape.config import Config
+        >>> WindowSettings.from_config(Config(window=90, maxdim=0)).window
+        90
+        """
+        keys = {field.name: getattr(config, field.name) for field in fields(cls) if field.name != "rolling"}
+        return cls(**keys, rolling=rolling)
 
 
 @dataclass(frozen=True, init=False)
@@ -174,7 +203,7 @@ def _from_selection(selection: Selection, settings: WindowSettings, corr: Correl
     if corr is None:
         corr = correlation_matrix(selection.block, settings.correlation)
     distance = embedding_distance(selection.block, corr, settings.embedding, settings.standardize_cloud)
-    diagrams = compute_diagrams(distance, settings.maxdim, settings.engine)
+    diagrams = compute_diagrams(distance, settings.maxdim, settings.rips_backend)
     return WindowResult(selection.used, selection.left_out, mean_offdiagonal(corr), diagrams, nan_distances)
 
 
@@ -286,11 +315,11 @@ def first_row_needed(end: int, settings: WindowSettings) -> int:
 def preload(settings: WindowSettings) -> None:
     """Import the libraries the windows of these settings will need (before forking workers).
 
-    giotto-ph where it is the Rips engine (it imports scikit-learn: about a second).
+    giotto-ph where it is the Rips backend (it imports scikit-learn: about a second).
     """
-    from riskshape.compute.persistence import resolve_engine
+    from riskshape.compute.persistence import resolve_backend
 
-    if settings.maxdim >= 1 and resolve_engine(settings.engine) == "giotto":
+    if settings.maxdim >= 1 and resolve_backend(settings.rips_backend) == "giotto":
         import gph  # noqa: F401
 
 

@@ -247,18 +247,8 @@ def monitor(prices: pd.DataFrame, config: Config | None = None, *, progress: Pro
 
 
 def settings_of(config: Config) -> WindowSettings:
-    """The worker's share of a configuration."""
-    return WindowSettings(
-        window=config.window,
-        min_coverage=config.min_coverage,
-        correlation=config.correlation,
-        maxdim=config.maxdim,
-        order_p=config.order_p,
-        engine=config.engine,
-        embedding=config.embedding,
-        standardize_cloud=config.standardize_cloud,
-        step=config.step,
-    )
+    """The worker's share of a configuration (:meth:`WindowSettings.from_config`)."""
+    return WindowSettings.from_config(config)
 
 
 def _compute_windows(

@@ -1,12 +1,12 @@
 """Vietoris-Rips persistence diagrams of a distance matrix.
 
-Engines: ripser (always available) and giotto-ph's ``ripser_parallel`` (same algorithm, same
-float32 arithmetic, faster; used by ``engine="auto"`` where installed). When only H0 is asked for
+Backends: ripser (always available) and giotto-ph's ``ripser_parallel`` (same algorithm, same
+float32 arithmetic, faster; used by ``backend="auto"`` where installed). When only H0 is asked for
 (``maxdim=0``), the H0 deaths are the merge heights of single-linkage clustering (the edge
 weights of a minimum spanning tree), computed with scipy and rounded to float32 exactly as
 ripser rounds its input.
 
-Vertex order: before the Rips engine runs, the points are relabelled, fewest neighbours within
+Vertex order: before the Rips backend runs, the points are relabelled, fewest neighbours within
 the enclosing radius (the smallest row maximum) first (:func:`vertex_order`). A persistence
 diagram does not depend on how the points are numbered: the numbering only breaks ties between
 simplices of equal diameter, which changes the pairing of zero-length bars (dropped here) and
@@ -24,6 +24,7 @@ as float64 arrays of shape (n, 2) with columns (birth, death).
 from __future__ import annotations
 
 import importlib.util
+import warnings
 from functools import lru_cache
 from typing import cast
 
@@ -35,7 +36,7 @@ from scipy.spatial.distance import squareform
 from riskshape.errors import ConfigError
 from riskshape.types import Diagram, Diagrams, DistanceMatrix, FloatArray, Positions, ResolvedRipsBackend, RipsBackend
 
-__all__ = ["compute_diagrams", "h0_from_single_linkage", "resolve_engine", "vertex_order", "EMPTY_DIAGRAM"]
+__all__ = ["compute_diagrams", "h0_from_single_linkage", "resolve_backend", "vertex_order", "EMPTY_DIAGRAM"]
 
 EMPTY_DIAGRAM = np.empty((0, 2), dtype=float)
 
@@ -45,22 +46,42 @@ def _giotto_available() -> bool:
     return importlib.util.find_spec("gph") is not None
 
 
-def resolve_engine(engine: RipsBackend) -> ResolvedRipsBackend:
-    """The engine that ``engine`` stands for on this machine.
+def resolve_backend(backend: RipsBackend) -> ResolvedRipsBackend:
+    """The Rips backend that ``backend`` stands for on this machine.
+
+    Parameters
+    ----------
+    backend : {"auto", "ripser", "giotto"}
+        The configured ``rips_backend``.
+
+    Returns
+    -------
+    {"ripser", "giotto"}
+        ``auto`` becomes giotto-ph where it is installed, else ripser.
 
     Raises
     ------
     ConfigError
         If ``giotto`` is asked for and giotto-ph is not installed.
     """
-    if engine == "auto":
+    if backend == "auto":
         return "giotto" if _giotto_available() else "ripser"
-    if engine == "giotto" and not _giotto_available():
-        raise ConfigError("engine = 'giotto' needs giotto-ph (pip install 'riskshape[fast]'); or set engine = 'ripser'")
-    return engine
+    if backend == "giotto" and not _giotto_available():
+        raise ConfigError(
+            "rips_backend = 'giotto' needs giotto-ph (pip install 'riskshape[fast]'); or set rips_backend = 'ripser'"
+        )
+    return backend
 
 
-def compute_diagrams(distance: DistanceMatrix, maxdim: int = 1, engine: RipsBackend = "auto") -> Diagrams:
+def resolve_engine(engine: RipsBackend) -> ResolvedRipsBackend:
+    """Deprecated name of :func:`resolve_backend`."""
+    warnings.warn("resolve_engine is renamed resolve_backend", DeprecationWarning, stacklevel=2)
+    return resolve_backend(engine)
+
+
+def compute_diagrams(
+    distance: DistanceMatrix, maxdim: int = 1, backend: RipsBackend = "auto", *, engine: RipsBackend | None = None
+) -> Diagrams:
     """Vietoris-Rips persistence diagrams H0..H``maxdim`` of a distance matrix.
 
     Parameters
@@ -69,8 +90,10 @@ def compute_diagrams(distance: DistanceMatrix, maxdim: int = 1, engine: RipsBack
         (n, n) symmetric distance matrix with zero diagonal.
     maxdim : int
         Highest homology dimension.
-    engine : {"auto", "ripser", "giotto"}
-        See the module notes. With ``maxdim == 0`` the single-linkage path is used.
+    backend : {"auto", "ripser", "giotto"}
+        The Rips backend (see the module notes). With ``maxdim == 0`` the single-linkage path is used.
+    engine : {"auto", "ripser", "giotto"}, optional
+        Deprecated name of ``backend``.
 
     Returns
     -------
@@ -84,6 +107,9 @@ def compute_diagrams(distance: DistanceMatrix, maxdim: int = 1, engine: RipsBack
     >>> compute_diagrams(d, maxdim=0)[0].tolist()
     [[0.0, 1.0], [0.0, 2.0]]
     """
+    if engine is not None:
+        warnings.warn("compute_diagrams(engine=...) is renamed backend=...", DeprecationWarning, stacklevel=2)
+        backend = engine
     n = distance.shape[0]
     if n < 2:
         return tuple(EMPTY_DIAGRAM for _ in range(maxdim + 1))
@@ -91,7 +117,7 @@ def compute_diagrams(distance: DistanceMatrix, maxdim: int = 1, engine: RipsBack
         return (h0_from_single_linkage(distance),)
     order = vertex_order(distance)
     relabelled = distance[np.ix_(order, order)]
-    if resolve_engine(engine) == "giotto":
+    if resolve_backend(backend) == "giotto":
         from gph import ripser_parallel
 
         raw = ripser_parallel(relabelled, metric="precomputed", maxdim=maxdim, n_threads=1)["dgms"]
