@@ -136,7 +136,7 @@ def test_window_distance_is_the_engines_input_bit_for_bit(small_prices: pd.DataF
     assert not result.left_out.empty  # the late-listing asset is left out of every window
     for end in result.window_ends:
         window = result.window(end)
-        diagrams = compute_diagrams(window.distance, config.maxdim, config.engine)
+        diagrams = compute_diagrams(window.distance, config.maxdim, config.rips_backend)
         for k in range(config.maxdim + 1):
             np.testing.assert_array_equal(diagrams[k], window.diagrams[k])
 
