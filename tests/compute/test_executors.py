@@ -135,7 +135,7 @@ def test_blas_is_pinned_while_windows_run_and_for_good_where_asked(keep: bool) -
 def cluster() -> object:
     distributed = pytest.importorskip("distributed")
     with distributed.LocalCluster(
-        n_workers=2, threads_per_worker=1, processes=True, dashboard_address=None, silence_logs=50
+        n_workers=2, threads_per_worker=1, processes=True, dashboard_address=":0", silence_logs=50
     ) as local:
         yield local
 

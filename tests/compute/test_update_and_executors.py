@@ -98,7 +98,7 @@ def test_dask_executor_equals_serial(small_scenario: Scenario) -> None:
     config = _config(1)
     serial = monitor(prices, config)
     with (
-        distributed.LocalCluster(n_workers=1, processes=False, dashboard_address=None) as cluster,
+        distributed.LocalCluster(n_workers=1, processes=False, dashboard_address=":0") as cluster,
         distributed.Client(cluster) as client,
     ):
         # the executor given a client, over the engine's unit of work
