@@ -18,6 +18,7 @@ import pytest
 
 from riskshape import Config
 from riskshape.demo.scenario import Scenario, generate_scenario
+from tests.kit.assets import ASSETS  # XQ01..XQ04, invented codes
 
 
 def pytest_configure(config: pytest.Config) -> None:
@@ -61,7 +62,6 @@ def small_config() -> Config:
 # --- bad price files (issue 2, item 1), shared by tests/engine and tests/cli -------------------
 
 BAD_INPUT_WINDOW = 20  # the window the bad-input tests ask for (so one window needs 21 prices)
-ASSETS = ("ALD", "BRK", "CYN", "DOV")  # fictional tickers
 
 
 def good_price_table(n_rows: int = 30, seed: int = 5) -> pd.DataFrame:
@@ -117,15 +117,18 @@ BAD_CASES: tuple[BadCase, ...] = (
         ("date 2031-01-14", "one row per date"),
     ),
     BadCase(
-        "non-numeric", _set(4, "BRK", "12,5x"), _at(4), ("'BRK'", "2031-01-08", "not a number", "leave the cell empty")
+        "non-numeric",
+        _set(4, "XQ02", "12,5x"),
+        _at(4),
+        ("'XQ02'", "2031-01-08", "not a number", "leave the cell empty"),
     ),
-    BadCase("zero-price", _set(5, "CYN", "0"), _at(5), ("'CYN'", "2031-01-09", "not positive", "> 0")),
-    BadCase("negative-price", _set(7, "DOV", "-3.5"), _at(7), ("'DOV'", "-3.5", "not positive", "> 0")),
+    BadCase("zero-price", _set(5, "XQ03", "0"), _at(5), ("'XQ03'", "2031-01-09", "not positive", "> 0")),
+    BadCase("negative-price", _set(7, "XQ04", "-3.5"), _at(7), ("'XQ04'", "-3.5", "not positive", "> 0")),
     BadCase(
-        "infinite-price", _set(10, "ALD", "inf"), _at(10), ("'ALD'", "2031-01-16", "infinite", "leave the cell empty")
+        "infinite-price", _set(10, "XQ01", "inf"), _at(10), ("'XQ01'", "2031-01-16", "infinite", "leave the cell empty")
     ),
     BadCase(
-        "too-few-assets", lambda t: t.drop(columns=["CYN", "DOV"]), {}, ("2 asset column", "at least 3", "add assets")
+        "too-few-assets", lambda t: t.drop(columns=["XQ03", "XQ04"]), {}, ("2 asset column", "at least 3", "add assets")
     ),
     BadCase(
         "too-few-rows",

@@ -27,7 +27,7 @@ from riskshape_service.settings import ServiceSettings
 
 __all__ = ["make_router", "PRICES_BODY"]
 
-CSV_EXAMPLE = "date,Orchard-01,Foundry-01,Harbor-01\n2031-03-03,101.5,98.25,100.75\n"
+CSV_EXAMPLE = "date,QY01,QJ01,QK01\n2031-03-03,101.5,98.25,100.75\n"
 PRICES_BODY = {
     "required": True,
     "content": {

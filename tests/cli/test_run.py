@@ -36,8 +36,8 @@ def _config_file(folder: Path, window: int = 20, extra: str = "", name: str = "r
 
 def _prices_file(price_files: Any, folder: Path, name: str = "prices.csv") -> Path:
     table = price_files.table(70)
-    table.loc[:24, "DOV"] = ""  # lists late: left out of the early windows
-    table.loc[40, "BRK"] = ""
+    table.loc[:24, "XQ04"] = ""  # lists late: left out of the early windows
+    table.loc[40, "XQ02"] = ""
     return price_files.write(table, folder / name)
 
 
@@ -83,7 +83,7 @@ def test_run_writes_every_output_and_they_match_the_api(
     assert n_rows == len(diagrams) and n_rows > 0
 
     left_out = pd.read_csv(out / "left_out.csv", parse_dates=["window_end"])
-    assert len(left_out) > 0 and set(left_out["asset"]) == {"DOV"}
+    assert len(left_out) > 0 and set(left_out["asset"]) == {"XQ04"}
     pd.testing.assert_frame_equal(left_out, expected.left_out, check_dtype=False)
 
     manifest = json.loads((out / "manifest.json").read_text())
@@ -102,7 +102,7 @@ def test_input_hash_follows_the_prices_and_config_hash_the_config(
     table = price_files.table(40)
     first = price_files.write(table, tmp_path / "a.csv")
     changed = table.copy()
-    changed.loc[33, "CYN"] = str(float(changed.loc[33, "CYN"]) + 0.01)
+    changed.loc[33, "XQ03"] = str(float(changed.loc[33, "XQ03"]) + 0.01)
     second = price_files.write(changed, tmp_path / "b.csv")
     _run("--prices", first, "--config", config, "--out", tmp_path / "one")
     _run("--prices", second, "--config", config, "--out", tmp_path / "two")
@@ -148,10 +148,10 @@ def test_an_existing_out_folder_is_left_as_it_was(
     out.mkdir()
     (out / "notes.txt").write_text("mine")
     table = price_files.table()
-    table.loc[12, "ALD"] = "-1"
+    table.loc[12, "XQ01"] = "-1"
     bad = price_files.write(table, tmp_path / "bad.csv")
     _assert_refused(
-        out, capsys, ("bad.csv", "line 14", "'ALD'"), "--prices", bad, "--config", _config_file(tmp_path), "--out", out
+        out, capsys, ("bad.csv", "line 14", "'XQ01'"), "--prices", bad, "--config", _config_file(tmp_path), "--out", out
     )
     assert [p.name for p in out.iterdir()] == ["notes.txt"]
     assert (out / "notes.txt").read_text() == "mine"
@@ -202,7 +202,7 @@ def test_long_layout_gives_the_same_run_as_wide(
 ) -> None:
     config = _config_file(tmp_path)
     wide_table = price_files.table(50)
-    wide_table.loc[:9, "DOV"] = ""
+    wide_table.loc[:9, "XQ04"] = ""
     long_table = wide_table.melt(id_vars="date", var_name="asset", value_name="price")
     long_table = long_table[long_table["price"] != ""]
     wide = price_files.write(wide_table, tmp_path / "wide.parquet")
@@ -222,7 +222,7 @@ def test_the_installed_command_refuses_bad_input_in_one_line(price_files: Any, t
     if command is None:
         pytest.skip("the riskshape console script is not on PATH (pip install -e . puts it there)")
     table = price_files.table()
-    table.loc[4, "CYN"] = "n/a?"
+    table.loc[4, "XQ03"] = "n/a?"
     bad = price_files.write(table, tmp_path / "bad.csv")
     out = tmp_path / "results"
     done = subprocess.run(
@@ -235,5 +235,5 @@ def test_the_installed_command_refuses_bad_input_in_one_line(price_files: Any, t
     assert done.returncode == 2
     lines = done.stderr.strip().splitlines()
     assert len(lines) == 1 and lines[0].startswith("riskshape: error: "), done.stderr
-    assert all(f in lines[0] for f in ("bad.csv", "line 6", "'CYN'", "'n/a?'")), lines[0]
+    assert all(f in lines[0] for f in ("bad.csv", "line 6", "'XQ03'", "'n/a?'")), lines[0]
     assert not out.exists()

@@ -23,15 +23,18 @@ from scipy.stats import spearmanr
 
 from riskshape import Config, monitor
 from riskshape.compute.distance import correlation_matrix
+from tests.kit.assets import codes
 
 WINDOW = 20
 COVERAGE = 0.9
+# invented codes: four steady assets, then one that lists late, one that delists, one with holes, one flat
+STEADY, (LATE, GONE, HOLE, FLAT) = codes(8)[:4], codes(8)[4:]
 
 
 @pytest.fixture
 def gappy_prices(rng: np.random.Generator) -> pd.DataFrame:
     """Eight fictional assets over 90 days: a late listing, a delisting, holes, a flat stretch."""
-    n_days, names = 90, ["AMB", "BIR", "CED", "DUN", "LATE", "GONE", "HOLE", "FLAT"]
+    n_days, names = 90, [*STEADY, LATE, GONE, HOLE, FLAT]
     factor = rng.normal(0.0, 0.01, (n_days, 1))
     returns = 0.6 * factor + rng.normal(0.0, 0.01, (n_days, len(names)))
     prices = pd.DataFrame(
@@ -72,10 +75,10 @@ def test_every_asset_is_used_or_left_out_with_its_reason(gappy_prices: pd.DataFr
         seen_reasons |= {r.split(" ")[0] for r in expected_out.values()}
     assert seen_reasons == {"coverage", "zero"}  # both reasons met
     # the late lister is left out first, then enters once it has enough history
-    late = result.left_out[result.left_out["asset"] == "LATE"]
+    late = result.left_out[result.left_out["asset"] == LATE]
     assert late["window_end"].max() < result.window_ends[-1]
-    assert "LATE" in result.assets(result.window_ends[-1])
-    assert "GONE" not in result.assets(result.window_ends[-1])
+    assert LATE in result.assets(result.window_ends[-1])
+    assert GONE not in result.assets(result.window_ends[-1])
 
 
 def test_log_and_simple_returns_match_pandas(gappy_prices: pd.DataFrame) -> None:
@@ -96,7 +99,7 @@ def test_log_and_simple_returns_match_pandas(gappy_prices: pd.DataFrame) -> None
 
 @pytest.mark.parametrize("returns", ["log", "simple"])
 def test_mean_correlation_matches_pandas_pearson(gappy_prices: pd.DataFrame, returns: str) -> None:
-    complete = gappy_prices[["AMB", "BIR", "CED", "DUN"]]
+    complete = gappy_prices[list(STEADY)]
     result = monitor(complete, Config(window=WINDOW, step=7, returns=returns, compute={"executor": "serial"}))
     reference = np.log(complete).diff() if returns == "log" else complete.pct_change(fill_method=None)
     for end in result.window_ends:
@@ -113,7 +116,7 @@ def test_spearman_is_pearson_on_ranks_as_in_scipy(rng: np.random.Generator) -> N
 
 
 def test_spearman_option_reaches_the_features_and_diagrams(gappy_prices: pd.DataFrame) -> None:
-    complete = gappy_prices[["AMB", "BIR", "CED", "DUN"]]
+    complete = gappy_prices[list(STEADY)]
     config = Config(window=WINDOW, step=9, correlation="spearman", maxdim=1, compute={"executor": "serial"})
     result = monitor(complete, config)
     reference = np.log(complete).diff()

@@ -16,13 +16,14 @@ from scipy.spatial.distance import pdist, squareform
 
 from riskshape import Config, monitor
 from riskshape.compute.summaries import landscape_norm
+from tests.kit.assets import codes
 
 
 def _prices(rng: np.random.Generator, n_days: int = 61, n_assets: int = 4, scale: float = 0.01) -> pd.DataFrame:
     returns = rng.normal(0.0, scale, size=(n_days - 1, n_assets))
     prices = 100.0 * np.exp(np.vstack([np.zeros(n_assets), np.cumsum(returns, axis=0)]))
     index = pd.bdate_range("2031-01-02", periods=n_days, name="date")
-    return pd.DataFrame(prices, index=index, columns=[f"PC{k}" for k in range(n_assets)])
+    return pd.DataFrame(prices, index=index, columns=list(codes(n_assets)))
 
 
 def _config(standardize: bool) -> Config:

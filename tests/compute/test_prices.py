@@ -32,18 +32,18 @@ def test_bad_input_is_rejected_with_a_message_that_says_where_and_how(bad_price_
 @pytest.mark.parametrize("fmt", ["csv", "parquet"])
 def test_good_file_reads_to_the_values_pandas_reads(price_files: Any, tmp_path: Path, fmt: str) -> None:
     table = price_files.table()
-    table.loc[3, "BRK"] = ""  # a missing price is normal
+    table.loc[3, "XQ02"] = ""  # a missing price is normal
     path = price_files.write(table, tmp_path / f"prices.{fmt}")
     prices = read_prices(path)
     assert isinstance(prices.index, pd.DatetimeIndex) and prices.index.is_monotonic_increasing
-    assert list(prices.columns) == ["ALD", "BRK", "CYN", "DOV"]
+    assert list(prices.columns) == ["XQ01", "XQ02", "XQ03", "XQ04"]
     if fmt == "csv":
         expected = pd.read_csv(path, index_col="date", parse_dates=["date"])
     else:
         expected = pd.read_parquet(path).set_index("date")
     np.testing.assert_array_equal(prices.to_numpy(), expected.to_numpy(dtype=float))
     assert (prices.index == pd.DatetimeIndex(expected.index)).all()
-    assert np.isnan(prices.iloc[3]["BRK"]) and prices.notna().sum().sum() == prices.size - 1
+    assert np.isnan(prices.iloc[3]["XQ02"]) and prices.notna().sum().sum() == prices.size - 1
 
 
 @pytest.mark.parametrize("fmt", ["csv", "parquet"])
@@ -59,22 +59,22 @@ def test_unsorted_dates_warn_and_are_sorted(price_files: Any, tmp_path: Path, fm
 @pytest.mark.parametrize("fmt", ["csv", "parquet"])
 def test_long_layout_equals_wide(price_files: Any, tmp_path: Path, fmt: str) -> None:
     wide_table = price_files.table()
-    wide_table.loc[2, "CYN"] = ""
-    wide_table.loc[0:4, "DOV"] = ""  # lists late
+    wide_table.loc[2, "XQ03"] = ""
+    wide_table.loc[0:4, "XQ04"] = ""  # lists late
     long_table = wide_table.melt(id_vars="date", var_name="asset", value_name="price")
     long_table = long_table[long_table["price"] != ""]  # a long table simply has no row for a missing price
     long_table = long_table.sample(frac=1.0, random_state=np.random.default_rng(4)).reset_index(drop=True)
     wide = read_prices(price_files.write(wide_table, tmp_path / f"wide.{fmt}"))
     long = read_prices(price_files.write(long_table, tmp_path / f"long.{fmt}"))
     pd.testing.assert_frame_equal(long, wide, check_exact=True)
-    assert wide["DOV"].isna().sum() == 5
+    assert wide["XQ04"].isna().sum() == 5
 
 
 def test_long_layout_rejects_a_second_price_for_the_same_day(price_files: Any, tmp_path: Path) -> None:
     long_table = price_files.table().melt(id_vars="date", var_name="asset", value_name="price")
     long_table = pd.concat([long_table, long_table.iloc[[7]].assign(price="55.5")], ignore_index=True)
     path = price_files.write(long_table, tmp_path / "long.csv")
-    with pytest.raises(DataError, match=rf"long\.csv: line {len(long_table) + 1}: asset 'ALD' has a second price"):
+    with pytest.raises(DataError, match=rf"long\.csv: line {len(long_table) + 1}: asset 'XQ01' has a second price"):
         read_prices(path)
 
 
@@ -102,14 +102,14 @@ def _frame(price_files: Any, n_rows: int = 30) -> pd.DataFrame:
     ("spoil", "fragments"),
     [
         (lambda f: f.iloc[:20], ("20 dates", "at least 21")),
-        (lambda f: f[["ALD", "BRK"]], ("2 asset column",)),
+        (lambda f: f[["XQ01", "XQ02"]], ("2 asset column",)),
         (
-            lambda f: f.assign(CYN=f["CYN"].where(f.index != f.index[5], 0.0)),
-            ("date 2031-01-09", "'CYN'", "not positive"),
+            lambda f: f.assign(XQ03=f["XQ03"].where(f.index != f.index[5], 0.0)),
+            ("date 2031-01-09", "'XQ03'", "not positive"),
         ),
         (
-            lambda f: f.assign(ALD=f["ALD"].where(f.index != f.index[8], np.inf)),
-            ("date 2031-01-14", "'ALD'", "infinite"),
+            lambda f: f.assign(XQ01=f["XQ01"].where(f.index != f.index[8], np.inf)),
+            ("date 2031-01-14", "'XQ01'", "infinite"),
         ),
     ],
     ids=["too-few-rows", "too-few-assets", "zero-price", "infinite"],
@@ -156,22 +156,22 @@ def _write_text(path: Path, header: str, n_rows: int = 5) -> Path:
 
 
 def test_csv_header_with_a_repeated_asset_is_rejected(tmp_path: Path) -> None:
-    """A repeated asset name must not be renamed behind the user's back (pandas would make it 'ALD.1')."""
-    path = _write_text(tmp_path / "twice.csv", "date,ALD,ALD,CYN")
-    with pytest.raises(DataError, match=r"twice\.csv: asset column 'ALD' appears twice"):
+    """A repeated asset name must not be renamed behind the user's back (pandas would make it 'XQ01.1')."""
+    path = _write_text(tmp_path / "twice.csv", "date,XQ01,XQ01,XQ03")
+    with pytest.raises(DataError, match=r"twice\.csv: asset column 'XQ01' appears twice"):
         read_prices(path)
 
 
 def test_csv_header_with_a_nameless_asset_is_rejected(tmp_path: Path) -> None:
     """A nameless column must not become an asset called 'Unnamed: 2'."""
-    path = _write_text(tmp_path / "nameless.csv", "date,ALD,,CYN")
+    path = _write_text(tmp_path / "nameless.csv", "date,XQ01,,XQ03")
     with pytest.raises(DataError, match=r"nameless\.csv: an asset column has no name"):
         read_prices(path)
 
 
 def test_unreadable_csv_message_is_one_line(tmp_path: Path) -> None:
     path = tmp_path / "ragged.csv"
-    path.write_text("date,ALD,BRK,CYN\n2031-01-02,1,2,3\n2031-01-03,1,2,3,4\n")
+    path.write_text("date,XQ01,XQ02,XQ03\n2031-01-02,1,2,3\n2031-01-03,1,2,3,4\n")
     with pytest.raises(DataError) as caught:
         read_prices(path)
     message = str(caught.value)
@@ -182,7 +182,7 @@ def test_unreadable_csv_message_is_one_line(tmp_path: Path) -> None:
 def test_long_layout_error_names_the_line_of_the_bad_price(price_files: Any, tmp_path: Path) -> None:
     """In a long file each price has its own line: the message must point at it (and the asset)."""
     long_table = price_files.table().melt(id_vars="date", var_name="asset", value_name="price")
-    bad_row = int(np.flatnonzero((long_table["asset"] == "CYN") & (long_table["date"] == "2031-01-09"))[0])
+    bad_row = int(np.flatnonzero((long_table["asset"] == "XQ03") & (long_table["date"] == "2031-01-09"))[0])
     for value, words in (("abc", "not a number"), ("0", "not positive"), ("inf", "infinite")):
         spoiled = long_table.copy()
         spoiled.loc[bad_row, "price"] = value
@@ -190,4 +190,4 @@ def test_long_layout_error_names_the_line_of_the_bad_price(price_files: Any, tmp
         with pytest.raises(DataError) as caught:
             read_prices(path)
         message = str(caught.value)
-        assert f"line {bad_row + 2} " in message and "CYN" in message and words in message, message
+        assert f"line {bad_row + 2} " in message and "XQ03" in message and words in message, message

@@ -11,17 +11,18 @@ from scipy.spatial.distance import squareform
 from riskshape import Config, DataError, monitor
 from riskshape.explain import explain_alert
 from riskshape.explain.clusters import choose_scale, clusters_at, match_clusters, merge_heights, top_pair_changes
+from tests.kit.assets import codes
 
-SECTORS = ("Alder", "Birch", "Cedar", "Dogwood")  # invented sector names
+SECTORS = ("XA", "XB", "XC", "XD")  # invented sectors, each named by its asset-code prefix
 PER_SECTOR = 6
 WINDOW = 80
 
 
 def merging_market(rng: np.random.Generator, merge_at: int, n_days: int) -> tuple[pd.DataFrame, dict[str, str]]:
-    """Four sectors of six assets, each driven by its own factor; from day ``merge_at`` on, Alder and
-    Birch also share a strong common factor (so their assets become correlated across the two sectors).
+    """Four sectors of six assets, each driven by its own factor; from day ``merge_at`` on, XA and
+    XB also share a strong common factor (so their assets become correlated across the two sectors).
     """
-    names = [f"{s[:3].upper()}{k + 1}" for s in SECTORS for k in range(PER_SECTOR)]
+    names = [name for s in SECTORS for name in codes(PER_SECTOR, prefix=s)]
     sector_of = np.repeat(np.arange(len(SECTORS)), PER_SECTOR)
     factors = rng.standard_normal((n_days, len(SECTORS)))
     shared = rng.standard_normal(n_days)
@@ -58,19 +59,19 @@ def test_first_window_after_the_merge_names_exactly_the_two_sectors(merged_run) 
     assert explanation.loops is None  # an H0 summary gets the cluster explanation only
     clusters = explanation.clusters
     assert clusters is not None
-    alder = tuple(a for a, s in sectors.items() if s == "Alder")
-    birch = tuple(a for a, s in sectors.items() if s == "Birch")
-    # ground truth by construction: the only change is Alder and Birch sharing a factor
+    first = tuple(a for a, s in sectors.items() if s == "XA")
+    second = tuple(a for a, s in sectors.items() if s == "XB")
+    # ground truth by construction: the only change is XA and XB sharing a factor
     assert len(clusters.events) == 1
     (event,) = clusters.merged
     assert event.kind == "merge"
-    assert set(event.before) == {alder, birch}
-    assert event.after == (alder + birch,)
+    assert set(event.before) == {first, second}
+    assert event.after == (first + second,)
     # before the merge the four sectors are the clusters at the stated scale
     assert set(clusters.clusters_before) == {tuple(a for a, s in sectors.items() if s == name) for name in SECTORS}
-    # the pairs whose correlation changed most are Alder-Birch pairs, and it rose
+    # the pairs whose correlation changed most are XA-XB pairs, and it rose
     for pair in clusters.pair_changes:
-        assert {sectors[pair.first], sectors[pair.second]} == {"Alder", "Birch"}
+        assert {sectors[pair.first], sectors[pair.second]} == {"XA", "XB"}
         assert pair.after - pair.before > 0.3
 
 
@@ -96,7 +97,7 @@ def test_clusters_at_agrees_with_scipy_fcluster(rng: np.random.Generator) -> Non
     # reference: scipy.cluster.hierarchy.fcluster on the same single-linkage tree (a partition check)
     points = rng.standard_normal((30, 3))
     distance = np.sqrt(((points[:, None] - points[None]) ** 2).sum(-1))
-    names = [f"P{i}" for i in range(30)]
+    names = list(codes(30))
     scale = float(np.median(merge_heights(distance)))
     ours = clusters_at(distance, names, scale)
     labels = fcluster(linkage(squareform(distance, checks=False), "single"), scale, "distance")

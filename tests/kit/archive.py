@@ -15,13 +15,14 @@ import sqlalchemy as sa
 from riskshape.alerts.model import Alert, Firing
 from riskshape.store import RunManifest, Store
 from riskshape.store.schema import APPEND_ONLY_TABLES
+from tests.kit.assets import ASSETS
 from tests.kit.postgres import PG_CONNINFO, PG_URL, postgres_unreachable  # noqa: F401 (re-exported)
 
 
 def walk_prices(
     rng: np.random.Generator,
     n_days: int = 30,
-    assets: tuple[str, ...] = ("AQA", "BRB", "CSC", "DTD"),
+    assets: tuple[str, ...] = ASSETS,
     start: str = "2030-01-01",
 ) -> pd.DataFrame:
     """Positive random-walk prices of fictional assets on business days."""

@@ -60,14 +60,14 @@ def test_malformed_json(client: TestClient, auth: Auth, portfolio: str) -> None:
 
 def test_json_that_does_not_fit_the_schema(client: TestClient, auth: Auth, portfolio: str) -> None:
     refused(
-        post_prices(client, auth, {"rows": [{"date": "2031-01-02", "asset": "A", "price": "abc"}]}),
+        post_prices(client, auth, {"rows": [{"date": "2031-01-02", "asset": "XQ01", "price": "abc"}]}),
         422,
         "body.rows.0.price",
         "'abc'",
     )
     refused(post_prices(client, auth, {"rows": [], "wide": []}), 422, "rows")
     refused(
-        post_prices(client, auth, {"wide": [{"date": "31/01/2031", "prices": {"A": 1.0}}]}), 422, "body.wide.0.date"
+        post_prices(client, auth, {"wide": [{"date": "31/01/2031", "prices": {"XQ01": 1.0}}]}), 422, "body.wide.0.date"
     )
 
 
@@ -142,8 +142,8 @@ def test_a_date_inside_the_history_and_an_unknown_asset(
 ) -> None:
     assert post_prices(client, auth, csv_body(scenario_prices.iloc[[0, 2]]), csv=True).status_code == 200
     refused(post_prices(client, auth, wide_rows(scenario_prices.iloc[[1]])), 422, "inside the archived history")
-    extra = scenario_prices.iloc[[3]].assign(NEWCO=10.0)
-    refused(post_prices(client, auth, wide_rows(extra)), 422, "'NEWCO'", "not one of")
+    extra = scenario_prices.iloc[[3]].assign(XQ99=10.0)
+    refused(post_prices(client, auth, wide_rows(extra)), 422, "'XQ99'", "not one of")
 
 
 def test_page_size_over_the_cap_is_422(client: TestClient, auth: Auth, portfolio: str) -> None:

@@ -84,7 +84,7 @@ def test_corrections_are_new_revisions_and_visible(store: Store, rng: np.random.
     second = store.create_run("Fund West", manifest(), revised)
     assert (second.prices_added, second.corrections_added) == (0, 2)
     corrections = store.list_corrections("Fund West")
-    assert [(c.asset, c.revision) for c in corrections] == [("AQA", 1), ("BRB", 1)]
+    assert [(c.asset, c.revision) for c in corrections] == [("XQ01", 1), ("XQ02", 1)]
     assert corrections[0].old_price == prices.iloc[5, 0] and corrections[0].new_price == revised.iloc[5, 0]
     assert corrections[1].old_price == prices.iloc[7, 1] and np.isnan(corrections[1].new_price)
     columns = list(prices.columns)
@@ -104,7 +104,7 @@ def test_bad_prices_are_refused_with_the_cell_named(store: Store, rng: np.random
     store.create_portfolio("Fund West")
     prices = walk_prices(rng)
     prices.iloc[2, 1] = -1.0
-    with pytest.raises(DataError, match="BRB"):
+    with pytest.raises(DataError, match="XQ02"):
         store.append_prices("Fund West", prices)
 
 

@@ -7,25 +7,47 @@ returns follow a factor model whose loadings switch between five regimes, each k
 2. ``build_up``: the common factor takes over step by step, sectors fade (clusters melt);
 3. ``stress``: the common factor dominates, volatility triples, prices fall (a drawdown);
 4. ``recovery``: sector structure returns, prices drift up;
-5. ``rewired``: assets are reassigned to new sectors, and the eight ``Lattice`` assets co-move
+5. ``rewired``: assets are reassigned to new sectors, and the eight ``Vorrel`` assets co-move
    in a ring (each shares one factor with each neighbour), which gives a loop (H1).
 
 A few gaps, a late listing and a delisting exercise the coverage policy. Everything is
 deterministic for a seed. The names, sectors and dates are invented.
+
+Asset codes are a two-letter prefix and two digits (``QY01``, ``QV08``): the digits keep a code
+from being read as a listed symbol, and the prefixes start with ``Q`` (the demo) or ``X`` (the
+tests' invented data), which no exchange we know of uses as a symbol root. One pattern,
+:data:`ASSET_CODE`, says what an invented code looks like; :func:`asset_codes` makes them.
 """
 
 from __future__ import annotations
 
+import re
 from dataclasses import dataclass
 
 import numpy as np
 import pandas as pd
 
+from riskshape.errors import ConfigError
 from riskshape.types import IntArray, Positions, PriceFrame, ReturnsBlock
 
-__all__ = ["Scenario", "generate_scenario", "SECTORS", "REGIME_DAYS"]
+__all__ = ["Scenario", "generate_scenario", "asset_codes", "SECTORS", "SECTOR_PREFIXES", "REGIME_DAYS", "ASSET_CODE"]
 
-SECTORS: tuple[str, ...] = ("Orchard", "Foundry", "Harbor", "Lattice", "Meadow", "Quarry")
+__all__ = ["Scenario", "generate_scenario", "asset_codes", "SECTORS", "SECTOR_PREFIXES", "REGIME_DAYS", "ASSET_CODE"]
+
+# Sector words coined for riskshape. From memory, none is a brand name in finance nor the name of
+# a listed company (no registry was consulted). Their code prefixes (Q + a letter) sort in the
+# same order as the sector list did before, so the asset columns keep their order, sorted or not.
+SECTORS: tuple[str, ...] = ("Yarrock", "Jorrin", "Kelvane", "Vorrel", "Wystle", "Zumbril")
+SECTOR_PREFIXES: dict[str, str] = {
+    "Yarrock": "QY",
+    "Jorrin": "QJ",
+    "Kelvane": "QK",
+    "Vorrel": "QV",
+    "Wystle": "QW",
+    "Zumbril": "QZ",
+}
+# An invented asset code: Q or X, one more capital letter, then two digits.
+ASSET_CODE: re.Pattern[str] = re.compile(r"[QX][A-Z][0-9]{2}")
 REGIME_DAYS: tuple[tuple[str, int], ...] = (
     ("calm", 500),
     ("build_up", 120),
@@ -41,7 +63,7 @@ _LOADINGS: dict[str, tuple[float, float, float, float, float, float]] = {
     "recovery": (0.40, 0.40, 0.65, 0.65, 0.012, 0.0010),
     "rewired": (0.35, 0.35, 0.70, 0.70, 0.010, 0.0003),
 }
-_RING_SECTOR = "Lattice"
+_RING_SECTOR = "Vorrel"
 _START = "2031-01-02"
 
 
@@ -109,7 +131,7 @@ def generate_scenario(seed: int = 7, n_days: int | None = None, assets_per_secto
     """
     rng = np.random.default_rng(seed)
     n_sectors = len(SECTORS)
-    assets = [f"{sector[:3].upper()}{k + 1:02d}" for sector in SECTORS for k in range(assets_per_sector)]
+    assets = [code for sector in SECTORS for code in asset_codes(SECTOR_PREFIXES[sector], assets_per_sector)]
     sector_of = np.repeat(np.arange(n_sectors), assets_per_sector)
     rewired_of = _rewire(sector_of, rng)
     ring_members = np.flatnonzero(sector_of == SECTORS.index(_RING_SECTOR))
@@ -143,6 +165,38 @@ def generate_scenario(seed: int = 7, n_days: int | None = None, assets_per_secto
         ring=ring,
         seed=seed,
     )
+
+
+def asset_codes(prefix: str, n: int) -> tuple[str, ...]:
+    """Invented asset codes ``<prefix>01`` to ``<prefix><n>``, each checked against :data:`ASSET_CODE`.
+
+    Parameters
+    ----------
+    prefix : str
+        Two capital letters, the first ``Q`` (the demo) or ``X`` (the tests' invented data).
+    n : int
+        How many codes (1 to 99).
+
+    Returns
+    -------
+    tuple of str
+
+    Raises
+    ------
+    riskshape.errors.ConfigError
+        If a code would not match :data:`ASSET_CODE` (a bad prefix, or ``n`` outside 1..99).
+
+    Examples
+    --------
+    >>> asset_codes("XQ", 3)
+    ('XQ01', 'XQ02', 'XQ03')
+    """
+    if not 1 <= n <= 99:
+        raise ConfigError(f"asset_codes: n must be 1 to 99 (two digits), got {n!r}")
+    codes = tuple(f"{prefix}{k:02d}" for k in range(1, n + 1))
+    if not ASSET_CODE.fullmatch(codes[0]):
+        raise ConfigError(f"asset_codes: prefix must be Q or X then a capital letter (e.g. 'XQ'), got {prefix!r}")
+    return codes
 
 
 def _rewire(sector_of: IntArray, rng: np.random.Generator) -> IntArray:

@@ -3,7 +3,9 @@
 Every function takes ``ax=None`` (a new figure is made, on the Agg canvas, when none is given)
 and returns the Axes it drew on (or the Figure, for multi-panel plots). Every figure carries
 :data:`riskshape.caution.CAUTION_SHORT` in small print (:func:`add_caution`, called by each
-function); :func:`save_figure` writes PNG and SVG.
+function); :func:`save_figure` writes PNG and SVG. Colours, markers and line styles come from
+:mod:`riskshape.outputs.palette` only, and every series differs from the others on its axes by
+marker or line style as well as colour.
 """
 
 from __future__ import annotations
@@ -26,6 +28,7 @@ from riskshape.alerts.model import Firing
 from riskshape.caution import CAUTION_SHORT
 from riskshape.compute.distance import correlation_to_distance
 from riskshape.compute.monitor import MonitorResult
+from riskshape.outputs import palette
 from riskshape.research.events import DrawdownEvents
 from riskshape.types import CorrelationMatrix, Diagram, FloatArray
 
@@ -45,7 +48,6 @@ __all__ = [
 ]
 
 _CAUTION_GID = "riskshape-caution"
-_DIM_COLORS = ("tab:blue", "tab:orange", "tab:green")
 _FigureT = TypeVar("_FigureT", bound="Figure | SubFigure")
 
 
@@ -61,7 +63,9 @@ def add_caution(fig: _FigureT) -> _FigureT:
         engine = fig.get_layout_engine()
         if isinstance(engine, ConstrainedLayoutEngine):
             engine.set(rect=(0.0, 0.025, 1.0, 0.975))  # keep the small print clear of the axes
-        fig.text(0.995, 0.005, CAUTION_SHORT, ha="right", va="bottom", fontsize=6, color="0.35", gid=_CAUTION_GID)
+        fig.text(
+            0.995, 0.005, CAUTION_SHORT, ha="right", va="bottom", fontsize=6, color=palette.MUTED_INK, gid=_CAUTION_GID
+        )
     return fig
 
 
@@ -113,11 +117,13 @@ def plot_summary(
     Parameters
     ----------
     series : pandas.Series
-        Indexed by window end.
+        Indexed by window end; drawn in its dimension's style (``h0_...``, ``h1_...``), or the
+        baseline style for other summaries (:func:`riskshape.outputs.palette.summary_mark`).
     alerts : sequence of Firing or DatetimeIndex, optional
-        Alert dates, drawn as red triangles on the series.
+        Alerts on the series. Firings are marked by severity (a colour, a shape and the word in the
+        legend) with the threshold in force beside each; bare dates get the one alert mark.
     events : DrawdownEvents, optional
-        Shaded red from start to trough.
+        Shaded pale red and hatched from start to trough.
     regimes : pandas.DataFrame, optional
         Columns ``name``, ``start``, ``end`` (e.g. ``Scenario.regimes``): alternately shaded grey,
         with their names on top.
@@ -127,19 +133,75 @@ def plot_summary(
     if regimes is not None:
         for i, row in enumerate(regimes.itertuples(index=False)):
             if i % 2:
-                ax.axvspan(row.start, row.end, color="0.9", zorder=0)
-            ax.text(row.start, 1.0, f" {row.name}", transform=ax.get_xaxis_transform(), fontsize=7, va="top")
+                ax.axvspan(row.start, row.end, color=palette.REGIME_FILL, zorder=0)
+            ax.text(
+                row.start,
+                1.0,
+                f" {row.name}",
+                transform=ax.get_xaxis_transform(),
+                fontsize=7,
+                va="top",
+                color=palette.INK,
+            )
     if events is not None:
         for i, row in enumerate(events.table.itertuples(index=False)):
-            ax.axvspan(row.start, row.trough, color="tab:red", alpha=0.15, zorder=0, label="event" if i == 0 else None)
-    ax.plot(series.index, series.to_numpy(dtype=float), lw=1.0, color="tab:blue", label=str(series.name))
-    dates = _alert_dates(alerts)
-    dates = dates[dates.isin(series.index)]
-    if len(dates):
-        ax.plot(dates, series.loc[dates].to_numpy(dtype=float), "v", color="tab:red", ms=6, label="alert")
+            ax.axvspan(
+                row.start,
+                row.trough,
+                facecolor=palette.EVENT_FILL,
+                edgecolor=palette.ALERT.color,
+                hatch=palette.EVENT_HATCH,
+                linewidth=0.0,
+                zorder=0,
+                label="event" if i == 0 else None,
+            )
+    line = palette.summary_mark(str(series.name))
+    ax.plot(
+        series.index,
+        series.to_numpy(dtype=float),
+        lw=1.0,
+        color=line.color,
+        linestyle=line.linestyle,
+        label=str(series.name),
+    )
+    _mark_alerts(ax, series, alerts)
     ax.set_ylabel(str(series.name))
     ax.legend(loc="upper left", fontsize=7, frameon=False)
     return ax
+
+
+def _mark_alerts(ax: Axes, series: pd.Series, alerts: Sequence[Firing] | pd.DatetimeIndex | None) -> None:
+    """Alert marks on ``series``: one per severity (and the thresholds) for firings, one kind for dates."""
+    if alerts is None or isinstance(alerts, pd.DatetimeIndex):
+        dates = _alert_dates(alerts)
+        dates = dates[dates.isin(series.index)]
+        if len(dates):
+            _plot_marks(ax, dates, series.loc[dates].to_numpy(dtype=float), palette.ALERT, "alert")
+        return
+    shown = [f for f in alerts if f.window_end in series.index]
+    for severity in palette.SEVERITIES:
+        chosen = [f for f in shown if f.severity == severity]
+        if chosen:
+            dates = pd.DatetimeIndex([f.window_end for f in chosen])
+            mark = palette.severity_mark(severity)
+            _plot_marks(ax, dates, series.loc[dates].to_numpy(dtype=float), mark, f"alert: {mark.label}")
+    if shown:
+        dates = pd.DatetimeIndex([f.window_end for f in shown])
+        _plot_marks(ax, dates, np.array([f.threshold for f in shown], dtype=float), palette.THRESHOLD, "threshold")
+
+
+def _plot_marks(ax: Axes, x: pd.DatetimeIndex, y: np.ndarray, mark: palette.Mark, label: str) -> None:
+    ax.plot(
+        x,
+        y,
+        linestyle="",
+        marker=mark.marker,
+        color=mark.color,
+        markeredgecolor=palette.INK if mark.marker != "_" else mark.color,
+        markeredgewidth=0.6 if mark.marker != "_" else 1.5,
+        ms=7,
+        label=label,
+    )
 
 
 def plot_summaries(
@@ -163,12 +225,22 @@ def plot_summaries(
 
 
 def plot_diagram(diagrams: Sequence[Diagram], *, ax: Axes | None = None) -> Axes:
-    """Persistence diagram: (birth, death) of each finite bar, one colour per dimension."""
+    """Persistence diagram: (birth, death) of each finite bar, one colour and marker per dimension."""
     ax = new_axes(ax, (4.5, 4.5))
     top = max([float(d[:, 1].max()) for d in diagrams if len(d)] or [1.0])
     for k, dgm in enumerate(diagrams):
-        ax.scatter(dgm[:, 0], dgm[:, 1], s=12, color=_DIM_COLORS[k % 3], label=f"H{k} ({len(dgm)})")
-    ax.plot([0, top * 1.05], [0, top * 1.05], color="0.5", lw=0.8)
+        mark = palette.dimension_mark(k)
+        ax.scatter(
+            dgm[:, 0],
+            dgm[:, 1],
+            s=14,
+            color=mark.color,
+            marker=mark.marker,
+            edgecolors=palette.INK,
+            linewidths=0.3,
+            label=f"{mark.label} ({len(dgm)})",
+        )
+    ax.plot([0, top * 1.05], [0, top * 1.05], color=palette.RULE, lw=0.8)
     ax.set_xlabel("birth")
     ax.set_ylabel("death")
     ax.legend(fontsize=7, frameon=False, loc="lower right")
@@ -176,14 +248,16 @@ def plot_diagram(diagrams: Sequence[Diagram], *, ax: Axes | None = None) -> Axes
 
 
 def plot_barcode(diagrams: Sequence[Diagram], *, ax: Axes | None = None) -> Axes:
-    """Barcode: one horizontal bar per finite bar, grouped by dimension, longest first."""
+    """Barcode: one horizontal bar per finite bar, grouped by dimension (colour and line style), longest first."""
     ax = new_axes(ax, (5.0, 4.5))
     y = 0
     for k, dgm in enumerate(diagrams):
         order = np.argsort(dgm[:, 0] - dgm[:, 1]) if len(dgm) else np.empty(0, dtype=np.intp)
         for i, j in enumerate(order):
             # "" (hlines' default) keeps all but the first bar of a dimension out of the legend
-            ax.hlines(y, dgm[j, 0], dgm[j, 1], color=_DIM_COLORS[k % 3], lw=1.5, label=f"H{k}" if i == 0 else "")
+            mark = palette.dimension_mark(k)
+            label = mark.label if i == 0 else ""
+            ax.hlines(y, dgm[j, 0], dgm[j, 1], color=mark.color, linestyles=mark.linestyle, lw=1.5, label=label)
             y += 1
         y += 2
     ax.set_yticks([])
@@ -195,16 +269,31 @@ def plot_barcode(diagrams: Sequence[Diagram], *, ax: Axes | None = None) -> Axes
 def plot_landscape(
     dgm: Diagram, *, dim: int = 1, layers: int = 5, num_steps: int = 500, ax: Axes | None = None
 ) -> Axes:
-    """First ``layers`` layers of the persistence landscape of one diagram (persim's PersLandscapeApprox)."""
+    """First ``layers`` layers of the persistence landscape of one diagram (persim's PersLandscapeApprox).
+
+    The layers are drawn in the dimension's colour, each with its own line style (and marker).
+    """
     ax = new_axes(ax)
     if len(dgm) == 0:
-        ax.text(0.5, 0.5, f"H{dim}: no bars", ha="center", transform=ax.transAxes)
+        ax.text(0.5, 0.5, f"H{dim}: no bars", ha="center", transform=ax.transAxes, color=palette.INK)
         return ax
+    colour = palette.dimension_mark(dim).color
     start, stop = float(dgm[:, 0].min()), float(dgm[:, 1].max())
     land = PersLandscapeApprox(start=start, stop=stop, num_steps=num_steps, dgms=[dgm], hom_deg=0)
     grid = np.linspace(start, stop, num_steps)
     for k, values in enumerate(np.atleast_2d(land.values)[:layers]):
-        ax.plot(grid, values, lw=1.0, label=f"lambda_{k + 1}")
+        linestyle, marker = palette.layer_style(k)
+        ax.plot(
+            grid,
+            values,
+            lw=1.0,
+            color=colour,
+            linestyle=linestyle,
+            marker=marker or "None",
+            markevery=max(1, num_steps // 12),
+            ms=3,
+            label=f"lambda_{k + 1}",
+        )
     ax.set_xlabel("filtration value")
     ax.set_ylabel(f"H{dim} landscape")
     ax.legend(fontsize=7, frameon=False)
@@ -218,7 +307,14 @@ def _single_linkage(corr: CorrelationMatrix) -> FloatArray:
 def plot_dendrogram(corr: CorrelationMatrix, labels: Sequence[str], *, ax: Axes | None = None) -> Axes:
     """Single-linkage dendrogram of the assets on d = sqrt(2 (1 - rho)) (scipy)."""
     ax = new_axes(ax, (8.0, 4.0))
-    dendrogram(_single_linkage(corr), labels=list(labels), ax=ax, leaf_font_size=6, color_threshold=0)
+    dendrogram(
+        _single_linkage(corr),
+        labels=list(labels),
+        ax=ax,
+        leaf_font_size=6,
+        color_threshold=0,
+        above_threshold_color=palette.INK,
+    )
     ax.set_ylabel("merge distance (H0 death)")
     return ax
 
@@ -227,7 +323,7 @@ def plot_correlation_heatmap(corr: CorrelationMatrix, labels: Sequence[str], *, 
     """Correlation matrix with rows and columns in the single-linkage dendrogram's leaf order."""
     ax = new_axes(ax, (6.0, 5.0))
     order = leaves_list(_single_linkage(corr)) if len(labels) > 1 else np.arange(len(labels))
-    image = ax.imshow(corr[np.ix_(order, order)], vmin=-1.0, vmax=1.0, cmap="RdBu_r")
+    image = ax.imshow(corr[np.ix_(order, order)], vmin=-1.0, vmax=1.0, cmap=palette.diverging_colormap())
     names = [labels[int(i)] for i in order]
     ax.set_xticks(range(len(names)), names, rotation=90, fontsize=5)
     ax.set_yticks(range(len(names)), names, fontsize=5)
@@ -254,5 +350,5 @@ def plot_window(result: MonitorResult, window_end: object) -> Figure:
     plot_landscape(diagrams[dim], dim=dim, ax=fig.add_subplot(grid[0, 2]))
     plot_dendrogram(corr, labels, ax=fig.add_subplot(grid[1, :2]))
     plot_correlation_heatmap(corr, labels, ax=fig.add_subplot(grid[1, 2]))
-    fig.suptitle(f"window ending {pd.Timestamp(window_end).date()} ({len(labels)} assets)")
+    fig.suptitle(f"window ending {pd.Timestamp(window_end).date()} ({len(labels)} assets)", color=palette.INK)
     return add_caution(fig)

@@ -30,6 +30,7 @@ from riskshape.archive import recompute_run
 from riskshape.caution import CAUTION
 from riskshape.errors import ConfigError, RiskshapeError, StoreError
 from riskshape.explain import Explanation, explain_alert
+from riskshape.outputs import palette
 from riskshape.store import AlertRecord, ReviewRecord, Run, Store, VerifyReport, verify_chain
 from riskshape.store.ledger import to_date
 
@@ -226,15 +227,20 @@ def _e(value: object) -> str:
     return html.escape(str(value), quote=True)
 
 
-_STYLE = """
+# colours from the one palette (riskshape.outputs.palette), as CSS custom properties
+_STYLE = (
+    palette.css()
+    + """
 @page{size:A4;margin:1.5cm}td{overflow-wrap:anywhere}
-body{font-family:sans-serif;margin:2em;color:#222;max-width:70em}
-h1{font-size:1.5em}h2{font-size:1.2em;border-bottom:1px solid #999;margin-top:2em}
-table{border-collapse:collapse;margin:.5em 0}td,th{border:1px solid #bbb;padding:.2em .5em;text-align:left;
-vertical-align:top;font-size:.9em}th{background:#eee}.caution{border:2px solid #a33;padding:.6em;background:#fff4f4}
-.ok{color:#161}.bad{color:#a11;font-weight:bold}pre{background:#f6f6f6;padding:.5em;white-space:pre-wrap;
-font-size:.85em}img{max-width:100%}code{font-size:.9em}
+body{font-family:sans-serif;margin:2em;color:var(--rs-ink);max-width:70em}
+h1{font-size:1.5em}h2{font-size:1.2em;border-bottom:1px solid var(--rs-rule);margin-top:2em}
+table{border-collapse:collapse;margin:.5em 0}td,th{border:1px solid var(--rs-faint);padding:.2em .5em;text-align:left;
+vertical-align:top;font-size:.9em}th{background:var(--rs-header-fill)}
+.caution{border:2px solid var(--rs-caution-edge);padding:.6em;background:var(--rs-caution-fill)}
+.ok{color:var(--rs-good)}.bad{color:var(--rs-bad);font-weight:bold}pre{background:var(--rs-code-fill);padding:.5em;
+white-space:pre-wrap;font-size:.85em}img{max-width:100%}code{font-size:.9em}
 """
+)
 
 
 def _alert_html(item: ReportedAlert) -> str:

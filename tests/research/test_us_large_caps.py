@@ -1,7 +1,8 @@
 """A real market: calm (2005-2006) against stress (September to November 2008).
 
-Data: skfolio's ``load_sp500_dataset`` (daily prices of 20 large US stocks, 1990-2022), shipped
-inside the skfolio wheel (test extra), read offline.
+Data: the open dataset of daily prices of 20 large US stocks, 1990-2022, that the skfolio package
+ships inside its wheel (test extra), loaded with ``skfolio.datasets.load_sp500_dataset`` and read
+offline. 20 stocks, not an index.
 
 What the literature reports, and what is checked:
 
@@ -27,7 +28,9 @@ from riskshape.compute.distance import correlation_matrix, correlation_to_distan
 from riskshape.compute.windows import select_assets
 from riskshape.research.baselines import compute_baselines
 
-datasets = pytest.importorskip("skfolio.datasets", reason="skfolio (test extra) carries the S&P 500 dataset")
+datasets = pytest.importorskip(
+    "skfolio.datasets", reason="skfolio (test extra) ships the 20 US large-cap stocks dataset"
+)
 
 CONFIG = Config(window=60, step=5, maxdim=0, compute={"executor": "serial"})
 
