@@ -8,9 +8,16 @@ Accepted layouts (CSV or Parquet):
 Validation rejects, with a message naming the file, the line or date, the column and the fix:
 unparseable dates, duplicate dates, non-numeric cells, zero or negative prices, infinite
 values, duplicate asset names, fewer than 3 assets, and (given ``min_rows``) fewer rows than
-one window needs. Unsorted dates are sorted with a :class:`~riskshape.errors.DataQualityWarning`.
+one window needs, asset names longer than 200 characters. Unsorted dates are sorted with a
+:class:`~riskshape.errors.DataQualityWarning`.
 Empty cells are missing prices, which are normal (late listings, delistings, holidays): the
 window policy in :mod:`riskshape.compute.windows` decides who enters each window.
+
+Validation happens once: :func:`validate_prices` (and :func:`read_prices`) return a
+:class:`ValidPrices`, a DataFrame whose type says it passed, and what takes prices
+(``monitor``, ``MonitorResult.update``, ``Store.append_prices``) does not check it again. Any
+operation that makes a new frame (a slice, arithmetic, ``concat``) gives a plain DataFrame,
+which is checked again where it enters.
 """
 
 from __future__ import annotations
@@ -28,13 +35,54 @@ import pandas as pd
 from riskshape.errors import DataError, DataQualityWarning
 from riskshape.types import FloatArray, IntArray
 
-__all__ = ["read_prices", "validate_prices", "csv_table", "hash_prices", "MIN_ASSETS"]
+__all__ = [
+    "read_prices",
+    "validate_prices",
+    "ValidPrices",
+    "ensure_valid",
+    "csv_table",
+    "hash_prices",
+    "MIN_ASSETS",
+    "MAX_NAME",
+]
 
 MIN_ASSETS = 3
+MAX_NAME = 200
+"""The longest asset name accepted (the archive's column width)."""
 _MISSING = {"", "na", "nan", "null", "none", "n/a", "#n/a"}
 
 
-def read_prices(source: str | os.PathLike[str], min_rows: int = 2) -> pd.DataFrame:
+class ValidPrices(pd.DataFrame):  # type: ignore[misc]  # pandas has no type information here
+    """Wide prices that passed :func:`validate_prices`: the type says so.
+
+    A ``DatetimeIndex`` named ``date`` (sorted, unique), one float64 column per asset (names
+    unique, non-empty, at most :data:`MAX_NAME` characters), every price positive and finite or
+    NaN (missing). It is an ordinary DataFrame in every other respect; treat it as read-only.
+    Operations that build a new frame return a plain ``pandas.DataFrame`` (pandas' default for a
+    subclass that does not set ``_constructor``), so a changed table is never taken for a
+    validated one.
+
+    Examples
+    --------
+    >>> table = pd.DataFrame({"date": ["2031-01-02", "2031-01-03"], "QA01": [10.0, 10.5],
+    ...                       "QA02": [20.0, 19.8], "QA03": [5.0, 5.1]})
+    >>> prices = validate_prices(table)
+    >>> isinstance(prices, ValidPrices), isinstance(prices.iloc[:1], ValidPrices)
+    (True, False)
+    """
+
+    @classmethod
+    def of_validated_parts(cls, frame: pd.DataFrame) -> ValidPrices:
+        """Mark as validated a table assembled only from validated prices (no check is made).
+
+        For tables built inside riskshape from pieces that each passed :func:`validate_prices` (the
+        archive's prices and a validated request, say), reindexed or concatenated without changing
+        a value. Anything else goes through :func:`validate_prices`.
+        """
+        return cls(frame)
+
+
+def read_prices(source: str | os.PathLike[str], min_rows: int = 2) -> ValidPrices:
     """Read and validate a price file.
 
     Parameters
@@ -46,7 +94,7 @@ def read_prices(source: str | os.PathLike[str], min_rows: int = 2) -> pd.DataFra
 
     Returns
     -------
-    pandas.DataFrame
+    ValidPrices
         Wide prices: sorted ``DatetimeIndex`` named ``date``, one float64 column per asset,
         NaN where a price is missing.
 
@@ -99,7 +147,7 @@ def validate_prices(
     min_rows: int = 2,
     first_line: int = 1,
     row_label: str = "row",
-) -> pd.DataFrame:
+) -> ValidPrices:
     """Validate a price table in any accepted layout and return it wide.
 
     A wide DataFrame that already has a ``DatetimeIndex`` (the notebook case) is accepted as it
@@ -118,7 +166,7 @@ def validate_prices(
 
     Returns
     -------
-    pandas.DataFrame
+    ValidPrices
         Wide, sorted, float64 prices indexed by ``date``.
 
     Raises
@@ -137,6 +185,11 @@ def validate_prices(
     empty = [c for c in frame.columns if not str(c).strip()]
     if empty:
         raise DataError(f"{source}: an asset column has no name; name every column in the header")
+    long_names = [str(c) for c in frame.columns if len(str(c)) > MAX_NAME]
+    if long_names:
+        raise DataError(
+            f"{source}: asset name {long_names[0][:40]!r}... is longer than {MAX_NAME} characters; shorten it"
+        )
     if frame.shape[1] < MIN_ASSETS:
         raise DataError(
             f"{source}: {frame.shape[1]} asset column(s) found, at least {MIN_ASSETS} are needed "
@@ -158,7 +211,7 @@ def validate_prices(
         for j, column in enumerate(frame.columns):
             values[:, j] = _parse_prices(frame[column], where_in(str(column)))
 
-    result = pd.DataFrame(values, index=pd.DatetimeIndex(dates, name="date"), columns=[str(c) for c in frame.columns])
+    result = ValidPrices(values, index=pd.DatetimeIndex(dates, name="date"), columns=[str(c) for c in frame.columns])
     result.columns.name = "asset"
     if len(result) < min_rows:
         raise DataError(
@@ -166,6 +219,38 @@ def validate_prices(
             "(window + 1 prices); give a longer history or a shorter window"
         )
     return result
+
+
+def ensure_valid(prices: pd.DataFrame, source: str = "prices", min_rows: int = 2) -> ValidPrices:
+    """Prices as :class:`ValidPrices`: validated once, and not again when they already are.
+
+    Parameters
+    ----------
+    prices : pandas.DataFrame
+        A :class:`ValidPrices` (only its number of dates is checked), or any table
+        :func:`validate_prices` accepts.
+    source : str
+        Name used in messages.
+    min_rows : int
+        The fewest dates the caller needs.
+
+    Returns
+    -------
+    ValidPrices
+
+    Raises
+    ------
+    DataError
+        If the table fails validation or has fewer than ``min_rows`` dates.
+    """
+    if not isinstance(prices, ValidPrices):
+        return validate_prices(prices, source=source, min_rows=min_rows)
+    if len(prices) < min_rows:
+        raise DataError(
+            f"{source}: {len(prices)} dates, but one window needs at least {min_rows} "
+            "(window + 1 prices); give a longer history or a shorter window"
+        )
+    return prices
 
 
 def hash_prices(prices: pd.DataFrame) -> str:

@@ -29,7 +29,7 @@ from riskshape.compute.window_view import Window, open_window
 from riskshape.compute.windows import window_end_positions, window_rows
 from riskshape.config import Config
 from riskshape.errors import DataError
-from riskshape.prices import hash_prices, validate_prices
+from riskshape.prices import ValidPrices, ensure_valid, hash_prices
 from riskshape.types import Diagram, Diagrams, FloatArray, Positions
 
 __all__ = ["monitor", "MonitorResult", "feature_columns"]
@@ -167,7 +167,7 @@ class MonitorResult:
         DataError
             If assets differ, or a date already held comes with a different price.
         """
-        new = validate_prices(more_prices, source="new prices", min_rows=1)
+        new = ensure_valid(more_prices, source="new prices", min_rows=1)
         if list(new.columns) != list(self.prices.columns):
             raise DataError(
                 f"new prices: assets {list(new.columns)} differ from the monitored assets "
@@ -187,7 +187,7 @@ class MonitorResult:
                 f"new prices: date {fresh.index[0].date()} falls inside the history already held; "
                 "only days after the last one can be added"
             )
-        prices = pd.concat([self.prices, fresh])
+        prices = ValidPrices.of_validated_parts(pd.concat([self.prices, fresh]))
         returns = to_returns(prices, self.config.returns)
         ends = window_end_positions(len(returns), self.config.window, self.config.step)
         new_ends = ends[len(self.windows) :]
@@ -233,7 +233,7 @@ def monitor(prices: pd.DataFrame, config: Config | None = None, *, progress: Pro
     ['n_assets', 'n_left_out', 'mean_correlation']
     """
     config = config or Config()
-    valid = validate_prices(prices, source="prices", min_rows=config.window + 1)
+    valid = ensure_valid(prices, source="prices", min_rows=config.window + 1)
     returns = to_returns(valid, config.returns)
     ends = window_end_positions(len(returns), config.window, config.step)
     windows = _compute_windows(returns.to_numpy(), ends, config, None, progress)

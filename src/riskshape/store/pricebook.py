@@ -16,8 +16,7 @@ import pandas as pd
 import sqlalchemy as sa
 from sqlalchemy.engine import Connection
 
-from riskshape.errors import DataError
-from riskshape.prices import validate_prices
+from riskshape.prices import ValidPrices, ensure_valid
 from riskshape.store import schema as t
 from riskshape.store.records import PriceCorrection, PriceWrite
 
@@ -93,15 +92,9 @@ def _latest(
     return table.drop_duplicates(["date", "asset"], keep="last")
 
 
-def validated(prices: pd.DataFrame, source: str) -> pd.DataFrame:
-    """The table through :func:`riskshape.prices.validate_prices` (raises :class:`DataError`), with asset
-    names of at most 200 characters.
-    """
-    valid = validate_prices(prices, source=source, min_rows=1)
-    long_names = [c for c in valid.columns if len(c) > 200]
-    if long_names:
-        raise DataError(f"{source}: asset name {long_names[0][:40]!r}... is longer than 200 characters; shorten it")
-    return valid
+def validated(prices: pd.DataFrame, source: str) -> ValidPrices:
+    """The table as :class:`riskshape.prices.ValidPrices` (checked only if it is not one already)."""
+    return ensure_valid(prices, source=source, min_rows=1)
 
 
 def append_prices(connection: Connection, portfolio_id: int, valid: pd.DataFrame, now: datetime) -> PriceWrite:
