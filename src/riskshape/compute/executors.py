@@ -16,7 +16,7 @@ from __future__ import annotations
 import multiprocessing
 import os
 import threading
-from collections.abc import Callable, Iterable, Iterator, Sequence
+from collections.abc import Callable, Iterator, Sequence
 from concurrent.futures import ProcessPoolExecutor
 from contextlib import AbstractContextManager, nullcontext
 from typing import Any, Protocol, TypeVar
@@ -234,8 +234,3 @@ def make_executor(compute: ComputeConfig, n_jobs: int, preload: Callable[[], Non
         return SerialExecutor()
     return ProcessExecutor(workers, preload=preload)
 
-
-def chunk(items: Sequence[T], size: int) -> Iterable[Sequence[T]]:
-    """Consecutive slices of ``items`` of at most ``size``."""
-    for start in range(0, len(items), size):
-        yield items[start : start + size]
