@@ -7,7 +7,8 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-from riskshape.config import Config, ServiceSettings
+from riskshape import Config
+from riskshape.config import ServiceSettings
 from riskshape.store import Store
 from riskshape_service.ingest import Ingestor
 from riskshape_service.metrics import ServiceMetrics

@@ -6,7 +6,7 @@ from typing import Annotated, Literal
 from fastapi import APIRouter, Path, Query
 
 from riskshape.config import ServiceSettings
-from riskshape.explain.archived import explanation_object, explanation_text
+from riskshape.explain import explanation_object, explanation_text
 from riskshape_service.convert import alert_out, provenance_out, review_out
 from riskshape_service.deps import ReaderDep, StoreDep
 from riskshape_service.routers import API_PREFIX, MAX_ID, errors

@@ -10,7 +10,7 @@ from fastapi.responses import Response
 from starlette.concurrency import run_in_threadpool
 
 from riskshape.config import ServiceSettings
-from riskshape.outputs.export import export_alerts
+from riskshape.outputs import export_alerts
 from riskshape_service.deps import ReviewerDep, StoreDep
 from riskshape_service.routers import API_PREFIX, errors
 

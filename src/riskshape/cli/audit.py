@@ -4,8 +4,7 @@ from __future__ import annotations
 
 import click
 
-from riskshape.caution import CAUTION
-from riskshape.config import ComputeConfig, store_url_from_env
+from riskshape import CAUTION, ComputeConfig, store_url_from_env
 from riskshape.store import chain_head, open_store, verify_chain
 
 __all__ = ["audit", "STORE_OPTION"]
@@ -77,7 +76,7 @@ def head(store_url: str) -> None:
 )
 def reproduce(alert_id: int, store_url: str, executor: str) -> None:
     """Recompute ALERT_ID from the archived prices and configuration; exit 1 unless it is confirmed."""
-    from riskshape.archive import reproduce_alert  # the engine loads only for this command
+    from riskshape import reproduce_alert  # the engine loads only for this command
 
     click.echo(CAUTION)
     with open_store(store_url, create=False) as store:

@@ -8,12 +8,13 @@
 from __future__ import annotations
 
 import json
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
-from riskshape.alerts.model import Firing
-from riskshape.compute.monitor import MonitorResult
-from riskshape.explain.attach import explain_alert
 from riskshape.explain.model import Explanation
+
+if TYPE_CHECKING:  # reading an archived explanation needs neither the monitor nor scipy
+    from riskshape.alerts.model import Firing
+    from riskshape.compute.monitor import MonitorResult
 
 __all__ = ["explanation_json", "explanation_text", "explanation_object", "NO_EXPLANATION"]
 
@@ -35,6 +36,8 @@ def explanation_json(result: MonitorResult, firing: Firing) -> str:
     str
         :meth:`Explanation.to_json` of :func:`explain_alert` with the default settings.
     """
+    from riskshape.explain.attach import explain_alert
+
     return explain_alert(result, firing.window_end, firing.summary).to_json()
 
 
