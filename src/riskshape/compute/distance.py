@@ -41,6 +41,16 @@ def correlation_matrix(block: np.ndarray, method: Literal["pearson", "spearman"]
 def correlation_to_distance(corr: np.ndarray) -> np.ndarray:
     """Mantegna's correlation distance sqrt(2 (1 - rho)), clipped to [0, 2], zero diagonal.
 
+    Parameters
+    ----------
+    corr : numpy.ndarray
+        A square correlation matrix.
+
+    Returns
+    -------
+    numpy.ndarray
+        The distance matrix, same shape.
+
     Examples
     --------
     >>> import numpy as np

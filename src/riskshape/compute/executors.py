@@ -119,7 +119,13 @@ def _start_worker(preload: Callable[[], None] | None, pin: bool) -> None:
 
 
 def available_cores() -> int:
-    """Cores this process may run on (its CPU affinity where the OS tells it, else the CPU count)."""
+    """Cores this process may run on (its CPU affinity where the OS tells it, else the CPU count).
+
+    Returns
+    -------
+    int
+        At least 1.
+    """
     if hasattr(os, "sched_getaffinity"):
         return max(1, len(os.sched_getaffinity(0)))
     return os.cpu_count() or 1
@@ -226,6 +232,20 @@ def make_executor(compute: ComputeConfig, n_jobs: int, preload: Callable[[], Non
     """The executor a configuration asks for; serial when there is only one job to run.
 
     ``preload`` is handed to a local process pool (see :class:`ProcessExecutor`).
+
+    Parameters
+    ----------
+    compute : ComputeConfig
+        The ``[compute]`` section: executor, workers, scheduler.
+    n_jobs : int
+        How many jobs will be mapped (no more workers than jobs).
+    preload : callable, optional
+        Run once in a local pool's parent (or each worker) before the jobs.
+
+    Returns
+    -------
+    Executor
+        A serial, process-pool or Dask executor.
     """
     if compute.executor == "dask":
         return DaskExecutor(compute.scheduler)
@@ -233,4 +253,3 @@ def make_executor(compute: ComputeConfig, n_jobs: int, preload: Callable[[], Non
     if compute.executor == "serial" or workers <= 1:
         return SerialExecutor()
     return ProcessExecutor(workers, preload=preload)
-

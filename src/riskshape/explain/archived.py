@@ -44,6 +44,16 @@ def explanation_json(result: MonitorResult, firing: Firing) -> str:
 def explanation_text(stored: str | None) -> str:
     """Plain text of a stored explanation, or :data:`NO_EXPLANATION` when there is none.
 
+    Parameters
+    ----------
+    stored : str or None
+        The JSON text archived with the alert.
+
+    Returns
+    -------
+    str
+        Lines of plain text.
+
     Raises
     ------
     DataError
@@ -54,6 +64,16 @@ def explanation_text(stored: str | None) -> str:
 
 def explanation_object(stored: str | None) -> dict[str, Any] | None:
     """The stored explanation as a JSON object for an API response (None when there is none).
+
+    Parameters
+    ----------
+    stored : str or None
+        The JSON text archived with the alert.
+
+    Returns
+    -------
+    dict or None
+        The explanation as a JSON object.
 
     Raises
     ------

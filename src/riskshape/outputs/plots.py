@@ -122,6 +122,11 @@ def plot_summary(
         Columns ``name``, ``start``, ``end`` (e.g. ``Scenario.regimes``): alternately shaded grey,
         with their names on top.
     ax : matplotlib.axes.Axes, optional
+
+    Returns
+    -------
+    matplotlib.axes.Axes
+        The axes drawn on.
     """
     ax = new_axes(ax)
     if regimes is not None:
@@ -153,6 +158,20 @@ def plot_summaries(
     """Several summaries stacked on a shared time axis (one :func:`plot_summary` each).
 
     ``alerts`` maps a column to its alerts.
+
+    Parameters
+    ----------
+    features : pandas.DataFrame
+        Summary columns indexed by window end.
+    columns : sequence of str
+        The columns to draw, top to bottom.
+    alerts, events, regimes : optional
+        As for :func:`plot_summary`; ``alerts`` per column.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+        The figure.
     """
     fig = Figure(figsize=(8.0, 1.8 * len(columns) + 0.6), layout="constrained")
     FigureCanvasAgg(fig)
@@ -163,7 +182,20 @@ def plot_summaries(
 
 
 def plot_diagram(diagrams: Sequence[np.ndarray], *, ax: Axes | None = None) -> Axes:
-    """Persistence diagram: (birth, death) of each finite bar, one colour per dimension."""
+    """Persistence diagram: (birth, death) of each finite bar, one colour per dimension.
+
+    Parameters
+    ----------
+    diagrams : sequence of numpy.ndarray
+        One diagram per homology dimension.
+    ax : matplotlib.axes.Axes, optional
+        Where to draw; new axes by default.
+
+    Returns
+    -------
+    matplotlib.axes.Axes
+        The axes drawn on.
+    """
     ax = new_axes(ax, (4.5, 4.5))
     top = max([float(d[:, 1].max()) for d in diagrams if len(d)] or [1.0])
     for k, dgm in enumerate(diagrams):
@@ -176,7 +208,20 @@ def plot_diagram(diagrams: Sequence[np.ndarray], *, ax: Axes | None = None) -> A
 
 
 def plot_barcode(diagrams: Sequence[np.ndarray], *, ax: Axes | None = None) -> Axes:
-    """Barcode: one horizontal bar per finite bar, grouped by dimension, longest first."""
+    """Barcode: one horizontal bar per finite bar, grouped by dimension, longest first.
+
+    Parameters
+    ----------
+    diagrams : sequence of numpy.ndarray
+        One diagram per homology dimension.
+    ax : matplotlib.axes.Axes, optional
+        Where to draw; new axes by default.
+
+    Returns
+    -------
+    matplotlib.axes.Axes
+        The axes drawn on.
+    """
     ax = new_axes(ax, (5.0, 4.5))
     y = 0
     for k, dgm in enumerate(diagrams):
@@ -195,7 +240,26 @@ def plot_barcode(diagrams: Sequence[np.ndarray], *, ax: Axes | None = None) -> A
 def plot_landscape(
     dgm: np.ndarray, *, dim: int = 1, layers: int = 5, num_steps: int = 500, ax: Axes | None = None
 ) -> Axes:
-    """First ``layers`` layers of the persistence landscape of one diagram (persim's PersLandscapeApprox)."""
+    """First ``layers`` layers of the persistence landscape of one diagram (persim's PersLandscapeApprox).
+
+    Parameters
+    ----------
+    dgm : numpy.ndarray
+        One diagram's finite bars.
+    dim : int
+        Its homology dimension (for the title).
+    layers : int
+        How many landscape layers to draw.
+    num_steps : int
+        Grid points of the approximation.
+    ax : matplotlib.axes.Axes, optional
+        Where to draw; new axes by default.
+
+    Returns
+    -------
+    matplotlib.axes.Axes
+        The axes drawn on.
+    """
     ax = new_axes(ax)
     if len(dgm) == 0:
         ax.text(0.5, 0.5, f"H{dim}: no bars", ha="center", transform=ax.transAxes)
@@ -242,7 +306,20 @@ def window_correlation(result: MonitorResult, window_end: object) -> tuple[np.nd
 
 
 def plot_window(result: MonitorResult, window_end: object) -> Figure:
-    """One window on one page: diagram, barcode, H1 (or H0) landscape, dendrogram, ordered heatmap."""
+    """One window on one page: diagram, barcode, H1 (or H0) landscape, dendrogram, ordered heatmap.
+
+    Parameters
+    ----------
+    result : MonitorResult
+        The run holding the window.
+    window_end : date-like
+        The window's end date.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+        The page.
+    """
     diagrams = tuple(result.diagram(window_end, k) for k in range(result.config.maxdim + 1))
     corr, labels = window_correlation(result, window_end)
     fig = Figure(figsize=(12.0, 8.0), layout="constrained")

@@ -354,6 +354,20 @@ def render_html(report: ReviewReport, images: dict[str, bytes] | None = None) ->
 def write_report(report: ReviewReport, out: str | Path, pdf: str | Path | None = None) -> Path:
     """Write the report as HTML to ``out`` (and as PDF to ``pdf`` if given).
 
+    Parameters
+    ----------
+    report : ReviewReport
+        From :func:`collect_review`.
+    out : path-like
+        The HTML file to write.
+    pdf : path-like, optional
+        A PDF file to write as well.
+
+    Returns
+    -------
+    pathlib.Path
+        The HTML file written.
+
     Raises
     ------
     StoreError

@@ -83,6 +83,18 @@ def portfolio_volatility(block: np.ndarray, periods_per_year: int = TRADING_DAYS
 def mean_pairwise_correlation(block: np.ndarray, method: Literal["pearson", "spearman"] = "pearson") -> float:
     """Mean off-diagonal correlation of the window's assets (NaN with fewer than two assets).
 
+    Parameters
+    ----------
+    block : numpy.ndarray
+        The window's returns, days x assets.
+    method : {"pearson", "spearman"}
+        The correlation estimator.
+
+    Returns
+    -------
+    float
+        The mean correlation.
+
     Examples
     --------
     >>> import numpy as np
