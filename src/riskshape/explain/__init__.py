@@ -1,7 +1,7 @@
 """Explanations of alerts: which clusters merged or split (H0), which loops formed (H1).
 
 ``explain_alert(result, window_end, summary)`` gives an :class:`Explanation`, archived with the
-alert as :meth:`Explanation.to_json` and shown with :meth:`Explanation.to_text`.
+alert as :meth:`Explanation.to_json` and shown with :func:`render_text`.
 """
 
 from __future__ import annotations
@@ -31,6 +31,7 @@ if TYPE_CHECKING:
     from riskshape.explain.model import Loop as Loop
     from riskshape.explain.model import LoopExplanation as LoopExplanation
     from riskshape.explain.model import PairChange as PairChange
+    from riskshape.explain.text import render_text as render_text
 
 _EXPORTS = {
     "NO_EXPLANATION": "riskshape.explain.archived",
@@ -53,6 +54,7 @@ _EXPORTS = {
     "Loop": "riskshape.explain.model",
     "LoopExplanation": "riskshape.explain.model",
     "PairChange": "riskshape.explain.model",
+    "render_text": "riskshape.explain.text",
 }
 
 __all__ = list(_EXPORTS)

@@ -11,6 +11,7 @@ import json
 from typing import TYPE_CHECKING, Any
 
 from riskshape.explain.model import Explanation
+from riskshape.explain.text import render_text
 
 if TYPE_CHECKING:  # reading an archived explanation needs neither the monitor nor scipy
     from riskshape.alerts.model import Firing
@@ -59,7 +60,7 @@ def explanation_text(stored: str | None) -> str:
     DataError
         If ``stored`` is not an explanation written by :func:`explanation_json`.
     """
-    return NO_EXPLANATION if not stored else Explanation.from_json(stored).to_text()
+    return NO_EXPLANATION if not stored else render_text(Explanation.from_json(stored))
 
 
 def explanation_object(stored: str | None) -> dict[str, Any] | None:

@@ -30,7 +30,7 @@ from riskshape.caution import CAUTION
 from riskshape.compute.monitor import monitor
 from riskshape.config import Config
 from riskshape.errors import ConfigError, RiskshapeError, StoreError
-from riskshape.explain import Explanation, explain_alert
+from riskshape.explain import Explanation, explain_alert, render_text
 from riskshape.store import AlertRecord, ReviewRecord, Run, Store, VerifyReport, verify_chain
 from riskshape.store.ledger import to_date
 
@@ -274,7 +274,7 @@ def _alert_html(item: ReportedAlert) -> str:
         )
     else:
         reviews = "<p>Not reviewed yet.</p>"
-    text = item.explanation.to_text() if item.explanation is not None else "No explanation."
+    text = render_text(item.explanation) if item.explanation is not None else "No explanation."
     return (
         f'<section class="alert" id="alert-{a.id}" data-alert-id="{a.id}" data-value="{_e(repr(a.value))}" '
         f'data-threshold="{_e(repr(a.threshold))}"><h3>Alert {a.id}: {_e(a.rule)} on {_e(a.summary)} '
