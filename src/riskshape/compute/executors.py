@@ -102,6 +102,9 @@ def _one_blas_thread() -> AbstractContextManager[Any]:
 
 def _pin_blas() -> None:
     global _BLAS_PINNED
+    # the pin covers only the BLAS and OpenMP libraries loaded already: load those a window
+    # uses first (``import riskshape`` loads none of them; a spawned worker has none yet)
+    import riskshape.compute.batch  # noqa: F401
     from threadpoolctl import threadpool_limits
 
     threadpool_limits(1)
