@@ -9,7 +9,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 from datetime import date
 
-from riskshape.alerts.rules import RuleState, rule_states
+from riskshape.alerts import RuleState, rule_states
 from riskshape.store import AlertRecord, FeaturesPage, Head, Store, chain_head
 from riskshape_service.snapshots import Snapshots
 

@@ -18,10 +18,7 @@ from fastapi import FastAPI
 from fastapi.openapi.utils import get_openapi
 from starlette.middleware.body_limit import RequestBodyLimitMiddleware
 
-from riskshape._version import __version__
-from riskshape.caution import CAUTION
-from riskshape.config import Config
-from riskshape.errors import RiskshapeError
+from riskshape import CAUTION, Config, RiskshapeError, __version__
 from riskshape.store import open_store
 from riskshape_service.context import ServiceContext
 from riskshape_service.docs import mount_docs

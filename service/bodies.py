@@ -14,8 +14,7 @@ import io
 
 import pandas as pd
 
-from riskshape.errors import DataError
-from riskshape.prices import csv_table, validate_prices
+from riskshape import DataError, csv_table, validate_prices
 from riskshape_service.schemas import PricesIn
 
 __all__ = ["table_from_json", "table_from_csv", "validated_prices", "JSON_SOURCE", "CSV_SOURCE"]

@@ -7,7 +7,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-from riskshape.config import Config
+from riskshape import Config
 from riskshape.store import Store
 from riskshape_service.ingest import Ingestor
 from riskshape_service.metrics import ServiceMetrics

@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from riskshape.alerts.rules import RuleState
+from riskshape.alerts import RuleState
 from riskshape.store import AlertRecord, ReviewRecord
 from riskshape_service.schemas import AlertOut, ProvenanceOut, ReviewOut, RuleStateOut, finite_or_none
 

@@ -25,7 +25,7 @@ from fastapi.exceptions import RequestValidationError
 from fastapi.responses import JSONResponse
 from starlette.exceptions import HTTPException as StarletteHTTPException
 
-from riskshape.errors import (
+from riskshape import (
     ConfigError,
     ConflictError,
     DataError,

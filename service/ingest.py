@@ -34,11 +34,8 @@ from datetime import date
 import numpy as np
 import pandas as pd
 
-from riskshape.archive import archive_run
-from riskshape.compute.monitor import MonitorResult, monitor
-from riskshape.compute.windows import window_end_positions
-from riskshape.config import Config
-from riskshape.errors import ConflictError, DataError
+from riskshape import Config, ConflictError, DataError, MonitorResult, archive_run, monitor
+from riskshape.compute import window_end_positions
 from riskshape.store import AlertRecord, Run, Store
 
 __all__ = ["Ingestor", "IngestReport", "portfolio_config"]
@@ -62,14 +59,9 @@ class IngestReport:
     note: str
 
 
-def latest_run(store: Store, portfolio: str) -> Run | None:
-    """The portfolio's most recent run, or None (NotFoundError for an unknown portfolio)."""
-    return store.latest_run(portfolio)
-
-
 def portfolio_config(store: Store, portfolio: str, default: Config) -> tuple[Config, Run | None]:
     """The configuration of the portfolio's latest run (``default`` before its first run)."""
-    run = latest_run(store, portfolio)
+    run = store.latest_run(portfolio)
     if run is None:
         return default, None
     return Config.from_mapping(run.config, where=f"run {run.id} of portfolio {portfolio!r}"), run

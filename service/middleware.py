@@ -21,7 +21,7 @@ from typing import Any
 from starlette.datastructures import Headers
 from starlette.types import ASGIApp, Message, Receive, Scope, Send
 
-from riskshape.caution import CAUTION
+from riskshape import CAUTION
 from riskshape_service.logs import LOGGER_NAME, REQUEST_ID
 from riskshape_service.metrics import ServiceMetrics
 

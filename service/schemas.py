@@ -12,8 +12,8 @@ from typing import Annotated, Any, Literal
 
 from pydantic import BaseModel, ConfigDict, Field, model_validator
 
-from riskshape.caution import CAUTION
-from riskshape.store.records import REVIEW_ACTIONS
+from riskshape import CAUTION
+from riskshape.store import REVIEW_ACTIONS
 
 __all__ = [
     "Cautioned",

@@ -17,10 +17,8 @@ from datetime import date
 
 import pandas as pd
 
-from riskshape.config import Config
-from riskshape.errors import DataError
+from riskshape import Config, DataError
 from riskshape.store import FeaturesPage, Run, Store
-from riskshape_service.ingest import latest_run
 
 __all__ = ["Snapshot", "Snapshots"]
 
@@ -75,7 +73,7 @@ class Snapshots:
         NotFoundError
             If the portfolio does not exist.
         """
-        run = latest_run(store, portfolio)
+        run = store.latest_run(portfolio)
         with self._lock:
             held = self._held.get(portfolio)
         if held is not None and _same_run(held.run, run):

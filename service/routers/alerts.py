@@ -5,7 +5,7 @@ from typing import Annotated
 
 from fastapi import APIRouter, Path, Query
 
-from riskshape.explain.archived import explanation_object, explanation_text
+from riskshape.explain import explanation_object, explanation_text
 from riskshape.types import Severity
 from riskshape_service.convert import alert_out, provenance_out, review_out
 from riskshape_service.deps import ReaderDep, StoreDep

@@ -9,7 +9,7 @@ from fastapi import APIRouter, Query
 from fastapi.responses import Response
 from starlette.concurrency import run_in_threadpool
 
-from riskshape.outputs.export import export_alerts
+from riskshape.outputs import export_alerts
 from riskshape_service.deps import ReviewerDep, StoreDep
 from riskshape_service.routers import API_PREFIX, errors
 from riskshape_service.settings import ServiceSettings

@@ -5,8 +5,7 @@ from __future__ import annotations
 from fastapi import APIRouter
 from fastapi.responses import JSONResponse
 
-from riskshape._version import __version__
-from riskshape.errors import RiskshapeError
+from riskshape import RiskshapeError, __version__
 from riskshape_service.access import store_status
 from riskshape_service.deps import ContextDep
 from riskshape_service.routers import API_PREFIX, errors

@@ -408,6 +408,17 @@ class Config(_Frozen):
 
 
 def store_url_from_env(environ: Mapping[str, str] | None = None) -> str | None:
-    """The archive URL in ``RISKSHAPE_STORE_URL``, if set (the CLI's default for ``--store``)."""
+    """The archive URL in ``RISKSHAPE_STORE_URL``, if set (the CLI's default for ``--store``).
+
+    Parameters
+    ----------
+    environ : mapping of str to str, optional
+        The environment to read; ``os.environ`` by default.
+
+    Returns
+    -------
+    str or None
+        The URL, or None when the variable is unset or empty.
+    """
     env = os.environ if environ is None else environ
     return env.get("RISKSHAPE_STORE_URL") or None

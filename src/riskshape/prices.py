@@ -130,6 +130,16 @@ def csv_table(source: str | os.PathLike[str] | IO[str]) -> pd.DataFrame:
     pandas would rename a repeated column name ("A.1") or a blank one ("Unnamed: 2") and hide both
     from validation, so the header row is read as a data row and applied here.
 
+    Parameters
+    ----------
+    source : path-like or text stream
+        The CSV file or its text.
+
+    Returns
+    -------
+    pandas.DataFrame
+        Every cell as a string, columns named by the header row.
+
     Raises
     ------
     pandas.errors.ParserError, pandas.errors.EmptyDataError, ValueError

@@ -7,7 +7,7 @@ import json
 import pytest
 
 from riskshape import DataError, monitor
-from riskshape.explain import Explanation, explain_alert, summary_dimension
+from riskshape.explain import Explanation, explain_alert, render_text, summary_dimension
 
 
 @pytest.fixture(scope="module")
@@ -93,7 +93,7 @@ def test_from_json_names_the_bad_field(run) -> None:
 
 def test_text_names_the_clusters_and_loops(run) -> None:
     explanation = explain_alert(run, run.window_ends[5], "mean_correlation")
-    text = explanation.to_text()
+    text = render_text(explanation)
     assert str(explanation.window_end) in text
     assert f"{explanation.clusters.scale:.4f}" in text
     for pair in explanation.clusters.pair_changes:
@@ -133,7 +133,7 @@ def test_archived_forms_round_trip(run) -> None:
     stored = explanation_json(run, firing)
     expected = explain_alert(run, end, "h1_entropy")
     assert stored == expected.to_json()
-    assert explanation_text(stored) == expected.to_text()
+    assert explanation_text(stored) == render_text(expected)
     assert explanation_object(stored) == json.loads(stored)
     assert explanation_text(None) == NO_EXPLANATION and explanation_object(None) is None
     with pytest.raises(DataError):

@@ -18,7 +18,7 @@ from riskshape.alerts.model import Alert
 from riskshape.alerts.rules import evaluate_rules
 from riskshape.cli import main
 from riskshape.demo.scenario import generate_scenario
-from riskshape.explain import explain_alert
+from riskshape.explain import explain_alert, render_text
 from riskshape.outputs.report import collect_review, render_html, write_report
 from riskshape.store import RunManifest, Store, chain_head, open_store, verify_chain
 
@@ -132,7 +132,7 @@ def test_report_numbers_match_the_archive(archive, tmp_path: Path) -> None:
     assert "reviewer one" in page and "checked &lt;b&gt;by hand&lt;/b&gt; &amp; &quot;fine&quot;" in page
     # the explanation recomputed from the archive equals the one computed at alert time
     for a in archived:
-        expected = explain_alert(result, a.window_end, a.summary).to_text()
+        expected = render_text(explain_alert(result, a.window_end, a.summary))
         assert _escape(expected) in page
 
 
@@ -283,4 +283,4 @@ def test_archived_explanation_is_preferred_and_labelled(archive) -> None:
     assert archived_explanation(first.alert) is None  # no explanation archived in this store
     shown = ReportedAlert(first.alert, first.reviews, explanation, "archived", "archived with the alert")
     page = render_html(replace(review, alerts=(shown,)), images={})
-    assert "Explanation (archived)" in page and _escape(explanation.to_text()) in page
+    assert "Explanation (archived)" in page and _escape(render_text(explanation)) in page

@@ -199,11 +199,11 @@ def test_alerts_filters_detail_and_provenance(client: TestClient, auth: Auth, lo
     assert provenance["inputs_hash"] == batch.window_inputs_hash(first["window_end"])
     assert provenance["config_hash"] == batch.config.hash()
     # the explanation archived with the alert is the library's explanation of that window
-    from riskshape.explain import explain_alert
+    from riskshape.explain import explain_alert, render_text
 
     expected = explain_alert(batch, first["window_end"], first["summary"])
     assert detail["explanation"] == json.loads(expected.to_json())
-    assert detail["explanation_text"] == expected.to_text()
+    assert detail["explanation_text"] == render_text(expected)
     assert client.get("/v1/alerts/999999", headers=auth("reader")).status_code == 404
 
 

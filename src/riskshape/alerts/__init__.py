@@ -1,24 +1,39 @@
-"""Alert rules over the summaries series, evaluated causally."""
+"""Alert rules over the summaries series, evaluated causally.
 
-from riskshape.alerts.model import Alert, Firing
-from riskshape.alerts.rules import (
-    RuleState,
-    active_rules,
-    evaluate_rule,
-    evaluate_rules,
-    recheck_firing,
-    rule_state,
-    rule_states,
-)
+>>> from riskshape.alerts import evaluate_rules
+>>> callable(evaluate_rules)
+True
+"""
 
-__all__ = [
-    "Alert",
-    "Firing",
-    "RuleState",
-    "active_rules",
-    "evaluate_rule",
-    "evaluate_rules",
-    "recheck_firing",
-    "rule_state",
-    "rule_states",
-]
+from __future__ import annotations
+
+from typing import TYPE_CHECKING
+
+from riskshape._lazy import lazy_exports
+
+if TYPE_CHECKING:
+    from riskshape.alerts.model import Alert as Alert
+    from riskshape.alerts.model import Firing as Firing
+    from riskshape.alerts.rules import RuleState as RuleState
+    from riskshape.alerts.rules import active_rules as active_rules
+    from riskshape.alerts.rules import evaluate_rule as evaluate_rule
+    from riskshape.alerts.rules import evaluate_rules as evaluate_rules
+    from riskshape.alerts.rules import recheck_firing as recheck_firing
+    from riskshape.alerts.rules import rule_state as rule_state
+    from riskshape.alerts.rules import rule_states as rule_states
+
+_EXPORTS = {
+    "Alert": "riskshape.alerts.model",
+    "Firing": "riskshape.alerts.model",
+    "RuleState": "riskshape.alerts.rules",
+    "active_rules": "riskshape.alerts.rules",
+    "evaluate_rule": "riskshape.alerts.rules",
+    "evaluate_rules": "riskshape.alerts.rules",
+    "recheck_firing": "riskshape.alerts.rules",
+    "rule_state": "riskshape.alerts.rules",
+    "rule_states": "riskshape.alerts.rules",
+}
+
+__all__ = list(_EXPORTS)
+
+__getattr__, __dir__ = lazy_exports(__name__, _EXPORTS)

@@ -12,8 +12,7 @@ from typing import Any
 
 import click
 
-from riskshape._version import __version__
-from riskshape.errors import RiskshapeError
+from riskshape import RiskshapeError, __version__
 
 __all__ = ["main", "cli"]
 
@@ -63,7 +62,7 @@ def cli() -> None:
 
 def main(argv: list[str] | None = None) -> Any:
     """Entry point: run the CLI, turning riskshape's own errors into one line and exit status 2."""
-    from riskshape.compute.executors import keep_blas_pinned
+    from riskshape.compute import keep_blas_pinned
 
     keep_blas_pinned()  # this process is riskshape's own (see keep_blas_pinned)
     try:

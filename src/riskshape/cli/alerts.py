@@ -6,10 +6,10 @@ from pathlib import Path
 
 import click
 
-from riskshape.caution import CAUTION
+from riskshape import CAUTION
 from riskshape.cli.audit import STORE_OPTION
-from riskshape.explain.archived import explanation_text
-from riskshape.outputs.export import EXPORT_COLUMNS, export_alerts
+from riskshape.explain import explanation_text
+from riskshape.outputs import EXPORT_COLUMNS, export_alerts
 from riskshape.store import REVIEW_ACTIONS, open_store
 
 __all__ = ["alerts"]

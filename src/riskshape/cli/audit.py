@@ -4,8 +4,7 @@ from __future__ import annotations
 
 import click
 
-from riskshape.caution import CAUTION
-from riskshape.config import ComputeConfig, store_url_from_env
+from riskshape import CAUTION, ComputeConfig, store_url_from_env
 from riskshape.store import chain_head, open_store, verify_chain
 from riskshape.types import ExecutorKind
 
@@ -78,7 +77,7 @@ def head(store_url: str) -> None:
 )
 def reproduce(alert_id: int, store_url: str, executor: ExecutorKind) -> None:
     """Recompute ALERT_ID from the archived prices and configuration; exit 1 unless it is confirmed."""
-    from riskshape.archive import reproduce_alert  # the engine loads only for this command
+    from riskshape import reproduce_alert  # the engine loads only for this command
 
     click.echo(CAUTION)
     with open_store(store_url, create=False) as store:

@@ -6,9 +6,9 @@ from pathlib import Path
 
 import click
 
-from riskshape.caution import CAUTION
+from riskshape import CAUTION
 from riskshape.cli.progress import progress_bar
-from riskshape.demo.runner import run_demo
+from riskshape.demo import run_demo
 
 __all__ = ["demo"]
 

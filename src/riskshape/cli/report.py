@@ -6,9 +6,9 @@ from pathlib import Path
 
 import click
 
-from riskshape.caution import CAUTION
+from riskshape import CAUTION
 from riskshape.cli.audit import STORE_OPTION
-from riskshape.outputs.report import collect_review, write_report
+from riskshape.outputs import collect_review, write_report
 from riskshape.store import open_store
 
 __all__ = ["report"]

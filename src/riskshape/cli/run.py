@@ -6,14 +6,9 @@ from pathlib import Path
 
 import click
 
-from riskshape.archive import archive_run
-from riskshape.caution import CAUTION
+from riskshape import CAUTION, Config, DataError, archive_run, monitor, read_prices
 from riskshape.cli.progress import progress_bar
-from riskshape.compute.monitor import monitor
-from riskshape.config import Config
-from riskshape.errors import DataError
-from riskshape.outputs.run_folder import write_run
-from riskshape.prices import read_prices
+from riskshape.outputs import write_run
 from riskshape.store import open_store
 from riskshape.types import ExecutorKind
 

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import click
 
-from riskshape.caution import CAUTION
+from riskshape import CAUTION
 from riskshape.cli.audit import STORE_OPTION
 from riskshape.store import open_store
 

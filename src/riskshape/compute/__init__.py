@@ -14,6 +14,69 @@ One module per step, in the order the data flow through them:
 - :mod:`~riskshape.compute.window_view`: one computed window opened up (returns, distances, diagrams);
 - :mod:`~riskshape.compute.monitor`: the one orchestrator, ``monitor(prices, config)``.
 
-The public entry points are re-exported by :mod:`riskshape` (``riskshape.monitor``,
-``riskshape.MonitorResult``); nothing here is imported until it is used.
+The orchestrator itself is ``riskshape.monitor`` (``riskshape.compute.monitor`` is its module).
+The names in ``__all__`` are public; each loads its module on first use.
+
+>>> from riskshape.compute import window_end_positions
+>>> window_end_positions(n_returns=6, window=3, step=2).tolist()
+[2, 4]
 """
+
+from __future__ import annotations
+
+from typing import TYPE_CHECKING
+
+from riskshape._lazy import lazy_exports
+
+if TYPE_CHECKING:
+    from riskshape.compute.distance import correlation_matrix as correlation_matrix
+    from riskshape.compute.distance import correlation_to_distance as correlation_to_distance
+    from riskshape.compute.executors import DaskExecutor as DaskExecutor
+    from riskshape.compute.executors import Executor as Executor
+    from riskshape.compute.executors import ProcessExecutor as ProcessExecutor
+    from riskshape.compute.executors import SerialExecutor as SerialExecutor
+    from riskshape.compute.executors import available_cores as available_cores
+    from riskshape.compute.executors import keep_blas_pinned as keep_blas_pinned
+    from riskshape.compute.executors import make_executor as make_executor
+    from riskshape.compute.monitor import MonitorResult as MonitorResult
+    from riskshape.compute.monitor import feature_columns as feature_columns
+    from riskshape.compute.persistence import compute_diagrams as compute_diagrams
+    from riskshape.compute.returns import to_returns as to_returns
+    from riskshape.compute.summaries import DISTANCE_NAMES as DISTANCE_NAMES
+    from riskshape.compute.summaries import SUMMARY_NAMES as SUMMARY_NAMES
+    from riskshape.compute.summaries import DiagramSummary as DiagramSummary
+    from riskshape.compute.summaries import bottleneck_distance as bottleneck_distance
+    from riskshape.compute.summaries import summarize_diagram as summarize_diagram
+    from riskshape.compute.summaries import wasserstein_distance as wasserstein_distance
+    from riskshape.compute.windows import Selection as Selection
+    from riskshape.compute.windows import select_assets as select_assets
+    from riskshape.compute.windows import window_end_positions as window_end_positions
+
+_EXPORTS = {
+    "MonitorResult": "riskshape.compute.monitor",
+    "feature_columns": "riskshape.compute.monitor",
+    "to_returns": "riskshape.compute.returns",
+    "window_end_positions": "riskshape.compute.windows",
+    "select_assets": "riskshape.compute.windows",
+    "Selection": "riskshape.compute.windows",
+    "correlation_matrix": "riskshape.compute.distance",
+    "correlation_to_distance": "riskshape.compute.distance",
+    "compute_diagrams": "riskshape.compute.persistence",
+    "DiagramSummary": "riskshape.compute.summaries",
+    "summarize_diagram": "riskshape.compute.summaries",
+    "wasserstein_distance": "riskshape.compute.summaries",
+    "bottleneck_distance": "riskshape.compute.summaries",
+    "SUMMARY_NAMES": "riskshape.compute.summaries",
+    "DISTANCE_NAMES": "riskshape.compute.summaries",
+    "Executor": "riskshape.compute.executors",
+    "SerialExecutor": "riskshape.compute.executors",
+    "ProcessExecutor": "riskshape.compute.executors",
+    "DaskExecutor": "riskshape.compute.executors",
+    "make_executor": "riskshape.compute.executors",
+    "available_cores": "riskshape.compute.executors",
+    "keep_blas_pinned": "riskshape.compute.executors",
+}
+
+__all__ = list(_EXPORTS)
+
+__getattr__, __dir__ = lazy_exports(__name__, _EXPORTS)

@@ -43,6 +43,16 @@ def correlation_matrix(block: ReturnsBlock, method: CorrelationEstimator = "pear
 def correlation_to_distance(corr: CorrelationMatrix) -> DistanceMatrix:
     """Mantegna's correlation distance sqrt(2 (1 - rho)), clipped to [0, 2], zero diagonal.
 
+    Parameters
+    ----------
+    corr : numpy.ndarray
+        A square correlation matrix.
+
+    Returns
+    -------
+    numpy.ndarray
+        The distance matrix, same shape.
+
     Examples
     --------
     >>> import numpy as np

@@ -16,7 +16,7 @@ from __future__ import annotations
 import multiprocessing
 import os
 import threading
-from collections.abc import Callable, Iterable, Iterator, Sequence
+from collections.abc import Callable, Iterator, Sequence
 from concurrent.futures import ProcessPoolExecutor
 from contextlib import AbstractContextManager, nullcontext
 from typing import Any, Protocol, TypeVar, cast
@@ -104,7 +104,11 @@ def _one_blas_thread() -> AbstractContextManager[Any]:
 
 def _pin_blas() -> None:
     global _BLAS_PINNED
+    # the pin covers only the BLAS and OpenMP libraries loaded already: load those a window
+    # uses first (``import riskshape`` loads none of them; a spawned worker has none yet)
     from threadpoolctl import threadpool_limits
+
+    import riskshape.compute.batch  # noqa: F401
 
     threadpool_limits(1)
     _BLAS_PINNED = True
@@ -121,7 +125,13 @@ def _start_worker(preload: Callable[[], None] | None, pin: bool) -> None:
 
 
 def available_cores() -> int:
-    """Cores this process may run on (its CPU affinity where the OS tells it, else the CPU count)."""
+    """Cores this process may run on (its CPU affinity where the OS tells it, else the CPU count).
+
+    Returns
+    -------
+    int
+        At least 1.
+    """
     if hasattr(os, "sched_getaffinity"):
         return max(1, len(os.sched_getaffinity(0)))
     return os.cpu_count() or 1
@@ -237,6 +247,20 @@ def make_executor(compute: ComputeConfig, n_jobs: int, preload: Callable[[], Non
     """The executor a configuration asks for; serial when there is only one job to run.
 
     ``preload`` is handed to a local process pool (see :class:`ProcessExecutor`).
+
+    Parameters
+    ----------
+    compute : ComputeConfig
+        The ``[compute]`` section: executor, workers, scheduler.
+    n_jobs : int
+        How many jobs will be mapped (no more workers than jobs).
+    preload : callable, optional
+        Run once in a local pool's parent (or each worker) before the jobs.
+
+    Returns
+    -------
+    Executor
+        A serial, process-pool or Dask executor.
     """
     if compute.executor == "dask":
         return DaskExecutor(compute.scheduler)
@@ -244,9 +268,3 @@ def make_executor(compute: ComputeConfig, n_jobs: int, preload: Callable[[], Non
     if compute.executor == "serial" or workers <= 1:
         return SerialExecutor()
     return ProcessExecutor(workers, preload=preload)
-
-
-def chunk(items: Sequence[T], size: int) -> Iterable[Sequence[T]]:
-    """Consecutive slices of ``items`` of at most ``size``."""
-    for start in range(0, len(items), size):
-        yield items[start : start + size]

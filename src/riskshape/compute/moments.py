@@ -35,8 +35,10 @@ def is_rebuild_point(index: int) -> bool:
     """Whether the window with this index (0 = first window of the table) rebuilds the sums.
 
     The first window and every window whose index is ``RECOMPUTE_EVERY - 1`` modulo
-    ``RECOMPUTE_EVERY`` (the windows that lead a batch of the default size, see
-    :func:`riskshape.compute.monitor.settings_of`).
+    ``RECOMPUTE_EVERY``. The batch size is decided elsewhere and does not move these points:
+    ``[compute] batch_windows`` (:class:`riskshape.config.ComputeConfig`, 64 by default), which
+    the monitor shrinks to keep every worker of a pool busy (``_balanced_batch_size`` in
+    :mod:`riskshape.compute.monitor`).
     """
     return index == 0 or index % RECOMPUTE_EVERY == RECOMPUTE_EVERY - 1
 

@@ -38,7 +38,18 @@ ProgressFn = Callable[[int, int], None]
 
 
 def feature_columns(maxdim: int) -> list[str]:
-    """Names of the feature columns for homology dimensions 0..``maxdim``, in table order."""
+    """Names of the feature columns for homology dimensions 0..``maxdim``, in table order.
+
+    Parameters
+    ----------
+    maxdim : int
+        The highest homology dimension computed.
+
+    Returns
+    -------
+    list of str
+        Column names, ``h0_...`` first.
+    """
     columns = ["n_assets", "n_left_out", "mean_correlation"]
     for k in range(maxdim + 1):
         columns += [f"h{k}_{name}" for name in SUMMARY_NAMES + DISTANCE_NAMES]

@@ -225,7 +225,18 @@ DISTANCE_NAMES: tuple[str, ...] = ("wasserstein", "bottleneck")
 
 
 def summarize_diagram(dgm: Diagram) -> DiagramSummary:
-    """All per-diagram summaries of one diagram."""
+    """All per-diagram summaries of one diagram.
+
+    Parameters
+    ----------
+    dgm : Diagram
+        Finite bars, shape (n, 2): birth, death.
+
+    Returns
+    -------
+    DiagramSummary
+        Number of bars, total persistence, entropy and landscape norms.
+    """
     life = _lifetimes(dgm)  # once for all summaries (same arithmetic as the functions above)
     half = life / 2.0
     return DiagramSummary(

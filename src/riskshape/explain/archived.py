@@ -8,12 +8,14 @@
 from __future__ import annotations
 
 import json
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
-from riskshape.alerts.model import Firing
-from riskshape.compute.monitor import MonitorResult
-from riskshape.explain.attach import explain_alert
 from riskshape.explain.model import Explanation
+from riskshape.explain.text import render_text
+
+if TYPE_CHECKING:  # reading an archived explanation needs neither the monitor nor scipy
+    from riskshape.alerts.model import Firing
+    from riskshape.compute.monitor import MonitorResult
 
 __all__ = ["explanation_json", "explanation_text", "explanation_object", "NO_EXPLANATION"]
 
@@ -35,22 +37,44 @@ def explanation_json(result: MonitorResult, firing: Firing) -> str:
     str
         :meth:`Explanation.to_json` of :func:`explain_alert` with the default settings.
     """
+    from riskshape.explain.attach import explain_alert
+
     return explain_alert(result, firing.window_end, firing.summary).to_json()
 
 
 def explanation_text(stored: str | None) -> str:
     """Plain text of a stored explanation, or :data:`NO_EXPLANATION` when there is none.
 
+    Parameters
+    ----------
+    stored : str or None
+        The JSON text archived with the alert.
+
+    Returns
+    -------
+    str
+        Lines of plain text.
+
     Raises
     ------
     DataError
         If ``stored`` is not an explanation written by :func:`explanation_json`.
     """
-    return NO_EXPLANATION if not stored else Explanation.from_json(stored).to_text()
+    return NO_EXPLANATION if not stored else render_text(Explanation.from_json(stored))
 
 
 def explanation_object(stored: str | None) -> dict[str, Any] | None:
     """The stored explanation as a JSON object for an API response (None when there is none).
+
+    Parameters
+    ----------
+    stored : str or None
+        The JSON text archived with the alert.
+
+    Returns
+    -------
+    dict or None
+        The explanation as a JSON object.
 
     Raises
     ------

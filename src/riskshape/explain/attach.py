@@ -24,6 +24,16 @@ _DIMENSION = re.compile(r"^h(\d+)_")
 def summary_dimension(summary: str) -> int | None:
     """Homology dimension a summary column belongs to (``h1_entropy`` -> 1), None for the others.
 
+    Parameters
+    ----------
+    summary : str
+        A feature column name.
+
+    Returns
+    -------
+    int or None
+        The homology dimension, or None for a column of no dimension.
+
     Examples
     --------
     >>> summary_dimension("h0_total_persistence"), summary_dimension("mean_correlation")

@@ -113,6 +113,15 @@ def clusters_at(distance: DistanceMatrix, names: Sequence[str], scale: float) ->
     -------
     tuple of tuple of str
         Every cluster, members in the order of ``names``; largest cluster first, then by first member.
+
+    Parameters
+    ----------
+    distance : numpy.ndarray
+        The window's distance matrix.
+    names : sequence of str
+        Asset names, in the matrix's order.
+    scale : float
+        The linking distance.
     """
     n = len(names)
     if n == 0:
@@ -152,6 +161,16 @@ def match_clusters(before: Sequence[Members], after: Sequence[Members]) -> tuple
     """Merges and splits between two partitions, by majority overlap (see the module notes).
 
     Only assets present in both partitions count; clusters are reported whole.
+
+    Parameters
+    ----------
+    before, after : sequence of tuple of str
+        The clusters of two windows, as from :func:`clusters_at`.
+
+    Returns
+    -------
+    tuple of ClusterEvent
+        The merges and splits.
     """
     common = {a for c in before for a in c} & {a for c in after for a in c}
     prev_sets = [set(c) & common for c in before]

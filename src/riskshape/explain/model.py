@@ -1,4 +1,4 @@
-"""The typed explanation of an alert, its canonical JSON and its plain-text rendering.
+"""The typed explanation of an alert and its canonical JSON (:mod:`~riskshape.explain.text` renders it as text).
 
 An :class:`Explanation` is what gets archived with an alert. :meth:`Explanation.to_json` gives
 canonical JSON (sorted keys, no spaces, no NaN, floats rounded to :data:`DECIMALS` places when
@@ -204,12 +204,6 @@ class Explanation:
                 f"explanation: layout version {version} is not supported (this riskshape reads {SCHEMA_VERSION})"
             )
         return _decode_explanation(reader)
-
-    def to_text(self) -> str:
-        """A plain-text rendering for the terminal and for reports."""
-        from riskshape.explain.text import render_text
-
-        return render_text(self)
 
 
 # --- encoding -----------------------------------------------------------------------------------

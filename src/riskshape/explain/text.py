@@ -77,7 +77,18 @@ def _loops(x: LoopExplanation) -> list[str]:
 
 
 def render_text(explanation: Explanation) -> str:
-    """Several lines of plain text describing an explanation."""
+    """Several lines of plain text describing an explanation (for the terminal and reports).
+
+    Parameters
+    ----------
+    explanation : Explanation
+        As built by :func:`riskshape.explain.explain_alert` or read by ``Explanation.from_json``.
+
+    Returns
+    -------
+    str
+        Lines joined by newlines, the first naming the summary and the window.
+    """
     lines = [f"Explanation of {explanation.summary} at the window ending {explanation.window_end}"]
     if explanation.clusters is not None:
         lines += _clusters(explanation.clusters)

@@ -128,6 +128,11 @@ def plot_summary(
         Columns ``name``, ``start``, ``end`` (e.g. ``Scenario.regimes``): alternately shaded grey,
         with their names on top.
     ax : matplotlib.axes.Axes, optional
+
+    Returns
+    -------
+    matplotlib.axes.Axes
+        The axes drawn on.
     """
     ax = new_axes(ax)
     if regimes is not None:
@@ -215,6 +220,20 @@ def plot_summaries(
     """Several summaries stacked on a shared time axis (one :func:`plot_summary` each).
 
     ``alerts`` maps a column to its alerts.
+
+    Parameters
+    ----------
+    features : pandas.DataFrame
+        Summary columns indexed by window end.
+    columns : sequence of str
+        The columns to draw, top to bottom.
+    alerts, events, regimes : optional
+        As for :func:`plot_summary`; ``alerts`` per column.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+        The figure.
     """
     fig = Figure(figsize=(8.0, 1.8 * len(columns) + 0.6), layout="constrained")
     FigureCanvasAgg(fig)
@@ -225,7 +244,20 @@ def plot_summaries(
 
 
 def plot_diagram(diagrams: Sequence[Diagram], *, ax: Axes | None = None) -> Axes:
-    """Persistence diagram: (birth, death) of each finite bar, one colour and marker per dimension."""
+    """Persistence diagram: (birth, death) of each finite bar, one colour and marker per dimension.
+
+    Parameters
+    ----------
+    diagrams : sequence of Diagram
+        One diagram per homology dimension.
+    ax : matplotlib.axes.Axes, optional
+        Where to draw; new axes by default.
+
+    Returns
+    -------
+    matplotlib.axes.Axes
+        The axes drawn on.
+    """
     ax = new_axes(ax, (4.5, 4.5))
     top = max([float(d[:, 1].max()) for d in diagrams if len(d)] or [1.0])
     for k, dgm in enumerate(diagrams):
@@ -248,7 +280,20 @@ def plot_diagram(diagrams: Sequence[Diagram], *, ax: Axes | None = None) -> Axes
 
 
 def plot_barcode(diagrams: Sequence[Diagram], *, ax: Axes | None = None) -> Axes:
-    """Barcode: one horizontal bar per finite bar, grouped by dimension (colour and line style), longest first."""
+    """Barcode: one horizontal bar per finite bar, grouped by dimension (colour and line style), longest first.
+
+    Parameters
+    ----------
+    diagrams : sequence of Diagram
+        One diagram per homology dimension.
+    ax : matplotlib.axes.Axes, optional
+        Where to draw; new axes by default.
+
+    Returns
+    -------
+    matplotlib.axes.Axes
+        The axes drawn on.
+    """
     ax = new_axes(ax, (5.0, 4.5))
     y = 0
     for k, dgm in enumerate(diagrams):
@@ -272,6 +317,24 @@ def plot_landscape(
     """First ``layers`` layers of the persistence landscape of one diagram (persim's PersLandscapeApprox).
 
     The layers are drawn in the dimension's colour, each with its own line style (and marker).
+
+    Parameters
+    ----------
+    dgm : numpy.ndarray
+        One diagram's finite bars.
+    dim : int
+        Its homology dimension (for the title).
+    layers : int
+        How many landscape layers to draw.
+    num_steps : int
+        Grid points of the approximation.
+    ax : matplotlib.axes.Axes, optional
+        Where to draw; new axes by default.
+
+    Returns
+    -------
+    matplotlib.axes.Axes
+        The axes drawn on.
     """
     ax = new_axes(ax)
     if len(dgm) == 0:
@@ -338,7 +401,20 @@ def window_correlation(result: MonitorResult, window_end: object) -> tuple[Corre
 
 
 def plot_window(result: MonitorResult, window_end: object) -> Figure:
-    """One window on one page: diagram, barcode, H1 (or H0) landscape, dendrogram, ordered heatmap."""
+    """One window on one page: diagram, barcode, H1 (or H0) landscape, dendrogram, ordered heatmap.
+
+    Parameters
+    ----------
+    result : MonitorResult
+        The run holding the window.
+    window_end : date-like
+        The window's end date.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+        The page.
+    """
     diagrams = tuple(result.diagram(window_end, k) for k in range(result.config.maxdim + 1))
     corr, labels = window_correlation(result, window_end)
     fig = Figure(figsize=(12.0, 8.0), layout="constrained")

@@ -29,7 +29,7 @@ from riskshape._version import __version__
 from riskshape.archive import recompute_run
 from riskshape.caution import CAUTION
 from riskshape.errors import ConfigError, RiskshapeError, StoreError
-from riskshape.explain import Explanation, explain_alert
+from riskshape.explain import Explanation, explain_alert, render_text
 from riskshape.outputs import palette
 from riskshape.store import AlertRecord, ReviewRecord, Run, Store, VerifyReport, verify_chain
 from riskshape.store.ledger import to_date
@@ -277,7 +277,7 @@ def _alert_html(item: ReportedAlert) -> str:
         )
     else:
         reviews = "<p>Not reviewed yet.</p>"
-    text = item.explanation.to_text() if item.explanation is not None else "No explanation."
+    text = render_text(item.explanation) if item.explanation is not None else "No explanation."
     return (
         f'<section class="alert" id="alert-{a.id}" data-alert-id="{a.id}" data-value="{_e(repr(a.value))}" '
         f'data-threshold="{_e(repr(a.threshold))}"><h3>Alert {a.id}: {_e(a.rule)} on {_e(a.summary)} '
@@ -356,6 +356,20 @@ def render_html(report: ReviewReport, images: dict[str, bytes] | None = None) ->
 
 def write_report(report: ReviewReport, out: str | Path, pdf: str | Path | None = None) -> Path:
     """Write the report as HTML to ``out`` (and as PDF to ``pdf`` if given).
+
+    Parameters
+    ----------
+    report : ReviewReport
+        From :func:`collect_review`.
+    out : path-like
+        The HTML file to write.
+    pdf : path-like, optional
+        A PDF file to write as well.
+
+    Returns
+    -------
+    pathlib.Path
+        The HTML file written.
 
     Raises
     ------

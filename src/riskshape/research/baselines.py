@@ -83,6 +83,18 @@ def portfolio_volatility(block: ReturnsBlock, periods_per_year: int = TRADING_DA
 def mean_pairwise_correlation(block: ReturnsBlock, method: CorrelationEstimator = "pearson") -> float:
     """Mean off-diagonal correlation of the window's assets (NaN with fewer than two assets).
 
+    Parameters
+    ----------
+    block : numpy.ndarray
+        The window's returns, days x assets.
+    method : {"pearson", "spearman"}
+        The correlation estimator.
+
+    Returns
+    -------
+    float
+        The mean correlation.
+
     Examples
     --------
     >>> import numpy as np

@@ -6,55 +6,67 @@
 True
 """
 
-from riskshape.store.records import (
-    GENESIS_HASH,
-    REVIEW_ACTIONS,
-    AlertAppend,
-    AlertDetail,
-    AlertPage,
-    AlertRecord,
-    ApiKey,
-    BadRecord,
-    Diagram,
-    EventRecord,
-    FeaturesPage,
-    Head,
-    NewApiKey,
-    Portfolio,
-    PriceCorrection,
-    PriceWrite,
-    ReviewRecord,
-    Run,
-    RunManifest,
-    VerifyReport,
-    WriteCount,
-)
-from riskshape.store.store import Store, chain_head, open_store, verify_chain
+from __future__ import annotations
 
-__all__ = [
-    "open_store",
-    "Store",
-    "verify_chain",
-    "chain_head",
-    "GENESIS_HASH",
-    "REVIEW_ACTIONS",
-    "AlertAppend",
-    "AlertDetail",
-    "AlertPage",
-    "AlertRecord",
-    "ApiKey",
-    "BadRecord",
-    "Diagram",
-    "EventRecord",
-    "FeaturesPage",
-    "Head",
-    "NewApiKey",
-    "Portfolio",
-    "PriceCorrection",
-    "PriceWrite",
-    "ReviewRecord",
-    "Run",
-    "RunManifest",
-    "VerifyReport",
-    "WriteCount",
-]
+from typing import TYPE_CHECKING
+
+from riskshape._lazy import lazy_exports
+
+if TYPE_CHECKING:
+    from riskshape.store.records import GENESIS_HASH as GENESIS_HASH
+    from riskshape.store.records import REVIEW_ACTIONS as REVIEW_ACTIONS
+    from riskshape.store.records import AlertAppend as AlertAppend
+    from riskshape.store.records import AlertDetail as AlertDetail
+    from riskshape.store.records import AlertPage as AlertPage
+    from riskshape.store.records import AlertRecord as AlertRecord
+    from riskshape.store.records import ApiKey as ApiKey
+    from riskshape.store.records import BadRecord as BadRecord
+    from riskshape.store.records import Diagram as Diagram
+    from riskshape.store.records import EventRecord as EventRecord
+    from riskshape.store.records import FeaturesPage as FeaturesPage
+    from riskshape.store.records import Head as Head
+    from riskshape.store.records import NewApiKey as NewApiKey
+    from riskshape.store.records import Portfolio as Portfolio
+    from riskshape.store.records import PriceCorrection as PriceCorrection
+    from riskshape.store.records import PriceWrite as PriceWrite
+    from riskshape.store.records import ReviewRecord as ReviewRecord
+    from riskshape.store.records import Run as Run
+    from riskshape.store.records import RunManifest as RunManifest
+    from riskshape.store.records import VerifyReport as VerifyReport
+    from riskshape.store.records import WriteCount as WriteCount
+    from riskshape.store.store import Store as Store
+    from riskshape.store.store import chain_head as chain_head
+    from riskshape.store.store import open_store as open_store
+    from riskshape.store.store import verify_chain as verify_chain
+
+_EXPORTS = {
+    "open_store": "riskshape.store.store",
+    "Store": "riskshape.store.store",
+    "verify_chain": "riskshape.store.store",
+    "chain_head": "riskshape.store.store",
+    "GENESIS_HASH": "riskshape.store.records",
+    "REVIEW_ACTIONS": "riskshape.store.records",
+    "AlertAppend": "riskshape.store.records",
+    "AlertDetail": "riskshape.store.records",
+    "AlertPage": "riskshape.store.records",
+    "AlertRecord": "riskshape.store.records",
+    "ApiKey": "riskshape.store.records",
+    "BadRecord": "riskshape.store.records",
+    "Diagram": "riskshape.store.records",
+    "EventRecord": "riskshape.store.records",
+    "FeaturesPage": "riskshape.store.records",
+    "Head": "riskshape.store.records",
+    "NewApiKey": "riskshape.store.records",
+    "Portfolio": "riskshape.store.records",
+    "PriceCorrection": "riskshape.store.records",
+    "PriceWrite": "riskshape.store.records",
+    "ReviewRecord": "riskshape.store.records",
+    "Run": "riskshape.store.records",
+    "RunManifest": "riskshape.store.records",
+    "VerifyReport": "riskshape.store.records",
+    "WriteCount": "riskshape.store.records",
+}
+
+__all__ = list(_EXPORTS)
+
+__getattr__, __dir__ = lazy_exports(__name__, _EXPORTS)

@@ -440,7 +440,18 @@ def verify_chain(store: Store, expect_head: str | None = None) -> VerifyReport:
 
 @_database_errors
 def chain_head(store: Store) -> Head:
-    """Record count and hash of the last record, as stored (run :func:`verify_chain` to check them)."""
+    """Record count and hash of the last record, as stored (run :func:`verify_chain` to check them).
+
+    Parameters
+    ----------
+    store : Store
+        An open archive.
+
+    Returns
+    -------
+    Head
+        Count and head hash.
+    """
     with read_transaction(store.engine) as connection:
         seq, head = ledger.ledger_head(connection)
     return Head(count=seq, head_hash=head)

@@ -1,0 +1,42 @@
+"""Quick commands load only what they use: no numerical or plotting library at start.
+
+Run in a fresh interpreter (this test process has loaded everything already). A behaviour
+check; the start-up time itself is measured in benchmarks/README.md.
+"""
+
+from __future__ import annotations
+
+import json
+import subprocess
+import sys
+
+import pytest
+
+HEAVY = ("scipy", "matplotlib", "ripser", "gph", "sklearn", "dask")
+
+
+def _heavy_modules_after(code: str) -> list[str]:
+    report = "import json, sys\nprint(json.dumps(sorted({m.split('.')[0] for m in sys.modules} & set(sys.argv[1:]))))"
+    out = subprocess.run(
+        [sys.executable, "-c", f"{code}\n{report}", *HEAVY], capture_output=True, text=True, check=True, timeout=120
+    )
+    return json.loads(out.stdout.strip().splitlines()[-1])
+
+
+@pytest.mark.parametrize(
+    "code",
+    [
+        "import riskshape",
+        "import riskshape.cli",
+        "import riskshape.cli.alerts",
+        "import riskshape.cli.audit",
+        "from riskshape.cli import cli; cli.get_command(None, 'alerts'); cli.get_command(None, 'audit')",
+        "import riskshape.store, riskshape.alerts, riskshape.explain, riskshape.compute, riskshape.outputs",
+    ],
+)
+def test_quick_commands_load_no_heavy_library(code: str) -> None:
+    assert _heavy_modules_after(code) == []
+
+
+def test_the_probe_sees_a_heavy_import() -> None:
+    assert _heavy_modules_after("import riskshape.compute.distance") == ["scipy"]
