@@ -11,8 +11,8 @@ from typing import Any, Literal
 
 from pydantic import BaseModel, ConfigDict, Field, ValidationError
 
+from riskshape import ConfigError
 from riskshape.config import format_validation_error
-from riskshape.errors import ConfigError
 
 __all__ = ["ServiceSettings"]
 

@@ -27,6 +27,7 @@ PUBLIC_PACKAGES = (
     "riskshape.demo",
     "riskshape.research",
     "riskshape.types",
+    "riskshape.config",
 )
 
 # (module, name) imports allowed past the public packages, each with its reason (none today).

@@ -87,7 +87,7 @@ def trailing_levels(values: pd.Series, rule: RuleConfig) -> RuleLevels:
     Examples
     --------
     >>> import pandas as pd
-    >>> rule = RuleConfig(name="r", summary="x", kind="quantile", threshold=0.5, lookback=3)
+    >>> rule = RuleConfig(name="r", summary="x", kind="quantile", threshold=0.5, lookback=3, min_history=0)
     >>> trailing_levels(pd.Series([1.0, 3.0, 2.0, 10.0]), rule).threshold.tolist()
     [nan, 1.0, 2.0, 2.0]
     """
