@@ -27,9 +27,11 @@ from riskshape_service.context import ServiceContext
 from riskshape_service.docs import mount_docs
 from riskshape_service.handlers import install_handlers
 from riskshape_service.ingest import Ingestor
+from riskshape_service.keycache import KeyCache
 from riskshape_service.logs import LOGGER_NAME, stamp_request_ids
 from riskshape_service.metrics import ServiceMetrics
 from riskshape_service.middleware import CAUTION_HEADER, CAUTION_HEADER_VALUE, RequestContextMiddleware
+from riskshape_service.prepared import PreparedBodies
 from riskshape_service.ratelimit import RateLimiter
 from riskshape_service.routers import (
     alerts,
@@ -106,6 +108,8 @@ def create_app(settings: ServiceSettings | None = None) -> FastAPI:
         limiter=RateLimiter(settings.rate_limit_per_minute, settings.rate_limit_burst),
         ingestor=Ingestor(config, settings.result_cache_size),
         snapshots=Snapshots(config),
+        keys=KeyCache(settings.key_recheck_seconds),
+        prepared=PreparedBodies(),
     )
 
     @asynccontextmanager

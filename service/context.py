@@ -1,6 +1,6 @@
 """What one app holds while it runs: settings, the open archive, the default configuration, the rate
-limiter, the metrics, the ingest engine and the snapshots pollers read. Made by ``create_app``, kept
-on ``app.state.context``.
+limiter, the metrics, the ingest engine, the snapshots pollers read, the key checks and the
+prepared response bodies. Made by ``create_app``, kept on ``app.state.context``.
 """
 
 from __future__ import annotations
@@ -10,7 +10,9 @@ from dataclasses import dataclass
 from riskshape.config import Config, ServiceSettings
 from riskshape.store import Store
 from riskshape_service.ingest import Ingestor
+from riskshape_service.keycache import KeyCache
 from riskshape_service.metrics import ServiceMetrics
+from riskshape_service.prepared import PreparedBodies
 from riskshape_service.ratelimit import RateLimiter
 from riskshape_service.snapshots import Snapshots
 
@@ -27,5 +29,7 @@ class ServiceContext:
     limiter: RateLimiter
     ingestor: Ingestor
     snapshots: Snapshots
+    keys: KeyCache
+    prepared: PreparedBodies
     store: Store | None = None
     store_error: str | None = None

@@ -1,7 +1,8 @@
 """FastAPI dependencies as ``Annotated`` aliases: the archive, the caller's key and role, paging.
 
-The dependencies that only look things up are ``async`` (they run on the event loop, no thread
-hop); the key check reads the archive and runs in the thread pool like the endpoints.
+The dependencies are ``async`` (they run on the event loop, no thread hop). The key check reads
+the archive only when the key's last check is older than the ``key_recheck_seconds`` setting
+(:mod:`riskshape_service.keycache`), and then in the thread pool.
 
 ``ReaderDep``, ``IngestDep``, ``ReviewerDep`` and ``AdminDep`` authenticate the
 ``X-Riskshape-Key`` header, check the role (401 without a valid key, 403 for the wrong role) and
@@ -15,6 +16,7 @@ from typing import Annotated
 
 from fastapi import Depends, HTTPException, Request, Security
 from fastapi.security import APIKeyHeader
+from starlette.concurrency import run_in_threadpool
 
 from riskshape.store import Store
 from riskshape_service.auth import KEY_HEADER, URL_KEY_NAMES, Caller, Permission, Role, may
@@ -57,8 +59,14 @@ def _unauthorized(detail: str) -> HTTPException:
     return HTTPException(status_code=401, detail=detail, headers={"WWW-Authenticate": KEY_HEADER})
 
 
-def authenticate(request: Request, context: ContextDep, token: Annotated[str | None, Security(_key_header)]) -> Caller:
-    """The caller of a request with a valid, unrevoked key; one token of its rate limit spent."""
+async def authenticate(
+    request: Request, context: ContextDep, token: Annotated[str | None, Security(_key_header)]
+) -> Caller:
+    """The caller of a request with a valid, unrevoked key; one token of its rate limit spent.
+
+    A key checked against the archive less than ``key_recheck_seconds`` ago is trusted without a
+    query; an older one is read again (so a revocation reaches every worker within that time).
+    """
     if not token:
         if URL_KEY_NAMES & {name.lower() for name in request.query_params}:
             raise _unauthorized(
@@ -66,7 +74,9 @@ def authenticate(request: Request, context: ContextDep, token: Annotated[str | N
                 "send the key in the header, and revoke a key that was sent in a URL"
             )
         raise _unauthorized(f"missing API key; send it in the {KEY_HEADER} header")
-    key = _open_store(context).lookup_api_key(token)
+    key = context.keys.fresh(token)
+    if key is None:
+        key = await run_in_threadpool(context.keys.check, _open_store(context), token)
     if key is None:
         raise _unauthorized(f"the key in {KEY_HEADER} is not valid; check it or ask an admin for a new one")
     if key.revoked:

@@ -328,6 +328,9 @@ class ServiceSettings(_Frozen):
         archive at its next ingest (0.5 s instead of 0.03 s for 24 assets and two years). A result
         holds the portfolio's prices, returns and float32 diagrams: a few MB for 100 assets and two
         years (1.5 MB pickled), about 75 MB for 500 assets and 20 years.
+    key_recheck_seconds : float
+        Age past which a worker reads an API key again from the archive before trusting it: a key
+        revoked through any process is refused by every worker within this time (0: every request).
     """
 
     store_url: str = "sqlite:///riskshape.sqlite"
@@ -338,6 +341,7 @@ class ServiceSettings(_Frozen):
     config_path: str | None = None
     log_level: Literal["debug", "info", "warning", "error"] = "info"
     result_cache_size: int = Field(128, ge=0)
+    key_recheck_seconds: float = Field(1.0, ge=0, le=60)
 
     @classmethod
     def from_env(cls, environ: Mapping[str, str] | None = None, **overrides: Any) -> ServiceSettings:

@@ -6,6 +6,7 @@
 True
 """
 
+from riskshape.store.markers import ChangeMarker
 from riskshape.store.records import (
     GENESIS_HASH,
     REVIEW_ACTIONS,
@@ -28,13 +29,15 @@ from riskshape.store.records import (
     VerifyReport,
     WriteCount,
 )
-from riskshape.store.store import Store, chain_head, open_store, verify_chain
+from riskshape.store.store import Store, chain_head, change_marker, open_store, verify_chain
 
 __all__ = [
     "open_store",
     "Store",
     "verify_chain",
     "chain_head",
+    "change_marker",
+    "ChangeMarker",
     "GENESIS_HASH",
     "REVIEW_ACTIONS",
     "AlertAppend",
