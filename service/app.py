@@ -25,6 +25,7 @@ from riskshape.errors import RiskshapeError
 from riskshape.store import open_store
 from riskshape_service.context import ServiceContext
 from riskshape_service.docs import mount_docs
+from riskshape_service.freshness import MarkerRounds
 from riskshape_service.handlers import install_handlers
 from riskshape_service.ingest import Ingestor
 from riskshape_service.keycache import KeyCache
@@ -110,6 +111,7 @@ def create_app(settings: ServiceSettings | None = None) -> FastAPI:
         snapshots=Snapshots(config),
         keys=KeyCache(settings.key_recheck_seconds),
         prepared=PreparedBodies(),
+        markers=MarkerRounds(),
     )
 
     @asynccontextmanager

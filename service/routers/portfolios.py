@@ -8,11 +8,11 @@ from fastapi import APIRouter, Path, Request, Response
 from starlette.concurrency import run_in_threadpool
 
 from riskshape.config import ServiceSettings
-from riskshape.store import ChangeMarker, Store, change_marker
+from riskshape.store import ChangeMarker, Store
 from riskshape_service import access
 from riskshape_service.context import ServiceContext
 from riskshape_service.convert import alert_out, rule_state_out
-from riskshape_service.deps import AdminDep, ContextDep, ReaderDep, StoreDep
+from riskshape_service.deps import AdminDep, ReadAccessDep, ReaderDep, StoreDep
 from riskshape_service.prepared import NOT_MODIFIED, etag_matches, latest_etag, not_modified, prepared_response
 from riskshape_service.routers import API_PREFIX, errors
 from riskshape_service.schemas import (
@@ -49,15 +49,14 @@ def make_router(settings: ServiceSettings) -> APIRouter:
         response_model=LatestOut,
         responses={**errors(401, 403, 404, 429), **NOT_MODIFIED},
     )
-    async def latest(
-        name: PortfolioName, request: Request, caller: ReaderDep, store: StoreDep, context: ContextDep
-    ) -> Response:
+    async def latest(name: PortfolioName, request: Request, access: ReadAccessDep) -> Response:
         """The last window: its summaries, where each alert rule stands, and the alerts still active.
 
         Served from bytes prepared once per change of the archive, with a strong `ETag`; send it back
         in `If-None-Match` to get `304 Not Modified` while nothing has changed.
         """
-        marker = await run_in_threadpool(change_marker, store, name)
+        store, context = access.store, access.context
+        marker = await context.markers.current(store, name)
         etag = latest_etag(marker)
         if etag_matches(request.headers.get("if-none-match"), etag):
             return not_modified(etag)

@@ -11,10 +11,10 @@ from fastapi import APIRouter, Query, Request, Response
 from starlette.concurrency import run_in_threadpool
 
 from riskshape.config import ServiceSettings
-from riskshape.store import ChangeMarker, Store, change_marker
+from riskshape.store import ChangeMarker, Store
 from riskshape_service import access
 from riskshape_service.context import ServiceContext
-from riskshape_service.deps import ContextDep, ReaderDep, StoreDep
+from riskshape_service.deps import ReadAccessDep
 from riskshape_service.prepared import NOT_MODIFIED, etag_matches, not_modified, prepared_response, series_etag
 from riskshape_service.routers import API_PREFIX, MAX_ID, errors
 from riskshape_service.routers.portfolios import PortfolioName
@@ -35,9 +35,7 @@ def make_router(settings: ServiceSettings) -> APIRouter:
     async def series(
         name: PortfolioName,
         request: Request,
-        caller: ReaderDep,
-        store: StoreDep,
-        context: ContextDep,
+        access: ReadAccessDep,
         start: Annotated[date | None, Query(description="first window end (inclusive)")] = None,
         end: Annotated[date | None, Query(description="last window end (inclusive)")] = None,
         summaries: Annotated[list[str] | None, Query(description="summaries to return (repeat); default all")] = None,
@@ -50,7 +48,8 @@ def make_router(settings: ServiceSettings) -> APIRouter:
         send it back in `If-None-Match` to get `304 Not Modified` while nothing has changed.
         """
         query = PageQuery(start, end, None if summaries is None else tuple(summaries), limit, offset)
-        marker = await run_in_threadpool(change_marker, store, name)
+        store, context = access.store, access.context
+        marker = await context.markers.current(store, name)
         etag = series_etag(marker, query)
         if etag_matches(request.headers.get("if-none-match"), etag):
             return not_modified(etag)

@@ -14,15 +14,12 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-import sqlalchemy as sa
 from sqlalchemy.engine import Engine
 
-from riskshape.errors import NotFoundError
-from riskshape.store import schema as t
-from riskshape.store.database import read_transaction
+from riskshape.errors import NotFoundError, StoreError
 from riskshape.store.records import GENESIS_HASH
 
-__all__ = ["ChangeMarker", "read_change_marker"]
+__all__ = ["ChangeMarker", "read_change_marker", "MARKER_SQL"]
 
 
 @dataclass(frozen=True)
@@ -54,14 +51,20 @@ class ChangeMarker:
         return (self.run_id, self.features_through)
 
 
-def _marker_query(portfolio: str) -> sa.Select[tuple[int, int | None, int | None, int | None, str | None]]:
-    p = t.portfolios
-    run_id = sa.select(sa.func.max(t.runs.c.id)).where(t.runs.c.portfolio_id == p.c.id).scalar_subquery()
-    features = sa.select(sa.func.max(t.features.c.id)).where(t.features.c.portfolio_id == p.c.id).scalar_subquery()
-    last = sa.select(t.ledger.c.seq, t.ledger.c.entry_hash).order_by(t.ledger.c.seq.desc()).limit(1).subquery()
-    seq = sa.select(last.c.seq).scalar_subquery()
-    head = sa.select(last.c.entry_hash).scalar_subquery()
-    return sa.select(p.c.id, run_id, features, seq, head).where(p.c.name == portfolio)
+MARKER_SQL = (
+    "SELECT p.id,"
+    " (SELECT max(r.id) FROM runs r WHERE r.portfolio_id = p.id),"
+    " (SELECT max(f.id) FROM features f WHERE f.portfolio_id = p.id),"
+    " (SELECT l.seq FROM ledger l ORDER BY l.seq DESC LIMIT 1),"
+    " (SELECT l.entry_hash FROM ledger l ORDER BY l.seq DESC LIMIT 1)"
+    " FROM portfolios p WHERE p.name = {name}"
+)
+"""The one query (each part an index lookup; the feature ids of one portfolio are a range of its
+unique index). Written out for the driver, on a pooled connection without SQLAlchemy's statement
+layer: this runs once per read request, where building and compiling a statement cost several
+times the query itself."""
+
+_PLACEHOLDERS = {"qmark": "?", "format": "%s", "pyformat": "%s"}
 
 
 def read_change_marker(engine: Engine, portfolio: str) -> ChangeMarker:
@@ -72,8 +75,22 @@ def read_change_marker(engine: Engine, portfolio: str) -> ChangeMarker:
     NotFoundError
         If the portfolio does not exist.
     """
-    with read_transaction(engine) as connection:
-        row = connection.execute(_marker_query(portfolio)).first()
+    sql = MARKER_SQL.format(name=_PLACEHOLDERS[engine.dialect.paramstyle])
+    try:
+        connection = engine.raw_connection()
+        try:
+            cursor = connection.cursor()
+            try:
+                cursor.execute(sql, (portfolio,))
+                row = cursor.fetchone()
+            finally:
+                cursor.close()
+        finally:
+            connection.close()  # back to the pool, which rolls back whatever the driver began
+    except engine.dialect.loaded_dbapi.Error as err:
+        raise StoreError(
+            f"change_marker: database error ({str(err).splitlines()[0] if str(err) else type(err).__name__})"
+        ) from None
     if row is None:
         raise NotFoundError(f"portfolio {portfolio!r} is not in the archive; create it or check the name")
     _, run_id, features, seq, head = row
