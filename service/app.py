@@ -2,7 +2,8 @@
 
 Layers, outermost first: the request middleware (request id, caution header, access log,
 metrics, last-resort 500, early 413 for a declared oversize body); Starlette's streaming body
-limit (413 for chunked uploads too, counted as the bytes arrive); the error handlers of
+limit (413 for chunked uploads too, counted as the bytes arrive); the fast path of prepared
+latest states (:mod:`riskshape_service.readpath`); the error handlers of
 :mod:`riskshape_service.handlers`; the routers under ``/v1`` (and ``/metrics``). OpenAPI at
 ``/openapi.json``, interactive docs at ``/docs``.
 """
@@ -34,6 +35,7 @@ from riskshape_service.metrics import ServiceMetrics
 from riskshape_service.middleware import CAUTION_HEADER, CAUTION_HEADER_VALUE, RequestContextMiddleware
 from riskshape_service.prepared import PreparedBodies
 from riskshape_service.ratelimit import RateLimiter
+from riskshape_service.readpath import LatestFastPath
 from riskshape_service.routers import (
     alerts,
     audit,
@@ -144,6 +146,7 @@ def create_app(settings: ServiceSettings | None = None) -> FastAPI:
     install_handlers(app)
     for module in ROUTERS:
         app.include_router(module.make_router(settings))
+    app.add_middleware(LatestFastPath, context=context)  # innermost: prepared latest states before routing
     app.add_middleware(RequestBodyLimitMiddleware, max_body_size=settings.max_body_bytes)
     app.add_middleware(RequestContextMiddleware, metrics=service_metrics, max_body_bytes=settings.max_body_bytes)
     app.openapi = lambda: _openapi(app)  # type: ignore[method-assign]

@@ -221,3 +221,21 @@ def test_keys_stay_out_of_logs_on_the_read_path(
         client.get(LATEST, headers={**auth("reader"), "If-None-Match": "*"})
     text = caplog.text + json.dumps([r.__dict__ for r in caplog.records], default=str)
     assert caplog.records and all(token not in text for token in keys.values())
+
+
+def test_the_fast_path_answers_as_the_endpoint_does(client: TestClient, auth: Auth, loaded: dict) -> None:
+    first = client.get(LATEST, headers=auth("reader"))  # the endpoint prepares the body
+    context = client.app.state.context  # type: ignore[attr-defined]
+    reads = context.markers.reads
+    second = client.get(LATEST, headers=auth("reader"))  # answered from the prepared bytes
+    assert context.markers.reads == reads + 1  # still one change-marker read for the request
+    assert second.content == first.content and second.headers["ETag"] == first.headers["ETag"]
+    for header in ("Content-Type", "Cache-Control", "Vary", "X-Riskshape-Caution"):
+        assert second.headers[header] == first.headers[header]
+    with_query = client.get(LATEST, params={"x": "1"}, headers=auth("reader"))
+    assert with_query.status_code == 200 and with_query.content == first.content
+    metrics = client.get("/metrics", headers=auth("admin")).text
+    assert 'route="/v1/portfolios/{name}/latest",status="200"} 3.0' in metrics.replace("_total", "")
+    for headers in ({}, {"X-Riskshape-Key": "nope.nope"}, auth("reader") | {"X-Riskshape-Key": "x" * 300}):
+        refused = client.get(LATEST, headers=headers)
+        assert refused.status_code == 401 and "ETag" not in refused.headers
