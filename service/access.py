@@ -10,7 +10,7 @@ from dataclasses import dataclass
 from datetime import date
 
 from riskshape.alerts import RuleState, rule_states
-from riskshape.store import AlertRecord, FeaturesPage, Head, Store, chain_head
+from riskshape.store import AlertRecord, ChangeMarker, FeaturesPage, Head, Store, chain_head
 from riskshape_service.snapshots import Snapshots
 
 __all__ = ["LatestState", "latest_state", "series_page", "store_status"]
@@ -29,22 +29,23 @@ class LatestState:
     active_alerts: tuple[AlertRecord, ...]
 
 
-def latest_state(store: Store, portfolio: str, snapshots: Snapshots) -> LatestState:
+def latest_state(store: Store, portfolio: str, snapshots: Snapshots, marker: ChangeMarker) -> LatestState:
     """The latest state of ``portfolio`` (its last archived window under its latest configuration).
 
     Active alerts are the archived alerts whose rule is still active -- fired and not cleared --
     at the last window (:func:`riskshape.alerts.rules.rule_states` over the archived series).
+    ``marker`` is the portfolio's change marker, read when the request arrived.
 
     Raises
     ------
     NotFoundError
         If the portfolio does not exist.
     """
-    snapshot = snapshots.get(store, portfolio)
+    snapshot = snapshots.get(store, portfolio, marker)
     run, frame = snapshot.run, snapshot.frame
     if run is None or frame.empty:
         return LatestState(portfolio, None if run is None else run.config_hash, 0, None, {}, (), ())
-    head = chain_head(store).count
+    head = (marker.ledger_count, marker.ledger_hash)
     held = snapshot.latest.get(head)
     if isinstance(held, LatestState):
         return held
@@ -74,6 +75,7 @@ def series_page(
     store: Store,
     portfolio: str,
     snapshots: Snapshots,
+    marker: ChangeMarker,
     *,
     start: date | None,
     end: date | None,
@@ -82,7 +84,9 @@ def series_page(
     offset: int,
 ) -> FeaturesPage:
     """A page of the summaries series; an unknown summary name is a DataError naming the known ones."""
-    return snapshots.get(store, portfolio).page(start=start, end=end, columns=columns, limit=limit, offset=offset)
+    return snapshots.get(store, portfolio, marker).page(
+        start=start, end=end, columns=columns, limit=limit, offset=offset
+    )
 
 
 def store_status(store: Store) -> Head:

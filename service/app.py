@@ -2,7 +2,8 @@
 
 Layers, outermost first: the request middleware (request id, caution header, access log,
 metrics, last-resort 500, early 413 for a declared oversize body); Starlette's streaming body
-limit (413 for chunked uploads too, counted as the bytes arrive); the error handlers of
+limit (413 for chunked uploads too, counted as the bytes arrive); the fast path of prepared
+latest states (:mod:`riskshape_service.readpath`); the error handlers of
 :mod:`riskshape_service.handlers`; the routers under ``/v1`` (and ``/metrics``). OpenAPI at
 ``/openapi.json``, interactive docs at ``/docs``.
 """
@@ -22,12 +23,16 @@ from riskshape import CAUTION, Config, RiskshapeError, __version__
 from riskshape.store import open_store
 from riskshape_service.context import ServiceContext
 from riskshape_service.docs import mount_docs
+from riskshape_service.freshness import MarkerRounds
 from riskshape_service.handlers import install_handlers
 from riskshape_service.ingest import Ingestor
+from riskshape_service.keycache import KeyCache
 from riskshape_service.logs import LOGGER_NAME, stamp_request_ids
 from riskshape_service.metrics import ServiceMetrics
 from riskshape_service.middleware import CAUTION_HEADER, CAUTION_HEADER_VALUE, RequestContextMiddleware
+from riskshape_service.prepared import PreparedBodies
 from riskshape_service.ratelimit import RateLimiter
+from riskshape_service.readpath import LatestFastPath
 from riskshape_service.routers import (
     alerts,
     audit,
@@ -104,6 +109,9 @@ def create_app(settings: ServiceSettings | None = None) -> FastAPI:
         limiter=RateLimiter(settings.rate_limit_per_minute, settings.rate_limit_burst),
         ingestor=Ingestor(config, settings.result_cache_size),
         snapshots=Snapshots(config),
+        keys=KeyCache(settings.key_recheck_seconds),
+        prepared=PreparedBodies(),
+        markers=MarkerRounds(),
     )
 
     @asynccontextmanager
@@ -136,6 +144,7 @@ def create_app(settings: ServiceSettings | None = None) -> FastAPI:
     install_handlers(app)
     for module in ROUTERS:
         app.include_router(module.make_router(settings))
+    app.add_middleware(LatestFastPath, context=context)  # innermost: prepared latest states before routing
     app.add_middleware(RequestBodyLimitMiddleware, max_body_size=settings.max_body_bytes)
     app.add_middleware(RequestContextMiddleware, metrics=service_metrics, max_body_bytes=settings.max_body_bytes)
     app.openapi = lambda: _openapi(app)  # type: ignore[method-assign]

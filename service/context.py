@@ -1,6 +1,7 @@
 """What one app holds while it runs: settings, the open archive, the default configuration, the rate
-limiter, the metrics, the ingest engine and the snapshots pollers read. Made by ``create_app``, kept
-on ``app.state.context``.
+limiter, the metrics, the ingest engine, the snapshots pollers read, the key checks, the prepared
+response bodies and the rounds of change-marker reads. Made by ``create_app``, kept on
+``app.state.context``.
 """
 
 from __future__ import annotations
@@ -9,8 +10,11 @@ from dataclasses import dataclass
 
 from riskshape import Config
 from riskshape.store import Store
+from riskshape_service.freshness import MarkerRounds
 from riskshape_service.ingest import Ingestor
+from riskshape_service.keycache import KeyCache
 from riskshape_service.metrics import ServiceMetrics
+from riskshape_service.prepared import PreparedBodies
 from riskshape_service.ratelimit import RateLimiter
 from riskshape_service.settings import ServiceSettings
 from riskshape_service.snapshots import Snapshots
@@ -28,5 +32,8 @@ class ServiceContext:
     limiter: RateLimiter
     ingestor: Ingestor
     snapshots: Snapshots
+    keys: KeyCache
+    prepared: PreparedBodies
+    markers: MarkerRounds
     store: Store | None = None
     store_error: str | None = None

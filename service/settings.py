@@ -46,6 +46,9 @@ class ServiceSettings(BaseModel):
         archive at its next ingest (0.5 s instead of 0.03 s for 24 assets and two years). A result
         holds the portfolio's prices, returns and float32 diagrams: a few MB for 100 assets and two
         years (1.5 MB pickled), about 75 MB for 500 assets and 20 years.
+    key_recheck_seconds : float
+        Age past which a worker reads an API key again from the archive before trusting it: a key
+        revoked through any process is refused by every worker within this time (0: every request).
     """
 
     model_config = ConfigDict(frozen=True, extra="forbid")
@@ -58,6 +61,7 @@ class ServiceSettings(BaseModel):
     config_path: str | None = None
     log_level: Literal["debug", "info", "warning", "error"] = "info"
     result_cache_size: int = Field(128, ge=0)
+    key_recheck_seconds: float = Field(1.0, ge=0, le=60)
 
     def __init__(self, **data: Any) -> None:
         try:

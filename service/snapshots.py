@@ -1,11 +1,11 @@
 """What the pollers read, kept in memory between writes: each portfolio's features series under its
 latest configuration, and its latest state.
 
-A snapshot is keyed by the portfolio's latest run: every write of windows records a run first (the
-archive is append-only, so rows of a run never change afterwards), so a new run id is the only
-signal needed that the series grew. The latest state also depends on the alerts, so it is keyed
-by the ledger's head as well. Both keys are read from the archive on every request, so several
-processes serving one archive stay consistent.
+A snapshot is keyed by the portfolio's change marker (:func:`riskshape.store.change_marker`): its
+latest run and the highest id of its window rows (the archive is append-only, so rows never change
+afterwards and new ones get higher ids). The latest state also depends on the alerts, so it is
+keyed by the ledger's head as well. The marker is read from the archive on every request, so
+several processes serving one archive stay consistent.
 """
 
 from __future__ import annotations
@@ -18,7 +18,7 @@ from datetime import date
 import pandas as pd
 
 from riskshape import Config, DataError
-from riskshape.store import FeaturesPage, Run, Store
+from riskshape.store import ChangeMarker, FeaturesPage, Run, Store
 
 __all__ = ["Snapshot", "Snapshots"]
 
@@ -30,7 +30,8 @@ class Snapshot:
     run: Run | None
     config: Config
     frame: pd.DataFrame
-    latest: dict[int, object] = field(default_factory=dict)  # ledger head count -> latest state
+    key: tuple[int | None, int | None] = (None, None)  # the marker's series key it was read at
+    latest: dict[tuple[int, str], object] = field(default_factory=dict)  # ledger head -> latest state
 
     def page(
         self, *, start: date | None, end: date | None, columns: list[str] | None, limit: int, offset: int
@@ -65,34 +66,28 @@ class Snapshots:
         self._held: OrderedDict[str, Snapshot] = OrderedDict()
         self._lock = threading.Lock()
 
-    def get(self, store: Store, portfolio: str) -> Snapshot:
-        """The portfolio's snapshot, read again from the archive if a run was recorded since.
+    def get(self, store: Store, portfolio: str, marker: ChangeMarker) -> Snapshot:
+        """The portfolio's snapshot, read again from the archive if ``marker`` says its series changed.
 
         Raises
         ------
         NotFoundError
             If the portfolio does not exist.
         """
-        run = store.latest_run(portfolio)
         with self._lock:
             held = self._held.get(portfolio)
-        if held is not None and _same_run(held.run, run):
+        if held is not None and held.key == marker.series_key:
             return held
+        run = store.latest_run(portfolio) if marker.run_id is not None else None
         if run is None:
             made = Snapshot(None, self.default_config, pd.DataFrame(index=pd.DatetimeIndex([], name="window_end")))
         else:
             config = Config.from_mapping(run.config, where=f"run {run.id} of portfolio {portfolio!r}")
             made = Snapshot(run, config, store.read_features(portfolio, config_hash=run.config_hash).frame)
+        made.key = marker.series_key
         with self._lock:
             self._held[portfolio] = made
             self._held.move_to_end(portfolio)
             while len(self._held) > self.size:
                 self._held.popitem(last=False)
         return made
-
-
-def _same_run(held: Run | None, latest: Run | None) -> bool:
-    """True when both are None (no run yet) or both are the same run."""
-    if held is None or latest is None:
-        return held is None and latest is None
-    return held.id == latest.id

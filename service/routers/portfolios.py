@@ -1,14 +1,18 @@
-"""Portfolios: list them, create one (admin), and a portfolio's latest state."""
+"""Portfolios: list them, create one (admin), and a portfolio's latest state (prepared bytes, ETag)."""
 
 from __future__ import annotations
 
 from typing import Annotated
 
-from fastapi import APIRouter, Path
+from fastapi import APIRouter, Path, Request, Response
+from starlette.concurrency import run_in_threadpool
 
+from riskshape.store import ChangeMarker, Store
 from riskshape_service import access
+from riskshape_service.context import ServiceContext
 from riskshape_service.convert import alert_out, rule_state_out
-from riskshape_service.deps import AdminDep, ContextDep, ReaderDep, StoreDep
+from riskshape_service.deps import AdminDep, ReadAccessDep, ReaderDep, StoreDep
+from riskshape_service.prepared import NOT_MODIFIED, etag_matches, latest_etag, not_modified, prepared_response
 from riskshape_service.routers import API_PREFIX, errors
 from riskshape_service.schemas import (
     LatestOut,
@@ -20,7 +24,7 @@ from riskshape_service.schemas import (
 )
 from riskshape_service.settings import ServiceSettings
 
-__all__ = ["make_router", "PortfolioName"]
+__all__ = ["make_router", "PortfolioName", "render_latest"]
 
 PortfolioName = Annotated[str, Path(min_length=1, max_length=200, description="portfolio name")]
 
@@ -41,18 +45,41 @@ def make_router(settings: ServiceSettings) -> APIRouter:
         made = store.create_portfolio(body.name)
         return PortfolioCreated(portfolio=PortfolioOut(name=made.name, created_at=made.created_at))
 
-    @router.get("/{name}/latest", response_model=LatestOut, responses=errors(401, 403, 404, 429))
-    def latest(name: PortfolioName, caller: ReaderDep, store: StoreDep, context: ContextDep) -> LatestOut:
-        """The last window: its summaries, where each alert rule stands, and the alerts still active."""
-        state = access.latest_state(store, name, context.snapshots)
-        return LatestOut(
-            portfolio=state.portfolio,
-            config_hash=state.config_hash,
-            n_windows=state.n_windows,
-            window_end=state.window_end,
-            values={k: finite_or_none(v) for k, v in state.values.items()},
-            rules=[rule_state_out(s) for s in state.rules],
-            active_alerts=[alert_out(a) for a in state.active_alerts],
-        )
+    @router.get(
+        "/{name}/latest",
+        response_model=LatestOut,
+        responses={**errors(401, 403, 404, 429), **NOT_MODIFIED},
+    )
+    async def latest(name: PortfolioName, request: Request, access: ReadAccessDep) -> Response:
+        """The last window: its summaries, where each alert rule stands, and the alerts still active.
+
+        Served from bytes prepared once per change of the archive, with a strong `ETag`; send it back
+        in `If-None-Match` to get `304 Not Modified` while nothing has changed.
+        """
+        store, context = access.store, access.context
+        marker = await context.markers.current(store, name)
+        etag = latest_etag(marker)
+        if etag_matches(request.headers.get("if-none-match"), etag):
+            return not_modified(etag)
+        body = context.prepared.get(("latest", name), etag)
+        if body is None:
+            body = await run_in_threadpool(render_latest, store, name, context, marker)
+            context.prepared.put(("latest", name), etag, body)
+        return prepared_response(body, etag)
 
     return router
+
+
+def render_latest(store: Store, name: str, context: ServiceContext, marker: ChangeMarker) -> bytes:
+    """The JSON bytes of a portfolio's latest state, as of ``marker``."""
+    state = access.latest_state(store, name, context.snapshots, marker)
+    out = LatestOut(
+        portfolio=state.portfolio,
+        config_hash=state.config_hash,
+        n_windows=state.n_windows,
+        window_end=state.window_end,
+        values={k: finite_or_none(v) for k, v in state.values.items()},
+        rules=[rule_state_out(s) for s in state.rules],
+        active_alerts=[alert_out(a) for a in state.active_alerts],
+    )
+    return out.model_dump_json().encode("utf-8")

@@ -13,6 +13,7 @@ from typing import TYPE_CHECKING
 from riskshape._lazy import lazy_exports
 
 if TYPE_CHECKING:
+    from riskshape.store.markers import ChangeMarker as ChangeMarker
     from riskshape.store.records import GENESIS_HASH as GENESIS_HASH
     from riskshape.store.records import REVIEW_ACTIONS as REVIEW_ACTIONS
     from riskshape.store.records import AlertAppend as AlertAppend
@@ -36,6 +37,7 @@ if TYPE_CHECKING:
     from riskshape.store.records import WriteCount as WriteCount
     from riskshape.store.store import Store as Store
     from riskshape.store.store import chain_head as chain_head
+    from riskshape.store.store import change_marker as change_marker
     from riskshape.store.store import open_store as open_store
     from riskshape.store.store import verify_chain as verify_chain
 
@@ -44,6 +46,8 @@ _EXPORTS = {
     "Store": "riskshape.store.store",
     "verify_chain": "riskshape.store.store",
     "chain_head": "riskshape.store.store",
+    "change_marker": "riskshape.store.store",
+    "ChangeMarker": "riskshape.store.markers",
     "GENESIS_HASH": "riskshape.store.records",
     "REVIEW_ACTIONS": "riskshape.store.records",
     "AlertAppend": "riskshape.store.records",

@@ -27,6 +27,7 @@ from riskshape.store.database import (
     upgrade,
     write_transaction,
 )
+from riskshape.store.markers import ChangeMarker, read_change_marker
 from riskshape.store.records import (
     AlertAppend,
     AlertDetail,
@@ -49,7 +50,7 @@ from riskshape.store.records import (
 from riskshape.types import Diagram as DiagramArray
 from riskshape.types import PriceFrame
 
-__all__ = ["Store", "open_store", "verify_chain", "chain_head"]
+__all__ = ["Store", "open_store", "verify_chain", "chain_head", "change_marker"]
 
 P = ParamSpec("P")
 R = TypeVar("R")
@@ -455,3 +456,15 @@ def chain_head(store: Store) -> Head:
     with read_transaction(store.engine) as connection:
         seq, head = ledger.ledger_head(connection)
     return Head(count=seq, head_hash=head)
+
+
+@_database_errors
+def change_marker(store: Store, portfolio: str) -> ChangeMarker:
+    """What the portfolio's reads depend on (latest run, windows written, ledger head), in one query.
+
+    Raises
+    ------
+    NotFoundError
+        If the portfolio does not exist.
+    """
+    return read_change_marker(store.engine, portfolio)
