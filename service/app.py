@@ -20,12 +20,12 @@ from fastapi.openapi.utils import get_openapi
 from starlette.middleware.body_limit import RequestBodyLimitMiddleware
 
 from riskshape import CAUTION, Config, RiskshapeError, __version__
+from riskshape.daily import Ingestor
 from riskshape.store import open_store
 from riskshape_service.context import ServiceContext
 from riskshape_service.docs import mount_docs
 from riskshape_service.freshness import MarkerRounds
 from riskshape_service.handlers import install_handlers
-from riskshape_service.ingest import Ingestor
 from riskshape_service.keycache import KeyCache
 from riskshape_service.logs import LOGGER_NAME, stamp_request_ids
 from riskshape_service.metrics import ServiceMetrics

@@ -9,9 +9,9 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 from riskshape import Config
+from riskshape.daily import Ingestor
 from riskshape.store import Store
 from riskshape_service.freshness import MarkerRounds
-from riskshape_service.ingest import Ingestor
 from riskshape_service.keycache import KeyCache
 from riskshape_service.metrics import ServiceMetrics
 from riskshape_service.prepared import PreparedBodies

@@ -24,7 +24,7 @@ from typing import Any
 
 from starlette.responses import Response
 
-from riskshape._version import __version__
+from riskshape import __version__
 from riskshape.store import ChangeMarker
 
 __all__ = [

@@ -28,6 +28,7 @@ PUBLIC_PACKAGES = (
     "riskshape.research",
     "riskshape.types",
     "riskshape.config",
+    "riskshape.daily",
 )
 
 # (module, name) imports allowed past the public packages, each with its reason (none today).

@@ -1,5 +1,5 @@
 """``POST /v1/portfolios/{name}/prices``: archive a portfolio's prices, compute the windows they
-complete and raise alerts (ingest or admin). The policy is in :mod:`riskshape_service.ingest`.
+complete and raise alerts (ingest or admin). The policy is in :mod:`riskshape.daily.ingest`.
 
 The body is JSON (``{"rows": [{date, asset, price}, ...]}`` or ``{"wide": [{date, prices}, ...]}``)
 or CSV text (``Content-Type: text/csv``; wide ``date,A,B,...`` or long ``date,asset,price``).
@@ -16,10 +16,10 @@ from fastapi.exceptions import RequestValidationError
 from pydantic import ValidationError
 from starlette.concurrency import run_in_threadpool
 
+from riskshape.daily import IngestReport
 from riskshape_service.bodies import CSV_SOURCE, JSON_SOURCE, table_from_csv, table_from_json, validated_prices
 from riskshape_service.convert import alert_out
 from riskshape_service.deps import ContextDep, IngestDep, StoreDep
-from riskshape_service.ingest import IngestReport
 from riskshape_service.routers import API_PREFIX, errors
 from riskshape_service.routers.portfolios import PortfolioName
 from riskshape_service.schemas import IngestOut, PricesIn

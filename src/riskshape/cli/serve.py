@@ -29,7 +29,7 @@ def worker_app() -> Any:
     fastapi.FastAPI
         ``riskshape_service.create_app(ServiceSettings.from_env())``.
     """
-    from riskshape.compute.executors import keep_blas_pinned
+    from riskshape.compute import keep_blas_pinned
     from riskshape_service import create_app
     from riskshape_service.logs import configure_logging
     from riskshape_service.settings import ServiceSettings

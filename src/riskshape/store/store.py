@@ -462,6 +462,18 @@ def chain_head(store: Store) -> Head:
 def change_marker(store: Store, portfolio: str) -> ChangeMarker:
     """What the portfolio's reads depend on (latest run, windows written, ledger head), in one query.
 
+    Parameters
+    ----------
+    store : Store
+        The archive.
+    portfolio : str
+        The portfolio's name.
+
+    Returns
+    -------
+    ChangeMarker
+        Equal between two calls exactly when nothing the portfolio's reads show was archived between them.
+
     Raises
     ------
     NotFoundError

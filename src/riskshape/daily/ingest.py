@@ -1,6 +1,6 @@
 """Ingest: archive a portfolio's new prices, compute only the windows they complete, raise alerts.
 
-Policy (the service's own):
+Policy (what the service's price endpoint and the command line apply):
 
 * **New days** (after the last archived date) are appended; the windows they complete are
   computed with :meth:`riskshape.MonitorResult.update` on the portfolio's result kept in memory
@@ -36,6 +36,7 @@ import pandas as pd
 
 from riskshape import Config, ConflictError, DataError, MonitorResult, archive_run, monitor
 from riskshape.compute import window_end_positions
+from riskshape.prices import ValidPrices
 from riskshape.store import AlertRecord, Run, Store
 
 __all__ = ["Ingestor", "IngestReport", "portfolio_config"]
@@ -60,7 +61,22 @@ class IngestReport:
 
 
 def portfolio_config(store: Store, portfolio: str, default: Config) -> tuple[Config, Run | None]:
-    """The configuration of the portfolio's latest run (``default`` before its first run)."""
+    """The configuration of the portfolio's latest run (``default`` before its first run).
+
+    Parameters
+    ----------
+    store : Store
+        The archive.
+    portfolio : str
+        The portfolio's name (NotFoundError if it is not archived).
+    default : Config
+        The configuration of a portfolio that has no run yet.
+
+    Returns
+    -------
+    config, run : Config, Run or None
+        The configuration in force, and the run it comes from (None before the first run).
+    """
     run = store.latest_run(portfolio)
     if run is None:
         return default, None
@@ -130,7 +146,15 @@ def _plan(portfolio: str, incoming: pd.DataFrame, held: pd.DataFrame, correction
     table.columns.name = "asset"
     touched = table.loc[incoming.index]
     unchanged = int((~np.isnan(sent) & (sent == kept)).sum())
-    return _Plan(table=table, fresh=fresh, touched=touched, corrections=int(differs.sum()), unchanged=unchanged)
+    # every piece passed validation (the request at the edge, the archive's prices on their way in):
+    # the tables made of them are marked so, and are not checked again downstream
+    return _Plan(
+        table=ValidPrices.of_validated_parts(table),
+        fresh=ValidPrices.of_validated_parts(fresh),
+        touched=ValidPrices.of_validated_parts(touched),
+        corrections=int(differs.sum()),
+        unchanged=unchanged,
+    )
 
 
 class Ingestor:
