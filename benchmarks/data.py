@@ -27,4 +27,5 @@ def factor_prices(n_days: int, n_assets: int, seed: int = 0) -> pd.DataFrame:
     returns = factor_returns(n_days, n_assets, seed)
     levels = 100.0 * np.exp(np.vstack([np.zeros((1, n_assets)), np.cumsum(returns, axis=0)]))
     index = pd.bdate_range("2031-01-02", periods=n_days + 1, name="date")
-    return pd.DataFrame(levels, index=index, columns=[f"A{j:04d}" for j in range(n_assets)])
+    codes = [f"XB{j:04d}" for j in range(n_assets)]  # invented codes (the X prefix of tests/kit/assets.py)
+    return pd.DataFrame(levels, index=index, columns=codes)

@@ -59,7 +59,7 @@ def small_config() -> Config:
     return Config(window=20, step=1, compute={"executor": "serial"})
 
 
-# --- bad price files (issue 2, item 1), shared by tests/engine and tests/cli -------------------
+# --- bad price files, shared by tests/compute and tests/cli  -------------------
 
 BAD_INPUT_WINDOW = 20  # the window the bad-input tests ask for (so one window needs 21 prices)
 
@@ -172,7 +172,7 @@ def write_table(table: pd.DataFrame, path: Path) -> Path:
 
 @pytest.fixture(params=[(c, fmt) for c in BAD_CASES for fmt in ("csv", "parquet")], ids=lambda p: f"{p[0].name}-{p[1]}")
 def bad_price_file(request: pytest.FixtureRequest, tmp_path: Path) -> BadFile:
-    """Each bad input of issue 2 item 1, as CSV (lines counted from the header, line 1) and Parquet (rows from 1)."""
+    """Each bad price input, as CSV (lines counted from the header, line 1) and Parquet (rows from 1)."""
     case, fmt = request.param
     path = write_table(case.spoil(good_price_table()), tmp_path / f"spoiled_{case.name}.{fmt}")
     where = (case.where[fmt],) if fmt in case.where else ()

@@ -1,4 +1,4 @@
-"""``riskshape run`` (issue 2, item 7): what it writes, and how it refuses bad input.
+"""``riskshape run``: what it writes, and how it refuses bad input.
 
 The command is driven in-process through ``riskshape.cli.main`` (the console-script entry point,
 which turns riskshape's errors into one line and exit status 2), and once as a real subprocess.

@@ -4,7 +4,7 @@
   metric space only, not on how its points are numbered (definition of the Rips filtration), so
   every summary is unchanged. Values may move by one float32 ulp (the correlation products are
   summed in another order before ripser rounds them), hence rtol 1e-6 on float columns.
-* No look-ahead (issue 2, item 2): a window labelled t uses returns up to t, which use prices up to
+* No look-ahead: a window labelled t uses returns up to t, which use prices up to
   t; changing any prices after t must leave every feature, diagram and left-out record of the
   windows ending at or before t bit for bit the same.
 

@@ -1,4 +1,4 @@
-"""Prices in (issue 2, item 1): validation once at the edge, wide and long layouts, sorting.
+"""Prices in: validation once at the edge, wide and long layouts, sorting.
 
 The bad inputs come from the ``bad_price_file`` fixture and the tables from ``price_files``
 (tests/conftest.py): each case of the issue, in CSV and Parquet, with the file name, the line or

@@ -1,8 +1,9 @@
 """Incremental update equals the batch; every executor gives the serial result.
 
-Contract (docs/engine API, issue 2 "keep the seams clean"): ``monitor(prefix).update(rest)`` equals
-``monitor(all)``, bit for bit, for any split point and any step; the executors (serial, a local
-process pool, a Dask cluster) only change where windows are computed, never the numbers.
+Contract (the seams in DEVELOPERS.md, and ``MonitorResult.update``'s docstring):
+``monitor(prefix).update(rest)`` equals ``monitor(all)``, bit for bit, for any split point and any
+step; the executors (serial, a local process pool, a Dask cluster) only change where windows are
+computed, never the numbers.
 """
 
 from __future__ import annotations

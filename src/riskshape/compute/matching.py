@@ -43,7 +43,7 @@ point's cost to the diagonal is half its lifetime.
   points' diagonal costs is never needed (both points can go to the diagonal instead), so its
   cost is no candidate: 20% fewer matchings to test. gudhi's ``bottleneck_distance`` is not
   used: it is known to return a too large value on some inputs (GUDHI/gudhi-devel pull request
-  1367, merged after gudhi 3.13; tests/speed holds one such input). persim's exact
+  1367, merged after gudhi 3.13; tests/compute holds one such input). persim's exact
   ``bottleneck`` is the plain path.
 """
 

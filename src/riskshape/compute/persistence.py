@@ -13,7 +13,7 @@ simplices of equal diameter, which changes the pairing of zero-length bars (drop
 never a bar's values. It changes how much work ripser's reduction does: its apparent and
 emergent pairs depend on the numbering. Measured on correlation distances (synthetic factor
 model, giotto-ph, one thread, old and new order on the same matrices): 20% less persistence time
-at 100 assets and window 60, 13% at 500 assets and window 250; ``tests/speed`` checks the bars
+at 100 assets and window 60, 13% at 500 assets and window 250; ``tests/compute`` checks the bars
 against ripser on the original numbering.
 
 Conventions: every diagram holds only finite bars; the one infinite H0 bar (the component

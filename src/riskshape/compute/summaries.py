@@ -16,7 +16,7 @@ Conventions (stated here, checked in tests/reference):
 * bottleneck distance with the L-infinity ground metric.
 
 How the distances are computed (all exact, differing by float64 rounding only): see
-:mod:`riskshape.compute.matching`; ``tests/speed`` checks every fast path against the plain one.
+:mod:`riskshape.compute.matching`; ``tests/compute`` checks every fast path against the plain one.
 """
 
 from __future__ import annotations
