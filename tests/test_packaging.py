@@ -9,6 +9,8 @@ from __future__ import annotations
 import sys
 from pathlib import Path
 
+import pytest
+
 if sys.version_info >= (3, 11):
     import tomllib
 else:  # pragma: no cover - Python 3.10 only
@@ -42,3 +44,15 @@ def test_core_dependencies_leave_out_the_optional_stacks() -> None:
     assert {"dask", "research", "test", "fast"} <= set(extras)
     # the README's test command installs the test extra, which must bring every other extra along
     assert any(req.startswith("riskshape[") and "dask" in req and "research" in req for req in extras["test"])
+
+
+def test_a_missing_extra_is_named(monkeypatch) -> None:
+    """Without scikit-learn, a research name says which extra brings it (no bare ModuleNotFoundError)."""
+    import riskshape.research
+
+    for module in [m for m in sys.modules if m == "sklearn" or m.startswith(("sklearn.", "riskshape.research."))]:
+        monkeypatch.delitem(sys.modules, module)
+    monkeypatch.setitem(sys.modules, "sklearn", None)  # makes "import sklearn" fail as if it were not installed
+    monkeypatch.delitem(riskshape.research.__dict__, "study_table", raising=False)
+    with pytest.raises(ModuleNotFoundError, match=r"riskshape\.research\.study needs sklearn.*riskshape\[research\]"):
+        riskshape.research.study_table  # noqa: B018 - the attribute read is what loads the module

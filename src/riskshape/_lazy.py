@@ -12,7 +12,25 @@ import warnings
 from collections.abc import Callable, Mapping
 from typing import Any
 
-__all__ = ["lazy_exports"]
+__all__ = ["lazy_exports", "EXTRA_OF"]
+
+EXTRA_OF = {"sklearn": "research", "arch": "research", "distributed": "dask", "dask": "dask"}
+"""Third-party packages that come with one of riskshape's extras, and the extra that brings them."""
+
+
+def _import(module: str) -> Any:
+    """Import ``module``; a missing optional package says which extra installs it."""
+    try:
+        return importlib.import_module(module)
+    except ModuleNotFoundError as err:
+        top = (err.name or "").split(".")[0]
+        if top not in EXTRA_OF:
+            raise
+        raise ModuleNotFoundError(
+            f"{module} needs {top}, which comes with riskshape's [{EXTRA_OF[top]}] extra: "
+            f"pip install 'riskshape[{EXTRA_OF[top]}]'",
+            name=err.name,
+        ) from None
 
 
 def lazy_exports(
@@ -49,7 +67,7 @@ def lazy_exports(
 
     def __getattr__(name: str) -> Any:
         if name in exports:
-            value = getattr(importlib.import_module(exports[name]), name)
+            value = getattr(_import(exports[name]), name)
             sys.modules[package].__dict__[name] = value  # later reads skip this function
             return value
         if name in old:
@@ -58,7 +76,7 @@ def lazy_exports(
                 DeprecationWarning,
                 stacklevel=2,
             )
-            return getattr(importlib.import_module(old[name]), name)
+            return getattr(_import(old[name]), name)
         raise AttributeError(f"module {package!r} has no attribute {name!r}")
 
     def __dir__() -> list[str]:
