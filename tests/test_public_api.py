@@ -29,6 +29,8 @@ PUBLIC_PACKAGES = (
     "riskshape.types",
     "riskshape.config",
     "riskshape.daily",
+    "riskshape.reviews",
+    "riskshape.selection",
 )
 
 # (module, name) imports allowed past the public packages, each with its reason (none today).

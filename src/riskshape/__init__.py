@@ -31,6 +31,7 @@ if TYPE_CHECKING:
     from riskshape.config import ComputeConfig as ComputeConfig
     from riskshape.config import Config as Config
     from riskshape.config import store_url_from_env as store_url_from_env
+    from riskshape.errors import AccessError as AccessError
     from riskshape.errors import AuditError as AuditError
     from riskshape.errors import ConfigError as ConfigError
     from riskshape.errors import ConflictError as ConflictError
@@ -62,6 +63,7 @@ _EXPORTS = {
     "NotFoundError": "riskshape.errors",
     "ConflictError": "riskshape.errors",
     "AuditError": "riskshape.errors",
+    "AccessError": "riskshape.errors",
     "DataQualityWarning": "riskshape.errors",
 }
 
@@ -85,6 +87,7 @@ __all__ = [
     "NotFoundError",
     "ConflictError",
     "AuditError",
+    "AccessError",
     "DataQualityWarning",
 ]
 

@@ -176,11 +176,21 @@ def test_backwards_period_is_one_line_error(archive, tmp_path: Path, capsys: pyt
     url, _, _, _ = archive
     with pytest.raises(SystemExit) as exit_info:
         main(
-            ["report", "--store", url, "--from", "2032-01-01", "--to", "2031-01-01", "--out", str(tmp_path / "x.html")]
+            [
+                "report",
+                "--store",
+                url,
+                "--start",
+                "2032-01-01",
+                "--end",
+                "2031-01-01",
+                "--out",
+                str(tmp_path / "x.html"),
+            ]
         )
     assert exit_info.value.code == 2
     err = capsys.readouterr().err.strip()
-    assert err.startswith("riskshape: error:") and "backwards" in err and "\n" not in err
+    assert err.startswith("riskshape: error:") and "start 2032-01-01 is after end 2031-01-01" in err and "\n" not in err
 
 
 CHROMIUM = shutil.which("chromium") or shutil.which("chromium-browser")
@@ -246,9 +256,9 @@ def test_pdf_holds_the_same_report(archive, tmp_path: Path) -> None:
             "report",
             "--store",
             url,
-            "--from",
+            "--start",
             PERIOD[0],
-            "--to",
+            "--end",
             PERIOD[1],
             "--out",
             str(tmp_path / "r.html"),
@@ -257,14 +267,20 @@ def test_pdf_holds_the_same_report(archive, tmp_path: Path) -> None:
         ]
     )
     reader = pypdf.PdfReader(pdf)
-    text = "".join("".join(page.extract_text().split()) for page in reader.pages)  # no whitespace: lines wrap
+    raw = "\n".join(page.extract_text() for page in reader.pages)
+    text = "".join(raw.split())  # no whitespace: paragraphs wrap
     with open_store(url) as store:
         archived = store.list_alerts(since=PERIOD[0], until=PERIOD[1], limit=None).items
         head = chain_head(store)
     assert "".join(CAUTION.split()) in text
     assert head.head_hash in text
+    lines = raw.splitlines()
     for a in archived:
-        assert repr(a.value) in text and repr(a.threshold) in text and a.inputs_hash in text
+        # values rounded for reading (4 significant digits; the export keeps them exact)
+        assert f"{a.value:.4g}" in text and f"{a.threshold:.4g}" in text and a.inputs_hash in text
+        # table cells do not break words: each date and rule name sits whole on one line
+        assert any(a.window_end.isoformat() in line for line in lines)
+        assert any(a.rule in line for line in lines)
     assert any(page.images for page in reader.pages)  # the summaries plot
 
 

@@ -7,6 +7,7 @@ from pathlib import Path
 import click
 
 from riskshape import CAUTION
+from riskshape.cli.alerts import period_options, resolve_period
 from riskshape.cli.audit import STORE_OPTION
 from riskshape.outputs import collect_review, write_report
 from riskshape.store import open_store
@@ -16,8 +17,7 @@ __all__ = ["report"]
 
 @click.command()
 @STORE_OPTION
-@click.option("--from", "since", required=True, help="First window end of the period (YYYY-MM-DD).")
-@click.option("--to", "until", required=True, help="Last window end of the period (YYYY-MM-DD).")
+@period_options
 @click.option(
     "--out", "out", type=click.Path(path_type=Path, dir_okay=False), required=True, help="HTML file to write."
 )
@@ -36,13 +36,24 @@ __all__ = ["report"]
     help="Recompute explanations the archive does not hold, from the archived prices.",
 )
 def report(
-    store_url: str, since: str, until: str, out: Path, portfolio: str | None, pdf: Path | None, recompute: bool
+    store_url: str,
+    start: str | None,
+    end: str | None,
+    old_since: str | None,
+    old_until: str | None,
+    old_from: str | None,
+    old_to: str | None,
+    out: Path,
+    portfolio: str | None,
+    pdf: Path | None,
+    recompute: bool,
 ) -> None:
     """Write a self-contained HTML review of the alerts of a period: values, thresholds, explanations,
     provenance, reviews, summaries over time, chain verification and configuration.
     """
+    period = resolve_period(start, end, old_since, old_until, old_from, old_to)
     with open_store(store_url) as store:
-        review = collect_review(store, since, until, portfolio=portfolio, recompute=recompute)
+        review = collect_review(store, period.start, period.end, portfolio=portfolio, recompute=recompute)
     path = write_report(review, out, pdf)
     status = "verifies" if review.verification.ok else "DOES NOT VERIFY"
     click.echo(

@@ -28,11 +28,22 @@ import pandas as pd
 from riskshape._version import __version__
 from riskshape.archive import recompute_run
 from riskshape.caution import CAUTION
-from riskshape.errors import ConfigError, RiskshapeError, StoreError
+from riskshape.errors import ConfigError, DataError, RiskshapeError, StoreError
 from riskshape.explain import Explanation, explain_alert, render_text
 from riskshape.outputs import palette
-from riskshape.store import AlertRecord, ReviewRecord, Run, Store, VerifyReport, verify_chain
-from riskshape.store.ledger import to_date
+from riskshape.reviews import STATUSES, UNSETTLED, SignOff, list_sign_offs, status_of
+from riskshape.selection import to_period
+from riskshape.store import (
+    AlertRecord,
+    EventRecord,
+    PriceCorrection,
+    ReviewRecord,
+    Run,
+    Store,
+    VerifyReport,
+    verify_chain,
+)
+from riskshape.types import AlertStatus
 
 __all__ = [
     "ReportedAlert",
@@ -65,6 +76,11 @@ class ReportedAlert:
     explanation_source: Source
     explanation_note: str
 
+    @property
+    def status(self) -> AlertStatus:
+        """The alert's status, derived from its chained reviews."""
+        return status_of(self.reviews)
+
 
 @dataclass(frozen=True)
 class PortfolioSeries:
@@ -86,8 +102,20 @@ class ReviewReport:
     alerts: tuple[ReportedAlert, ...]
     series: tuple[PortfolioSeries, ...]
     runs: tuple[Run, ...]
+    """One run per configuration in force in the period (the latest run of that configuration hash)."""
     verification: VerifyReport
     package_version: str = __version__
+    corrections: tuple[PriceCorrection, ...] = ()
+    """Price revisions of the period (each changed the archived windows that use that date)."""
+    superseded: tuple[EventRecord, ...] = ()
+    """Chained ``window_superseded`` / ``alert_superseded`` records of the period, where archived."""
+    sign_offs: tuple[SignOff, ...] = ()
+    """Sign-offs whose period overlaps this one."""
+
+    @property
+    def counts(self) -> dict[AlertStatus, int]:
+        """Alerts of the period by status."""
+        return {s: sum(a.status == s for a in self.alerts) for s in STATUSES}
 
 
 def archived_explanation(record: AlertRecord) -> Explanation | None:
@@ -158,12 +186,15 @@ def collect_review(
 
     Raises
     ------
+    DataError
+        If the period is not a pair of days with the start on or before the end.
     StoreError
-        If the period is not a pair of dates in order, or the archive cannot be read.
+        If the archive cannot be read.
     """
-    first, last = to_date(since, "--from"), to_date(until, "--to")
-    if first > last:
-        raise StoreError(f"the period runs backwards: --from {first} is after --to {last}; swap them")
+    period = to_period(since, until)
+    if period.start is None or period.end is None:
+        raise DataError("period: give both start and end of the period to report on")
+    first, last = period.start, period.end
     page = store.list_alerts(portfolio=portfolio, since=first, until=last, limit=None)
     details = [store.get_alert(a.id) for a in page.items]
     missing = [d.alert for d in details if archived_explanation(d.alert) is None]
@@ -180,12 +211,24 @@ def collect_review(
     names = [portfolio] if portfolio is not None else [p.name for p in store.list_portfolios()]
     series = []
     runs: list[Run] = []
+    corrections: list[PriceCorrection] = []
+    superseded: list[EventRecord] = []
     for name in names:
         feats = store.read_features(name, start=first, end=last, limit=None)
         if len(feats.frame):
             series.append(PortfolioSeries(name, feats.frame, feats.config_hash))
-        used = {a.alert.config_hash for a in alerts if a.alert.portfolio == name} | {feats.config_hash}
-        runs += [r for r in store.list_runs(name) if r.config_hash in used]
+        used = {a.alert.config_hash for a in alerts if a.alert.portfolio == name}
+        if len(feats.frame) and feats.config_hash is not None:
+            used.add(feats.config_hash)
+        latest: dict[str, Run] = {r.config_hash: r for r in store.list_runs(name) if r.config_hash in used}
+        runs += sorted(latest.values(), key=lambda r: r.id)
+        corrections += store.list_corrections(name, start=first, end=last)
+        for kind in ("window_superseded", "alert_superseded"):
+            superseded += [e for e in store.list_events(kind=kind, portfolio=name) if _subject_in(e, first, last)]
+    once: dict[str, Run] = {}
+    for r in runs:
+        once.setdefault(r.config_hash, r)
+    signed = tuple(s for s in list_sign_offs(store) if s.start <= last and s.end >= first)
     return ReviewReport(
         period_from=first,
         period_to=last,
@@ -193,9 +236,21 @@ def collect_review(
         store=store.url,
         alerts=tuple(alerts),
         series=tuple(series),
-        runs=tuple(runs),
+        runs=tuple(once.values()),
         verification=verify_chain(store),
+        corrections=tuple(corrections),
+        superseded=tuple(superseded),
+        sign_offs=signed,
     )
+
+
+def _subject_in(event: EventRecord, first: date, last: date) -> bool:
+    """Whether an event's subject (a day, or an id) concerns the period; undated subjects are kept."""
+    try:
+        day = date.fromisoformat(str(event.subject)[:10])
+    except ValueError:
+        return True
+    return first <= day <= last
 
 
 # --- rendering ----------------------------------------------------------------------------------
@@ -227,11 +282,83 @@ def _e(value: object) -> str:
     return html.escape(str(value), quote=True)
 
 
+def _round(value: float) -> str:
+    """A value rounded for reading: 4 significant digits (the export keeps the exact value)."""
+    return f"{value:.4g}"
+
+
+def _history(reviews: tuple[ReviewRecord, ...]) -> str:
+    """Every review action in order, e.g. ``escalate > acknowledge`` (never only the last)."""
+    return " > ".join(r.action for r in reviews) or "none"
+
+
+def _sign_off_html(report: ReviewReport) -> str:
+    counts = report.counts
+    unsettled = [a for a in report.alerts if a.status in UNSETTLED]
+    reviewers = sorted({r.reviewer for a in report.alerts for r in a.reviews})
+    cells = "".join(f"<td>{counts[s]}</td>" for s in STATUSES)
+    heads = "".join(f"<th>{s}</th>" for s in STATUSES)
+    items = (
+        "<ul>"
+        + "".join(
+            f'<li><a href="#alert-{a.alert.id}">alert {a.alert.id}</a> ({_e(a.alert.portfolio)}, {_e(a.alert.rule)}, '
+            f'<span class="nowrap">{_e(a.alert.window_end)}</span>): {_e(a.status)}</li>'
+            for a in unsettled
+        )
+        + "</ul>"
+        if unsettled
+        else "<p>No open or escalated alert: the period can be signed off.</p>"
+    )
+    signed = "".join(
+        f'<tr><td class="date">{_e(s.start)}</td><td class="date">{_e(s.end)}</td>'
+        f"<td>{_e(', '.join(s.portfolios))}</td>"
+        f'<td>{_e(s.signer)}</td><td class="date">{_e(s.signed_at.isoformat(timespec="seconds"))}</td>'
+        f'<td class="hash">{_e(s.chain_head)}</td></tr>'
+        for s in report.sign_offs
+    )
+    signed_table = (
+        f'<table id="sign-offs"><tr><th>start</th><th>end</th><th>portfolios</th><th>signed by</th><th>at</th>'
+        f"<th>chain head at signing</th></tr>{signed}</table>"
+        if signed
+        else "<p>Not signed off yet.</p>"
+    )
+    return (
+        f'<section id="sign-off"><h2>Sign-off</h2><p>Period: window ends <span class="nowrap">{_e(report.period_from)}'
+        f'</span> to <span class="nowrap">{_e(report.period_to)}</span>. Chain head: '
+        f'<code id="sign-off-head">{_e(report.verification.head)}</code></p>'
+        f'<table id="status-counts"><tr>{heads}</tr><tr>{cells}</tr></table>'
+        f"<h3>Open items ({len(unsettled)})</h3>{items}"
+        f"<p>Reviewed by: {_e(', '.join(reviewers) or 'nobody yet')}</p>{signed_table}</section>"
+    )
+
+
+def _corrections_html(report: ReviewReport) -> str:
+    if not report.corrections and not report.superseded:
+        return "<p>No correction changed archived values in the period.</p>"
+    rows = "".join(
+        f'<tr><td class="date">{_e(c.date)}</td><td class="code">{_e(c.asset)}</td><td>{c.revision}</td>'
+        f"<td>{_e(_round(c.old_price))}</td><td>{_e(_round(c.new_price))}</td>"
+        f'<td class="date">{_e(c.recorded_at.isoformat(timespec="seconds"))}</td></tr>'
+        for c in report.corrections
+    )
+    events = "".join(
+        f"<li>{_e(e.kind)} ({_e(e.portfolio)}, {_e(e.subject)}), ledger seq {e.seq}</li>" for e in report.superseded
+    )
+    return (
+        f'<table id="corrections"><tr><th>date</th><th>asset</th><th>revision</th><th>old price</th>'
+        f"<th>new price</th><th>recorded</th></tr>{rows}</table>"
+        + (f'<ul id="superseded">{events}</ul>' if events else "")
+        + "<p>Each corrected price changes every archived window that includes its date.</p>"
+    )
+
+
 # colours from the one palette (riskshape.outputs.palette), as CSS custom properties
 _STYLE = (
     palette.css()
     + """
-@page{size:A4;margin:1.5cm}td{overflow-wrap:anywhere}
+@page{size:A4;margin:1.5cm}
+td,th{word-break:normal;overflow-wrap:normal;hyphens:manual}
+.nowrap,td.date,td.code,code{white-space:nowrap}td.hash{font-family:monospace;font-size:.75em;overflow-wrap:anywhere}
 body{font-family:sans-serif;margin:2em;color:var(--rs-ink);max-width:70em}
 h1{font-size:1.5em}h2{font-size:1.2em;border-bottom:1px solid var(--rs-rule);margin-top:2em}
 table{border-collapse:collapse;margin:.5em 0}td,th{border:1px solid var(--rs-faint);padding:.2em .5em;text-align:left;
@@ -254,8 +381,9 @@ def _alert_html(item: ReportedAlert) -> str:
             ("kind", a.kind),
             ("severity", a.severity),
             ("window end", a.window_end),
-            ("value", repr(a.value)),
-            ("threshold", repr(a.threshold)),
+            ("value", _round(a.value)),
+            ("threshold", _round(a.threshold)),
+            ("status", item.status),
             ("raised at", a.raised_at.isoformat()),
             ("run", a.run_id),
             ("config hash", a.config_hash),
@@ -330,10 +458,10 @@ def render_html(report: ReviewReport, images: dict[str, bytes] | None = None) ->
     )
     alerts = "".join(_alert_html(a) for a in report.alerts) or "<p>No alert in the period.</p>"
     summary = "".join(
-        f'<tr><td><a href="#alert-{a.alert.id}">{a.alert.id}</a></td><td>{_e(a.alert.window_end)}</td>'
-        f"<td>{_e(a.alert.portfolio)}</td><td>{_e(a.alert.rule)}</td><td>{_e(a.alert.severity)}</td>"
-        f"<td>{_e(repr(a.alert.value))}</td><td>{_e(repr(a.alert.threshold))}</td>"
-        f"<td>{_e(a.reviews[-1].action if a.reviews else 'none')}</td></tr>"
+        f'<tr><td><a href="#alert-{a.alert.id}">{a.alert.id}</a></td><td class="date">{_e(a.alert.window_end)}</td>'
+        f'<td>{_e(a.alert.portfolio)}</td><td class="code">{_e(a.alert.rule)}</td><td>{_e(a.alert.severity)}</td>'
+        f"<td>{_e(_round(a.alert.value))}</td><td>{_e(_round(a.alert.threshold))}</td>"
+        f'<td class="status">{_e(a.status)}</td><td>{_e(_history(a.reviews))}</td></tr>'
         for a in report.alerts
     )
     csp = "default-src 'none'; img-src data:; style-src 'unsafe-inline'"
@@ -344,12 +472,14 @@ def render_html(report: ReviewReport, images: dict[str, bytes] | None = None) ->
 <p class="caution" id="caution">{_e(CAUTION)}</p>
 <p>Generated {_e(report.generated_at.isoformat())} by riskshape {_e(report.package_version)} from the archive
 <code>{_e(report.store)}</code>.</p>
+{_sign_off_html(report)}
 <h2>Chain verification</h2>{verdict}<p>Chain head: <code id="chain-head">{_e(v.head)}</code></p>
 <h2>Alerts ({len(report.alerts)})</h2><table id="alert-summary"><tr><th>id</th><th>window end</th><th>portfolio</th>
-<th>rule</th><th>severity</th><th>value</th><th>threshold</th><th>last review</th></tr>{summary}</table>
+<th>rule</th><th>severity</th><th>value</th><th>threshold</th><th>status</th><th>reviews</th></tr>{summary}</table>
 <h2>Summaries over time</h2>{plots}
 <h2>Alert details</h2>{alerts}
-<h2>Configuration in force</h2>{runs}
+<h2>Corrections that changed archived values</h2>{_corrections_html(report)}
+<h2>Configuration in force (once per configuration hash)</h2>{runs}
 <p class="caution">{_e(CAUTION)}</p></body></html>
 """
 
