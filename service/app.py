@@ -23,6 +23,7 @@ from riskshape.caution import CAUTION
 from riskshape.config import Config
 from riskshape.errors import RiskshapeError
 from riskshape.store import open_store
+from riskshape_service.console import mount_console
 from riskshape_service.context import ServiceContext
 from riskshape_service.docs import mount_docs
 from riskshape_service.handlers import install_handlers
@@ -139,6 +140,7 @@ def create_app(settings: ServiceSettings | None = None) -> FastAPI:
     install_handlers(app)
     for module in ROUTERS:
         app.include_router(module.make_router(settings))
+    mount_console(app, settings)
     app.add_middleware(RequestBodyLimitMiddleware, max_body_size=settings.max_body_bytes)
     app.add_middleware(RequestContextMiddleware, metrics=service_metrics, max_body_bytes=settings.max_body_bytes)
     app.openapi = lambda: _openapi(app)  # type: ignore[method-assign]

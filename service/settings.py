@@ -46,6 +46,10 @@ class ServiceSettings(BaseModel):
         archive at its next ingest (0.5 s instead of 0.03 s for 24 assets and two years). A result
         holds the portfolio's prices, returns and float32 diagrams: a few MB for 100 assets and two
         years (1.5 MB pickled), about 75 MB for 500 assets and 20 years.
+    console_secret : str or None
+        Key that signs the browser console's session cookies (at least 32 characters). Several
+        service processes over one archive need the same one; without it each process makes a
+        random one when it starts (sessions then end when it restarts).
     """
 
     model_config = ConfigDict(frozen=True, extra="forbid")
@@ -58,6 +62,7 @@ class ServiceSettings(BaseModel):
     config_path: str | None = None
     log_level: Literal["debug", "info", "warning", "error"] = "info"
     result_cache_size: int = Field(128, ge=0)
+    console_secret: str | None = Field(None, min_length=32, repr=False)
 
     def __init__(self, **data: Any) -> None:
         try:
