@@ -51,8 +51,8 @@ __all__ = [
 AssetName = Annotated[str, Field(min_length=1, max_length=200)]
 Price = Annotated[float, Field(allow_inf_nan=False, description="a price (> 0), or null where missing")]
 Number = Annotated[float | None, Field(description="null where undefined")]
-ReviewAction = Literal["acknowledge", "dismiss", "escalate"]
-assert set(REVIEW_ACTIONS) == {"acknowledge", "dismiss", "escalate"}
+ReviewAction = Literal["acknowledge", "dismiss", "escalate", "close"]
+assert set(REVIEW_ACTIONS) == {"acknowledge", "dismiss", "escalate", "close"}
 
 
 def finite_or_none(value: Any) -> float | None:

@@ -9,6 +9,7 @@ Every public function raises only these. The tree::
     |   +-- NotFoundError   a record that does not exist
     |   +-- ConflictError   a write that contradicts what is archived
     +-- AuditError     the archive's hash chain does not verify
+    +-- AccessError    the caller's role does not allow the action
 
     DataQualityWarning  repairable data (for example unsorted dates, sorted for you)
 """
@@ -23,6 +24,7 @@ __all__ = [
     "NotFoundError",
     "ConflictError",
     "AuditError",
+    "AccessError",
     "DataQualityWarning",
 ]
 
@@ -53,6 +55,10 @@ class ConflictError(StoreError):
 
 class AuditError(RiskshapeError):
     """The archive's hash chain does not verify; the message names the first bad record."""
+
+
+class AccessError(RiskshapeError, PermissionError):
+    """An action that the caller's role does not allow (for example a reader reviewing an alert)."""
 
 
 class DataQualityWarning(UserWarning):

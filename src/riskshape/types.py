@@ -37,6 +37,7 @@ Options
 -------
 ``RipsBackend``, ``Severity``, ``RuleKind``, ``Direction``, ``ReturnsKind``, ``CorrelationEstimator``,
 ``Embedding``, ``ExecutorKind``: the values a configuration key of that meaning accepts.
+``AlertStatus``: where an alert stands in its review (derived from its chained reviews).
 """
 
 from __future__ import annotations
@@ -71,6 +72,7 @@ __all__ = [
     "CorrelationEstimator",
     "Embedding",
     "ExecutorKind",
+    "AlertStatus",
 ]
 
 FloatArray: TypeAlias = "npt.NDArray[np.float64]"
@@ -97,3 +99,4 @@ ReturnsKind: TypeAlias = Literal["log", "simple"]
 CorrelationEstimator: TypeAlias = Literal["pearson", "spearman"]
 Embedding: TypeAlias = Literal["correlation", "point_cloud"]
 ExecutorKind: TypeAlias = Literal["serial", "process", "dask"]
+AlertStatus: TypeAlias = Literal["open", "acknowledged", "escalated", "dismissed", "closed"]

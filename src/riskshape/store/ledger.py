@@ -8,7 +8,7 @@ from __future__ import annotations
 
 import math
 import re
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 from datetime import date, datetime, timezone
 from typing import Any, cast
 
@@ -35,6 +35,7 @@ __all__ = [
     "append_alerts",
     "append_review",
     "list_alerts",
+    "list_reviews",
     "get_alert",
     "alert_from_row",
     "review_from_row",
@@ -167,8 +168,19 @@ def append_alerts(engine: Engine, alerts: Sequence[Alert], run_id: int) -> Alert
     return AlertAppend(added=tuple(AlertRecord(**r) for r in rows), existing=existing)
 
 
+ReviewCheck = Callable[[AlertRecord, tuple[ReviewRecord, ...]], None]
+"""Called with the alert and its reviews so far, inside the write transaction, before a review is
+appended; it raises to refuse the review (so a rule over the history holds under concurrency)."""
+
+
 def append_review(
-    engine: Engine, alert_id: int, action: str, reviewer: str, comment: str = "", now: datetime | None = None
+    engine: Engine,
+    alert_id: int,
+    action: str,
+    reviewer: str,
+    comment: str = "",
+    now: datetime | None = None,
+    check: ReviewCheck | None = None,
 ) -> ReviewRecord:
     """Append a review of an alert. See :meth:`riskshape.store.Store.append_review`."""
     if action not in REVIEW_ACTIONS:
@@ -179,9 +191,14 @@ def append_review(
         raise StoreError(f"review comment must be text of at most {MAX_COMMENT} characters")
     created = (now or datetime.now(timezone.utc)).astimezone(timezone.utc)
     with write_transaction(engine) as connection:
-        found = connection.execute(sa.select(t.alerts.c.id).where(t.alerts.c.id == alert_id)).first()
+        found = connection.execute(sa.select(t.alerts).where(t.alerts.c.id == alert_id)).first()
         if found is None:
             raise NotFoundError(f"alert {alert_id} is not in the archive; list alerts to find its id")
+        if check is not None:
+            earlier = connection.execute(
+                sa.select(t.reviews).where(t.reviews.c.alert_id == alert_id).order_by(t.reviews.c.seq)
+            )
+            check(alert_from_row(found), tuple(review_from_row(r) for r in earlier))
         seq, prev = ledger_head(connection)
         row: dict[str, Any] = {
             "id": _next_id(connection, t.reviews),
@@ -253,6 +270,23 @@ def list_alerts(
             query = query.limit(limit)
         items = tuple(alert_from_row(r) for r in connection.execute(query))
     return AlertPage(items=items, total=total, offset=offset)
+
+
+def list_reviews(engine: Engine, alert_ids: Sequence[int] | None = None) -> tuple[ReviewRecord, ...]:
+    """Reviews in ledger order, of the given alerts (default every alert).
+
+    See :meth:`riskshape.store.Store.list_reviews`.
+    """
+    query = sa.select(t.reviews).order_by(t.reviews.c.seq)
+    with read_transaction(engine) as connection:
+        if alert_ids is None:
+            return tuple(review_from_row(r) for r in connection.execute(query))
+        wanted = sorted({int(i) for i in alert_ids})
+        found: list[ReviewRecord] = []
+        for start in range(0, len(wanted), 500):  # bounded IN lists (SQLite's variable limit)
+            chunk = wanted[start : start + 500]
+            found.extend(review_from_row(r) for r in connection.execute(query.where(t.reviews.c.alert_id.in_(chunk))))
+    return tuple(sorted(found, key=lambda r: r.seq))
 
 
 def get_alert(engine: Engine, alert_id: int) -> AlertDetail:

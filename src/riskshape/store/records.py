@@ -41,8 +41,9 @@ __all__ = [
 GENESIS_HASH = "0" * 64
 """``prev_hash`` of the first record of the ledger."""
 
-REVIEW_ACTIONS = ("acknowledge", "dismiss", "escalate")
-"""What a reviewer may do with an alert: take note of it, dismiss it as noise, or escalate it."""
+REVIEW_ACTIONS = ("acknowledge", "dismiss", "escalate", "close")
+"""What a reviewer may do with an alert: take note of it, dismiss it as noise, escalate it, or close it
+(which actions apply to an alert's current status is the business of :mod:`riskshape.reviews`)."""
 
 
 @dataclass(frozen=True)

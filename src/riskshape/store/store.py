@@ -313,9 +313,21 @@ class Store:
         return ledger.get_alert(self.engine, alert_id)
 
     @_database_errors
-    def append_review(self, alert_id: int, action: str, reviewer: str, comment: str = "") -> ReviewRecord:
-        """Append a review (``acknowledge``, ``dismiss`` as noise, or ``escalate``) of an alert."""
-        return ledger.append_review(self.engine, alert_id, action, reviewer, comment)
+    def append_review(
+        self, alert_id: int, action: str, reviewer: str, comment: str = "", *, check: ledger.ReviewCheck | None = None
+    ) -> ReviewRecord:
+        """Append a review (``acknowledge``, ``dismiss`` as noise, ``escalate`` or ``close``) of an alert.
+
+        ``check``, if given, is called with the alert and its earlier reviews inside the write
+        transaction and may raise to refuse the review (the workflow of :mod:`riskshape.reviews`
+        uses it; prefer :func:`riskshape.reviews.review_alert`, which applies the review rules).
+        """
+        return ledger.append_review(self.engine, alert_id, action, reviewer, comment, check=check)
+
+    @_database_errors
+    def list_reviews(self, alert_ids: Sequence[int] | None = None) -> tuple[ReviewRecord, ...]:
+        """Reviews in ledger order, of the given alerts (default every alert)."""
+        return ledger.list_reviews(self.engine, alert_ids)
 
     # -- other chained events ----------------------------------------------------------------------
     @_database_errors
