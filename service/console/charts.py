@@ -34,8 +34,8 @@ class Mark:
 
 
 def _fmt(value: float) -> str:
-    """A value for reading: four significant digits."""
-    return "n/a" if not math.isfinite(value) else f"{value:.4g}"
+    """A value for reading: three significant digits."""
+    return "n/a" if not math.isfinite(value) else f"{value:.3g}"
 
 
 def severity_shape(severity: str, x: float, y: float, size: float = 5.0) -> str:
@@ -230,7 +230,7 @@ def heatmap(corr: np.ndarray, labels: Sequence[str], *, title: str, cell: int = 
 
 
 def barcode(bars: np.ndarray, *, title: str, width: int = 640, row: int = 9) -> str:
-    """Finite bars of a diagram as an SVG barcode (longest first), on a common scale from 0.
+    """Finite bars of a diagram as an SVG barcode (longest first), from the first birth to the last death.
 
     Parameters
     ----------
@@ -248,6 +248,7 @@ def barcode(bars: np.ndarray, *, title: str, width: int = 640, row: int = 9) -> 
     """
     bars = np.asarray(bars, dtype=float).reshape(-1, 2)
     order = np.argsort(bars[:, 0] - bars[:, 1], kind="stable")
+    low = float(bars[:, 0].min()) if len(bars) else 0.0
     top = float(bars[:, 1].max()) if len(bars) else 1.0
     height = max(len(bars), 1) * row + 22
     mark = palette.dimension_mark(1)
@@ -255,14 +256,14 @@ def barcode(bars: np.ndarray, *, title: str, width: int = 640, row: int = 9) -> 
         f'<svg class="chart" role="img" viewBox="0 0 {width} {height}" width="{width}" height="{height}" '
         f'xmlns="http://www.w3.org/2000/svg"><title>{escape(title)}</title>'
     ]
-    scale = (width - 20) / (top or 1.0)
+    scale = (width - 20) / ((top - low) or 1.0)
     for r, k in enumerate(order):
         birth, death = bars[k]
         y = 4 + r * row
         out.append(
-            f'<rect x="{10 + birth * scale:.1f}" y="{y}" width="{max((death - birth) * scale, 1):.1f}" '
+            f'<rect x="{10 + (birth - low) * scale:.1f}" y="{y}" width="{max((death - birth) * scale, 1):.1f}" '
             f'height="{row - 3}" fill="{mark.color}"><title>birth {birth:.4g}, death {death:.4g}</title></rect>'
         )
-    out.append(f'<text x="10" y="{height - 4}" class="tick">0</text>')
+    out.append(f'<text x="10" y="{height - 4}" class="tick">{low:.3g}</text>')
     out.append(f'<text x="{width - 10}" y="{height - 4}" text-anchor="end" class="tick">{top:.3g}</text></svg>')
     return "".join(out)

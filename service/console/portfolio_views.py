@@ -7,12 +7,14 @@ text); the routes render them and nothing here knows of HTTP.
 from __future__ import annotations
 
 import math
+from collections import Counter
 from dataclasses import dataclass
 from datetime import date, timedelta
 
 import numpy as np
 import pandas as pd
 
+from riskshape import reviews
 from riskshape.alerts.thresholds import trailing_levels
 from riskshape.compute.distance import correlation_matrix, correlation_to_distance
 from riskshape.compute.returns import to_returns
@@ -34,6 +36,7 @@ __all__ = [
     "PortfolioPage",
     "portfolio_card",
     "portfolio_page",
+    "open_by_severity",
     "DEFAULT_SUMMARIES",
 ]
 
@@ -189,6 +192,13 @@ def portfolio_card(store: Store, name: str, snapshots: Snapshots, *, trend_windo
         ruled = [r.summary for r in snapshot.config.alerts.rules if r.summary in frame.columns]
         trends = tuple(_summary_chart(frame, snapshot.config, s, alerts, small=True).svg for s in dict.fromkeys(ruled))
     return PortfolioCard(name, window_end, n_windows, rules, trends, _pending_days(store, name))
+
+
+def open_by_severity(store: Store, name: str) -> dict[str, int]:
+    """Alerts of a portfolio still open, by severity (most severe first; severities without any left out)."""
+    page = reviews.list_queue(store, portfolio=name, status="open", limit=None)
+    counted = Counter(item.alert.severity for item in page.items)
+    return {word: counted[word] for word in reversed(palette.SEVERITIES) if counted[word]}
 
 
 def _latest_correlation(

@@ -6,9 +6,9 @@ these routes only show its answers.
 from __future__ import annotations
 
 import logging
-from urllib.parse import parse_qsl
 from collections.abc import Callable
 from typing import Any, TypeVar
+from urllib.parse import parse_qsl
 
 from fastapi import APIRouter, Request
 from starlette.concurrency import run_in_threadpool
@@ -18,10 +18,10 @@ from riskshape import reviews
 from riskshape.archive import reproduce_alert
 from riskshape.errors import DataError, NotFoundError, RiskshapeError
 from riskshape.outputs.export import export_alerts
-from riskshape.outputs.report import collect_review, render_html
-from riskshape.store import Store, verify_chain
-from riskshape.selection import to_period
 from riskshape.outputs.palette import SEVERITIES
+from riskshape.outputs.report import collect_review, render_html
+from riskshape.selection import to_period
+from riskshape.store import Store, verify_chain
 from riskshape_service.auth import Permission, may
 from riskshape_service.console.alert_views import alert_context
 from riskshape_service.console.gate import (

@@ -126,11 +126,13 @@ def make_router() -> APIRouter:
             return to_sign_in(request)
         store, context = store_of(request), _context(request)
 
-        def gather() -> list[portfolio_views.PortfolioCard]:
-            return [portfolio_views.portfolio_card(store, p.name, context.snapshots) for p in store.list_portfolios()]
+        def gather() -> tuple[list[portfolio_views.PortfolioCard], dict[str, dict[str, int]]]:
+            names = [p.name for p in store.list_portfolios()]
+            cards = [portfolio_views.portfolio_card(store, name, context.snapshots) for name in names]
+            return cards, {name: portfolio_views.open_by_severity(store, name) for name in names}
 
-        cards = await run_in_threadpool(gather)
-        return render("overview.html", session, title="Portfolios", cards=cards)
+        cards, open_counts = await run_in_threadpool(gather)
+        return render("overview.html", session, title="Portfolios", cards=cards, open_counts=open_counts)
 
     @router.get("/portfolios/{name}")
     async def portfolio(request: Request, name: str) -> Response:
