@@ -216,7 +216,7 @@ def test_review_an_alert_end_to_end_in_the_browser(console: Console, browser: ob
     # sign-off: the whole history is refused (other alerts are open), listing them; then the alert's day
     page.get_by_role("link", name="Audit").click()
     visit.check("11-audit")
-    others = _settle_others(console, window_end, alert_name)
+    _settle_others(console, window_end, alert_name)
     page.get_by_label("First window end").first.fill("2000-01-01")
     page.get_by_label("Last window end").first.fill("2100-12-31")
     page.get_by_role("button", name="Sign the period off").click()
@@ -241,7 +241,6 @@ def test_review_an_alert_end_to_end_in_the_browser(console: Console, browser: ob
     report = out.read_text(encoding="utf-8")
     for fact in ("first-reviewer", "escalate", "Correlation jump across two sectors", "second-reviewer", "close"):
         assert fact in report, fact
-    assert others >= 0
 
     # no key anywhere: not in a page, not in a URL, not in the server's log
     context.close()
