@@ -197,7 +197,7 @@ def portfolio_card(store: Store, name: str, snapshots: Snapshots, *, trend_windo
 def open_by_severity(store: Store, name: str) -> dict[str, int]:
     """Alerts of a portfolio still open, by severity (most severe first; severities without any left out)."""
     page = reviews.list_queue(store, portfolio=name, status="open", limit=None)
-    counted = Counter(item.alert.severity for item in page.items)
+    counted: Counter[str] = Counter(item.alert.severity for item in page.items)
     return {word: counted[word] for word in reversed(palette.SEVERITIES) if counted[word]}
 
 
@@ -231,7 +231,8 @@ def portfolio_page(store: Store, name: str, snapshots: Snapshots) -> PortfolioPa
         return PortfolioPage(card, (), None, "no window archived yet", None, (), ())
     alerts = store.list_alerts(portfolio=name, limit=None).items
     drawn = tuple(_summary_chart(frame, config, s, alerts, small=False) for s in _watched(frame, config))
-    heat, note, left_out, bar_svg = None, "", (), None
+    heat, note, bar_svg = None, "", None
+    left_out: tuple[str, ...] = ()
     loops: tuple[LoopRow, ...] = ()
     try:
         corr, names, left_out = _latest_correlation(store, name, config, card.window_end)

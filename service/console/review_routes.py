@@ -6,6 +6,7 @@ these routes only show its answers.
 from __future__ import annotations
 
 import logging
+import re
 from collections.abc import Callable
 from typing import Any, TypeVar
 from urllib.parse import parse_qsl
@@ -46,6 +47,8 @@ QUEUE_PAGE = 50
 """Alerts per page of the queue."""
 _FILTERS = ("portfolio", "severity", "rule", "status", "start", "end")
 T = TypeVar("T")
+_FILE_NAME = re.compile(r"[^A-Za-z0-9._-]+")
+"""Characters kept in a download's file name (a portfolio's name may hold anything)."""
 
 
 def _filters(request: Request) -> dict[str, str]:
@@ -266,10 +269,13 @@ def _download(store: Store, what: str, start: str, end: str, portfolio: str | No
     if period.start is None or period.end is None:
         raise DataError("period: give both start and end of the period to download")
     first, last = period.start, period.end
-    stem = f"riskshape-{first}-{last}" + (f"-{portfolio}" if portfolio else "")
-    if what in ("csv", "jsonl"):
-        media = "text/csv; charset=utf-8" if what == "csv" else "application/x-ndjson"
-        return f"{stem}.{what}", media, export_alerts(store, what, since=first, until=last, portfolio=portfolio)
+    stem = _FILE_NAME.sub("-", f"riskshape-{first}-{last}" + (f"-{portfolio}" if portfolio else ""))
+    if what == "csv":
+        text = export_alerts(store, "csv", since=first, until=last, portfolio=portfolio)
+        return f"{stem}.csv", "text/csv; charset=utf-8", text
+    if what == "jsonl":
+        text = export_alerts(store, "jsonl", since=first, until=last, portfolio=portfolio)
+        return f"{stem}.jsonl", "application/x-ndjson", text
     if what == "report":
         report = collect_review(store, first, last, portfolio=portfolio)
         return f"{stem}-report.html", "text/html; charset=utf-8", render_html(report)
