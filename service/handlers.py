@@ -4,6 +4,7 @@
 riskshape error            status
 =========================  ======
 DataError, ConfigError     422
+AccessError                403
 NotFoundError              404
 ConflictError              409
 any other RiskshapeError   400
@@ -26,6 +27,7 @@ from fastapi.responses import JSONResponse
 from starlette.exceptions import HTTPException as StarletteHTTPException
 
 from riskshape.errors import (
+    AccessError,
     ConfigError,
     ConflictError,
     DataError,
@@ -45,6 +47,8 @@ def status_of(err: RiskshapeError) -> int:
     """The HTTP status of one of riskshape's own errors (see the module table)."""
     if isinstance(err, (DataError, ConfigError)):
         return 422
+    if isinstance(err, AccessError):
+        return 403
     if isinstance(err, NotFoundError):
         return 404
     if isinstance(err, ConflictError):

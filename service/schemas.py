@@ -14,6 +14,7 @@ from pydantic import BaseModel, ConfigDict, Field, model_validator
 
 from riskshape.caution import CAUTION
 from riskshape.store.records import REVIEW_ACTIONS
+from riskshape.types import AlertStatus
 
 __all__ = [
     "Cautioned",
@@ -31,6 +32,10 @@ __all__ = [
     "AlertPageOut",
     "ReviewIn",
     "ReviewCreated",
+    "StatusCounts",
+    "SignOffIn",
+    "SignOffOut",
+    "SignOffList",
     "RuleStateOut",
     "LatestOut",
     "SeriesRow",
@@ -151,6 +156,20 @@ class AlertOut(BaseModel):
     threshold: float = Field(description="threshold in force at that window, in the summary's units")
     severity: str
     raised_at: datetime
+    status: AlertStatus | None = Field(
+        None, description="open, acknowledged, escalated, dismissed or closed: derived from the chained reviews"
+    )
+    last_reviewer: str | None = Field(None, description="who reviewed the alert last (null if nobody has)")
+
+
+class StatusCounts(BaseModel):
+    """How many alerts are in each review status."""
+
+    open: int
+    acknowledged: int
+    escalated: int
+    dismissed: int
+    closed: int
 
 
 class ProvenanceOut(BaseModel):
@@ -193,7 +212,8 @@ class AlertDetailOut(Cautioned):
         "archived inside the alert's hash-chained record (null where none was archived)",
     )
     explanation_text: str = Field(description="the explanation as plain text")
-    reviews: list[ReviewOut]
+    status: AlertStatus = Field("open", description="derived from the chained reviews")
+    reviews: list[ReviewOut] = Field(description="every review, oldest first: who, when, action, comment")
 
 
 class AlertPageOut(Cautioned):
@@ -204,6 +224,9 @@ class AlertPageOut(Cautioned):
     offset: int
     limit: int
     next_offset: int | None = Field(description="offset of the next page, null on the last one")
+    counts: StatusCounts | None = Field(
+        None, description="alerts matching every filter but status, by status (open first in the list)"
+    )
 
 
 class ReviewIn(_Input):
@@ -217,6 +240,45 @@ class ReviewCreated(Cautioned):
     """The review just archived."""
 
     review: ReviewOut
+    status: AlertStatus | None = Field(None, description="the alert's status after this review")
+
+
+class SignOffIn(_Input):
+    """A period to sign off; the signer is the owner of the key that sends it."""
+
+    start: date = Field(description="first window end of the period")
+    end: date = Field(description="last window end of the period")
+    portfolios: list[Annotated[str, Field(min_length=1, max_length=200)]] = Field(
+        default_factory=list, max_length=1000, description="portfolios signed for (empty: every portfolio)"
+    )
+
+    @model_validator(mode="after")
+    def _ordered(self) -> SignOffIn:
+        if self.start > self.end:
+            raise ValueError(f"start {self.start} is after end {self.end}; give start on or before end")
+        return self
+
+
+class SignOffOut(Cautioned):
+    """A period signed off: the chained record of the period, portfolios, counts, signer and head."""
+
+    id: int
+    seq: int = Field(description="place of the sign-off record in the ledger")
+    entry_hash: str
+    start: date
+    end: date
+    portfolios: list[str]
+    counts: StatusCounts
+    signer: str
+    signed_at: datetime
+    chain_head: str = Field(description="COUNT:HASH of the ledger just before the sign-off")
+
+
+class SignOffList(Cautioned):
+    """Every sign-off, in ledger order."""
+
+    items: list[SignOffOut]
+    total: int
 
 
 # -- series, latest state, diagrams --------------------------------------------------------------

@@ -1,8 +1,9 @@
-"""``GET /v1/export/alerts``: alerts for review as CSV or JSON Lines, the caution first (reviewer or admin)."""
+"""``GET /v1/export/alerts``: alerts or reviews as CSV or JSON Lines for programs (reviewer or admin)."""
 
 from __future__ import annotations
 
 from datetime import date
+from functools import partial
 from typing import Annotated, Literal
 
 from fastapi import APIRouter, Query
@@ -10,6 +11,7 @@ from fastapi.responses import Response
 from starlette.concurrency import run_in_threadpool
 
 from riskshape.outputs.export import export_alerts
+from riskshape.selection import pick_alias
 from riskshape_service.deps import ReviewerDep, StoreDep
 from riskshape_service.routers import API_PREFIX, errors
 from riskshape_service.settings import ServiceSettings
@@ -41,15 +43,27 @@ def make_router(settings: ServiceSettings) -> APIRouter:
         caller: ReviewerDep,
         store: StoreDep,
         format: Annotated[Literal["csv", "jsonl"], Query(description="csv or jsonl")] = "csv",
-        since: Annotated[date | None, Query(alias="from", description="window end on or after")] = None,
-        until: Annotated[date | None, Query(alias="to", description="window end on or before")] = None,
-        portfolio: Annotated[str | None, Query(min_length=1, max_length=200)] = None,
+        what: Annotated[Literal["alerts", "reviews"], Query(description="one row per alert, or per review")] = "alerts",
+        start: Annotated[date | None, Query(description="window end on or after")] = None,
+        end: Annotated[date | None, Query(description="window end on or before")] = None,
+        portfolio: Annotated[list[str] | None, Query(description="repeat or comma-separate")] = None,
+        status: Annotated[list[str] | None, Query(description="repeat or comma-separate")] = None,
+        since: Annotated[date | None, Query(alias="from", deprecated=True, description="old name of start")] = None,
+        until: Annotated[date | None, Query(alias="to", deprecated=True, description="old name of end")] = None,
     ) -> Response:
-        """Every matching alert with its hashes and review status; CSV cells made safe for spreadsheets."""
-        text = await run_in_threadpool(export_alerts, store, format, since=since, until=until, portfolio=portfolio)
-        name = f"riskshape-alerts.{format}"
-        return Response(
-            text, media_type=MEDIA_TYPES[format], headers={"Content-Disposition": f'attachment; filename="{name}"'}
+        """Every matching alert (or review) with its hashes and status: a header row first, the caution in a
+        column, exact values; CSV cells made safe for spreadsheets; JSON Lines one record per line.
+        """
+        first = pick_alias("start", start, warn=False, **{"from": since})
+        last = pick_alias("end", end, warn=False, to=until)
+        text = await run_in_threadpool(
+            partial(export_alerts, store, format, what=what, start=first, end=last, portfolio=portfolio, status=status)
         )
+        name = f"riskshape-{what}.{format}"
+        headers = {"Content-Disposition": f'attachment; filename="{name}"'}
+        if since is not None or until is not None:
+            headers["Deprecation"] = "true"
+            headers["Warning"] = '299 - "from and to are deprecated; use start and end"'
+        return Response(text, media_type=MEDIA_TYPES[format], headers=headers)
 
     return router

@@ -189,10 +189,16 @@ def test_alerts_filters_detail_and_provenance(client: TestClient, auth: Auth, lo
         client.get(
             "/v1/alerts",
             headers=auth("reader"),
-            params={"since": first["window_end"], "until": first["window_end"], "rule": first["rule"]},
+            params={"start": first["window_end"], "end": first["window_end"], "rule": first["rule"]},
         )
     )
     assert [a["id"] for a in ranged["items"]] == [first["id"]]
+    aliased = client.get(
+        "/v1/alerts",
+        headers=auth("reader"),
+        params={"since": first["window_end"], "until": first["window_end"], "rule": first["rule"]},
+    )
+    assert [a["id"] for a in cautioned(aliased)["items"]] == [first["id"]] and aliased.headers["Deprecation"] == "true"
     detail = cautioned(client.get(f"/v1/alerts/{first['id']}", headers=auth("reader")))
     assert detail["alert"] == first and detail["reviews"] == []
     provenance = detail["provenance"]
@@ -229,10 +235,15 @@ def test_review_records_the_keys_owner(client: TestClient, auth: Auth, loaded: d
     assert forged.status_code == 422 and "reviewer" in cautioned(forged)["detail"]
     detail = cautioned(client.get(f"/v1/alerts/{alert_id}", headers=auth("reader")))
     assert [r["reviewer"] for r in detail["reviews"]] == ["reviewer-owner"]
-    reviewed = cautioned(client.get("/v1/alerts", params={"reviewed": True}, headers=auth("reader")))
-    assert [a["id"] for a in reviewed["items"]] == [alert_id]
-    unreviewed = cautioned(client.get("/v1/alerts", params={"reviewed": False}, headers=auth("reader")))
+    escalated = cautioned(client.get("/v1/alerts", params={"status": "escalated"}, headers=auth("reader")))
+    assert [(a["id"], a["status"], a["last_reviewer"]) for a in escalated["items"]] == [
+        (alert_id, "escalated", "reviewer-owner")
+    ]
+    unreviewed = cautioned(client.get("/v1/alerts", params={"status": "open"}, headers=auth("reader")))
     assert alert_id not in [a["id"] for a in unreviewed["items"]]
+    assert unreviewed["counts"]["escalated"] == 1 and unreviewed["counts"]["open"] == unreviewed["total"]
+    old = client.get("/v1/alerts", params={"reviewed": True}, headers=auth("reader"))  # deprecated filter
+    assert [a["id"] for a in cautioned(old)["items"]] == [alert_id] and old.headers["Deprecation"] == "true"
 
 
 def test_audit_head_and_verify(client: TestClient, auth: Auth, loaded: dict) -> None:
@@ -247,16 +258,16 @@ def test_audit_head_and_verify(client: TestClient, auth: Auth, loaded: dict) -> 
     assert malformed.status_code == 422
 
 
-def test_export_csv_and_jsonl_start_with_the_caution(client: TestClient, auth: Auth, loaded: dict) -> None:
+def test_export_csv_and_jsonl_carry_the_caution(client: TestClient, auth: Auth, loaded: dict) -> None:
     csv_text = cautioned(client.get("/v1/export/alerts", params={"format": "csv"}, headers=auth("reviewer")))
-    lines = csv_text.splitlines()
-    assert CAUTION in lines[0]
-    table = pd.read_csv(io.StringIO("\n".join(lines[1:])))
+    table = pd.read_csv(io.StringIO(csv_text))  # no options: the header row comes first
     assert sorted(table["id"]) == sorted(a["id"] for a in loaded["alerts"])
+    assert (table["caution"] == CAUTION).all() and (table["status"] == "open").all()
     jsonl = client.get("/v1/export/alerts", params={"format": "jsonl"}, headers=auth("reviewer"))
     assert jsonl.headers["content-type"].startswith("application/x-ndjson")
     records = [json.loads(line) for line in jsonl.text.splitlines()]
-    assert records[0] == {"caution": CAUTION} and len(records) == 1 + len(loaded["alerts"])
+    assert len(records) == len(loaded["alerts"]) and all(r["caution"] == CAUTION for r in records)
+    assert {r["id"] for r in records} == {a["id"] for a in loaded["alerts"]}
 
 
 def test_metrics_in_the_prometheus_text_format(client: TestClient, auth: Auth, loaded: dict) -> None:

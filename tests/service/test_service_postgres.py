@@ -49,7 +49,9 @@ def test_ingest_poll_review_verify_on_postgresql(pg_url: str, tmp_path) -> None:
         latest = cautioned(client.get("/v1/portfolios/pg/latest", headers=admin))
         assert latest["window_end"] == str(prices.index[-1].date())
         alert_id = ingested["alerts"][0]["id"]
-        review = client.post(f"/v1/alerts/{alert_id}/reviews", json={"action": "dismiss"}, headers=admin)
+        review = client.post(
+            f"/v1/alerts/{alert_id}/reviews", json={"action": "dismiss", "comment": "noise"}, headers=admin
+        )
         assert review.status_code == 201 and review.json()["review"]["reviewer"] == "pg-admin"
         verified = cautioned(client.get("/v1/audit/verify", headers=admin))
         assert verified["ok"] and verified["checked"] == len(ingested["alerts"]) + 1

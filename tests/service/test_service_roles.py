@@ -12,6 +12,7 @@ from collections.abc import Iterator
 from dataclasses import dataclass
 from pathlib import Path
 
+import numpy as np
 import pytest
 from fastapi.testclient import TestClient
 
@@ -20,6 +21,7 @@ from riskshape.store import open_store
 from riskshape_service import create_app
 from riskshape_service.auth import Permission, Role, may
 from riskshape_service.settings import ServiceSettings
+from tests.kit.archive import make_alerts, manifest, walk_prices
 from tests.kit.service import ROLES, cautioned, csv_body, write_config
 
 
@@ -30,6 +32,8 @@ class World:
     alert_id: int
     window_end: str
     prices_csv: bytes
+    review_targets: dict[str, int]
+    """One alert per role to review (a review changes the alert's status, so each role takes its own)."""
 
 
 @pytest.fixture(scope="module")
@@ -38,6 +42,10 @@ def world(tmp_path_factory: pytest.TempPathFactory) -> Iterator[World]:
     url = f"sqlite:///{folder / 'archive.sqlite'}"
     with open_store(url) as store:
         keys = {role: store.create_api_key(f"{role}-owner", role).token for role in ROLES}
+        store.create_portfolio("Fund Roles")
+        run = store.create_run("Fund Roles", manifest(), walk_prices(np.random.default_rng(3)))
+        seeded = store.append_alerts(make_alerts(np.random.default_rng(4), len(ROLES), portfolio="Fund Roles"), run.id)
+        targets = {role: a.id for role, a in zip(ROLES, seeded.added, strict=True)}
     settings = ServiceSettings(
         store_url=url, config_path=str(write_config(folder)), rate_limit_per_minute=100_000, rate_limit_burst=100_000
     )
@@ -50,7 +58,7 @@ def world(tmp_path_factory: pytest.TempPathFactory) -> Iterator[World]:
         )
         assert ingested.status_code == 200 and ingested.json()["alerts"], ingested.text
         alert = ingested.json()["alerts"][0]
-        yield World(client, keys, alert["id"], alert["window_end"], prices)
+        yield World(client, keys, alert["id"], alert["window_end"], prices, targets)
 
 
 @dataclass(frozen=True)
@@ -66,7 +74,12 @@ class Endpoint:
             return world.client.post(path, json={"name": f"made-by-{case}"}, headers=headers)
         if self.method == "POST" and path.endswith("/prices"):
             return world.client.post(path, content=world.prices_csv, headers={**headers, "Content-Type": "text/csv"})
+        if self.method == "POST" and path.endswith("/sign-offs"):
+            period = {"start": "2001-01-01", "end": "2001-01-31"}  # no alerts: nothing to settle first
+            return world.client.post(path, json=period, headers=headers)
         if self.method == "POST":
+            target = world.review_targets.get(case.split("-")[0], world.alert_id)
+            path = self.path.format(alert=target)
             return world.client.post(path, json={"action": "acknowledge", "comment": case}, headers=headers)
         return world.client.get(path, headers=headers)
 
@@ -83,6 +96,8 @@ ENDPOINTS = (
     Endpoint("POST", "/v1/alerts/{alert}/reviews", Permission.review, 201),
     Endpoint("GET", "/v1/audit/verify", Permission.review),
     Endpoint("GET", "/v1/audit/head", Permission.review),
+    Endpoint("POST", "/v1/audit/sign-offs", Permission.review, 201),
+    Endpoint("GET", "/v1/audit/sign-offs", Permission.read),
     Endpoint("GET", "/v1/export/alerts", Permission.review),
     Endpoint("GET", "/metrics", Permission.read),
 )

@@ -9,12 +9,13 @@ import json
 from pathlib import Path
 
 import numpy as np
+import pandas as pd
 import pytest
 import sqlalchemy as sa
 
 from riskshape.caution import CAUTION
 from riskshape.cli import main
-from riskshape.outputs.export import EXPORT_COLUMNS, neutralise_cell
+from riskshape.outputs.export import EXPORT_COLUMNS, REVIEW_COLUMNS, neutralise_cell
 from riskshape.store import chain_head, open_store
 from tests.kit.archive import around_triggers, make_alerts, manifest, walk_prices
 
@@ -87,18 +88,73 @@ def test_an_unknown_alert_is_a_user_error(archive: str, capsys: pytest.CaptureFi
 def test_list_show_and_review(archive: str, capsys: pytest.CaptureFixture[str]) -> None:
     status, out, _ = _run(capsys, "alerts", "list", "--store", archive, "--portfolio", "Fund North")
     lines = out.splitlines()
-    assert lines[0] == CAUTION and lines[-1] == "1-2 of 2 alert(s)"
-    _, out, _ = _run(capsys, "alerts", "list", "--store", archive, "--unreviewed")
-    assert out.splitlines()[-1] == "1-3 of 3 alert(s)"
-    _, out, _ = _run(capsys, "alerts", "review", "3", "--store", archive, "--action", "dismiss", "--reviewer", "Ana")
-    assert "review 2 of alert 3 recorded (dismiss)" in out
+    assert lines[0] == CAUTION and lines[-1].startswith("1-2 of 2 alert(s); by status: 1 open, ")
+    _, out, _ = _run(capsys, "alerts", "list", "--store", archive, "--status", "open")
+    assert out.splitlines()[-1].startswith("1-3 of 3 alert(s)")
+    _, out, _ = _run(capsys, "alerts", "list", "--store", archive, "--status", "escalated,dismissed")
+    rows = out.splitlines()[2:-1]
+    assert len(rows) == 1 and rows[0].split()[0] == "1" and "escalated" in rows[0] and "@Reviewer" in rows[0]
+    status, _, err = _run(
+        capsys, "alerts", "review", "3", "--store", archive, "--action", "dismiss", "--reviewer", "Ana"
+    )
+    assert status == 2 and "comment" in err and len(err.strip().splitlines()) == 1
+    _, out, _ = _run(
+        capsys,
+        "alerts",
+        "review",
+        "3",
+        "--store",
+        archive,
+        "--action",
+        "dismiss",
+        "--reviewer",
+        "Ana",
+        "--comment",
+        "noise",
+    )
+    assert "review 2 of alert 3 recorded (dismiss); status dismissed" in out
+    _, out, _ = _run(capsys, "alerts", "list", "--store", archive, "--status", "dismissed", "--status", "escalated")
+    assert out.splitlines()[-1].startswith("1-2 of 2 alert(s)")
     _, out, _ = _run(capsys, "alerts", "show", "1", "--store", archive)
     assert out.splitlines()[0] == CAUTION and "escalate by @Reviewer: -looks real" in out
-    assert "entry_hash" in out and "inputs_hash" in out
+    assert "entry_hash" in out and "inputs_hash" in out and "status           escalated" in out
+    status, _, err = _run(
+        capsys, "alerts", "review", "1", "--store", archive, "--action", "close", "--reviewer", "@Reviewer"
+    )
+    assert status == 2 and "four eyes" in err
+    _, out, _ = _run(capsys, "alerts", "review", "1", "--store", archive, "--action", "close", "--reviewer", "Bo")
+    assert "status closed" in out
     status, _, err = _run(
         capsys, "alerts", "review", "3", "--store", archive, "--action", "approve", "--reviewer", "Ana"
     )
     assert status == 2 and "approve" in err
+
+
+def test_period_names_and_aliases(archive: str, capsys: pytest.CaptureFixture[str]) -> None:
+    _, out, _ = _run(capsys, "alerts", "list", "--store", archive, "--start", "2030-03-04")
+    assert out.splitlines()[-1].startswith("1-2 of 2 alert(s)")
+    status, out, err = _run(capsys, "alerts", "list", "--store", archive, "--since", "2030-03-04")
+    assert out.splitlines()[-1].startswith("1-2 of 2 alert(s)") and "--since is deprecated" in err
+    status, _, err = _run(capsys, "alerts", "list", "--store", archive, "--start", "2030-03-05", "--end", "2030-03-01")
+    assert status == 2 and "start 2030-03-05 is after end 2030-03-01" in err
+    status, _, err = _run(
+        capsys, "alerts", "list", "--store", archive, "--start", "2030-03-05", "--since", "2030-03-01"
+    )
+    assert status == 2 and "give only start" in err
+
+
+def test_sign_off_commands(archive: str, capsys: pytest.CaptureFixture[str]) -> None:
+    sign = ("audit", "sign-off", "--store", archive, "--start", "2030-03-01", "--end", "2030-03-31", "--signer", "Cy")
+    status, _, err = _run(capsys, *sign, "--portfolio", "Fund North")
+    assert status == 2 and "still open or escalated" in err and "1 (Fund North" in err and "2 (Fund North" in err
+    _run(capsys, "alerts", "review", "1", "--store", archive, "--action", "close", "--reviewer", "Bo")
+    _run(capsys, "alerts", "review", "2", "--store", archive, "--action", "acknowledge", "--reviewer", "Bo")
+    status, out, _ = _run(capsys, *sign, "--portfolio", "Fund North")
+    assert status in (None, 0) and "signed off by Cy (Fund North)" in out
+    assert "0 open, 1 acknowledged, 0 escalated, 0 dismissed, 1 closed" in out
+    _, out, _ = _run(capsys, "audit", "sign-offs", "--store", archive)
+    assert "2030-03-01 to 2030-03-31  Fund North  by Cy" in out and out.splitlines()[-1] == "1 sign-off(s)"
+    assert _run(capsys, "audit", "verify", "--store", archive)[0] in (None, 0)
 
 
 def test_neutralise_cell_follows_owasp_csv_injection_guidance() -> None:
@@ -110,37 +166,59 @@ def test_neutralise_cell_follows_owasp_csv_injection_guidance() -> None:
         assert neutralise_cell(safe) == safe
 
 
-def test_export_csv(archive: str, capsys: pytest.CaptureFixture[str], tmp_path: Path) -> None:
+def test_export_csv_reads_with_no_options(archive: str, capsys: pytest.CaptureFixture[str], tmp_path: Path) -> None:
     out_file = tmp_path / "alerts.csv"
     status, out, _ = _run(capsys, "alerts", "export", "--store", archive, "--format", "csv", "--out", str(out_file))
     assert status in (None, 0) and CAUTION in out
-    text = out_file.read_text(encoding="utf-8")
-    rows = list(csv.reader(io.StringIO(text)))
-    assert rows[0] == [f"# {CAUTION}"] and tuple(rows[1]) == EXPORT_COLUMNS
-    records = [dict(zip(rows[1], r)) for r in rows[2:]]
+    # pandas.read_csv and csv.DictReader with no options: the header row is the first row.
+    table = pd.read_csv(out_file)
+    assert tuple(table.columns) == EXPORT_COLUMNS and len(table) == 4
+    assert (table["caution"] == CAUTION).all()
+    with out_file.open(newline="", encoding="utf-8") as handle:
+        records = list(csv.DictReader(handle))
     assert [r["id"] for r in records] == ["1", "3", "2", "4"]  # by window end, then id
     formula = [r for r in records if "HYPERLINK" in r["portfolio"]]
     assert {r["portfolio"] for r in formula} == {"'=HYPERLINK(1)"}
+    assert records[0]["last_reviewer"] == "'@Reviewer"  # neutralised like every text cell
     with open_store(archive) as store:
         first = store.get_alert(1).alert
     assert records[0]["entry_hash"] == first.entry_hash and float(records[0]["value"]) == first.value
-    assert records[0]["reviews"] == "1" and records[0]["last_review"] == "escalate"
-    status, out, _ = _run(capsys, "alerts", "export", "--store", archive, "--format", "csv", "--from", "2030-03-04")
-    assert [r[0] for r in csv.reader(io.StringIO(out))][2:] == ["2", "4"]
+    assert table.loc[0, "value"] == first.value  # exact: the shortest round-trip text
+    assert records[0]["reviews"] == "1" and records[0]["last_action"] == "escalate"
+    assert records[0]["status"] == "escalated" and records[1]["status"] == "open"
+    status, out, _ = _run(capsys, "alerts", "export", "--store", archive, "--format", "csv", "--start", "2030-03-04")
+    assert [r["id"] for r in csv.DictReader(io.StringIO(out))] == ["2", "4"]
+    status, out, err = _run(capsys, "alerts", "export", "--store", archive, "--format", "csv", "--from", "2030-03-04")
+    assert [r["id"] for r in csv.DictReader(io.StringIO(out))] == ["2", "4"] and "--from is deprecated" in err
+
+
+def test_export_reviews_one_row_each(archive: str, capsys: pytest.CaptureFixture[str]) -> None:
+    _run(capsys, "alerts", "review", "1", "--store", archive, "--action", "close", "--reviewer", "=cmd|' /C calc'!A0")
+    status, out, _ = _run(capsys, "alerts", "export", "--store", archive, "--format", "csv", "--what", "reviews")
+    table = pd.read_csv(io.StringIO(out))
+    assert tuple(table.columns) == REVIEW_COLUMNS
+    assert list(table["action"]) == ["escalate", "close"] and list(table["status_after"]) == ["escalated", "closed"]
+    assert list(table["reviewer"]) == ["'@Reviewer", "'=cmd|' /C calc'!A0"]
+    assert list(table["comment"].fillna("")) == ["'-looks real", ""]
+    status, out, _ = _run(capsys, "alerts", "export", "--store", archive, "--format", "jsonl", "--what", "reviews")
+    lines = [json.loads(line) for line in out.splitlines()]
+    assert [x["reviewer"] for x in lines] == ["@Reviewer", "=cmd|' /C calc'!A0"]  # JSON keeps text as archived
+    assert all(set(x) == set(REVIEW_COLUMNS) for x in lines)
 
 
 def test_export_jsonl_keeps_values_exactly(archive: str, capsys: pytest.CaptureFixture[str]) -> None:
-    status, out, _ = _run(capsys, "alerts", "export", "--store", archive, "--format", "jsonl", "--to", "2030-03-01")
+    status, out, _ = _run(capsys, "alerts", "export", "--store", archive, "--format", "jsonl", "--end", "2030-03-01")
     lines = [json.loads(line) for line in out.splitlines()]
-    assert lines[0] == {"caution": CAUTION}
     with open_store(archive) as store:
         archived = {a.id: a for a in store.list_alerts(limit=None).items}
-    assert [row["id"] for row in lines[1:]] == [1, 3]
-    for row in lines[1:]:
+    assert [row["id"] for row in lines] == [1, 3]  # every line one alert: no caution line
+    wanted = (set(EXPORT_COLUMNS) - {"explanation_json"}) | {"explanation"}
+    for row in lines:
         alert = archived[row["id"]]
+        assert row["caution"] == CAUTION
         assert row["value"] == alert.value and row["window_end"] == alert.window_end.isoformat()
         assert row["portfolio"] == alert.portfolio and row["prev_hash"] == alert.prev_hash
-        assert set(row) == set(EXPORT_COLUMNS) and set(dataclasses.asdict(alert)) <= set(row)
+        assert set(row) == wanted and set(dataclasses.asdict(alert)) <= set(row)
 
 
 def test_reproduce_command(tmp_path: Path, computed, capsys: pytest.CaptureFixture[str]) -> None:

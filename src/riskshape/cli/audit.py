@@ -1,4 +1,4 @@
-"""``riskshape audit``: verify the archive's hash chain, print its head, reproduce an alert."""
+"""``riskshape audit``: verify the archive's hash chain, print its head, reproduce an alert, sign a period off."""
 
 from __future__ import annotations
 
@@ -95,3 +95,43 @@ def reproduce(alert_id: int, store_url: str, executor: ExecutorKind) -> None:
         return
     click.echo(f"alert {alert_id} NOT reproduced: {', '.join(c.name for c in report.failed)}")
     raise click.exceptions.Exit(1)
+
+
+@audit.command("sign-off")
+@STORE_OPTION
+@click.option("--start", required=True, metavar="DATE", help="First window end of the period (YYYY-MM-DD).")
+@click.option("--end", required=True, metavar="DATE", help="Last window end of the period (YYYY-MM-DD).")
+@click.option("--portfolio", multiple=True, help="A portfolio signed for; repeat or comma-separate (default: all).")
+@click.option("--signer", required=True, help="Who signs the period off.")
+def sign_off_period(store_url: str, start: str, end: str, portfolio: tuple[str, ...], signer: str) -> None:
+    """Sign a period off: a chained record of the period, portfolios, counts by status and the chain head.
+
+    Refused, listing them, while an alert of the period is open or escalated.
+    """
+    from riskshape.reviews import sign_off
+
+    click.echo(CAUTION)
+    with open_store(store_url, create=False) as store:
+        signed = sign_off(store, start, end, portfolio, signer)
+    counts = ", ".join(f"{n} {s}" for s, n in signed.counts.items())
+    click.echo(f"period {signed.start} to {signed.end} signed off by {signed.signer} ({', '.join(signed.portfolios)})")
+    click.echo(f"alerts by status: {counts}")
+    click.echo(f"chain head at signing {signed.chain_head}; sign-off record seq {signed.seq}, hash {signed.entry_hash}")
+
+
+@audit.command("sign-offs")
+@STORE_OPTION
+def list_sign_offs_command(store_url: str) -> None:
+    """List every sign-off: period, portfolios, signer, when, counts by status, chain head."""
+    from riskshape.reviews import list_sign_offs
+
+    click.echo(CAUTION)
+    with open_store(store_url, create=False) as store:
+        signed = list_sign_offs(store)
+    for s in signed:
+        counts = ", ".join(f"{n} {k}" for k, n in s.counts.items())
+        click.echo(
+            f"{s.start} to {s.end}  {', '.join(s.portfolios)}  by {s.signer} at {s.signed_at.isoformat()}  "
+            f"[{counts}]  head {s.chain_head}"
+        )
+    click.echo(f"{len(signed)} sign-off(s)")
