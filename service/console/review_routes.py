@@ -264,19 +264,24 @@ def _pairs(body: bytes) -> list[tuple[str, str]]:
 
 
 def _download(store: Store, what: str, start: str, end: str, portfolio: str | None) -> tuple[str, str, str]:
-    """File name, media type and text of a download: the export (CSV or JSON Lines) or the report (HTML)."""
+    """File name, media type and text of a download: the export of alerts (CSV or JSON Lines), of reviews
+    (CSV), or the review report (HTML).
+    """
     period = to_period(start or None, end or None)
     if period.start is None or period.end is None:
         raise DataError("period: give both start and end of the period to download")
     first, last = period.start, period.end
     stem = _FILE_NAME.sub("-", f"riskshape-{first}-{last}" + (f"-{portfolio}" if portfolio else ""))
     if what == "csv":
-        text = export_alerts(store, "csv", since=first, until=last, portfolio=portfolio)
+        text = export_alerts(store, "csv", start=first, end=last, portfolio=portfolio)
         return f"{stem}.csv", "text/csv; charset=utf-8", text
+    if what == "reviews":
+        text = export_alerts(store, "csv", what="reviews", start=first, end=last, portfolio=portfolio)
+        return f"{stem}-reviews.csv", "text/csv; charset=utf-8", text
     if what == "jsonl":
-        text = export_alerts(store, "jsonl", since=first, until=last, portfolio=portfolio)
+        text = export_alerts(store, "jsonl", start=first, end=last, portfolio=portfolio)
         return f"{stem}.jsonl", "application/x-ndjson", text
     if what == "report":
         report = collect_review(store, first, last, portfolio=portfolio)
         return f"{stem}-report.html", "text/html; charset=utf-8", render_html(report)
-    raise DataError(f"what: {what!r} is not one of csv, jsonl, report")
+    raise DataError(f"what: {what!r} is not one of csv, reviews, jsonl, report")

@@ -255,7 +255,7 @@ def _settle_others(console: Console, window_end: str, alert_name: str | None) ->
     """Acknowledge (as the second reviewer, through the API) the other alerts of the alert's day."""
     headers = {"X-Riskshape-Key": console.keys["second"]}
     with httpx.Client(base_url=console.base, timeout=60) as client:
-        found = client.get("/v1/alerts", params={"since": window_end, "until": window_end}, headers=headers).json()
+        found = client.get("/v1/alerts", params={"start": window_end, "end": window_end}, headers=headers).json()
         others = [a["id"] for a in found["items"] if f"Alert {a['id']}" != alert_name]
         for alert_id in others:
             answer = client.post(f"/v1/alerts/{alert_id}/reviews", json={"action": "acknowledge"}, headers=headers)

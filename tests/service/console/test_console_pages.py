@@ -6,6 +6,7 @@ import csv
 import io
 import json
 
+import pandas as pd
 from fastapi.testclient import TestClient
 
 from riskshape.caution import CAUTION
@@ -53,6 +54,10 @@ def test_downloads_of_the_period_read_back(client: TestClient, keys: dict[str, s
     assert "attachment" in csv_file.headers["content-disposition"]
     rows = list(csv.reader(io.StringIO(csv_file.text)))
     assert sum(1 for r in rows if PORTFOLIO in r) == loaded  # one row per alert
+    table = pd.read_csv(io.StringIO(client.get("/console/audit/download", params={**period, "what": "csv"}).text))
+    assert len(table) == loaded  # pandas reads it with no options: a header row, one row per alert
+    reviews_file = client.get("/console/audit/download", params={**period, "what": "reviews"})
+    assert reviews_file.status_code == 200 and "reviews" in reviews_file.headers["content-disposition"]
     jsonl = client.get("/console/audit/download", params={**period, "what": "jsonl"})
     records = [json.loads(line) for line in jsonl.text.splitlines() if line.strip()]
     assert sum(1 for r in records if r.get("portfolio") == PORTFOLIO) == loaded

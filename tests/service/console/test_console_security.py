@@ -26,9 +26,13 @@ def app(make_settings: Callable[..., ServiceSettings], keys: dict[str, str]):  #
     return create_app(make_settings(console_secret=SECRET))
 
 
-def _first_alert(client: TestClient, keys: dict[str, str]) -> int:
+def _alerts(client: TestClient, keys: dict[str, str]) -> list[int]:
     found = client.get("/v1/alerts", headers={"X-Riskshape-Key": keys["reader"]}).json()["items"]
-    return int(found[0]["id"])
+    return [int(a["id"]) for a in found]
+
+
+def _first_alert(client: TestClient, keys: dict[str, str]) -> int:
+    return _alerts(client, keys)[0]
 
 
 def _reviews(client: TestClient, keys: dict[str, str], alert_id: int) -> list[dict[str, object]]:
@@ -115,12 +119,12 @@ def test_the_reviewer_who_escalated_cannot_close(
     client: TestClient, keys: dict[str, str], second_reviewer: str, loaded: int
 ) -> None:
     token = sign_in(client, keys["reviewer"])
-    alert_id = _first_alert(client, keys)
+    alert_id, other_id = _alerts(client, keys)[:2]
     escalate = {"action": "escalate", "comment": "needs a second look", "csrf": token}
     assert client.post(f"/console/alerts/{alert_id}/review", data=escalate, follow_redirects=False).status_code == 303
     refused = client.post(f"/console/alerts/{alert_id}/review", data={"action": "close", "csrf": token})
     assert refused.status_code == 409 and "four eyes" in refused.text
-    no_comment = client.post(f"/console/alerts/{alert_id + 1}/review", data={"action": "dismiss", "csrf": token})
+    no_comment = client.post(f"/console/alerts/{other_id}/review", data={"action": "dismiss", "csrf": token})
     assert no_comment.status_code == 422 and "comment" in no_comment.text
     other = TestClient(client.app)  # type: ignore[arg-type]  # a second browser on the same running app
     second = sign_in(other, second_reviewer)
