@@ -19,6 +19,7 @@ from riskshape.alerts.rules import evaluate_rules
 from riskshape.cli import main
 from riskshape.demo.scenario import generate_scenario
 from riskshape.explain import explain_alert
+from riskshape.outputs import palette
 from riskshape.outputs.report import collect_review, render_html, write_report
 from riskshape.store import RunManifest, Store, chain_head, open_store, verify_chain
 
@@ -217,9 +218,9 @@ def test_report_renders_in_headless_chromium(archive, tmp_path: Path) -> None:
     pixels = imread(shot)[..., :3]
     assert pixels.shape[:2] == (2400, 1200)
     assert pixels.std() > 0.05  # not a blank page
-    # the summaries plot is on screen: its lines are matplotlib's "tab:blue" (#1f77b4), a colour
-    # nothing else on the page uses
-    blue = np.all(np.abs(pixels - np.array([0x1F, 0x77, 0xB4]) / 255.0) < 0.06, axis=-1)
+    # the summaries plot is on screen: its H0 line takes the palette's H0 colour, which the page's text does not use
+    h0 = palette.dimension_mark(0).color
+    blue = np.all(np.abs(pixels - np.array([int(h0[i : i + 2], 16) for i in (1, 3, 5)]) / 255.0) < 0.06, axis=-1)
     assert blue.sum() > 500
 
 
