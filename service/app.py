@@ -22,6 +22,7 @@ from starlette.middleware.body_limit import RequestBodyLimitMiddleware
 from riskshape import CAUTION, Config, RiskshapeError, __version__
 from riskshape.daily import Ingestor
 from riskshape.store import open_store
+from riskshape_service.console import mount_console
 from riskshape_service.context import ServiceContext
 from riskshape_service.docs import mount_docs
 from riskshape_service.freshness import MarkerRounds
@@ -145,6 +146,7 @@ def create_app(settings: ServiceSettings | None = None) -> FastAPI:
     for module in ROUTERS:
         app.include_router(module.make_router(settings))
     app.add_middleware(LatestFastPath, context=context)  # innermost: prepared latest states before routing
+    mount_console(app, settings)
     app.add_middleware(RequestBodyLimitMiddleware, max_body_size=settings.max_body_bytes)
     app.add_middleware(RequestContextMiddleware, metrics=service_metrics, max_body_bytes=settings.max_body_bytes)
     app.openapi = lambda: _openapi(app)  # type: ignore[method-assign]

@@ -49,6 +49,10 @@ class ServiceSettings(BaseModel):
     key_recheck_seconds : float
         Age past which a worker reads an API key again from the archive before trusting it: a key
         revoked through any process is refused by every worker within this time (0: every request).
+    console_secret : str or None
+        Key that signs the browser console's session cookies (at least 32 characters). Several
+        service processes over one archive need the same one; without it each process makes a
+        random one when it starts (sessions then end when it restarts).
     """
 
     model_config = ConfigDict(frozen=True, extra="forbid")
@@ -62,6 +66,7 @@ class ServiceSettings(BaseModel):
     log_level: Literal["debug", "info", "warning", "error"] = "info"
     result_cache_size: int = Field(128, ge=0)
     key_recheck_seconds: float = Field(1.0, ge=0, le=60)
+    console_secret: str | None = Field(None, min_length=32, repr=False)
 
     def __init__(self, **data: Any) -> None:
         try:

@@ -31,6 +31,7 @@ PUBLIC_PACKAGES = (
     "riskshape.daily",
     "riskshape.reviews",
     "riskshape.selection",
+    "riskshape.outputs.palette",
 )
 
 # (module, name) imports allowed past the public packages, each with its reason (none today).

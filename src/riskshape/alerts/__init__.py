@@ -21,8 +21,10 @@ if TYPE_CHECKING:
     from riskshape.alerts.rules import recheck_firing as recheck_firing
     from riskshape.alerts.rules import rule_state as rule_state
     from riskshape.alerts.rules import rule_states as rule_states
+    from riskshape.alerts.thresholds import trailing_levels as trailing_levels
 
 _EXPORTS = {
+    "trailing_levels": "riskshape.alerts.thresholds",
     "Alert": "riskshape.alerts.model",
     "Firing": "riskshape.alerts.model",
     "RuleState": "riskshape.alerts.rules",

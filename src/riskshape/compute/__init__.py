@@ -48,11 +48,13 @@ if TYPE_CHECKING:
     from riskshape.compute.summaries import bottleneck_distance as bottleneck_distance
     from riskshape.compute.summaries import summarize_diagram as summarize_diagram
     from riskshape.compute.summaries import wasserstein_distance as wasserstein_distance
+    from riskshape.compute.window_view import Window as Window
     from riskshape.compute.windows import Selection as Selection
     from riskshape.compute.windows import select_assets as select_assets
     from riskshape.compute.windows import window_end_positions as window_end_positions
 
 _EXPORTS = {
+    "Window": "riskshape.compute.window_view",
     "MonitorResult": "riskshape.compute.monitor",
     "feature_columns": "riskshape.compute.monitor",
     "to_returns": "riskshape.compute.returns",

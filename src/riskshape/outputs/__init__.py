@@ -27,11 +27,13 @@ if TYPE_CHECKING:
     from riskshape.outputs.plots import plot_window as plot_window
     from riskshape.outputs.report import ReviewReport as ReviewReport
     from riskshape.outputs.report import collect_review as collect_review
+    from riskshape.outputs.report import render_html as render_html
     from riskshape.outputs.report import write_report as write_report
     from riskshape.outputs.run_folder import RunFiles as RunFiles
     from riskshape.outputs.run_folder import write_run as write_run
 
 _EXPORTS = {
+    "render_html": "riskshape.outputs.report",
     "RunFiles": "riskshape.outputs.run_folder",
     "write_run": "riskshape.outputs.run_folder",
     "EXPORT_COLUMNS": "riskshape.outputs.export",

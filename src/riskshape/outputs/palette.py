@@ -146,6 +146,16 @@ _LAYER_MARKERS: tuple[str, ...] = ("", "o", "s", "^", "D")
 def dimension_mark(k: int) -> Mark:
     """The mark of homology dimension ``k`` (0, 1 or 2).
 
+    Parameters
+    ----------
+    k : int
+        The homology dimension.
+
+    Returns
+    -------
+    Mark
+        Its colour, marker, line style and label.
+
     Raises
     ------
     riskshape.errors.ConfigError
@@ -158,6 +168,16 @@ def dimension_mark(k: int) -> Mark:
 
 def severity_mark(severity: str) -> Mark:
     """The mark of an alert of ``severity`` (``info``, ``warning`` or ``critical``).
+
+    Parameters
+    ----------
+    severity : str
+        The alert's severity.
+
+    Returns
+    -------
+    Mark
+        Its colour, its marker shape and its word.
 
     Raises
     ------
@@ -173,6 +193,15 @@ def severity_mark(severity: str) -> Mark:
 def summary_mark(column: str) -> Mark:
     """The line of a summary column: its dimension's mark for ``h<k>_...``, else :data:`BASELINE`.
 
+    Parameters
+    ----------
+    column : str
+        A feature column's name.
+
+    Returns
+    -------
+    Mark
+
     Examples
     --------
     >>> summary_mark("h1_landscape_l1").label, summary_mark("mean_correlation").label
@@ -185,19 +214,39 @@ def summary_mark(column: str) -> Mark:
 
 
 def layer_style(k: int) -> tuple[LineStyle, str]:
-    """Line style and marker of the ``k``-th landscape layer (0-based); unique for the first 20 layers."""
+    """Line style and marker of the ``k``-th landscape layer (0-based); unique for the first 20 layers.
+
+    Parameters
+    ----------
+    k : int
+        The layer, from 0.
+
+    Returns
+    -------
+    linestyle, marker : str, str
+    """
     return LINESTYLES[k % len(LINESTYLES)], _LAYER_MARKERS[(k // len(LINESTYLES)) % len(_LAYER_MARKERS)]
 
 
 def diverging_colormap() -> LinearSegmentedColormap:
-    """The correlation map's colours (:data:`DIVERGING`) as a matplotlib colormap."""
+    """The correlation map's colours (:data:`DIVERGING`) as a matplotlib colormap.
+
+    Returns
+    -------
+    matplotlib.colors.LinearSegmentedColormap
+    """
     from matplotlib.colors import LinearSegmentedColormap
 
     return LinearSegmentedColormap.from_list("riskshape_diverging", list(DIVERGING))
 
 
 def colours() -> frozenset[str]:
-    """Every colour of the palette, as upper-case ``#RRGGBB``."""
+    """Every colour of the palette, as upper-case ``#RRGGBB``.
+
+    Returns
+    -------
+    frozenset of str
+    """
     marks = [*DIMENSIONS, *SEVERITIES.values(), ALERT, THRESHOLD, BASELINE]
     named = (INK, MUTED_INK, RULE, FAINT, HEADER_FILL, CODE_FILL, REGIME_FILL, EVENT_FILL)
     report = (CAUTION_EDGE, CAUTION_FILL, GOOD, BAD)

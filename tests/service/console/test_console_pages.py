@@ -1,0 +1,77 @@
+"""The console's pages over a real archive, through FastAPI's test client."""
+
+from __future__ import annotations
+
+import csv
+import io
+import json
+
+import pandas as pd
+from fastapi.testclient import TestClient
+
+from riskshape.caution import CAUTION
+from riskshape.outputs import palette
+from tests.service.console.conftest import PORTFOLIO, sign_in
+
+
+def test_every_page_renders_with_the_caution(client: TestClient, keys: dict[str, str], loaded: int) -> None:
+    sign_in(client, keys["reviewer"])
+    first = client.get("/v1/alerts", headers={"X-Riskshape-Key": keys["reader"]}).json()["items"][0]["id"]
+    for path in (
+        "/console/",
+        f"/console/portfolios/{PORTFOLIO}",
+        "/console/alerts",
+        f"/console/alerts/{first}",
+        "/console/audit",
+    ):
+        page = client.get(path)
+        assert page.status_code == 200, (path, page.text[:500])
+        assert CAUTION in page.text, path
+        assert "Content-Security-Policy" in page.headers
+
+
+def test_the_queue_filters_and_counts(client: TestClient, keys: dict[str, str], loaded: int) -> None:
+    sign_in(client, keys["reviewer"])
+    every = client.get("/console/alerts", params={"portfolio": PORTFOLIO})
+    assert f"{loaded} alerts match" in every.text
+    critical = client.get("/console/alerts", params={"portfolio": PORTFOLIO, "severity": "critical"})
+    api = client.get(
+        "/v1/alerts",
+        params={"portfolio": PORTFOLIO, "severity": "critical"},
+        headers={"X-Riskshape-Key": keys["reader"]},
+    ).json()["total"]
+    assert f"{api} alerts match" in critical.text  # the same count as the API's filter
+    assert critical.text.count('class="shape shape-warning"') == 0
+    backwards = client.get("/console/alerts", params={"start": "2031-03-01", "end": "2031-02-01"})
+    assert backwards.status_code == 422 and "after" in backwards.text
+
+
+def test_downloads_of_the_period_read_back(client: TestClient, keys: dict[str, str], loaded: int) -> None:
+    sign_in(client, keys["reviewer"])
+    period = {"start": "2000-01-01", "end": "2100-12-31", "portfolio": PORTFOLIO}
+    csv_file = client.get("/console/audit/download", params={**period, "what": "csv"})
+    assert csv_file.status_code == 200 and csv_file.headers["content-type"].startswith("text/csv")
+    assert "attachment" in csv_file.headers["content-disposition"]
+    rows = list(csv.reader(io.StringIO(csv_file.text)))
+    assert sum(1 for r in rows if PORTFOLIO in r) == loaded  # one row per alert
+    table = pd.read_csv(io.StringIO(client.get("/console/audit/download", params={**period, "what": "csv"}).text))
+    assert len(table) == loaded  # pandas reads it with no options: a header row, one row per alert
+    reviews_file = client.get("/console/audit/download", params={**period, "what": "reviews"})
+    assert reviews_file.status_code == 200 and "reviews" in reviews_file.headers["content-disposition"]
+    jsonl = client.get("/console/audit/download", params={**period, "what": "jsonl"})
+    records = [json.loads(line) for line in jsonl.text.splitlines() if line.strip()]
+    assert sum(1 for r in records if r.get("portfolio") == PORTFOLIO) == loaded
+    report = client.get("/console/audit/download", params={**period, "what": "report"})
+    assert report.status_code == 200 and CAUTION in report.text and PORTFOLIO in report.text
+    wrong = client.get("/console/audit/download", params={"start": "2031-03-01", "end": "2031-01-01", "what": "csv"})
+    assert wrong.status_code == 422 and "after" in wrong.text
+
+
+def test_unknown_pages_and_the_style_sheets(client: TestClient, keys: dict[str, str]) -> None:
+    sign_in(client, keys["reader"])
+    assert client.get("/console/portfolios/Nowhere").status_code == 404
+    assert client.get("/console/alerts/999999").status_code == 404
+    css = client.get("/console/static/console.css")
+    assert css.status_code == 200 and "text/css" in css.headers["content-type"]
+    palette_css = client.get("/console/palette.css").text
+    assert palette.SEVERITIES["critical"].color in palette_css  # the console's colours are the palette's
