@@ -6,8 +6,8 @@
 - :mod:`~riskshape.outputs.plots`: figures for notebooks and reports (loads matplotlib on first use).
 
 >>> from riskshape.outputs import EXPORT_COLUMNS
->>> EXPORT_COLUMNS[:2]
-('id', 'window_end')
+>>> EXPORT_COLUMNS[:3]
+('caution', 'id', 'window_end')
 """
 
 from __future__ import annotations
