@@ -6,7 +6,7 @@
 - :mod:`~riskshape.outputs.plots`: figures for notebooks and reports (loads matplotlib on first use).
 
 >>> from riskshape.outputs import EXPORT_COLUMNS
->>> EXPORT_COLUMNS[:3]
+>>> EXPORT_COLUMNS[:2]
 ('caution', 'id', 'window_end')
 """
 
