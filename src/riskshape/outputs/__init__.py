@@ -7,7 +7,7 @@
 
 >>> from riskshape.outputs import EXPORT_COLUMNS
 >>> EXPORT_COLUMNS[:2]
-('caution', 'id', 'window_end')
+('caution', 'id')
 """
 
 from __future__ import annotations
