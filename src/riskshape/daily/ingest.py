@@ -191,7 +191,8 @@ def _names(assets: list[str]) -> str:
 
 
 def _day(stamp: object) -> date:
-    return pd.Timestamp(stamp).date()
+    plain: date = pd.Timestamp(stamp).date()
+    return plain
 
 
 def _check_assets(portfolio: str, incoming: pd.DataFrame, held: pd.DataFrame, source: str) -> None:
@@ -530,7 +531,11 @@ class Ingestor:
             return IngestReport(**base, **_no_windows(note))  # type: ignore[arg-type]
         expected = len(window_end_positions(n_returns, config.window, config.step))
         archived = len(store.window_ends(portfolio, config.hash()))
-        if not corrections and archived >= expected and (counted_until is not None and through <= counted_until):
+        if (
+            not corrections
+            and archived >= expected
+            and (counted_until is not None and through is not None and through <= counted_until)
+        ):
             note = "nothing new: every price was already archived with the same value" if not pending else ""
             note = note or f"prices archived; no day counts yet{waiting}"
             return IngestReport(**base, **_no_windows(note))  # type: ignore[arg-type]

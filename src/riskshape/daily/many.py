@@ -110,6 +110,17 @@ def split_feed(table: pd.DataFrame, source: str, portfolio: str | None = None) -
 def read_feed(path: str | os.PathLike[str], portfolio: str | None = None) -> Feed:
     """Read a day file (CSV) and split it by portfolio (see :func:`split_feed`).
 
+    Parameters
+    ----------
+    path : path-like
+        The day file: ``date``, then wide asset columns or ``asset, price``; optionally ``portfolio``.
+    portfolio : str, optional
+        The one portfolio of a file without a ``portfolio`` column.
+
+    Returns
+    -------
+    Feed
+
     Raises
     ------
     DataError
