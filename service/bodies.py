@@ -100,5 +100,7 @@ def table_from_csv(raw: bytes) -> pd.DataFrame:
 
 
 def validated_prices(table: pd.DataFrame, source: str, first_line: int, row_label: str) -> pd.DataFrame:
-    """Validate a raw table through :func:`riskshape.prices.validate_prices` (one date is enough)."""
-    return validate_prices(table, source=source, min_rows=1, first_line=first_line, row_label=row_label)
+    """Validate a raw table through :func:`riskshape.prices.validate_prices` (one date and one asset are
+    enough: a new portfolio's first prices need three assets, which the ingest checks).
+    """
+    return validate_prices(table, source=source, min_rows=1, first_line=first_line, row_label=row_label, min_assets=1)

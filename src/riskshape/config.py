@@ -4,9 +4,10 @@
 
 A :class:`Config` is frozen and validated once, here. ``Config(window=90)`` takes
 keyword arguments; :meth:`Config.from_toml` reads a file laid out like
-``config/default.toml`` (sections ``[monitor]``, ``[compute]``, ``[alerts]``).
+``config/default.toml`` (sections ``[monitor]``, ``[compute]``, ``[alerts]``, ``[daily]``).
 :meth:`Config.hash` is a SHA-256 over the canonical JSON of everything that can
-change a result (the ``compute`` section cannot, so it is left out).
+change a result (the ``compute`` section cannot, so it is left out; nor can ``daily``, which
+decides when a day counts, and each day closed by it is a chained record saying so).
 """
 
 from __future__ import annotations
@@ -147,6 +148,17 @@ class ComputeConfig(_Frozen):
     )
 
 
+class DailyConfig(_Frozen):
+    """The daily loop's policy (:mod:`riskshape.daily.days`); never changes a window's value."""
+
+    close_share: float | None = Field(
+        None,
+        gt=0.0,
+        le=1.0,
+        description="close a day once this share of its listed assets has a price (off when unset)",
+    )
+
+
 class RuleConfig(_Frozen):
     """One alert rule over one summary column.
 
@@ -257,8 +269,8 @@ class Config(_Frozen):
         window are points in R^n (one coordinate per asset).
     standardize_cloud : bool
         For ``point_cloud``: divide each asset's returns by its window standard deviation.
-    compute, alerts
-        See :class:`ComputeConfig` and :class:`AlertsConfig`.
+    compute, alerts, daily
+        See :class:`ComputeConfig`, :class:`AlertsConfig` and :class:`DailyConfig`.
 
     Examples
     --------
@@ -278,6 +290,7 @@ class Config(_Frozen):
     standardize_cloud: bool = True
     compute: ComputeConfig = ComputeConfig()
     alerts: AlertsConfig = AlertsConfig()
+    daily: DailyConfig = DailyConfig()
 
     @model_validator(mode="before")
     @classmethod
@@ -366,14 +379,16 @@ class Config(_Frozen):
 
     @classmethod
     def from_mapping(cls, data: Mapping[str, Any], where: str = "configuration") -> Config:
-        """Build a Config from the nested mapping a TOML file holds (``monitor``, ``compute``, ``alerts``)."""
-        unknown = set(data) - {"monitor", "compute", "alerts"}
+        """Build a Config from the nested mapping a TOML file holds (``monitor``, ``compute``, ``alerts``,
+        ``daily``).
+        """
+        unknown = set(data) - {"monitor", "compute", "alerts", "daily"}
         if unknown:
             raise ConfigError(
-                f"{where}: unknown section(s) {sorted(unknown)}; allowed are [monitor], [compute], [alerts]"
+                f"{where}: unknown section(s) {sorted(unknown)}; allowed are [monitor], [compute], [alerts], [daily]"
             )
         flat: dict[str, Any] = dict(data.get("monitor", {}))
-        for section in ("compute", "alerts"):
+        for section in ("compute", "alerts", "daily"):
             if section in data:
                 flat[section] = data[section]
         built: Config = cls._build(flat, where)
@@ -382,14 +397,15 @@ class Config(_Frozen):
     @staticmethod
     def _file_key(loc: tuple[Any, ...]) -> str:
         dotted = ".".join(str(p) for p in loc)
-        return dotted if not loc or loc[0] in ("compute", "alerts") else f"monitor.{dotted}"
+        return dotted if not loc or loc[0] in ("compute", "alerts", "daily") else f"monitor.{dotted}"
 
     def to_mapping(self) -> dict[str, Any]:
         """The nested mapping :meth:`from_mapping` reads (round-trips)."""
         dumped = self.model_dump(mode="json")
         compute = dumped.pop("compute")
         alerts = dumped.pop("alerts")
-        return {"monitor": dumped, "compute": compute, "alerts": alerts}
+        daily = dumped.pop("daily")
+        return {"monitor": dumped, "compute": compute, "alerts": alerts, "daily": daily}
 
     def replace(self, **changes: Any) -> Config:
         """A copy with some fields changed, validated like a new Config."""
@@ -399,7 +415,7 @@ class Config(_Frozen):
 
     def hash(self) -> str:
         """SHA-256 (hex) of the canonical JSON of every setting that can change a result."""
-        payload = self.model_dump(mode="json", exclude={"compute"})
+        payload = self.model_dump(mode="json", exclude={"compute", "daily"})
         # Hashed under its old name: archived runs are looked up by this hash, and they were stored
         # when the key was called `engine`; renaming it must not change the hash of any configuration.
         payload["engine"] = payload.pop("rips_backend")

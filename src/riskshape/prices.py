@@ -157,6 +157,7 @@ def validate_prices(
     min_rows: int = 2,
     first_line: int = 1,
     row_label: str = "row",
+    min_assets: int = MIN_ASSETS,
 ) -> ValidPrices:
     """Validate a price table in any accepted layout and return it wide.
 
@@ -173,6 +174,8 @@ def validate_prices(
         The fewest dates accepted.
     first_line, row_label : int, str
         How rows are numbered in messages (``line 2`` is the first data line of a CSV file).
+    min_assets : int
+        The fewest asset columns accepted (a day's feed for an existing portfolio may carry one).
 
     Returns
     -------
@@ -200,9 +203,9 @@ def validate_prices(
         raise DataError(
             f"{source}: asset name {long_names[0][:40]!r}... is longer than {MAX_NAME} characters; shorten it"
         )
-    if frame.shape[1] < MIN_ASSETS:
+    if frame.shape[1] < min_assets:
         raise DataError(
-            f"{source}: {frame.shape[1]} asset column(s) found, at least {MIN_ASSETS} are needed "
+            f"{source}: {frame.shape[1]} asset column(s) found, at least {min_assets} are needed "
             "to measure the shape of dependence; add assets"
         )
 

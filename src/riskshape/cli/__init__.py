@@ -25,6 +25,9 @@ COMMANDS: dict[str, str] = {
     "serve": "riskshape.cli.serve:serve",
     "keys": "riskshape.cli.keys:keys",
     "report": "riskshape.cli.report:report",
+    "ingest": "riskshape.cli.daily:ingest",
+    "days": "riskshape.cli.daily:days",
+    "assets": "riskshape.cli.daily:assets",
 }
 
 

@@ -14,12 +14,24 @@ from riskshape._lazy import lazy_exports
 if TYPE_CHECKING:
     from riskshape.daily.ingest import Ingestor as Ingestor
     from riskshape.daily.ingest import IngestReport as IngestReport
+    from riskshape.daily.ingest import pending_days as pending_days
     from riskshape.daily.ingest import portfolio_config as portfolio_config
+    from riskshape.daily.ingest import read_day_book as read_day_book
+    from riskshape.daily.many import PortfolioOutcome as PortfolioOutcome
+    from riskshape.daily.many import ingest_many as ingest_many
+    from riskshape.daily.many import read_feed as read_feed
+    from riskshape.daily.many import split_feed as split_feed
 
 _EXPORTS = {
     "Ingestor": "riskshape.daily.ingest",
     "IngestReport": "riskshape.daily.ingest",
     "portfolio_config": "riskshape.daily.ingest",
+    "pending_days": "riskshape.daily.ingest",
+    "read_day_book": "riskshape.daily.ingest",
+    "PortfolioOutcome": "riskshape.daily.many",
+    "ingest_many": "riskshape.daily.many",
+    "read_feed": "riskshape.daily.many",
+    "split_feed": "riskshape.daily.many",
 }
 
 __all__ = list(_EXPORTS)

@@ -1,27 +1,31 @@
-"""Ingest: archive a portfolio's new prices, compute only the windows they complete, raise alerts.
+"""Ingest: archive a portfolio's new prices, compute only the windows the counted days complete, raise alerts.
 
-Policy (what the service's price endpoint and the command line apply):
+Policy (what the service's price endpoints and the command line apply):
 
-* **New days** (after the last archived date) are appended; the windows they complete are
-  computed with :meth:`riskshape.MonitorResult.update` on the portfolio's result kept in memory
-  (rebuilt once with :func:`riskshape.monitor` from the archived prices after a restart, or when
-  someone else wrote to the portfolio), then archived with :func:`riskshape.archive.archive_run`,
-  which evaluates the alert rules and appends only alerts not yet archived.
+* **Days count once complete** (:mod:`riskshape.daily.days`): a day's window is computed, and the
+  rules evaluated on it, only once every listed asset has answered for it (a price, or a price
+  sent as missing) or the day is closed (by hand with :meth:`Ingestor.close_day`, or by the
+  ``[daily] close_share`` cut-off rule); until then its prices are archived and it is *pending*
+  (:func:`pending_days`). Sending the rest of a pending day is an ordinary ingest. An asset that
+  stopped trading is delisted (:meth:`Ingestor.delist`), so days after its last one do not wait
+  for it. Closings and delistings are chained records (``day_closed``, ``asset_delisted``).
+* **New days** that count are appended; the windows they complete are computed with
+  :meth:`riskshape.MonitorResult.update` on the portfolio's result kept in memory (rebuilt once
+  with :func:`riskshape.monitor` from the archived prices after a restart, or when someone else
+  wrote to the portfolio), then archived with :func:`riskshape.archive.archive_run`, which
+  evaluates the alert rules and appends only alerts not yet archived.
 * **Idempotent**: a day already archived with the same prices adds nothing; sending the same
   body twice adds no prices, windows, runs or alerts.
-* **Revisions**: a price that differs from the archived one for a date already archived (or a
-  price for a cell archived as missing) is refused with 409, unless the request says
+* **Revisions**: a price that differs from the archived one for a day that counts (or a price
+  for a cell archived as missing there) is refused with 409, unless the request says
   ``correction=true``. A correction archives a new revision (the old one stays, and is listed
-  as a correction), and the windows are recomputed from the corrected history. Windows and
-  alerts already archived are never rewritten: the answer counts the archived windows whose
-  values would now differ. A missing price never replaces an archived one.
-* A date **inside** the archived history that is not archived yet is refused (422): windows
-  count trading days, so it would shift every later window; rerun the portfolio instead.
-* **Assets** are fixed by the portfolio's first prices, in name order (the order the archive reads
-  them back in, so a portfolio fed one day at a time and one fed in a single body compute alike;
-  a portfolio made by ``riskshape run`` keeps its file's order): an unknown asset is refused (422);
-  an asset left out of a new day is missing on that day.
-* Until one window of history is archived (``window + 1`` dates) prices are only archived.
+  as a correction), and the windows are recomputed from the corrected history. A missing price
+  never replaces an archived one. One price for one asset and one date is a valid body.
+* A date **inside** the archived history that is not archived is refused (422): it was never a
+  trading day of the portfolio, and windows count trading days.
+* **Assets** are fixed by the portfolio's first prices (at least three), in name order: an
+  unknown asset is refused (422); an asset left out of a day's body leaves the day pending.
+* Until one window of history counts (``window + 1`` dates) prices are only archived.
 """
 
 from __future__ import annotations
@@ -34,17 +38,44 @@ from datetime import date
 import numpy as np
 import pandas as pd
 
-from riskshape import Config, ConflictError, DataError, MonitorResult, archive_run, monitor
+from riskshape import Config, ConflictError, DataError, MonitorResult, NotFoundError, archive_run, monitor
 from riskshape.compute import window_end_positions
-from riskshape.prices import ValidPrices
+from riskshape.daily.days import (
+    CLOSED_BY_HAND,
+    DayBook,
+    DayStatus,
+    closes_by_cut_off,
+    cut_off_how,
+    day_statuses,
+    split_counted,
+)
+from riskshape.prices import MIN_ASSETS, ValidPrices
 from riskshape.store import AlertRecord, Run, Store
+from riskshape.store.presence import read_cells
 
-__all__ = ["Ingestor", "IngestReport", "portfolio_config"]
+__all__ = [
+    "Ingestor",
+    "IngestReport",
+    "portfolio_config",
+    "pending_days",
+    "read_day_book",
+    "DAY_CLOSED",
+    "ASSET_DELISTED",
+]
+
+DAY_CLOSED = "day_closed"
+"""Kind of the chained record of a closed day (subject: the date; data: who, how, missing assets)."""
+ASSET_DELISTED = "asset_delisted"
+"""Kind of the chained record of a delisting (subject: the asset; data: last trading day, who)."""
 
 
 @dataclass(frozen=True)
 class IngestReport:
-    """What one ingest did."""
+    """What one ingest (or closing, or delisting) did.
+
+    ``pending`` lists the days archived that do not count yet (oldest first), ``closed`` the days
+    this call closed (by hand, or by the cut-off rule).
+    """
 
     portfolio: str
     prices_added: int
@@ -58,6 +89,8 @@ class IngestReport:
     alerts: tuple[AlertRecord, ...]
     run_id: int | None
     note: str
+    pending: tuple[DayStatus, ...] = ()
+    closed: tuple[date, ...] = ()
 
 
 def portfolio_config(store: Store, portfolio: str, default: Config) -> tuple[Config, Run | None]:
@@ -83,6 +116,58 @@ def portfolio_config(store: Store, portfolio: str, default: Config) -> tuple[Con
     return Config.from_mapping(run.config, where=f"run {run.id} of portfolio {portfolio!r}"), run
 
 
+def read_day_book(store: Store, portfolio: str) -> DayBook:
+    """The portfolio's closed days and delistings, from their chained records.
+
+    Parameters
+    ----------
+    store : Store
+        The archive.
+    portfolio : str
+        The portfolio's name.
+
+    Returns
+    -------
+    DayBook
+    """
+    closed: dict[date, str] = {}
+    for event in store.list_events(kind=DAY_CLOSED, portfolio=portfolio):
+        closed[date.fromisoformat(str(event.subject))] = str(event.data.get("how", CLOSED_BY_HAND))
+    delisted: dict[str, date] = {}
+    for event in store.list_events(kind=ASSET_DELISTED, portfolio=portfolio):
+        delisted[str(event.subject)] = date.fromisoformat(str(event.data["last_trading_day"]))
+    return DayBook(closed=closed, delisted=delisted)
+
+
+def _assets(store: Store, portfolio: str, run: Run | None) -> list[str]:
+    if run is not None:
+        return list(run.assets)
+    return list(store.read_prices(portfolio).columns)
+
+
+def pending_days(store: Store, portfolio: str) -> tuple[DayStatus, ...]:
+    """The portfolio's pending days: archived after its latest run, not counting yet (oldest first).
+
+    Parameters
+    ----------
+    store : Store
+        The archive.
+    portfolio : str
+        The portfolio's name (NotFoundError if it is not archived).
+
+    Returns
+    -------
+    tuple of DayStatus
+        Each with the listed assets still missing (empty for a complete day waiting on an earlier one).
+    """
+    run = store.latest_run(portfolio)
+    after = None if run is None else run.last_date
+    statuses = day_statuses(
+        read_cells(store.engine, portfolio, after), _assets(store, portfolio, run), read_day_book(store, portfolio)
+    )
+    return split_counted(statuses)[1]
+
+
 def _same_prices(a: pd.DataFrame, b: pd.DataFrame) -> bool:
     return (
         list(a.columns) == list(b.columns)
@@ -95,65 +180,110 @@ def _same_prices(a: pd.DataFrame, b: pd.DataFrame) -> bool:
 class _Plan:
     """The request's prices set against the archive."""
 
-    table: pd.DataFrame  # the whole history with the request applied (corrections included)
-    fresh: pd.DataFrame  # the request's days after the last archived date
-    touched: pd.DataFrame  # the request's days, as they will be archived
+    table: pd.DataFrame  # the whole history with the request applied (corrections and fills included)
+    sent: pd.DataFrame  # the request's cells, as they will be archived (only the assets it names)
     corrections: int
     unchanged: int
 
 
-def _plan(portfolio: str, incoming: pd.DataFrame, held: pd.DataFrame, correction: bool, source: str) -> _Plan:
+def _names(assets: list[str]) -> str:
+    return ", ".join(assets[:8]) + (", ..." if len(assets) > 8 else "")
+
+
+def _day(stamp: object) -> date:
+    plain: date = pd.Timestamp(stamp).date()
+    return plain
+
+
+def _check_assets(portfolio: str, incoming: pd.DataFrame, held: pd.DataFrame, source: str) -> None:
     if len(held.columns):
         unknown = [a for a in incoming.columns if a not in held.columns]
         if unknown:
+            j = list(incoming.columns).index(unknown[0])
+            sent_on = incoming.index[incoming.iloc[:, j].notna().to_numpy()]
+            day = _day(sent_on[0] if len(sent_on) else incoming.index[0])
             raise DataError(
-                f"{source}: asset {unknown[0]!r} is not one of portfolio {portfolio!r}'s assets "
-                f"({', '.join(held.columns)}); a portfolio's assets are fixed by its first prices -- send every "
-                "asset from the first day (null where it has no price yet), or create another portfolio"
+                f"{source}: asset {unknown[0]!r} (date {day}) is not one of portfolio {portfolio!r}'s "
+                f"{len(held.columns)} assets ({_names(list(held.columns))}); "
+                "a portfolio's assets are fixed by its first prices -- check the asset's code, or create another "
+                "portfolio for a new set of assets"
             )
-        incoming = incoming.reindex(columns=held.columns)
-    else:  # a new portfolio: its assets in name order, however the first prices came
-        incoming = incoming[sorted(incoming.columns)]
-    overlap = incoming.index.intersection(held.index)
-    sent = incoming.loc[overlap].to_numpy(dtype=float)
-    kept = held.loc[overlap, incoming.columns].to_numpy(dtype=float) if len(overlap) else sent.copy()
-    differs = ~np.isnan(sent) & ~(sent == kept)
-    if differs.any() and not correction:
-        i, j = np.argwhere(differs)[0]
-        archived = "missing" if np.isnan(kept[i, j]) else f"{kept[i, j]:g}"
-        raise ConflictError(
-            f"{source}: {int(differs.sum())} price(s) differ from the archive, first on {overlap[i].date()} for "
-            f"asset {incoming.columns[j]!r}: archived {archived}, sent {sent[i, j]:g}; send revised prices with "
-            "correction=true to archive them as corrections (the archived ones are kept)"
+    elif incoming.shape[1] < MIN_ASSETS:
+        raise DataError(
+            f"{source}: portfolio {portfolio!r} has no prices yet, and its first prices name {incoming.shape[1]} "
+            f"asset(s) ({', '.join(incoming.columns)}) from date {_day(incoming.index[0])}; a portfolio's assets are "
+            f"fixed by its first prices and at least {MIN_ASSETS} are needed -- send every asset of the portfolio"
         )
+
+
+def _plan(
+    portfolio: str,
+    incoming: pd.DataFrame,
+    held: pd.DataFrame,
+    correction: bool,
+    source: str,
+    counted_until: date | None,
+    book: DayBook,
+) -> _Plan:
+    _check_assets(portfolio, incoming, held, source)
+    if not len(held.columns):  # a new portfolio: its assets in name order, however the first prices came
+        incoming = incoming[sorted(incoming.columns)]
+    columns = list(held.columns) if len(held.columns) else list(incoming.columns)
+    for asset in incoming.columns:
+        last = book.delisted.get(asset)
+        if last is None:
+            continue
+        late = incoming.index[(incoming.index > pd.Timestamp(last)) & incoming[asset].notna().to_numpy()]
+        if len(late):
+            raise DataError(
+                f"{source}: asset {asset!r} has a price on {_day(late[0])}, after its last trading day {last} "
+                f"(it is delisted from portfolio {portfolio!r}); leave it out of days after {last}"
+            )
     if len(held.index):
-        last = held.index[-1]
-        inside = incoming.index[(incoming.index < last) & ~incoming.index.isin(held.index)]
+        last_held = held.index[-1]
+        inside = incoming.index[(incoming.index < last_held) & ~incoming.index.isin(held.index)]
         if len(inside):
             raise DataError(
-                f"{source}: date {inside[0].date()} falls inside the archived history (up to {last.date()}) but is "
-                "not archived; windows count trading days, so a date cannot be inserted -- only days after "
-                f"{last.date()} can be added (rerun the portfolio over the full history to change its calendar)"
+                f"{source}: date {_day(inside[0])} (asset {incoming.columns[0]!r}) was never a trading day of "
+                f"portfolio {portfolio!r}: it falls inside the archived history ({_day(held.index[0])} to "
+                f"{_day(last_held)}) but has no prices there, and windows count trading days -- check the date; "
+                f"only days after {_day(last_held)} can be added (rerun the portfolio over the full history to "
+                "change its calendar)"
             )
-    table = held.copy() if len(held.columns) else pd.DataFrame(columns=incoming.columns, dtype=float)
+    overlap = incoming.index.intersection(held.index)
+    sent = incoming.loc[overlap].to_numpy(dtype=float)
+    kept = held.loc[overlap, list(incoming.columns)].to_numpy(dtype=float) if len(overlap) else sent.copy()
+    counted = (
+        np.zeros(len(overlap), dtype=bool)
+        if counted_until is None
+        else np.asarray(overlap <= pd.Timestamp(counted_until), dtype=bool)
+    )
+    differs = ~np.isnan(sent) & ~(sent == kept)
+    fills = differs & np.isnan(kept) & ~counted[:, None]  # the rest of a pending day: not a revision
+    revised = differs & ~fills
+    if revised.any() and not correction:
+        i, j = np.argwhere(revised)[0]
+        archived = "missing" if np.isnan(kept[i, j]) else f"{kept[i, j]:g}"
+        raise ConflictError(
+            f"{source}: asset {incoming.columns[j]!r} on {_day(overlap[i])}: archived {archived}, sent "
+            f"{sent[i, j]:g} ({int(revised.sum())} price(s) differ from the archive); send revised prices with "
+            "correction=true to archive them as corrections (the archived ones are kept)"
+        )
+    table = held.copy() if len(held.columns) else pd.DataFrame(columns=columns, dtype=float)
     if differs.any():
-        fixed = np.where(differs, sent, kept)
-        table.loc[overlap, list(incoming.columns)] = fixed
-    fresh = incoming.loc[incoming.index.difference(held.index)]
+        table.loc[overlap, list(incoming.columns)] = np.where(differs, sent, kept)
+    fresh = incoming.loc[incoming.index.difference(held.index)].reindex(columns=columns)
     if len(fresh):
         table = pd.concat([table, fresh]) if len(table) else fresh.copy()
     table.index.name = "date"
     table.columns.name = "asset"
-    touched = table.loc[incoming.index]
-    unchanged = int((~np.isnan(sent) & (sent == kept)).sum())
     # every piece passed validation (the request at the edge, the archive's prices on their way in):
     # the tables made of them are marked so, and are not checked again downstream
     return _Plan(
         table=ValidPrices.of_validated_parts(table),
-        fresh=ValidPrices.of_validated_parts(fresh),
-        touched=ValidPrices.of_validated_parts(touched),
-        corrections=int(differs.sum()),
-        unchanged=unchanged,
+        sent=ValidPrices.of_validated_parts(incoming),
+        corrections=int(revised.sum()),
+        unchanged=int((~np.isnan(sent) & (sent == kept)).sum()),
     )
 
 
@@ -163,7 +293,8 @@ class Ingestor:
     Parameters
     ----------
     default_config : Config
-        Configuration of a portfolio before its first run.
+        Configuration of a portfolio before its first run; its ``daily`` section (the cut-off
+        rule) applies to every portfolio.
     cache_size : int
         Portfolios whose result is kept in memory (least recently used dropped first; see
         :class:`riskshape_service.settings.ServiceSettings`).
@@ -195,12 +326,29 @@ class Ingestor:
         self,
         store: Store,
         portfolio: str,
-        prices: pd.DataFrame,
+        prices: ValidPrices,
         *,
         correction: bool = False,
         source: str = "request body",
     ) -> IngestReport:
-        """Archive ``prices`` (validated wide prices) for ``portfolio`` and compute the new windows.
+        """Archive ``prices`` for ``portfolio`` and compute the windows of the days that count.
+
+        Parameters
+        ----------
+        store : Store
+            The archive.
+        portfolio : str
+            An existing portfolio.
+        prices : ValidPrices
+            Validated wide prices (one asset and one date are enough for an existing portfolio).
+        correction : bool
+            Archive prices that differ from archived ones (on days that count) as corrections.
+        source : str
+            Where the prices came from, for messages and the run's manifest.
+
+        Returns
+        -------
+        IngestReport
 
         Raises
         ------
@@ -209,85 +357,248 @@ class Ingestor:
         ConflictError
             If a price differs from the archived one and ``correction`` is false.
         DataError
-            If an asset is unknown or a date falls inside the archived history.
+            If an asset is unknown or delisted by then, or a date falls inside the archived history.
         """
         with self._lock(portfolio):
-            store.get_portfolio(portfolio)
-            config, run = portfolio_config(store, portfolio, self.default_config)
-            held = store.read_prices(portfolio, assets=None if run is None else run.assets)
-            plan = _plan(portfolio, prices, held, correction, source)
-            n_returns = len(plan.table) - 1
-            if n_returns < config.window:
-                written = store.append_prices(portfolio, plan.touched, source=source)
-                return IngestReport(
-                    portfolio,
-                    written.added,
-                    written.corrections,
-                    plan.unchanged,
-                    0,
-                    0,
-                    0,
-                    None,
-                    None,
-                    (),
-                    None,
-                    f"{len(plan.table)} date(s) archived; the first window needs {config.window + 1}",
-                )
-            expected = len(window_end_positions(n_returns, config.window, config.step))
-            archived = len(store.window_ends(portfolio, config.hash()))
-            if not len(plan.fresh) and not plan.corrections and archived >= expected:
-                return IngestReport(
-                    portfolio,
-                    0,
-                    0,
-                    plan.unchanged,
-                    0,
-                    0,
-                    0,
-                    None,
-                    None,
-                    (),
-                    None,
-                    "nothing new: every price was already archived with the same value",
-                )
-            result, computed = self._result(portfolio, plan, held, config)
-            report = archive_run(store, portfolio, result, config, source=source)
-            self._remember(portfolio, result)
-            added = report.features.added
-            new_ends = result.window_ends[len(result.window_ends) - added :] if added else result.window_ends[:0]
-            note = f"{added} window(s) added"
-            if report.features.differing:
-                note += (
-                    f"; {report.features.differing} archived window(s) would differ under the corrected prices "
-                    "and keep their archived values"
-                )
-            return IngestReport(
-                portfolio=portfolio,
-                prices_added=report.run.prices_added,
-                corrections=report.run.corrections_added,
-                unchanged=plan.unchanged,
-                windows_computed=computed,
-                windows_added=added,
-                windows_differing=report.features.differing,
-                first_window=new_ends[0].date() if added else None,
-                last_window=new_ends[-1].date() if added else None,
-                alerts=report.alerts.added,
-                run_id=report.run.id,
-                note=note,
-            )
+            return self._advance(store, portfolio, prices, correction=correction, source=source)
 
-    def _result(self, portfolio: str, plan: _Plan, held: pd.DataFrame, config: Config) -> tuple[MonitorResult, int]:
-        """The result over the whole history and how many windows were computed for it."""
+    def close_day(self, store: Store, portfolio: str, day: date, who: str) -> IngestReport:
+        """Close a pending day by hand: it counts with the assets still absent missing there.
+
+        Parameters
+        ----------
+        store : Store
+        portfolio : str
+        day : datetime.date
+            A pending day of the portfolio.
+        who : str
+            Who closes it (archived in the chained ``day_closed`` record).
+
+        Returns
+        -------
+        IngestReport
+            What closing it computed (``closed`` holds the day).
+
+        Raises
+        ------
+        NotFoundError
+            If the portfolio has no prices on ``day``.
+        ConflictError
+            If the day counts already (complete, closed, or seen by a run).
+        """
+        with self._lock(portfolio):
+            run = store.latest_run(portfolio)
+            after = None if run is None else run.last_date
+            book = read_day_book(store, portfolio)
+            statuses = day_statuses(read_cells(store.engine, portfolio, after), _assets(store, portfolio, run), book)
+            status = next((s for s in statuses if s.day == day), None)
+            if status is None:
+                if (
+                    after is not None
+                    and day <= after
+                    and day in set(store.read_prices(portfolio, start=day, end=day).index.date)
+                ):
+                    raise ConflictError(
+                        f"day {day} of portfolio {portfolio!r} counts already (its windows are computed); "
+                        "nothing to close -- send corrected prices with correction=true to change it"
+                    )
+                raise NotFoundError(
+                    f"portfolio {portfolio!r} has no prices on {day}; send that day's prices first, then close it"
+                )
+            if status.counts:
+                how = "closed " + status.closed if status.closed else "complete"
+                raise ConflictError(f"day {day} of portfolio {portfolio!r} is {how} already; nothing to close")
+            store.append_event(
+                DAY_CLOSED,
+                {"who": who, "how": CLOSED_BY_HAND, "missing": list(status.missing)},
+                portfolio=portfolio,
+                subject=day.isoformat(),
+                actor=who,
+            )
+            report = self._advance(store, portfolio, None, source=f"day {day} closed by {who}")
+            return _with_closed(report, (day,))
+
+    def delist(self, store: Store, portfolio: str, asset: str, last_day: date, who: str) -> IngestReport:
+        """Mark an asset as no longer trading after ``last_day``: later days do not wait for it.
+
+        Parameters
+        ----------
+        store : Store
+        portfolio : str
+        asset : str
+            One of the portfolio's assets.
+        last_day : datetime.date
+            Its last trading day (its prices up to it stay; it is missing after it).
+        who : str
+            Who delists it (archived in the chained ``asset_delisted`` record).
+
+        Returns
+        -------
+        IngestReport
+            What the days it no longer holds back computed.
+
+        Raises
+        ------
+        DataError
+            If the asset is not the portfolio's, or has a price after ``last_day``.
+        ConflictError
+            If it is delisted already.
+        """
+        with self._lock(portfolio):
+            run = store.latest_run(portfolio)
+            assets = _assets(store, portfolio, run)
+            if asset not in assets:
+                raise DataError(
+                    f"asset {asset!r} (last trading day {last_day}) is not one of portfolio {portfolio!r}'s assets "
+                    f"({_names(assets)}); check the asset's code"
+                )
+            book = read_day_book(store, portfolio)
+            if asset in book.delisted:
+                raise ConflictError(
+                    f"asset {asset!r} of portfolio {portfolio!r} is delisted already (last trading day "
+                    f"{book.delisted[asset]}); nothing to do"
+                )
+            later = store.read_prices(portfolio, start=last_day + pd.Timedelta(days=1), assets=[asset])
+            priced = later.index[later[asset].notna().to_numpy()]
+            if len(priced):
+                raise DataError(
+                    f"asset {asset!r} of portfolio {portfolio!r} has a price on {_day(priced[0])}, after the last "
+                    f"trading day given ({last_day}); give its real last trading day (on or after {_day(priced[-1])})"
+                )
+            store.append_event(
+                ASSET_DELISTED,
+                {"last_trading_day": last_day.isoformat(), "who": who},
+                portfolio=portfolio,
+                subject=asset,
+                actor=who,
+            )
+            return self._advance(store, portfolio, None, source=f"asset {asset} delisted by {who}")
+
+    def _advance(
+        self,
+        store: Store,
+        portfolio: str,
+        prices: pd.DataFrame | None,
+        *,
+        correction: bool = False,
+        source: str = "request body",
+    ) -> IngestReport:
+        """Archive the prices (if any), close what the cut-off rule closes, compute the days that count."""
+        store.get_portfolio(portfolio)
+        config, run = portfolio_config(store, portfolio, self.default_config)
+        counted_until = None if run is None else run.last_date
+        held = store.read_prices(portfolio, assets=None if run is None else run.assets)
+        book = read_day_book(store, portfolio)
+        added = corrections = unchanged = 0
+        table = ValidPrices.of_validated_parts(held)
+        if prices is not None:
+            plan = _plan(portfolio, prices, held, correction, source, counted_until, book)
+            written = store.append_prices(portfolio, plan.sent, source=source)
+            added = written.added + written.corrections - plan.corrections
+            corrections, unchanged, table = plan.corrections, plan.unchanged, plan.table
+        assets = list(table.columns)
+        statuses = day_statuses(read_cells(store.engine, portfolio, counted_until), assets, book)
+        closing = closes_by_cut_off(statuses, self.default_config.daily.close_share)
+        closed_now: list[date] = []
+        if closing:
+            how = cut_off_how(float(self.default_config.daily.close_share or 0.0))
+            for status in closing:
+                store.append_event(
+                    DAY_CLOSED,
+                    {"who": "riskshape", "how": how, "missing": list(status.missing)},
+                    portfolio=portfolio,
+                    subject=status.day.isoformat(),
+                    actor="riskshape",
+                )
+                closed_now.append(status.day)
+            book = DayBook(closed={**book.closed, **{d: how for d in closed_now}}, delisted=book.delisted)
+            statuses = day_statuses(read_cells(store.engine, portfolio, counted_until), assets, book)
+        counted, pending = split_counted(statuses)
+        through = counted[-1].day if counted else counted_until
+        base = dict(
+            portfolio=portfolio,
+            prices_added=added,
+            corrections=corrections,
+            unchanged=unchanged,
+            pending=pending,
+            closed=tuple(closed_now),
+        )
+        usable = table.loc[: pd.Timestamp(through)] if through is not None else table.iloc[:0]
+        n_returns = len(usable) - 1
+        waiting = f"; {len(pending)} day(s) pending, from {pending[0].day}" if pending else ""
+        if n_returns < config.window:
+            note = f"{len(table)} date(s) archived; the first window needs {config.window + 1} that count{waiting}"
+            return IngestReport(**base, **_no_windows(note))  # type: ignore[arg-type]
+        expected = len(window_end_positions(n_returns, config.window, config.step))
+        archived = len(store.window_ends(portfolio, config.hash()))
+        if (
+            not corrections
+            and archived >= expected
+            and (counted_until is not None and through is not None and through <= counted_until)
+        ):
+            note = "nothing new: every price was already archived with the same value" if not pending else ""
+            note = note or f"prices archived; no day counts yet{waiting}"
+            return IngestReport(**base, **_no_windows(note))  # type: ignore[arg-type]
+        held_counted = held.loc[: pd.Timestamp(counted_until)] if counted_until is not None else held.iloc[:0]
+        result, computed = self._result(
+            portfolio, ValidPrices.of_validated_parts(usable), held_counted, corrections, config
+        )
+        report = archive_run(store, portfolio, result, config, source=source)
+        self._remember(portfolio, result)
+        n_added = report.features.added
+        new_ends = result.window_ends[len(result.window_ends) - n_added :] if n_added else result.window_ends[:0]
+        note = f"{n_added} window(s) added"
+        if report.features.differing:
+            note += (
+                f"; {report.features.differing} archived window(s) would differ under the corrected prices "
+                "and keep their archived values"
+            )
+        return IngestReport(
+            **base,  # type: ignore[arg-type]
+            windows_computed=computed,
+            windows_added=n_added,
+            windows_differing=report.features.differing,
+            first_window=new_ends[0].date() if n_added else None,
+            last_window=new_ends[-1].date() if n_added else None,
+            alerts=report.alerts.added,
+            run_id=report.run.id,
+            note=note + waiting,
+        )
+
+    def _result(
+        self, portfolio: str, table: ValidPrices, held: pd.DataFrame, corrections: int, config: Config
+    ) -> tuple[MonitorResult, int]:
+        """The result over the counted history and how many windows were computed for it."""
         cached = self._cached(portfolio)
         if (
             cached is not None
-            and not plan.corrections
+            and not corrections
             and cached.config.hash() == config.hash()
             and _same_prices(cached.prices, held)
         ):
-            if not len(plan.fresh):
+            fresh = table.loc[table.index > cached.prices.index[-1]]
+            if not len(fresh):
                 return cached, 0
-            result = cached.update(plan.fresh)
+            result = cached.update(ValidPrices.of_validated_parts(fresh))
             return result, len(result.window_ends) - len(cached.window_ends)
-        result = monitor(plan.table, config)
+        result = monitor(table, config)
         return result, len(result.window_ends)
+
+
+def _no_windows(note: str) -> dict[str, object]:
+    return dict(
+        windows_computed=0,
+        windows_added=0,
+        windows_differing=0,
+        first_window=None,
+        last_window=None,
+        alerts=(),
+        run_id=None,
+        note=note,
+    )
+
+
+def _with_closed(report: IngestReport, days: tuple[date, ...]) -> IngestReport:
+    from dataclasses import replace
+
+    return replace(report, closed=tuple(sorted(set(report.closed) | set(days))))

@@ -1,0 +1,179 @@
+"""Many portfolios at once: one day file (or request) carrying prices for several portfolios.
+
+:func:`read_feed` splits a table with a ``portfolio`` column (long ``date, asset, price`` or wide
+``date, A, B, ...``) into one validated price table per portfolio; a portfolio whose rows fail
+validation is kept aside with its message. :func:`ingest_many` feeds each portfolio through
+:class:`riskshape.daily.Ingestor`, several at a time, each with its own answer: one portfolio's
+bad data never blocks the others, and each answer says what was archived.
+
+Portfolios are fed on threads (``[compute] workers``, one per core when 0; one at a time with
+``executor = "serial"``): each portfolio's windows are computed by the ingest on its own, and
+the archive serialises the writes.
+"""
+
+from __future__ import annotations
+
+import os
+from collections.abc import Mapping
+from concurrent.futures import ThreadPoolExecutor
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import pandas as pd
+
+from riskshape.daily.ingest import Ingestor, IngestReport
+from riskshape.errors import DataError, RiskshapeError
+from riskshape.prices import ValidPrices, csv_table, validate_prices
+from riskshape.store import Store
+
+__all__ = ["Feed", "PortfolioOutcome", "split_feed", "read_feed", "ingest_many"]
+
+PORTFOLIO_COLUMN = "portfolio"
+
+
+@dataclass(frozen=True)
+class Feed:
+    """One day file split by portfolio: validated prices, and the portfolios refused at validation."""
+
+    prices: Mapping[str, ValidPrices] = field(default_factory=dict)
+    refused: Mapping[str, str] = field(default_factory=dict)
+
+    @property
+    def portfolios(self) -> tuple[str, ...]:
+        """Every portfolio named, in the order first seen."""
+        return tuple(dict.fromkeys([*self.prices, *self.refused]))
+
+
+@dataclass(frozen=True)
+class PortfolioOutcome:
+    """One portfolio's answer: its report, or why nothing of it was archived."""
+
+    portfolio: str
+    report: IngestReport | None
+    error: str | None
+
+
+def split_feed(table: pd.DataFrame, source: str, portfolio: str | None = None) -> Feed:
+    """Split a raw price table by its ``portfolio`` column and validate each part alone.
+
+    Parameters
+    ----------
+    table : pandas.DataFrame
+        Cells as read (``riskshape.prices.csv_table``): ``date``, then wide asset columns or
+        ``asset, price``; a ``portfolio`` column when it carries several portfolios.
+    source : str
+        Name used in messages (the file).
+    portfolio : str, optional
+        The one portfolio of a table without a ``portfolio`` column.
+
+    Returns
+    -------
+    Feed
+
+    Raises
+    ------
+    DataError
+        If there is neither a ``portfolio`` column nor ``portfolio``, or both disagree.
+    """
+    if PORTFOLIO_COLUMN not in table.columns:
+        if portfolio is None:
+            raise DataError(
+                f"{source}: no {PORTFOLIO_COLUMN!r} column; add one (one portfolio per row) or name the portfolio"
+            )
+        groups = {portfolio: table}
+    else:
+        names = table[PORTFOLIO_COLUMN].astype(str).str.strip()
+        if (names == "").any():
+            row = int((names == "").to_numpy().argmax()) + 2
+            raise DataError(f"{source}: line {row}, column {PORTFOLIO_COLUMN!r} is empty; name the row's portfolio")
+        if portfolio is not None and set(names) != {portfolio}:
+            raise DataError(
+                f"{source}: the {PORTFOLIO_COLUMN!r} column names {sorted(set(names))[:3]} but portfolio "
+                f"{portfolio!r} was given; leave the portfolio out to feed every one of them"
+            )
+        groups = {str(name): part.drop(columns=PORTFOLIO_COLUMN) for name, part in table.groupby(names, sort=False)}
+    prices: dict[str, ValidPrices] = {}
+    refused: dict[str, str] = {}
+    for name, part in groups.items():
+        wide = part.dropna(axis=1, how="all") if "asset" not in part.columns else part
+        if "asset" not in part.columns:  # wide: a portfolio's rows leave other portfolios' columns empty
+            wide = wide.loc[:, [c for c in wide.columns if c == "date" or (wide[c].astype(str) != "").any()]]
+        try:
+            prices[name] = validate_prices(
+                wide.reset_index(drop=True), source=f"{source} (portfolio {name})", min_rows=1, min_assets=1
+            )
+        except DataError as err:
+            refused[name] = str(err)
+    return Feed(prices=prices, refused=refused)
+
+
+def read_feed(path: str | os.PathLike[str], portfolio: str | None = None) -> Feed:
+    """Read a day file (CSV) and split it by portfolio (see :func:`split_feed`).
+
+    Parameters
+    ----------
+    path : path-like
+        The day file: ``date``, then wide asset columns or ``asset, price``; optionally ``portfolio``.
+    portfolio : str, optional
+        The one portfolio of a file without a ``portfolio`` column.
+
+    Returns
+    -------
+    Feed
+
+    Raises
+    ------
+    DataError
+        If the file cannot be read as CSV or names no portfolio.
+    """
+    file = Path(path)
+    try:
+        table = csv_table(file)
+    except FileNotFoundError:
+        raise DataError(f"{file}: no such file; give the day file's path") from None
+    except (OSError, ValueError, pd.errors.ParserError, pd.errors.EmptyDataError) as err:
+        raise DataError(f"{file}: not a CSV price table ({err})") from None
+    return split_feed(table, str(file), portfolio)
+
+
+def ingest_many(
+    store: Store, feed: Feed, ingestor: Ingestor, *, correction: bool = False, workers: int | None = None
+) -> tuple[PortfolioOutcome, ...]:
+    """Feed every portfolio of ``feed``, several at a time; each answers for itself.
+
+    Parameters
+    ----------
+    store : Store
+        The archive (every portfolio must exist).
+    feed : Feed
+        The split day file.
+    ingestor : Ingestor
+        The policy (its default configuration's ``[compute]`` section sets the parallelism).
+    correction : bool
+        As :meth:`Ingestor.ingest`.
+    workers : int, optional
+        Portfolios fed at once (default: from the configuration).
+
+    Returns
+    -------
+    tuple of PortfolioOutcome
+        In the feed's order; a refused portfolio has its message and archived nothing.
+    """
+    compute = ingestor.default_config.compute
+    if workers is None:
+        workers = 1 if compute.executor == "serial" else (compute.workers or os.cpu_count() or 1)
+
+    def one(name: str) -> PortfolioOutcome:
+        if name in feed.refused:
+            return PortfolioOutcome(name, None, feed.refused[name])
+        try:
+            report = ingestor.ingest(store, name, feed.prices[name], correction=correction, source="day file")
+        except RiskshapeError as err:
+            return PortfolioOutcome(name, None, str(err))
+        return PortfolioOutcome(name, report, None)
+
+    names = feed.portfolios
+    if workers <= 1 or len(names) <= 1:
+        return tuple(one(n) for n in names)
+    with ThreadPoolExecutor(max_workers=workers) as pool:
+        return tuple(pool.map(one, names))
