@@ -75,6 +75,16 @@ class Check:
 class ReproduceReport:
     """Outcome of reproducing one alert: ``ok`` when every check passed (``exact`` if the value and
     threshold came out bit-identical).
+
+    Examples
+    --------
+    >>> checks = (
+    ...     Check("window inputs hash", True, "9f2c", "9f2c"),
+    ...     Check("value", False, "0.8125", "0.9"),
+    ... )
+    >>> report = ReproduceReport(alert_id=7, ok=False, exact=False, checks=checks)
+    >>> [(c.name, c.archived, c.recomputed) for c in report.failed]
+    [('value', '0.8125', '0.9')]
     """
 
     alert_id: int

@@ -30,7 +30,19 @@ __all__ = [
 
 
 class RiskshapeError(Exception):
-    """Base class of every error riskshape raises on purpose."""
+    """Base class of every error riskshape raises on purpose.
+
+    Examples
+    --------
+    One ``except`` clause catches every refusal; the subclass says what kind it is:
+
+    >>> from riskshape import Config
+    >>> try:
+    ...     Config(window=1)
+    ... except RiskshapeError as err:
+    ...     print(type(err).__name__, isinstance(err, ValueError))
+    ConfigError True
+    """
 
 
 class DataError(RiskshapeError, ValueError):

@@ -32,6 +32,19 @@ class Firing:
         The threshold in force at that window, in the summary's own units.
     severity : str
         ``info``, ``warning`` or ``critical``.
+
+    Examples
+    --------
+    A level rule fires where the summary first rises above its threshold:
+
+    >>> import pandas as pd
+    >>> from riskshape.alerts.rules import evaluate_rule
+    >>> from riskshape.config import RuleConfig
+    >>> values = pd.Series([0.2, 0.9, 0.3], index=pd.bdate_range("2031-01-06", periods=3), name="h1_landscape_l1")
+    >>> rule = RuleConfig(name="loops-high", summary="h1_landscape_l1", kind="level", threshold=0.5, min_history=0)
+    >>> [firing] = evaluate_rule(values, rule)
+    >>> firing.rule, str(firing.window_end.date()), firing.value, firing.threshold, firing.severity
+    ('loops-high', '2031-01-07', 0.9, 0.5, 'warning')
     """
 
     rule: str
@@ -62,6 +75,21 @@ class Alert:
     explanation : str or None
         Canonical JSON of the alert's explanation (:mod:`riskshape.explain`), archived inside the
         alert's hash-chained record; None where none was made.
+
+    Examples
+    --------
+    >>> from datetime import datetime, timezone
+    >>> import pandas as pd
+    >>> import riskshape
+    >>> firing = Firing("loops-high", "h1_landscape_l1", "level", pd.Timestamp("2031-01-07"), 0.9, 0.5, "warning")
+    >>> raised = datetime(2031, 1, 7, 18, tzinfo=timezone.utc)
+    >>> alert = Alert("demo", firing, raised, riskshape.Config().hash(), "0" * 64, riskshape.__version__)
+    >>> len(alert.config_hash), alert.explanation
+    (64, None)
+    >>> alert.firing = firing  # archived alerts never change
+    Traceback (most recent call last):
+    ...
+    dataclasses.FrozenInstanceError: cannot assign to field 'firing'
     """
 
     portfolio: str

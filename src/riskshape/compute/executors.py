@@ -58,7 +58,13 @@ class SerialExecutor:
     """
 
     def map(self, fn: Callable[..., T], jobs: Sequence[tuple[Any, ...]]) -> Iterator[T]:
-        """``fn(*job)`` for each job, in order, in this process with BLAS on one thread."""
+        """``fn(*job)`` for each job, in order, in this process with BLAS on one thread.
+
+        Examples
+        --------
+        >>> list(SerialExecutor().map(divmod, [(7, 2), (9, 4)]))
+        [(3, 1), (2, 1)]
+        """
         with _one_blas_thread():
             for job in jobs:
                 yield fn(*job)
@@ -261,6 +267,16 @@ def make_executor(compute: ComputeConfig, n_jobs: int, preload: Callable[[], Non
     -------
     Executor
         A serial, process-pool or Dask executor.
+
+    Examples
+    --------
+    A process pool is not started for a single job:
+
+    >>> from riskshape.config import ComputeConfig
+    >>> type(make_executor(ComputeConfig(executor="process"), n_jobs=1)).__name__
+    'SerialExecutor'
+    >>> type(make_executor(ComputeConfig(executor="serial"), n_jobs=8)).__name__
+    'SerialExecutor'
     """
     if compute.executor == "dask":
         return DaskExecutor(compute.scheduler)

@@ -39,6 +39,11 @@ def is_rebuild_point(index: int) -> bool:
     ``[compute] batch_windows`` (:class:`riskshape.config.ComputeConfig`, 64 by default), which
     the monitor shrinks to keep every worker of a pool busy (``_balanced_batch_size`` in
     :mod:`riskshape.compute.monitor`).
+
+    Examples
+    --------
+    >>> [i for i in range(200) if is_rebuild_point(i)]
+    [0, 63, 127, 191]
     """
     return index == 0 or index % RECOMPUTE_EVERY == RECOMPUTE_EVERY - 1
 
@@ -50,6 +55,24 @@ class RollingMoments:
     ----------
     rows : numpy.ndarray
         (window, n_assets) returns of the first window, NaN where missing.
+
+    Examples
+    --------
+    Slid by five days, the sums give numpy's correlation of the new window:
+
+    >>> import numpy as np
+    >>> x = np.random.default_rng(0).normal(size=(30, 3))
+    >>> moments = RollingMoments(x[:20])
+    >>> moments.slide(x[:5], x[20:25])
+    >>> np.allclose(moments.correlation(np.arange(3)), np.corrcoef(x[5:25], rowvar=False), rtol=0, atol=1e-12)
+    True
+
+    A missing return makes its column incomplete until it leaves the window:
+
+    >>> x[26, 1] = np.nan
+    >>> moments.slide(x[5:7], x[25:27])
+    >>> moments.complete(np.array([0, 2])), moments.complete(np.array([0, 1]))
+    (True, False)
     """
 
     def __init__(self, rows: FloatArray) -> None:

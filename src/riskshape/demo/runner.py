@@ -48,7 +48,19 @@ class DemoReport:
 
 
 def stress_window_end(result: MonitorResult, scenario: Scenario) -> pd.Timestamp:
-    """The window end inside the stress episode where mean correlation peaks."""
+    """The window end inside the stress episode where mean correlation peaks.
+
+    Examples
+    --------
+    >>> from riskshape import Config, monitor
+    >>> scenario = generate_scenario(seed=1, assets_per_sector=4)
+    >>> run = monitor(scenario.prices, Config(window=60, step=20, compute={"executor": "serial"}))
+    >>> end = stress_window_end(run, scenario)
+    >>> start, stop = scenario.stress
+    >>> correlation = run.features["mean_correlation"]
+    >>> bool(start <= end <= stop), bool(correlation[end] > correlation.quantile(0.9))
+    (True, True)
+    """
     start, end = scenario.stress
     inside = result.features.loc[start:end, "mean_correlation"]
     return pd.Timestamp(inside.idxmax())

@@ -59,6 +59,21 @@ def explanation_text(stored: str | None) -> str:
     ------
     DataError
         If ``stored`` is not an explanation written by :func:`explanation_json`.
+
+    Examples
+    --------
+    >>> from datetime import date
+    >>> from riskshape.explain.loops import METHOD
+    >>> from riskshape.explain.model import Explanation, LoopExplanation
+    >>> no_loop = LoopExplanation(date(2031, 3, 3), (), METHOD)
+    >>> stored = Explanation("h1_entropy", date(2031, 3, 3), None, no_loop).to_json()
+    >>> print(explanation_text(stored))  # doctest: +ELLIPSIS
+    Explanation of h1_entropy at the window ending 2031-03-03
+    Loops (H1), most persistent first:
+      No loop in this window.
+      Method: representative cycle from ripser's persistent cocycle: ...
+    >>> explanation_text(None) == NO_EXPLANATION, explanation_object(stored)["summary"]
+    (True, 'h1_entropy')
     """
     return NO_EXPLANATION if not stored else render_text(Explanation.from_json(stored))
 

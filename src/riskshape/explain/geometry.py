@@ -52,7 +52,17 @@ class WindowGeometry:
 
 
 def as_date(value: object) -> date:
-    """A window end (date, Timestamp, ISO string) as a :class:`datetime.date`."""
+    """A window end (date, Timestamp, ISO string) as a :class:`datetime.date`.
+
+    Examples
+    --------
+    >>> as_date("2031-03-03")
+    datetime.date(2031, 3, 3)
+    >>> as_date("someday")
+    Traceback (most recent call last):
+    ...
+    riskshape.errors.DataError: window end: cannot read 'someday' as a date; give YYYY-MM-DD
+    """
     try:
         return cast(date, pd.Timestamp(value).date())
     except (ValueError, TypeError):
@@ -76,6 +86,25 @@ def window_geometry(result: MonitorResult, window_end: object) -> WindowGeometry
     ------
     DataError
         If no window ends on that date.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from riskshape import Config, monitor
+    >>> from riskshape.demo import generate_scenario
+    >>> scenario = generate_scenario(seed=1, n_days=90, assets_per_sector=3)
+    >>> run = monitor(scenario.prices, Config(window=20, compute={"executor": "serial"}))
+    >>> end = run.window_ends[-1]
+    >>> geometry = window_geometry(run, end)
+    >>> len(geometry.assets), geometry.distance.shape, geometry.points == geometry.assets
+    (17, (17, 17), True)
+
+    Pearson correlation of the window's block, and d = sqrt(2 (1 - rho)) (Mantegna 1999):
+
+    >>> np.allclose(geometry.correlation, np.corrcoef(run.window(end).block, rowvar=False))
+    True
+    >>> np.allclose(geometry.distance, np.sqrt(2 * (1 - geometry.correlation)))
+    True
     """
     window = result.window(window_end)
     used = window.assets

@@ -172,6 +172,27 @@ class Explanation:
         Present for H0 summaries and for summaries of no single dimension.
     loops : LoopExplanation or None
         Present for H1 summaries and for summaries of no single dimension (if H1 is computed).
+
+    Examples
+    --------
+    The JSON reads back to the same explanation:
+
+    >>> from datetime import date
+    >>> from riskshape.explain.loops import METHOD
+    >>> loop = Loop(0.61, 0.74, ("XQ01", "XQ02", "XQ03"), 2, date(2031, 2, 28), lookback_exhausted=False)
+    >>> loops = LoopExplanation(date(2031, 3, 3), (loop,), METHOD)
+    >>> e = Explanation("h1_landscape_l1", date(2031, 3, 3), clusters=None, loops=loops)
+    >>> e.to_json()[:60]
+    '{"clusters":null,"loops":{"loops":[{"birth":0.61,"death":0.7'
+    >>> Explanation.from_json(e.to_json()) == e, loop.persistence
+    (True, 0.13)
+
+    Text of another layout is refused with the field named:
+
+    >>> Explanation.from_json('{"version": 1, "summary": "h1_landscape_l1"}')
+    Traceback (most recent call last):
+    ...
+    riskshape.errors.DataError: explanation.clusters: missing
     """
 
     summary: str

@@ -17,7 +17,13 @@ def describe_cluster(members: Members) -> str:
 
 
 def describe_clusters(groups: tuple[Members, ...]) -> str:
-    """Clusters joined by ``+``, single assets counted together after the larger clusters."""
+    """Clusters joined by ``+``, single assets counted together after the larger clusters.
+
+    Examples
+    --------
+    >>> describe_clusters((("XQ01", "XQ02", "XQ03"), ("XQ04",), ("XQ05",)))
+    '{XQ01, XQ02, XQ03} + 2 single assets {XQ04, XQ05}'
+    """
     parts = [describe_cluster(g) for g in groups if len(g) > 1]
     singles = [g[0] for g in groups if len(g) == 1]
     if len(singles) == 1:
@@ -88,6 +94,21 @@ def render_text(explanation: Explanation) -> str:
     -------
     str
         Lines joined by newlines, the first naming the summary and the window.
+
+    Examples
+    --------
+    >>> from riskshape import Config, monitor
+    >>> from riskshape.demo import generate_scenario
+    >>> from riskshape.explain import explain_alert
+    >>> scenario = generate_scenario(seed=1, n_days=90, assets_per_sector=3)
+    >>> run = monitor(scenario.prices, Config(window=20, compute={"executor": "serial"}))
+    >>> print(render_text(explain_alert(run, run.window_ends[-1], "h0_total_persistence")))  # doctest: +ELLIPSIS
+    Explanation of h0_total_persistence at the window ending 2031-05-08
+    Clusters (H0), single linkage cut at distance ...
+      2031-04-10: 8 clusters (5 of 2+ assets); 2031-05-08: 7 clusters (6 of 2+ assets).
+      Merged: 2 single assets {QV01, QV02} -> {QV01, QV02, QV03}
+      Largest correlation changes (before -> after):
+    ...
     """
     lines = [f"Explanation of {explanation.summary} at the window ending {explanation.window_end}"]
     if explanation.clusters is not None:

@@ -38,7 +38,23 @@ class RunFiles:
 
 
 def diagrams_table(result: MonitorResult) -> pd.DataFrame:
-    """Every finite bar of every window in one long table: ``window_end, dim, birth, death``."""
+    """Every finite bar of every window in one long table: ``window_end, dim, birth, death``.
+
+    Examples
+    --------
+    A window of n assets has n - 1 finite H0 bars, the edges of its minimum spanning tree:
+
+    >>> from riskshape import Config, monitor
+    >>> from riskshape.demo import generate_scenario
+    >>> scenario = generate_scenario(seed=1, n_days=90, assets_per_sector=3)
+    >>> run = monitor(scenario.prices, Config(window=20, compute={"executor": "serial"}))
+    >>> table = diagrams_table(run)
+    >>> list(table.columns), sorted(table["dim"].unique().tolist())
+    (['window_end', 'dim', 'birth', 'death'], [0, 1])
+    >>> h0_bars = table[table["dim"] == 0].groupby("window_end").size()
+    >>> bool((h0_bars == run.features["n_assets"] - 1).all()), len(h0_bars)
+    (True, 71)
+    """
     parts = []
     for end, window in zip(result.window_ends, result.windows):
         for dim, dgm in enumerate(window.diagrams):
@@ -110,6 +126,24 @@ def write_run(result: MonitorResult, out_dir: str | os.PathLike[str], source: st
     ------
     DataError
         If ``out_dir`` exists and is not a folder, or cannot be written.
+
+    Examples
+    --------
+    >>> import json
+    >>> import tempfile
+    >>> from pathlib import Path
+    >>> from riskshape import Config, monitor
+    >>> from riskshape.demo import generate_scenario
+    >>> scenario = generate_scenario(seed=1, n_days=90, assets_per_sector=3)
+    >>> run = monitor(scenario.prices, Config(window=20, compute={"executor": "serial"}))
+    >>> with tempfile.TemporaryDirectory() as folder:
+    ...     files = write_run(run, Path(folder) / "run", source="generate_scenario(seed=1, n_days=90)")
+    ...     names = sorted(p.name for p in files.folder.iterdir())
+    ...     manifest = json.loads(files.manifest.read_text())
+    >>> names
+    ['diagrams.parquet', 'features.csv', 'features.parquet', 'left_out.csv', 'manifest.json']
+    >>> manifest["n_windows"] == len(run.window_ends), manifest["config_hash"] == run.config.hash()
+    (True, True)
     """
     target = Path(out_dir)
     if target.exists() and not target.is_dir():

@@ -64,6 +64,22 @@ def event_labels(
     -------
     pandas.Series
         1.0, 0.0 or NaN (unknown or left out), indexed like ``index``, named ``label``.
+
+    Examples
+    --------
+    One event, from its peak on day 2 to its trough on day 4. By hand, with ``H = 2``: days 0
+    and 1 precede its start by at most 2 days (1.0); days 2 to 4 lie inside it (left out);
+    day 5 is calm and known (0.0); days 6 and 7 look past the end of the data (unknown):
+
+    >>> import pandas as pd
+    >>> from riskshape.research.events import drawdown_events
+    >>> days = pd.bdate_range("2031-01-06", periods=8)
+    >>> wealth = pd.Series([1.0, 1.02, 1.03, 0.95, 0.88, 0.92, 1.05, 1.06], index=days)
+    >>> events = drawdown_events(wealth, min_depth=0.1)
+    >>> event_labels(days, events, horizon=2).tolist()
+    [1.0, 1.0, nan, nan, nan, 0.0, nan, nan]
+    >>> event_labels(days, events, horizon=2, exclude_in_event=False).tolist()
+    [1.0, 1.0, 0.0, 0.0, 0.0, 0.0, nan, nan]
     """
     if horizon < 1:
         raise ConfigError(f"horizon must be at least 1 trading day, got {horizon}")

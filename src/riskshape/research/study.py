@@ -194,6 +194,12 @@ def default_rule(summary: str, direction: Direction = "above") -> RuleConfig:
 
     Lookback 250 windows, at least 60 windows of history (common practice for a one-year
     trailing band); ``clear`` at the 80 % (20 %) quantile so one episode gives one alert.
+
+    Examples
+    --------
+    >>> rule = default_rule("h1_landscape_l1", "below")
+    >>> rule.name, rule.kind, rule.threshold, rule.clear
+    ('h1_landscape_l1.q05', 'quantile', 0.05, 0.2)
     """
     above = direction == "above"
     return RuleConfig(
@@ -259,6 +265,25 @@ def event_study(
     Returns
     -------
     EventStudy
+
+    Examples
+    --------
+    The event of :func:`event_labels`' example (start day 2, trough day 4), a signal and two
+    alerts. By hand: the labelled days are 0 and 1 (positive) and 5 (negative), and the signal
+    ranks both positives above the negative (AUC 1); the alert on day 1 precedes the start by
+    one day (true, a hit with a lead of 1), the one on day 5 is false:
+
+    >>> import pandas as pd
+    >>> from riskshape.research.events import drawdown_events
+    >>> days = pd.bdate_range("2031-01-06", periods=8)
+    >>> wealth = pd.Series([1.0, 1.02, 1.03, 0.95, 0.88, 0.92, 1.05, 1.06], index=days)
+    >>> events = drawdown_events(wealth, min_depth=0.1)
+    >>> signal = pd.Series([0.5, 0.9, 1.2, 1.1, 0.7, 0.4, 0.3, 0.3], index=days, name="mean_correlation")
+    >>> study = event_study(signal, events, horizon=2, lookback=3, alerts=days[[1, 5]])
+    >>> study.auc, study.alerts["outcome"].tolist()
+    (1.0, ['true', 'false'])
+    >>> study.hit_rate, study.precision, study.recall, study.mean_lead_days
+    (1.0, 0.5, 1.0, 1.0)
     """
     if lookback < 1:
         raise ConfigError(f"lookback must be at least 1 trading day, got {lookback}")

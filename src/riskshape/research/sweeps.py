@@ -113,6 +113,39 @@ def sweep(
     Returns
     -------
     SweepResult
+
+    Examples
+    --------
+    Two window lengths on the small demo market, against one invented episode starting on day
+    60. By hand, with ends every 5 days from day ``w``, ``H = 10`` and ``post_event_days = w``:
+    the ends 50 and 55 precede the start (positive); the calm ends known by the last day are
+    20 to 45 for ``w = 20`` and 30 to 45 for ``w = 30``:
+
+    >>> import pandas as pd
+    >>> from riskshape import Config
+    >>> from riskshape.demo import generate_scenario
+    >>> from riskshape.research.events import equal_weight_wealth, events_from_periods
+    >>> scenario = generate_scenario(seed=1, n_days=90, assets_per_sector=3)
+    >>> wealth = equal_weight_wealth(scenario.prices)
+    >>> episode = pd.DataFrame({"start": [wealth.index[60]], "end": [wealth.index[70]]})
+    >>> events = events_from_periods(episode, wealth)
+    >>> result = sweep(
+    ...     scenario.prices,
+    ...     events,
+    ...     windows=[20, 30],
+    ...     steps=[5],
+    ...     config=Config(compute={"executor": "serial"}),
+    ...     columns=["mean_correlation", "h0_total_persistence"],
+    ...     horizon=10,
+    ...     lookback=20,
+    ... )
+    >>> result.table[["n_positive", "n_negative"]]
+                                      n_positive  n_negative
+    window step signal
+    20     5    h0_total_persistence         2.0         6.0
+                mean_correlation             2.0         6.0
+    30     5    h0_total_persistence         2.0         4.0
+                mean_correlation             2.0         4.0
     """
     base = config or Config()
     if not windows or not steps:

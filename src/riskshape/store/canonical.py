@@ -62,7 +62,23 @@ _FIELDS = {"alerts": ALERT_FIELDS, "reviews": REVIEW_FIELDS, "events": EVENT_FIE
 
 
 def canonical_value(value: object) -> object:
-    """One field in its canonical JSON form (see the module notes)."""
+    """One field in its canonical JSON form (see the module notes).
+
+    Examples
+    --------
+    >>> from datetime import date, datetime, timedelta, timezone
+    >>> canonical_value(0.1), canonical_value(float("nan")), canonical_value(date(2031, 3, 3))
+    ('0.1', 'nan', '2031-03-03')
+
+    The same instant gives the same text from any timezone; a naive timestamp is refused:
+
+    >>> canonical_value(datetime(2031, 3, 4, 3, 30, tzinfo=timezone(timedelta(hours=9))))
+    '2031-03-03T18:30:00.000000Z'
+    >>> canonical_value(datetime(2031, 3, 3))
+    Traceback (most recent call last):
+    ...
+    ValueError: timestamp datetime.datetime(2031, 3, 3, 0, 0) has no timezone
+    """
     if value is None or isinstance(value, (bool, str)):
         return value
     if isinstance(value, int):
@@ -89,5 +105,28 @@ def canonical_bytes(table: str, record: Mapping[str, object]) -> bytes:
 
 
 def entry_hash(table: str, record: Mapping[str, object]) -> str:
-    """SHA-256 (hex) of :func:`canonical_bytes`."""
+    """SHA-256 (hex) of :func:`canonical_bytes`.
+
+    Examples
+    --------
+    Sorted keys, no spaces, the table's name included; any changed byte changes the hash:
+
+    >>> from datetime import datetime, timezone
+    >>> review = {
+    ...     "id": 1,
+    ...     "seq": 2,
+    ...     "prev_hash": "0" * 64,
+    ...     "alert_id": 1,
+    ...     "action": "acknowledge",
+    ...     "reviewer": "analyst-1",
+    ...     "comment": "",
+    ...     "created_at": datetime(2031, 3, 3, 18, 30, tzinfo=timezone.utc),
+    ... }
+    >>> canonical_bytes("reviews", review)  # doctest: +ELLIPSIS
+    b'{"action":"acknowledge","alert_id":1,"comment":"","created_at":"2031-03-03T18:30:00.000000Z",...,"table":"reviews"}'
+    >>> hashlib.sha256(canonical_bytes("reviews", review)).hexdigest() == entry_hash("reviews", review)
+    True
+    >>> entry_hash("reviews", review) == entry_hash("reviews", {**review, "comment": " "})
+    False
+    """
     return hashlib.sha256(canonical_bytes(table, record)).hexdigest()

@@ -32,12 +32,24 @@ _TABLE_OF_KIND = {"alert": "alerts", "review": "reviews", "event": "events"}
 
 
 def parse_head(text: str) -> tuple[int | None, str]:
-    """Read ``HASH`` or ``COUNT:HASH`` (as printed by ``riskshape audit head``).
+    r"""Read ``HASH`` or ``COUNT:HASH`` (as printed by ``riskshape audit head``).
 
     Raises
     ------
     AuditError
         If the text has neither form.
+
+    Examples
+    --------
+    >>> from riskshape.store.records import Head
+    >>> parse_head(str(Head(3, "ab" * 32))) == (3, "ab" * 32)
+    True
+    >>> parse_head(" " + "AB" * 32 + "\n") == (None, "ab" * 32)
+    True
+    >>> parse_head("3:abc")  # doctest: +ELLIPSIS
+    Traceback (most recent call last):
+    ...
+    riskshape.errors.AuditError: expected head '3:abc' is neither HASH nor COUNT:HASH (64 hex digits, ...)
     """
     match = _HEAD.match(text.strip().lower())
     if match is None:

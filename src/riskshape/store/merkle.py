@@ -25,7 +25,7 @@ def _mth(leaves: Sequence[bytes]) -> bytes:
 
 
 def merkle_root(leaves: Sequence[bytes]) -> str:
-    """The Merkle Tree Hash (hex) of ``leaves``.
+    r"""The Merkle Tree Hash (hex) of ``leaves``.
 
     Parameters
     ----------
@@ -36,5 +36,18 @@ def merkle_root(leaves: Sequence[bytes]) -> str:
     -------
     str
         64 hex digits.
+
+    Examples
+    --------
+    The empty tree is SHA-256 of nothing; three leaves split 2 + 1 (RFC 9162, section 2.1.1):
+
+    >>> merkle_root([]) == hashlib.sha256(b"").hexdigest()
+    True
+    >>> def sha(data):
+    ...     return hashlib.sha256(data).digest()
+    >>> a, b, c = b"first", b"second", b"third"
+    >>> left = sha(b"\x01" + sha(b"\x00" + a) + sha(b"\x00" + b))
+    >>> merkle_root([a, b, c]) == sha(b"\x01" + left + sha(b"\x00" + c)).hex()
+    True
     """
     return _mth(leaves).hex()

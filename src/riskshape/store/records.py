@@ -236,6 +236,26 @@ class EventRecord:
     """A chained record that is neither an alert nor a review (see :mod:`riskshape.store.events`).
 
     ``payload`` is the canonical JSON text that the hash covers; :attr:`data` reads it.
+
+    Examples
+    --------
+    >>> from datetime import datetime, timezone
+    >>> from riskshape.store.canonical import entry_hash
+    >>> fields = dict(
+    ...     id=1,
+    ...     seq=5,
+    ...     prev_hash="0" * 64,
+    ...     kind="day_closed",
+    ...     portfolio_id=1,
+    ...     portfolio="demo",
+    ...     subject="2031-03-03",
+    ...     payload='{"day":"2031-03-03","rule":"cut-off"}',
+    ...     actor="ops-1",
+    ...     recorded_at=datetime(2031, 3, 3, 22, tzinfo=timezone.utc),
+    ... )
+    >>> record = EventRecord(entry_hash=entry_hash("events", fields), **fields)
+    >>> record.data
+    {'day': '2031-03-03', 'rule': 'cut-off'}
     """
 
     id: int
@@ -308,6 +328,11 @@ class Head:
     """A commitment to the ledger: record count and the hash of the last record (a tree head).
 
     ``str(head)`` is ``COUNT:HASH``, the form ``audit verify --expect-head`` reads back.
+
+    Examples
+    --------
+    >>> str(Head(3, "ab" * 32))  # doctest: +ELLIPSIS
+    '3:abab...abab'
     """
 
     count: int
