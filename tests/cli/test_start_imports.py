@@ -40,3 +40,21 @@ def test_quick_commands_load_no_heavy_library(code: str) -> None:
 
 def test_the_probe_sees_a_heavy_import() -> None:
     assert _heavy_modules_after("import riskshape.compute.distance") == ["scipy"]
+
+
+def test_opening_an_archive_at_the_current_revision_loads_no_migration_tool(tmp_path) -> None:
+    url = f"sqlite:///{tmp_path / 'a.sqlite'}"
+    created = subprocess.run(
+        [sys.executable, "-c", f"from riskshape.store import open_store; open_store({url!r}).close()"],
+        capture_output=True,
+        text=True,
+        check=True,
+        timeout=120,
+    )
+    assert created.returncode == 0
+    probe = (
+        "import sys\nfrom riskshape.store import open_store\n"
+        f"open_store({url!r}, create=False).close()\nprint('alembic' in sys.modules)"
+    )
+    again = subprocess.run([sys.executable, "-c", probe], capture_output=True, text=True, check=True, timeout=120)
+    assert again.stdout.strip() == "False"

@@ -29,6 +29,18 @@ def test_schema_from_migrations_matches_the_models(store: Store) -> None:
     assert store.revision == "0002"
 
 
+def test_the_shipped_head_is_alembics_head() -> None:
+    # the start-up path reads the head from the file names (no Alembic import); Alembic's own view must agree
+    from alembic.script import ScriptDirectory
+
+    from riskshape.store.database import MIGRATIONS, _alembic_config, head_revision
+
+    script = ScriptDirectory.from_config(_alembic_config())
+    assert head_revision() == script.get_current_head()
+    for revision in script.walk_revisions():
+        assert list((MIGRATIONS / "versions").glob(f"{revision.revision}_*.py")), revision.revision
+
+
 def test_reopening_runs_no_migration_and_keeps_data(store_url: str) -> None:
     with open_store(store_url) as first:
         first.create_portfolio("Fund East")

@@ -16,18 +16,17 @@ from __future__ import annotations
 from collections.abc import Iterator
 from contextlib import contextmanager
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import sqlalchemy as sa
-from alembic import command
-from alembic.config import Config as AlembicConfig
-from alembic.runtime.migration import MigrationContext
-from alembic.script import ScriptDirectory
-from alembic.util import CommandError
 from sqlalchemy.engine import Connection, Engine, make_url
 from sqlalchemy.exc import ArgumentError, NoSuchModuleError
 
 from riskshape.errors import StoreError
+
+if TYPE_CHECKING:  # Alembic loads only when a schema is created or migrated (it costs a command's start-up)
+    from alembic.config import Config as AlembicConfig
+    from alembic.script import ScriptDirectory
 
 __all__ = [
     "create_archive_engine",
@@ -35,6 +34,7 @@ __all__ = [
     "read_transaction",
     "upgrade",
     "schema_revision",
+    "head_revision",
     "archive_exists",
 ]
 
@@ -179,17 +179,37 @@ def archive_exists(engine: Engine) -> bool:
 
 
 def _alembic_config() -> AlembicConfig:
+    from alembic.config import Config as AlembicConfig
+
     config = AlembicConfig()
     config.set_main_option("script_location", str(MIGRATIONS).replace("%", "%%"))
     return config
 
 
 def schema_revision(connection: Connection) -> str | None:
-    """The Alembic revision the archive's schema is at (None for an empty database)."""
-    return MigrationContext.configure(connection).get_current_revision()
+    """The Alembic revision the archive's schema is at (None for an empty database).
+
+    Read from Alembic's own ``alembic_version`` table (one row: riskshape's migrations have one head).
+    """
+    if not sa.inspect(connection).has_table("alembic_version"):
+        return None
+    found = connection.execute(sa.text("SELECT version_num FROM alembic_version")).scalars().first()
+    return None if found is None else str(found)
+
+
+def head_revision() -> str | None:
+    """The newest schema revision this package ships, without loading Alembic.
+
+    Revisions are numbered and each file's name starts with its number (``0002_chained_events.py``
+    holds revision ``0002``); the conformance tests check this against Alembic's own head.
+    """
+    numbers = sorted(path.name.split("_", 1)[0] for path in (MIGRATIONS / "versions").glob("[0-9][0-9][0-9][0-9]_*.py"))
+    return numbers[-1] if numbers else None
 
 
 def _known(script: ScriptDirectory, revision: str) -> bool:
+    from alembic.util import CommandError
+
     try:
         return script.get_revision(revision) is not None
     except CommandError:
@@ -207,6 +227,13 @@ def upgrade(engine: Engine) -> str:
     StoreError
         If the archive was written by a newer riskshape (its revision is unknown here).
     """
+    with read_transaction(engine) as connection:
+        current = schema_revision(connection)
+    if current is not None and current == head_revision():
+        return current  # the usual case: nothing to migrate, and Alembic never loaded
+    from alembic import command
+    from alembic.script import ScriptDirectory
+
     config = _alembic_config()
     script = ScriptDirectory.from_config(config)
     head = script.get_current_head()
@@ -214,8 +241,6 @@ def upgrade(engine: Engine) -> str:
         raise StoreError(
             f"riskshape's schema migrations have no head revision (looked in {script.dir}); reinstall riskshape"
         )
-    with read_transaction(engine) as connection:
-        current = schema_revision(connection)
     if current == head:
         return current
     if current is not None and not _known(script, current):
