@@ -12,9 +12,9 @@ Policy (what the service's price endpoint and the command line apply):
 * **Revisions**: a price that differs from the archived one for a date already archived (or a
   price for a cell archived as missing) is refused with 409, unless the request says
   ``correction=true``. A correction archives a new revision (the old one stays, and is listed
-  as a correction), and the windows are recomputed from the corrected history. Windows and
-  alerts already archived are never rewritten: the answer counts the archived windows whose
-  values would now differ. A missing price never replaces an archived one.
+  as a correction) and supersedes the windows it is in (:mod:`riskshape.daily.corrections`: only
+  those windows are recomputed and archived as a new version; earlier versions stay and are read
+  with ``as_known_at``). A missing price never replaces an archived one.
 * A date **inside** the archived history that is not archived yet is refused (422): windows
   count trading days, so it would shift every later window; rerun the portfolio instead.
 * **Assets** are fixed by the portfolio's first prices, in name order (the order the archive reads
@@ -36,6 +36,7 @@ import pandas as pd
 
 from riskshape import Config, ConflictError, DataError, MonitorResult, archive_run, monitor
 from riskshape.compute import window_end_positions
+from riskshape.daily.corrections import CorrectionReport, apply_corrections, revised_cells
 from riskshape.prices import ValidPrices
 from riskshape.store import AlertRecord, Run, Store
 
@@ -58,6 +59,24 @@ class IngestReport:
     alerts: tuple[AlertRecord, ...]
     run_id: int | None
     note: str
+
+
+def _corrected(portfolio: str, fixed: CorrectionReport, unchanged: int) -> IngestReport:
+    """The ingest's answer to a body of corrections only."""
+    return IngestReport(
+        portfolio=portfolio,
+        prices_added=0,
+        corrections=fixed.corrections,
+        unchanged=unchanged,
+        windows_computed=fixed.windows_recomputed,
+        windows_added=0,
+        windows_differing=fixed.windows_superseded,
+        first_window=fixed.first_window,
+        last_window=fixed.last_window,
+        alerts=fixed.alerts_raised,
+        run_id=fixed.run_id,
+        note=fixed.note,
+    )
 
 
 def portfolio_config(store: Store, portfolio: str, default: Config) -> tuple[Config, Run | None]:
@@ -250,6 +269,13 @@ class Ingestor:
                     None,
                     "nothing new: every price was already archived with the same value",
                 )
+            fixed = None
+            if plan.corrections and run is not None:  # supersede the windows they touch (daily/corrections.py)
+                fixed = apply_corrections(
+                    store, portfolio, revised_cells(plan.touched, held), config, run, source=source
+                )
+                if not len(plan.fresh):
+                    return _corrected(portfolio, fixed, plan.unchanged)
             result, computed = self._result(portfolio, plan, held, config)
             report = archive_run(store, portfolio, result, config, source=source)
             self._remember(portfolio, result)
@@ -264,7 +290,7 @@ class Ingestor:
             return IngestReport(
                 portfolio=portfolio,
                 prices_added=report.run.prices_added,
-                corrections=report.run.corrections_added,
+                corrections=report.run.corrections_added + (0 if fixed is None else fixed.corrections),
                 unchanged=plan.unchanged,
                 windows_computed=computed,
                 windows_added=added,
@@ -273,7 +299,7 @@ class Ingestor:
                 last_window=new_ends[-1].date() if added else None,
                 alerts=report.alerts.added,
                 run_id=report.run.id,
-                note=note,
+                note=note if fixed is None else f"{fixed.note}; {note}",
             )
 
     def _result(self, portfolio: str, plan: _Plan, held: pd.DataFrame, config: Config) -> tuple[MonitorResult, int]:

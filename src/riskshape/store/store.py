@@ -189,6 +189,12 @@ class Store:
             return pricebook.read_prices(connection, pid, first, last, columns, through)
 
     @_database_errors
+    def price_dates(self, portfolio: str) -> tuple[date, ...]:
+        """Every date with an archived price of the portfolio (its trading days), ascending."""
+        with read_transaction(self.engine) as connection:
+            return tuple(pricebook.price_dates(connection, catalog.portfolio_id(connection, portfolio)))
+
+    @_database_errors
     def list_corrections(
         self, portfolio: str, *, start: object = None, end: object = None
     ) -> tuple[PriceCorrection, ...]:
