@@ -146,7 +146,9 @@ def affected_windows(corrected_rows: Positions, ends: Positions, window: int) ->
 
 
 def with_carried_sums(touched: Positions, ends: Positions, window: int, step: int) -> Positions:
-    """``touched`` and the windows after it up to the next rebuild point of the running sums.
+    """The windows from the first to the last of ``touched``, and after them up to the next rebuild point.
+
+    The windows are computed as one run of consecutive windows (each slides from the one before).
 
     With running sums (:mod:`riskshape.compute.moments`) a window's correlations are the sums of
     the windows before it, back to the last rebuild point, with rows added and taken away: a
@@ -161,6 +163,7 @@ def with_carried_sums(touched: Positions, ends: Positions, window: int, step: in
     if not len(touched):
         return touched
     ends = np.asarray(ends, dtype=np.int64)
+    touched = ends[(ends >= touched[0]) & (ends <= touched[-1])]  # one run of consecutive windows
     last = window_index(int(touched[-1]), window, step)
     after = ends[ends > touched[-1]]
     indexes = np.array([window_index(int(e), window, step) for e in after], dtype=np.int64)
@@ -231,7 +234,7 @@ def _features_digest(frame: pd.DataFrame) -> str:
 
 def _cells(revised: pd.DataFrame, before: pd.DataFrame) -> list[dict[str, object]]:
     cells: list[dict[str, object]] = []
-    for (day, asset), value in revised.stack().items():
+    for (day, asset), value in revised.stack().dropna().items():
         old = before.at[day, asset] if day in before.index and asset in before.columns else float("nan")
         cells.append(
             {
