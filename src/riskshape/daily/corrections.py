@@ -131,7 +131,7 @@ def affected_windows(corrected_rows: Positions, ends: Positions, window: int) ->
     Examples
     --------
     >>> affected_windows(np.array([5]), np.arange(3, 10), 4).tolist()
-    [4, 5, 6, 7]
+    [4, 5, 6, 7, 8]
     """
     rows = np.unique(np.concatenate([np.asarray(corrected_rows) - 1, np.asarray(corrected_rows)]))
     rows = rows[rows >= 0]
