@@ -359,7 +359,8 @@ def apply_corrections(
         subject=str(changed[0].date()) if changed else str(frame.index[0].date()),
         actor=actor,
     )
-    superseded, raised = (), ()
+    superseded: tuple[EventRecord, ...] = ()
+    raised: tuple[AlertRecord, ...] = ()
     if changed:
         superseded, raised = _review_alerts(
             store, portfolio, config, new_run, part, changed[0], revised, actor=actor, explain=explain
