@@ -103,7 +103,10 @@ def test_a_correction_inside_the_windows_is_archived_and_used_from_then_on(
     archived = cautioned(
         client.get("/v1/portfolios/alpha/series", params={"start": str(day.date()), "limit": 1}, headers=auth("reader"))
     )
-    assert archived["rows"][0]["values"][2] == batch.features.loc[day, "mean_correlation"]  # kept as archived
+    # superseded: the series answers with the new version, equal to a fresh run over the corrected history
+    fresh = monitor(revised.iloc[:N_FIRST], batch.config).features
+    assert archived["rows"][0]["values"][2] == fresh.loc[day, "mean_correlation"]
+    assert fresh.loc[day, "mean_correlation"] != batch.features.loc[day, "mean_correlation"]
     following = cautioned(
         client.post("/v1/portfolios/alpha/prices", json=wide_rows(revised.iloc[[N_FIRST]]), headers=auth("ingest"))
     )

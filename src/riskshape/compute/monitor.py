@@ -257,6 +257,30 @@ def monitor(prices: pd.DataFrame, config: Config | None = None, *, progress: Pro
     )
 
 
+def compute_windows_at(
+    returns: FloatArray, ends: Positions, config: Config, previous: Diagrams | None = None
+) -> list[WindowResult]:
+    """The windows ending at ``ends`` (rows of ``returns``), as :func:`monitor` computes them.
+
+    Parameters
+    ----------
+    returns : numpy.ndarray
+        The returns table's values; only the rows the windows need must be filled (from
+        :func:`riskshape.compute.batch.first_row_needed` of the first end to the last end).
+    ends : numpy.ndarray
+        Window end rows, ascending, on the grid of :func:`riskshape.compute.window_end_positions`.
+    config : Config
+    previous : tuple of numpy.ndarray, optional
+        Diagrams of the window before the first one (for its distances; NaN without).
+
+    Returns
+    -------
+    list of WindowResult
+        Equal to the same windows of a :func:`monitor` over the whole history.
+    """
+    return _compute_windows(returns, ends, config, previous, None)
+
+
 def settings_of(config: Config) -> WindowSettings:
     """The worker's share of a configuration (:meth:`WindowSettings.from_config`)."""
     return WindowSettings.from_config(config)

@@ -19,8 +19,10 @@ Policy (what the service's price endpoints and the command line apply):
 * **Revisions**: a price that differs from the archived one for a day that counts (or a price
   for a cell archived as missing there) is refused with 409, unless the request says
   ``correction=true``. A correction archives a new revision (the old one stays, and is listed
-  as a correction), and the windows are recomputed from the corrected history. A missing price
-  never replaces an archived one. One price for one asset and one date is a valid body.
+  as a correction) and supersedes the windows it is in (:mod:`riskshape.daily.corrections`: only
+  those windows are recomputed and archived as a new version; earlier versions stay and are read
+  with ``as_known_at``). A missing price never replaces an archived one. One price for one asset
+  and one date is a valid body.
 * A date **inside** the archived history that is not archived is refused (422): it was never a
   trading day of the portfolio, and windows count trading days.
 * **Assets** are fixed by the portfolio's first prices (at least three), in name order: an
@@ -32,7 +34,7 @@ from __future__ import annotations
 
 import threading
 from collections import OrderedDict
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from datetime import date
 
 import numpy as np
@@ -40,6 +42,7 @@ import pandas as pd
 
 from riskshape import Config, ConflictError, DataError, MonitorResult, NotFoundError, archive_run, monitor
 from riskshape.compute import window_end_positions
+from riskshape.daily.corrections import CorrectionReport, apply_corrections, revised_cells
 from riskshape.daily.days import (
     CLOSED_BY_HAND,
     DayBook,
@@ -91,6 +94,24 @@ class IngestReport:
     note: str
     pending: tuple[DayStatus, ...] = ()
     closed: tuple[date, ...] = ()
+
+
+def _corrected(portfolio: str, fixed: CorrectionReport, unchanged: int) -> IngestReport:
+    """The ingest's answer to a body of corrections only."""
+    return IngestReport(
+        portfolio=portfolio,
+        prices_added=0,
+        corrections=fixed.corrections,
+        unchanged=unchanged,
+        windows_computed=fixed.windows_recomputed,
+        windows_added=0,
+        windows_differing=fixed.windows_superseded,
+        first_window=fixed.first_window,
+        last_window=fixed.last_window,
+        alerts=fixed.alerts_raised,
+        run_id=fixed.run_id,
+        note=fixed.note,
+    )
 
 
 def portfolio_config(store: Store, portfolio: str, default: Config) -> tuple[Config, Run | None]:
@@ -272,6 +293,9 @@ def _plan(
     table = held.copy() if len(held.columns) else pd.DataFrame(columns=columns, dtype=float)
     if differs.any():
         table.loc[overlap, list(incoming.columns)] = np.where(differs, sent, kept)
+    if len(overlap):  # a missing price never replaces an archived one: such a cell is sent as archived
+        incoming = incoming.copy()
+        incoming.loc[overlap] = np.where(np.isnan(sent) & ~np.isnan(kept), kept, sent)
     fresh = incoming.loc[incoming.index.difference(held.index)].reindex(columns=columns)
     if len(fresh):
         table = pd.concat([table, fresh]) if len(table) else fresh.copy()
@@ -317,6 +341,10 @@ class Ingestor:
             self._results.move_to_end(portfolio)
             while len(self._results) > self.cache_size:
                 self._results.popitem(last=False)
+
+    def _forget(self, portfolio: str) -> None:
+        with self._guard:
+            self._results.pop(portfolio, None)
 
     def _cached(self, portfolio: str) -> MonitorResult | None:
         with self._guard:
@@ -491,10 +519,18 @@ class Ingestor:
         book = read_day_book(store, portfolio)
         added = corrections = unchanged = 0
         table = ValidPrices.of_validated_parts(held)
+        fixed: CorrectionReport | None = None
         if prices is not None:
             plan = _plan(portfolio, prices, held, correction, source, counted_until, book)
+            if plan.corrections and run is not None:
+                # corrections supersede the windows they touch, alone (daily/corrections.py); what the
+                # result kept in memory rests on the old prices, so it is dropped
+                fixed = apply_corrections(store, portfolio, revised_cells(plan.sent, held), config, run, source=source)
+                self._forget(portfolio)
+                held = store.read_prices(portfolio, assets=list(run.assets))
+                run = store.latest_run(portfolio)
             written = store.append_prices(portfolio, plan.sent, source=source)
-            added = written.added + written.corrections - plan.corrections
+            added = written.added + written.corrections - (0 if fixed is not None else plan.corrections)
             corrections, unchanged, table = plan.corrections, plan.unchanged, plan.table
         assets = list(table.columns)
         statuses = day_statuses(read_cells(store.engine, portfolio, counted_until), assets, book)
@@ -531,8 +567,10 @@ class Ingestor:
             return IngestReport(**base, **_no_windows(note))  # type: ignore[arg-type]
         expected = len(window_end_positions(n_returns, config.window, config.step))
         archived = len(store.window_ends(portfolio, config.hash()))
+        if fixed is not None and (through is None or counted_until is None or through <= counted_until):
+            return replace(_corrected(portfolio, fixed, unchanged), pending=pending, closed=tuple(closed_now))
         if (
-            not corrections
+            (not corrections or fixed is not None)
             and archived >= expected
             and (counted_until is not None and through is not None and through <= counted_until)
         ):
@@ -541,7 +579,11 @@ class Ingestor:
             return IngestReport(**base, **_no_windows(note))  # type: ignore[arg-type]
         held_counted = held.loc[: pd.Timestamp(counted_until)] if counted_until is not None else held.iloc[:0]
         result, computed = self._result(
-            portfolio, ValidPrices.of_validated_parts(usable), held_counted, corrections, config
+            portfolio,
+            ValidPrices.of_validated_parts(usable),
+            held_counted,
+            0 if fixed is not None else corrections,
+            config,
         )
         report = archive_run(store, portfolio, result, config, source=source)
         self._remember(portfolio, result)
@@ -560,9 +602,9 @@ class Ingestor:
             windows_differing=report.features.differing,
             first_window=new_ends[0].date() if n_added else None,
             last_window=new_ends[-1].date() if n_added else None,
-            alerts=report.alerts.added,
+            alerts=report.alerts.added if fixed is None else fixed.alerts_raised + report.alerts.added,
             run_id=report.run.id,
-            note=note + waiting,
+            note=(note if fixed is None else f"{fixed.note}; {note}") + waiting,
         )
 
     def _result(

@@ -141,8 +141,8 @@ def create_run(engine: Engine, portfolio: str, manifest: RunManifest, prices: Pr
     valid = None if prices is None else validated(prices, manifest.source or "prices")
     dates: list[Any] = [] if valid is None else list(pd.DatetimeIndex(valid.index).date)
     assets: list[str] = [] if valid is None else list(valid.columns)
-    now = datetime.now(timezone.utc)
     with write_transaction(engine) as connection:
+        now = datetime.now(timezone.utc)  # under the write lock: run ids grow with created_at (knowledge time)
         pid = portfolio_id(connection, portfolio)
         written = PriceWrite(0, 0, 0) if valid is None else append_prices(connection, pid, valid, now)
         values = {

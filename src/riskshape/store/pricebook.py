@@ -149,6 +149,13 @@ def max_price_id(connection: Connection, portfolio_id: int) -> int:
     return int(connection.execute(query).scalar_one())
 
 
+def price_dates(connection: Connection, portfolio_id: int) -> list[date]:
+    """Every archived date of a portfolio (its trading days), ascending."""
+    p = t.prices
+    query = sa.select(p.c.date).where(p.c.portfolio_id == portfolio_id).distinct().order_by(p.c.date)
+    return list(connection.execute(query).scalars())
+
+
 def read_prices(
     connection: Connection,
     portfolio_id: int,

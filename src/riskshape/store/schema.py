@@ -8,6 +8,9 @@ Design notes
   are added; a JSON row keeps the schema stable without a migration per new summary, reading a
   date range is one indexed range scan (a long table would be ~20 rows per window), and text JSON
   behaves identically on SQLite and PostgreSQL (NaN is written as ``null``).
+* A window may have several versions (migration 0004): a correction archives the recomputed
+  features and diagrams again, keyed by the run that made them; the version in force at a moment
+  is that of the latest run recorded by then (knowledge time = the run's ``created_at``).
 * ``diagrams`` keeps the finite bars of a window and dimension as little-endian float32 bytes
   (ripser computes in float32, so nothing is lost).
 * ``ledger`` is the single append-only sequence shared by ``alerts``, ``reviews`` and ``events``: its primary
@@ -126,7 +129,7 @@ features = sa.Table(
     sa.Column("window_end", sa.Date, nullable=False),
     sa.Column("run_id", sa.Integer, sa.ForeignKey("runs.id"), nullable=False),
     sa.Column("values_json", sa.Text, nullable=False),
-    sa.UniqueConstraint("portfolio_id", "config_hash", "window_end", name="uq_features_window"),
+    sa.UniqueConstraint("portfolio_id", "config_hash", "window_end", "run_id", name="uq_features_version"),
 )
 
 diagrams = sa.Table(
@@ -140,7 +143,7 @@ diagrams = sa.Table(
     sa.Column("run_id", sa.Integer, sa.ForeignKey("runs.id"), nullable=False),
     sa.Column("n_bars", sa.Integer, nullable=False),
     sa.Column("bars", sa.LargeBinary, nullable=False),
-    sa.UniqueConstraint("portfolio_id", "config_hash", "window_end", "dim", name="uq_diagrams_window_dim"),
+    sa.UniqueConstraint("portfolio_id", "config_hash", "window_end", "dim", "run_id", name="uq_diagrams_version"),
 )
 
 ledger = sa.Table(

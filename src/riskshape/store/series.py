@@ -2,7 +2,10 @@
 
 Both are written idempotently, keyed by (portfolio, configuration hash, window end[, dim]): a
 window already archived is left as it is (an archive does not overwrite); the write reports
-whether the new values were identical or differed (e.g. after a price correction).
+whether the new values were identical or differed (e.g. after a price correction). With
+``supersede`` (a correction's run), a window whose values differ is archived again as a new
+version keyed by the run; the earlier version stays. Reads answer with the version in force now,
+or at ``as_known_at`` (see :mod:`riskshape.store.knowledge`).
 """
 
 from __future__ import annotations
@@ -10,7 +13,7 @@ from __future__ import annotations
 import json
 import math
 from collections.abc import Iterable, Sequence
-from datetime import date
+from datetime import date, datetime
 from typing import Any
 
 import numpy as np
@@ -22,6 +25,7 @@ from riskshape.errors import NotFoundError, StoreError
 from riskshape.store import schema as t
 from riskshape.store.catalog import portfolio_id
 from riskshape.store.database import read_transaction, write_transaction
+from riskshape.store.knowledge import current_version, known_runs
 from riskshape.store.ledger import to_date
 from riskshape.store.pricebook import INDEX_UNIT
 from riskshape.store.records import Diagram, FeaturesPage, WriteCount
@@ -41,10 +45,12 @@ def _run_keys(connection: Connection, run_id: int) -> tuple[int, str]:
     return int(row.portfolio_id), str(row.config_hash)
 
 
-def latest_config_hash(connection: Connection, pid: int) -> str | None:
-    """Configuration hash of the portfolio's most recent run (None if it has no run)."""
-    query = sa.select(t.runs.c.config_hash).where(t.runs.c.portfolio_id == pid).order_by(t.runs.c.id.desc()).limit(1)
-    return connection.execute(query).scalar()
+def latest_config_hash(connection: Connection, pid: int, known_at: datetime | None = None) -> str | None:
+    """Configuration hash of the portfolio's most recent run (recorded by ``known_at``; None if none)."""
+    query = sa.select(t.runs.c.config_hash).where(t.runs.c.portfolio_id == pid)
+    if known_at is not None:
+        query = query.where(t.runs.c.created_at <= known_at)
+    return connection.execute(query.order_by(t.runs.c.id.desc()).limit(1)).scalar()
 
 
 def _cell(value: Any) -> int | float | None:
@@ -60,7 +66,7 @@ def _row_json(row: dict[Any, Any]) -> str:
     return json.dumps({str(k): _cell(v) for k, v in row.items()}, separators=(",", ":"), allow_nan=False)
 
 
-def write_features(engine: Engine, run_id: int, features: pd.DataFrame) -> WriteCount:
+def write_features(engine: Engine, run_id: int, features: pd.DataFrame, supersede: bool = False) -> WriteCount:
     """Archive a run's features (one row per window end). See :meth:`riskshape.store.Store.write_features`."""
     if not isinstance(features.index, pd.DatetimeIndex):
         raise StoreError("features: the index must be a DatetimeIndex of window ends (MonitorResult.features)")
@@ -72,22 +78,20 @@ def write_features(engine: Engine, run_id: int, features: pd.DataFrame) -> Write
     with write_transaction(engine) as connection:
         pid, config_hash = _run_keys(connection, run_id)
         f = t.features
-        held = dict(
-            connection.execute(
-                sa.select(f.c.window_end, f.c.values_json).where(
-                    f.c.portfolio_id == pid, f.c.config_hash == config_hash
-                )
-            ).all()
-        )
+        where = [f.c.portfolio_id == pid, f.c.config_hash == config_hash, current_version(f, None)]
+        if ends:
+            where += [f.c.window_end >= min(ends), f.c.window_end <= max(ends)]
+        held = dict(connection.execute(sa.select(f.c.window_end, f.c.values_json).where(*where)).all())
+        differs = {e for e, text in zip(ends, texts) if e in held and held[e] != text}
         rows = [
             {"portfolio_id": pid, "config_hash": config_hash, "window_end": e, "run_id": run_id, "values_json": text}
             for e, text in zip(ends, texts)
-            if e not in held
+            if e not in held or (supersede and e in differs)
         ]
-        differing = sum(1 for e, text in zip(ends, texts) if e in held and held[e] != text)
         if rows:
             connection.execute(sa.insert(f), rows)
-    return WriteCount(added=len(rows), existing=len(ends) - len(rows) - differing, differing=differing)
+    fresh = len(rows) - (len(differs) if supersede else 0)
+    return WriteCount(added=len(rows), existing=len(ends) - fresh - len(differs), differing=len(differs))
 
 
 def window_ends(engine: Engine, portfolio: str, config_hash: str | None = None) -> tuple[date, ...]:
@@ -97,7 +101,7 @@ def window_ends(engine: Engine, portfolio: str, config_hash: str | None = None) 
         pid = portfolio_id(connection, portfolio)
         chosen = config_hash or latest_config_hash(connection, pid)
         query = sa.select(f.c.window_end).where(f.c.portfolio_id == pid, f.c.config_hash == chosen)
-        return tuple(connection.execute(query.order_by(f.c.window_end)).scalars())
+        return tuple(connection.execute(query.distinct().order_by(f.c.window_end)).scalars())
 
 
 def read_features(
@@ -110,6 +114,7 @@ def read_features(
     limit: int | None = None,
     offset: int = 0,
     config_hash: str | None = None,
+    as_known_at: datetime | None = None,
 ) -> FeaturesPage:
     """A page of the features series. See :meth:`riskshape.store.Store.read_features`."""
     if (limit is not None and limit < 0) or offset < 0:
@@ -117,8 +122,8 @@ def read_features(
     f = t.features
     with read_transaction(engine) as connection:
         pid = portfolio_id(connection, portfolio)
-        chosen = config_hash or latest_config_hash(connection, pid)
-        where = [f.c.portfolio_id == pid, f.c.config_hash == chosen]
+        chosen = config_hash or latest_config_hash(connection, pid, as_known_at)
+        where = [f.c.portfolio_id == pid, f.c.config_hash == chosen, current_version(f, as_known_at)]
         if start is not None:
             where.append(f.c.window_end >= to_date(start, "start"))
         if end is not None:
@@ -144,7 +149,9 @@ def read_features(
     return FeaturesPage(frame=frame, total=total, offset=offset, config_hash=chosen)
 
 
-def write_diagrams(engine: Engine, run_id: int, diagrams: Iterable[tuple[object, int, DiagramArray]]) -> WriteCount:
+def write_diagrams(
+    engine: Engine, run_id: int, diagrams: Iterable[tuple[object, int, DiagramArray]], supersede: bool = False
+) -> WriteCount:
     """Archive diagrams of a run as float32 bars. See :meth:`riskshape.store.Store.write_diagrams`."""
     prepared: list[tuple[date, int, int, bytes]] = []
     for window_end, dim, bars in diagrams:
@@ -165,14 +172,14 @@ def write_diagrams(engine: Engine, run_id: int, diagrams: Iterable[tuple[object,
     with write_transaction(engine) as connection:
         pid, config_hash = _run_keys(connection, run_id)
         d = t.diagrams
+        where = [d.c.portfolio_id == pid, d.c.config_hash == config_hash, current_version(d, None, by_dim=True)]
+        if prepared:
+            where += [d.c.window_end >= min(p[0] for p in prepared), d.c.window_end <= max(p[0] for p in prepared)]
         held = {
             (r.window_end, int(r.dim)): bytes(r.bars)
-            for r in connection.execute(
-                sa.select(d.c.window_end, d.c.dim, d.c.bars).where(
-                    d.c.portfolio_id == pid, d.c.config_hash == config_hash
-                )
-            )
+            for r in connection.execute(sa.select(d.c.window_end, d.c.dim, d.c.bars).where(*where))
         }
+        differs = {(e, k) for e, k, _, blob in prepared if (e, k) in held and held[(e, k)] != blob}
         rows = [
             {
                 "portfolio_id": pid,
@@ -184,32 +191,39 @@ def write_diagrams(engine: Engine, run_id: int, diagrams: Iterable[tuple[object,
                 "bars": blob,
             }
             for e, k, n, blob in prepared
-            if (e, k) not in held
+            if (e, k) not in held or (supersede and (e, k) in differs)
         ]
-        differing = sum(1 for e, k, _, blob in prepared if (e, k) in held and held[(e, k)] != blob)
         if rows:
             connection.execute(sa.insert(d), rows)
-    return WriteCount(added=len(rows), existing=len(prepared) - len(rows) - differing, differing=differing)
+    fresh = len(rows) - (len(differs) if supersede else 0)
+    return WriteCount(added=len(rows), existing=len(prepared) - fresh - len(differs), differing=len(differs))
 
 
 def read_diagram(
-    engine: Engine, portfolio: str, window_end: object, dim: int, config_hash: str | None = None
+    engine: Engine,
+    portfolio: str,
+    window_end: object,
+    dim: int,
+    config_hash: str | None = None,
+    as_known_at: datetime | None = None,
 ) -> Diagram:
     """One archived diagram. See :meth:`riskshape.store.Store.read_diagram`."""
     day = to_date(window_end, "window_end")
     d = t.diagrams
     with read_transaction(engine) as connection:
         pid = portfolio_id(connection, portfolio)
-        chosen = config_hash or latest_config_hash(connection, pid)
-        row = connection.execute(
-            sa.select(d.c.bars, d.c.n_bars, d.c.run_id, d.c.config_hash).where(
-                d.c.portfolio_id == pid, d.c.config_hash == chosen, d.c.window_end == day, d.c.dim == dim
-            )
-        ).first()
+        chosen = config_hash or latest_config_hash(connection, pid, as_known_at)
+        query = sa.select(d.c.bars, d.c.n_bars, d.c.run_id, d.c.config_hash).where(
+            d.c.portfolio_id == pid, d.c.config_hash == chosen, d.c.window_end == day, d.c.dim == dim
+        )
+        if as_known_at is not None:
+            query = query.where(d.c.run_id.in_(known_runs(as_known_at)))
+        row = connection.execute(query.order_by(d.c.run_id.desc()).limit(1)).first()
     if row is None:
+        known = "" if as_known_at is None else f" as known at {as_known_at.isoformat()}"
         raise NotFoundError(
-            f"no diagram of portfolio {portfolio!r} for window {day} dim {dim} (configuration {chosen}); "
-            "check the date (a window end) and the dimension (0..maxdim)"
+            f"no diagram of portfolio {portfolio!r} for window {day} dim {dim} (configuration {chosen}){known}; "
+            "check the date (a window end), the dimension (0..maxdim) and the moment asked for"
         )
     bars = np.frombuffer(bytes(row.bars), dtype=BAR_DTYPE).reshape(int(row.n_bars), 2).copy()
     bars.setflags(write=False)

@@ -27,6 +27,7 @@ from riskshape.store.database import (
     upgrade,
     write_transaction,
 )
+from riskshape.store.knowledge import to_known_at
 from riskshape.store.markers import ChangeMarker, read_change_marker
 from riskshape.store.records import (
     AlertAppend,
@@ -188,6 +189,12 @@ class Store:
             return pricebook.read_prices(connection, pid, first, last, columns, through)
 
     @_database_errors
+    def price_dates(self, portfolio: str) -> tuple[date, ...]:
+        """Every date with an archived price of the portfolio (its trading days), ascending."""
+        with read_transaction(self.engine) as connection:
+            return tuple(pricebook.price_dates(connection, catalog.portfolio_id(connection, portfolio)))
+
+    @_database_errors
     def list_corrections(
         self, portfolio: str, *, start: object = None, end: object = None
     ) -> tuple[PriceCorrection, ...]:
@@ -223,9 +230,14 @@ class Store:
 
     # -- features and diagrams -------------------------------------------------------------------
     @_database_errors
-    def write_features(self, run_id: int, features: pd.DataFrame) -> WriteCount:
-        """Archive ``MonitorResult.features`` for a run; idempotent by (portfolio, window_end, config_hash)."""
-        return series.write_features(self.engine, run_id, features)
+    def write_features(self, run_id: int, features: pd.DataFrame, *, supersede: bool = False) -> WriteCount:
+        """Archive ``MonitorResult.features`` for a run; idempotent by (portfolio, window_end, config_hash).
+
+        With ``supersede`` (a correction's run), a window whose values differ from its version in
+        force is archived again as a new version of that run (counted in ``added`` and ``differing``);
+        without it, it keeps its archived values (counted in ``differing`` only).
+        """
+        return series.write_features(self.engine, run_id, features, supersede)
 
     @_database_errors
     def window_ends(self, portfolio: str, config_hash: str | None = None) -> tuple[date, ...]:
@@ -243,11 +255,15 @@ class Store:
         limit: int | None = None,
         offset: int = 0,
         config_hash: str | None = None,
+        as_known_at: object = None,
     ) -> FeaturesPage:
         """A page of the features series (window ends ascending).
 
         ``config_hash`` defaults to that of the portfolio's latest run. ``columns`` selects and orders
-        columns (an unknown name raises StoreError listing the archived ones).
+        columns (an unknown name raises StoreError listing the archived ones). Each window answers
+        with its version in force now, or with ``as_known_at`` (a timezone-aware datetime or ISO 8601
+        text; DataError otherwise) exactly as it was known then: the versions of runs recorded by that
+        moment, the latest run's configuration then (see :mod:`riskshape.store.knowledge`).
         """
         return series.read_features(
             self.engine,
@@ -258,17 +274,31 @@ class Store:
             limit=limit,
             offset=offset,
             config_hash=config_hash,
+            as_known_at=to_known_at(as_known_at),
         )
 
     @_database_errors
-    def write_diagrams(self, run_id: int, diagrams: Iterable[tuple[object, int, DiagramArray]]) -> WriteCount:
-        """Archive (window_end, dim, bars) triples of a run as float32; idempotent like features."""
-        return series.write_diagrams(self.engine, run_id, diagrams)
+    def write_diagrams(
+        self, run_id: int, diagrams: Iterable[tuple[object, int, DiagramArray]], *, supersede: bool = False
+    ) -> WriteCount:
+        """Archive (window_end, dim, bars) triples of a run as float32; idempotent and versioned like features."""
+        return series.write_diagrams(self.engine, run_id, diagrams, supersede)
 
     @_database_errors
-    def read_diagram(self, portfolio: str, window_end: object, dim: int, config_hash: str | None = None) -> Diagram:
-        """One archived diagram (float32 bars). Raises :class:`NotFoundError` if absent."""
-        return series.read_diagram(self.engine, portfolio, window_end, dim, config_hash)
+    def read_diagram(
+        self,
+        portfolio: str,
+        window_end: object,
+        dim: int,
+        config_hash: str | None = None,
+        *,
+        as_known_at: object = None,
+    ) -> Diagram:
+        """One archived diagram (float32 bars): its version in force now, or as known at ``as_known_at``.
+
+        Raises :class:`NotFoundError` if absent (or not yet archived at ``as_known_at``).
+        """
+        return series.read_diagram(self.engine, portfolio, window_end, dim, config_hash, to_known_at(as_known_at))
 
     # -- alerts and reviews (the ledger) ---------------------------------------------------------
     @_database_errors
