@@ -148,14 +148,25 @@ def make_router(settings: ServiceSettings) -> APIRouter:
             table, layout = table_from_json(_json_body(raw))
             source, first, label = f"{JSON_SOURCE} ({layout})", 0, ("rows" if layout == "long" else "wide")
         elif media == "text/csv":
-            table = await run_in_threadpool(table_from_csv, raw)
+            table = await run_in_threadpool(
+                table_from_csv, raw, max_assets=settings.max_request_assets, max_rows=settings.max_request_rows
+            )
             source, first, label = CSV_SOURCE, 2, "line"
         else:
             raise HTTPException(
                 status_code=415,
                 detail=f"content type {media or 'none'!r} is not accepted; send application/json or text/csv",
             )
-        prices = await run_in_threadpool(validated_prices, table, source, first, label)
+        prices = await run_in_threadpool(
+            lambda: validated_prices(
+                table,
+                source,
+                first,
+                label,
+                max_assets=settings.max_request_assets,
+                max_rows=settings.max_request_rows,
+            )
+        )
 
         def work() -> IngestReport:
             return context.ingestor.ingest(store, name, prices, correction=correction, source=source)
