@@ -21,7 +21,7 @@ from contextvars import ContextVar
 from functools import lru_cache
 from importlib import resources
 from pathlib import Path
-from typing import Any
+from typing import Any, Literal
 
 from pydantic import BaseModel, ConfigDict, Field, ValidationError, model_validator
 from pydantic_core import InitErrorDetails, PydanticCustomError
@@ -46,6 +46,7 @@ else:  # pragma: no cover - exercised on Python 3.10 only
 __all__ = [
     "Config",
     "ComputeConfig",
+    "ChecksConfig",
     "AlertsConfig",
     "RuleConfig",
     "format_validation_error",
@@ -145,6 +146,23 @@ class ComputeConfig(_Frozen):
     batch_windows: int = Field(
         64, ge=1, description="most windows sent to a worker at once (smaller batches keep every worker busy)"
     )
+
+
+class ChecksConfig(_Frozen):
+    """What is checked before any work: data quality and the cost of the run; never changes a result.
+
+    ``quality`` says whether a data-quality finding (a constant asset, a window with every asset left
+    out, a one-day move beyond ``max_day_ratio``) is a warning or refuses the run. A one-day move is
+    beyond the bound when the price is more than ``max_day_ratio`` times, or less than its inverse
+    times, the previous price of that asset (default 2: a doubling or a halving in one day). The
+    cost of a run is estimated before any window is computed and refused above ``budget_seconds`` or
+    ``budget_memory_mb``.
+    """
+
+    quality: Literal["warn", "refuse"] = "warn"
+    max_day_ratio: float = Field(2.0, gt=1.0, description="largest one-day price ratio before a likely bad print")
+    budget_seconds: float = Field(1800.0, gt=0, description="largest estimated run time accepted (seconds)")
+    budget_memory_mb: float = Field(4096.0, gt=0, description="largest estimated peak memory accepted (MB)")
 
 
 class RuleConfig(_Frozen):
@@ -257,8 +275,8 @@ class Config(_Frozen):
         window are points in R^n (one coordinate per asset).
     standardize_cloud : bool
         For ``point_cloud``: divide each asset's returns by its window standard deviation.
-    compute, alerts
-        See :class:`ComputeConfig` and :class:`AlertsConfig`.
+    compute, alerts, checks
+        See :class:`ComputeConfig`, :class:`AlertsConfig` and :class:`ChecksConfig`.
 
     Examples
     --------
@@ -278,6 +296,7 @@ class Config(_Frozen):
     standardize_cloud: bool = True
     compute: ComputeConfig = ComputeConfig()
     alerts: AlertsConfig = AlertsConfig()
+    checks: ChecksConfig = ChecksConfig()
 
     @model_validator(mode="before")
     @classmethod
@@ -367,13 +386,13 @@ class Config(_Frozen):
     @classmethod
     def from_mapping(cls, data: Mapping[str, Any], where: str = "configuration") -> Config:
         """Build a Config from the nested mapping a TOML file holds (``monitor``, ``compute``, ``alerts``)."""
-        unknown = set(data) - {"monitor", "compute", "alerts"}
+        unknown = set(data) - {"monitor", "compute", "alerts", "checks"}
         if unknown:
             raise ConfigError(
-                f"{where}: unknown section(s) {sorted(unknown)}; allowed are [monitor], [compute], [alerts]"
+                f"{where}: unknown section(s) {sorted(unknown)}; allowed are [monitor], [compute], [alerts], [checks]"
             )
         flat: dict[str, Any] = dict(data.get("monitor", {}))
-        for section in ("compute", "alerts"):
+        for section in ("compute", "alerts", "checks"):
             if section in data:
                 flat[section] = data[section]
         built: Config = cls._build(flat, where)
@@ -382,14 +401,15 @@ class Config(_Frozen):
     @staticmethod
     def _file_key(loc: tuple[Any, ...]) -> str:
         dotted = ".".join(str(p) for p in loc)
-        return dotted if not loc or loc[0] in ("compute", "alerts") else f"monitor.{dotted}"
+        return dotted if not loc or loc[0] in ("compute", "alerts", "checks") else f"monitor.{dotted}"
 
     def to_mapping(self) -> dict[str, Any]:
         """The nested mapping :meth:`from_mapping` reads (round-trips)."""
         dumped = self.model_dump(mode="json")
         compute = dumped.pop("compute")
         alerts = dumped.pop("alerts")
-        return {"monitor": dumped, "compute": compute, "alerts": alerts}
+        checks = dumped.pop("checks")
+        return {"monitor": dumped, "compute": compute, "alerts": alerts, "checks": checks}
 
     def replace(self, **changes: Any) -> Config:
         """A copy with some fields changed, validated like a new Config."""
@@ -399,7 +419,7 @@ class Config(_Frozen):
 
     def hash(self) -> str:
         """SHA-256 (hex) of the canonical JSON of every setting that can change a result."""
-        payload = self.model_dump(mode="json", exclude={"compute"})
+        payload = self.model_dump(mode="json", exclude={"compute", "checks"})
         # Hashed under its old name: archived runs are looked up by this hash, and they were stored
         # when the key was called `engine`; renaming it must not change the hash of any configuration.
         payload["engine"] = payload.pop("rips_backend")
