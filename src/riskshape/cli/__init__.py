@@ -25,6 +25,7 @@ COMMANDS: dict[str, str] = {
     "serve": "riskshape.cli.serve:serve",
     "keys": "riskshape.cli.keys:keys",
     "report": "riskshape.cli.report:report",
+    "backup": "riskshape.cli.backup:backup",
 }
 
 
