@@ -117,16 +117,16 @@ def check_cost(n_assets: int, n_dates: int, config: Config, source: str = "price
     if config.maxdim > 0:
         h0 = estimate_cost(n_assets, n_windows, config.replace(maxdim=0))
         if h0.seconds <= budget.budget_seconds and h0.memory_mb <= budget.budget_memory_mb:
-            options.append(f"H0 only (maxdim = 0: about {h0.seconds:.0f} s, {h0.memory_mb:.0f} MB)")
+            options.append(f"H0 only (maxdim = 0: about {h0.seconds:.3g} s, {h0.memory_mb:.0f} MB)")
     fits = _most_assets(n_windows, config)
     if fits >= 3:
         options.append(f"at most {fits} assets")
     options.append(
-        f"a bigger budget ([checks] budget_seconds >= {cost.seconds:.0f}, budget_memory_mb >= {cost.memory_mb:.0f})"
+        f"a bigger budget ([checks] budget_seconds >= {cost.seconds:.3g}, budget_memory_mb >= {cost.memory_mb:.0f})"
     )
     raise DataError(
         f"{source}: {n_assets} assets x {n_windows} windows with maxdim = {config.maxdim} would take about "
-        f"{cost.seconds:.0f} s and {cost.memory_mb:.0f} MB, beyond the budget of {budget.budget_seconds:g} s and "
+        f"{cost.seconds:.3g} s and {cost.memory_mb:.0f} MB, beyond the budget of {budget.budget_seconds:g} s and "
         f"{budget.budget_memory_mb:g} MB ([checks]); options that fit: " + "; ".join(options)
     )
 

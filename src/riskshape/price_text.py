@@ -179,7 +179,7 @@ def check_csv_text(text: str, source: str, max_assets: int = MAX_ASSETS, max_row
             f"{source}: line 1 (the header) has {n_columns - 1} asset columns, more than the limit of {max_assets}; "
             "split the portfolio into files of fewer assets"
         )
-    lines = text.splitlines()
+    lines = [line.rstrip("\r") for line in text.split("\n")]  # the lines the CSV parser sees
     data_lines = sum(1 for line in lines[1:] if line.strip())
     if data_lines > max_rows:
         raise DataError(
