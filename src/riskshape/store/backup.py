@@ -92,13 +92,17 @@ def _backup_sqlite(store: Store, path: Path) -> BackupReport:
                 source = connection.connection.driver_connection
                 assert isinstance(source, sqlite3.Connection)
                 source.backup(copy)  # pages=-1: the whole database in one step, one consistent snapshot
-            copy.execute("PRAGMA journal_mode=DELETE")  # a single self-contained file
         finally:
             copy.close()
         with open_store(f"sqlite:///{staging}", create=False) as copied:
             report = verify_chain(copied)
         if not report.ok:
             raise AuditError(f"the copy does not verify ({report.first_bad}); the backup was not kept")
+        copy = sqlite3.connect(staging)
+        try:
+            copy.execute("PRAGMA journal_mode=DELETE")  # one self-contained file, no write-ahead log beside it
+        finally:
+            copy.close()
         os.replace(staging, path)
     except sqlite3.Error as err:
         raise StoreError(f"--to {path}: cannot write the backup ({err})") from None
