@@ -140,7 +140,8 @@ def test_window_settings_take_every_result_key_the_windows_use() -> None:
     # returns are made before the windows, alerts are evaluated after them, compute never changes a
     # result: every other key of Config must reach the workers, so a new key cannot be forgotten
     names = {field.name for field in fields(WindowSettings)} - {"rolling"}
-    assert names == set(Config.model_fields) - {"returns", "alerts", "compute"}
+    # [checks] warns or refuses before the work and never reaches the windows either
+    assert names == set(Config.model_fields) - {"returns", "alerts", "compute", "checks"}
     config = Config(
         window=90,
         step=3,
