@@ -30,7 +30,12 @@ from riskshape_service.handlers import install_handlers
 from riskshape_service.keycache import KeyCache
 from riskshape_service.logs import LOGGER_NAME, stamp_request_ids
 from riskshape_service.metrics import ServiceMetrics
-from riskshape_service.middleware import CAUTION_HEADER, CAUTION_HEADER_VALUE, RequestContextMiddleware
+from riskshape_service.middleware import (
+    CAUTION_HEADER,
+    CAUTION_HEADER_VALUE,
+    JsonDepthMiddleware,
+    RequestContextMiddleware,
+)
 from riskshape_service.prepared import PreparedBodies
 from riskshape_service.ratelimit import RateLimiter
 from riskshape_service.readpath import LatestFastPath
@@ -147,7 +152,13 @@ def create_app(settings: ServiceSettings | None = None) -> FastAPI:
         app.include_router(module.make_router(settings))
     app.add_middleware(LatestFastPath, context=context)  # innermost: prepared latest states before routing
     mount_console(app, settings)
+    app.add_middleware(JsonDepthMiddleware, max_depth=settings.max_json_depth)  # inside the size limit
     app.add_middleware(RequestBodyLimitMiddleware, max_body_size=settings.max_body_bytes)
-    app.add_middleware(RequestContextMiddleware, metrics=service_metrics, max_body_bytes=settings.max_body_bytes)
+    app.add_middleware(
+        RequestContextMiddleware,
+        metrics=service_metrics,
+        max_body_bytes=settings.max_body_bytes,
+        cors_origins=settings.cors_origins,
+    )
     app.openapi = lambda: _openapi(app)  # type: ignore[method-assign]
     return app

@@ -9,9 +9,6 @@ since a later day may already have been computed).
 
 from __future__ import annotations
 
-import csv
-import io
-
 import pandas as pd
 
 from riskshape import DataError, csv_table, validate_prices
@@ -69,28 +66,16 @@ def table_from_json(body: PricesIn) -> tuple[pd.DataFrame, str]:
     return pd.DataFrame({"date": dates, **columns}), "wide"
 
 
-def table_from_csv(raw: bytes) -> pd.DataFrame:
+def table_from_csv(raw: bytes, *, max_assets: int, max_rows: int) -> pd.DataFrame:
     """The raw table of a CSV body (wide: ``date`` then one column per asset; or long:
-    ``date,asset,price``); line 1 is the header.
+    ``date,asset,price``); line 1 is the header. At most ``max_assets`` asset columns and ``max_rows`` lines.
 
     Raises
     ------
     DataError
         If the body is not UTF-8 text, is not well-formed CSV, or its dates are out of order.
     """
-    try:
-        text = raw.decode("utf-8-sig")
-    except UnicodeDecodeError as err:
-        raise DataError(f"{CSV_SOURCE}: not UTF-8 text (byte {err.start}); send the CSV encoded as UTF-8") from None
-    if not text.strip():
-        raise DataError(f"{CSV_SOURCE}: empty; send a header line (date, then one column per asset) and data lines")
-    try:
-        table = csv_table(io.StringIO(text))
-    except (pd.errors.ParserError, pd.errors.EmptyDataError, csv.Error, ValueError) as err:
-        message = " ".join(str(err).split())
-        raise DataError(
-            f"{CSV_SOURCE}: malformed CSV ({message}); use one header line and the same number of fields on every line"
-        ) from None
+    table = csv_table(raw, name=CSV_SOURCE, max_assets=max_assets, max_rows=max_rows)
     if table.empty:
         raise DataError(f"{CSV_SOURCE}: a header but no data lines; add one line per date")
     lower = {str(c).strip().lower(): c for c in table.columns}
@@ -99,8 +84,25 @@ def table_from_csv(raw: bytes) -> pd.DataFrame:
     return table
 
 
-def validated_prices(table: pd.DataFrame, source: str, first_line: int, row_label: str) -> pd.DataFrame:
+def validated_prices(
+    table: pd.DataFrame,
+    source: str,
+    first_line: int,
+    row_label: str,
+    *,
+    max_assets: int,
+    max_rows: int,
+) -> pd.DataFrame:
     """Validate a raw table through :func:`riskshape.prices.validate_prices` (one date and one asset are
     enough: a new portfolio's first prices need three assets, which the ingest checks).
     """
-    return validate_prices(table, source=source, min_rows=1, first_line=first_line, row_label=row_label, min_assets=1)
+    return validate_prices(
+        table,
+        source=source,
+        min_rows=1,
+        first_line=first_line,
+        row_label=row_label,
+        min_assets=1,
+        max_assets=max_assets,
+        max_rows=max_rows,
+    )

@@ -389,6 +389,11 @@ class IngestOut(Cautioned):
     alerts: list[AlertOut] = Field(description="alerts raised by this request")
     run_id: int | None = Field(description="the run recorded for this request (null when nothing was new)")
     note: str = Field(description="what happened, in words")
+    warnings: list[str] = Field(
+        default_factory=list,
+        description="data-quality findings of the prices sent (constant assets, windows with every asset left "
+        "out, one-day moves beyond [checks] max_day_ratio), each naming the asset and date",
+    )
 
 
 # -- audit ---------------------------------------------------------------------------------------

@@ -49,6 +49,16 @@ class ServiceSettings(BaseModel):
     key_recheck_seconds : float
         Age past which a worker reads an API key again from the archive before trusting it: a key
         revoked through any process is refused by every worker within this time (0: every request).
+    max_request_assets : int
+        Most assets one ingest request may carry (422 beyond it, before a price is parsed).
+    max_request_rows : int
+        Most rows (CSV lines, JSON ``rows`` or ``wide`` entries) one ingest request may carry.
+    max_json_depth : int
+        Deepest nesting of arrays and objects accepted in a JSON body (422 beyond it, counted in the
+        raw bytes before the body is parsed; a prices body nests 4 deep).
+    cors_origins : tuple of str
+        Origins (``https://host:port``) whose browser pages may call the service; requests from any
+        other origin are refused (403). Read from a comma-separated ``RISKSHAPE_CORS_ORIGINS``.
     console_secret : str or None
         Key that signs the browser console's session cookies (at least 32 characters). Several
         service processes over one archive need the same one; without it each process makes a
@@ -66,6 +76,10 @@ class ServiceSettings(BaseModel):
     log_level: Literal["debug", "info", "warning", "error"] = "info"
     result_cache_size: int = Field(128, ge=0)
     key_recheck_seconds: float = Field(1.0, ge=0, le=60)
+    max_request_assets: int = Field(5000, ge=3)
+    max_request_rows: int = Field(200_000, ge=1)
+    max_json_depth: int = Field(32, ge=4, le=256)
+    cors_origins: tuple[str, ...] = ()
     console_secret: str | None = Field(None, min_length=32, repr=False)
 
     def __init__(self, **data: Any) -> None:
@@ -92,5 +106,7 @@ class ServiceSettings(BaseModel):
             key = f"RISKSHAPE_{name.upper()}"
             if key in env:
                 data[name] = env[key]
+        if isinstance(data.get("cors_origins"), str):
+            data["cors_origins"] = tuple(o.strip() for o in data["cors_origins"].split(",") if o.strip())
         data.update({k: v for k, v in overrides.items() if v is not None})
         return cls._build(data, "environment (RISKSHAPE_*)")

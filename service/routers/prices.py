@@ -16,6 +16,7 @@ from fastapi.exceptions import RequestValidationError
 from pydantic import ValidationError
 from starlette.concurrency import run_in_threadpool
 
+from riskshape import check_quality
 from riskshape.daily import IngestReport
 from riskshape_service.bodies import CSV_SOURCE, JSON_SOURCE, table_from_csv, table_from_json, validated_prices
 from riskshape_service.convert import alert_out
@@ -85,7 +86,7 @@ def _json_body(raw: bytes) -> PricesIn:
         raise RequestValidationError([{**e, "loc": ("body", *e["loc"])} for e in err.errors()]) from None
 
 
-def _ingest_out(report: IngestReport) -> IngestOut:
+def _ingest_out(report: IngestReport, warnings: list[str]) -> IngestOut:
     return IngestOut(
         portfolio=report.portfolio,
         prices_added=report.prices_added,
@@ -98,6 +99,7 @@ def _ingest_out(report: IngestReport) -> IngestOut:
         alerts=[alert_out(a) for a in report.alerts],
         run_id=report.run_id,
         note=report.note,
+        warnings=warnings,
     )
 
 
@@ -148,14 +150,28 @@ def make_router(settings: ServiceSettings) -> APIRouter:
             table, layout = table_from_json(_json_body(raw))
             source, first, label = f"{JSON_SOURCE} ({layout})", 0, ("rows" if layout == "long" else "wide")
         elif media == "text/csv":
-            table = await run_in_threadpool(table_from_csv, raw)
+            table = await run_in_threadpool(
+                table_from_csv, raw, max_assets=settings.max_request_assets, max_rows=settings.max_request_rows
+            )
             source, first, label = CSV_SOURCE, 2, "line"
         else:
             raise HTTPException(
                 status_code=415,
                 detail=f"content type {media or 'none'!r} is not accepted; send application/json or text/csv",
             )
-        prices = await run_in_threadpool(validated_prices, table, source, first, label)
+        prices = await run_in_threadpool(
+            lambda: validated_prices(
+                table,
+                source,
+                first,
+                label,
+                max_assets=settings.max_request_assets,
+                max_rows=settings.max_request_rows,
+            )
+        )
+
+        # checked before anything is archived: with [checks] quality = "refuse" a finding is a 422
+        findings = await run_in_threadpool(check_quality, prices, context.config, source)
 
         def work() -> IngestReport:
             return context.ingestor.ingest(store, name, prices, correction=correction, source=source)
@@ -166,6 +182,6 @@ def make_router(settings: ServiceSettings) -> APIRouter:
         context.metrics.price_cells.labels("correction").inc(report.corrections)
         for alert in report.alerts:
             context.metrics.alerts.labels(alert.severity).inc()
-        return _ingest_out(report)
+        return _ingest_out(report, [str(f) for f in findings])
 
     return router

@@ -31,6 +31,9 @@ if TYPE_CHECKING:
     from riskshape.config import ComputeConfig as ComputeConfig
     from riskshape.config import Config as Config
     from riskshape.config import store_url_from_env as store_url_from_env
+    from riskshape.cost import CostEstimate as CostEstimate
+    from riskshape.cost import check_cost as check_cost
+    from riskshape.cost import estimate_cost as estimate_cost
     from riskshape.errors import AccessError as AccessError
     from riskshape.errors import AuditError as AuditError
     from riskshape.errors import ConfigError as ConfigError
@@ -43,6 +46,8 @@ if TYPE_CHECKING:
     from riskshape.prices import csv_table as csv_table
     from riskshape.prices import read_prices as read_prices
     from riskshape.prices import validate_prices as validate_prices
+    from riskshape.quality import QualityFinding as QualityFinding
+    from riskshape.quality import check_quality as check_quality
 
 _EXPORTS = {
     "CAUTION": "riskshape.caution",
@@ -54,6 +59,11 @@ _EXPORTS = {
     "read_prices": "riskshape.prices",
     "validate_prices": "riskshape.prices",
     "csv_table": "riskshape.prices",
+    "check_quality": "riskshape.quality",
+    "QualityFinding": "riskshape.quality",
+    "check_cost": "riskshape.cost",
+    "estimate_cost": "riskshape.cost",
+    "CostEstimate": "riskshape.cost",
     "archive_run": "riskshape.archive",
     "reproduce_alert": "riskshape.archive",
     "RiskshapeError": "riskshape.errors",
@@ -78,6 +88,11 @@ __all__ = [
     "read_prices",
     "validate_prices",
     "csv_table",
+    "check_quality",
+    "QualityFinding",
+    "check_cost",
+    "estimate_cost",
+    "CostEstimate",
     "archive_run",
     "reproduce_alert",
     "RiskshapeError",

@@ -22,7 +22,7 @@ from contextvars import ContextVar
 from functools import lru_cache
 from importlib import resources
 from pathlib import Path
-from typing import Any
+from typing import Any, Literal
 
 from pydantic import BaseModel, ConfigDict, Field, ValidationError, model_validator
 from pydantic_core import InitErrorDetails, PydanticCustomError
@@ -47,6 +47,7 @@ else:  # pragma: no cover - exercised on Python 3.10 only
 __all__ = [
     "Config",
     "ComputeConfig",
+    "ChecksConfig",
     "AlertsConfig",
     "RuleConfig",
     "format_validation_error",
@@ -159,6 +160,23 @@ class DailyConfig(_Frozen):
     )
 
 
+class ChecksConfig(_Frozen):
+    """What is checked before any work: data quality and the cost of the run; never changes a result.
+
+    ``quality`` says whether a data-quality finding (a constant asset, a window with every asset left
+    out, a one-day move beyond ``max_day_ratio``) is a warning or refuses the run. A one-day move is
+    beyond the bound when the price is more than ``max_day_ratio`` times, or less than its inverse
+    times, the previous price of that asset (default 2: a doubling or a halving in one day). The
+    cost of a run is estimated before any window is computed and refused above ``budget_seconds`` or
+    ``budget_memory_mb``.
+    """
+
+    quality: Literal["warn", "refuse"] = "warn"
+    max_day_ratio: float = Field(2.0, gt=1.0, description="largest one-day price ratio before a likely bad print")
+    budget_seconds: float = Field(1800.0, gt=0, description="largest estimated run time accepted (seconds)")
+    budget_memory_mb: float = Field(4096.0, gt=0, description="largest estimated peak memory accepted (MB)")
+
+
 class RuleConfig(_Frozen):
     """One alert rule over one summary column.
 
@@ -269,8 +287,8 @@ class Config(_Frozen):
         window are points in R^n (one coordinate per asset).
     standardize_cloud : bool
         For ``point_cloud``: divide each asset's returns by its window standard deviation.
-    compute, alerts, daily
-        See :class:`ComputeConfig`, :class:`AlertsConfig` and :class:`DailyConfig`.
+    compute, alerts, daily, checks
+        See :class:`ComputeConfig`, :class:`AlertsConfig`, :class:`DailyConfig` and :class:`ChecksConfig`.
 
     Examples
     --------
@@ -291,6 +309,7 @@ class Config(_Frozen):
     compute: ComputeConfig = ComputeConfig()
     alerts: AlertsConfig = AlertsConfig()
     daily: DailyConfig = DailyConfig()
+    checks: ChecksConfig = ChecksConfig()
 
     @model_validator(mode="before")
     @classmethod
@@ -380,15 +399,16 @@ class Config(_Frozen):
     @classmethod
     def from_mapping(cls, data: Mapping[str, Any], where: str = "configuration") -> Config:
         """Build a Config from the nested mapping a TOML file holds (``monitor``, ``compute``, ``alerts``,
-        ``daily``).
+        ``daily``, ``checks``).
         """
-        unknown = set(data) - {"monitor", "compute", "alerts", "daily"}
+        unknown = set(data) - {"monitor", "compute", "alerts", "daily", "checks"}
         if unknown:
             raise ConfigError(
-                f"{where}: unknown section(s) {sorted(unknown)}; allowed are [monitor], [compute], [alerts], [daily]"
+                f"{where}: unknown section(s) {sorted(unknown)}; "
+                "allowed are [monitor], [compute], [alerts], [daily], [checks]"
             )
         flat: dict[str, Any] = dict(data.get("monitor", {}))
-        for section in ("compute", "alerts", "daily"):
+        for section in ("compute", "alerts", "daily", "checks"):
             if section in data:
                 flat[section] = data[section]
         built: Config = cls._build(flat, where)
@@ -397,7 +417,7 @@ class Config(_Frozen):
     @staticmethod
     def _file_key(loc: tuple[Any, ...]) -> str:
         dotted = ".".join(str(p) for p in loc)
-        return dotted if not loc or loc[0] in ("compute", "alerts", "daily") else f"monitor.{dotted}"
+        return dotted if not loc or loc[0] in ("compute", "alerts", "daily", "checks") else f"monitor.{dotted}"
 
     def to_mapping(self) -> dict[str, Any]:
         """The nested mapping :meth:`from_mapping` reads (round-trips)."""
@@ -405,7 +425,8 @@ class Config(_Frozen):
         compute = dumped.pop("compute")
         alerts = dumped.pop("alerts")
         daily = dumped.pop("daily")
-        return {"monitor": dumped, "compute": compute, "alerts": alerts, "daily": daily}
+        checks = dumped.pop("checks")
+        return {"monitor": dumped, "compute": compute, "alerts": alerts, "daily": daily, "checks": checks}
 
     def replace(self, **changes: Any) -> Config:
         """A copy with some fields changed, validated like a new Config."""
@@ -415,7 +436,7 @@ class Config(_Frozen):
 
     def hash(self) -> str:
         """SHA-256 (hex) of the canonical JSON of every setting that can change a result."""
-        payload = self.model_dump(mode="json", exclude={"compute", "daily"})
+        payload = self.model_dump(mode="json", exclude={"compute", "daily", "checks"})
         # Hashed under its old name: archived runs are looked up by this hash, and they were stored
         # when the key was called `engine`; renaming it must not change the hash of any configuration.
         payload["engine"] = payload.pop("rips_backend")

@@ -23,7 +23,9 @@ which is checked again where it enters.
 from __future__ import annotations
 
 import hashlib
+import io
 import os
+import unicodedata
 import warnings
 from collections.abc import Callable
 from pathlib import Path
@@ -33,6 +35,7 @@ import numpy as np
 import pandas as pd
 
 from riskshape.errors import DataError, DataQualityWarning
+from riskshape.price_text import MAX_ASSETS, MAX_ROWS, check_csv_text, decode_price_bytes
 from riskshape.types import FloatArray, IntArray
 
 __all__ = [
@@ -44,6 +47,8 @@ __all__ = [
     "hash_prices",
     "MIN_ASSETS",
     "MAX_NAME",
+    "MAX_ASSETS",
+    "MAX_ROWS",
 ]
 
 MIN_ASSETS = 3
@@ -107,9 +112,11 @@ def read_prices(source: str | os.PathLike[str], min_rows: int = 2) -> ValidPrice
     suffix = path.suffix.lower()
     if not path.exists():
         raise DataError(f"{path}: no such file; give the path of a CSV or Parquet price table")
+    if path.is_dir():
+        raise DataError(f"{path}: a folder, not a file; give the path of a CSV or Parquet price table")
     try:
-        if suffix == ".csv":
-            raw = csv_table(path)
+        if suffix in {".csv", ".txt", ".gz"}:
+            raw = csv_table(path.read_bytes(), name=str(path))
             first_line = 2  # line 1 holds the header
         elif suffix in {".parquet", ".pq"}:
             raw = pd.read_parquet(path)
@@ -120,20 +127,31 @@ def read_prices(source: str | os.PathLike[str], min_rows: int = 2) -> ValidPrice
         raise
     except (pd.errors.ParserError, pd.errors.EmptyDataError, UnicodeDecodeError, OSError, ValueError) as err:
         raise DataError(f"{path}: cannot read it as {suffix[1:]} ({' '.join(str(err).split())})") from None
-    label = "line" if suffix == ".csv" else "row"
+    label = "line" if suffix != ".parquet" and suffix != ".pq" else "row"
     return validate_prices(raw, source=str(path), min_rows=min_rows, first_line=first_line, row_label=label)
 
 
-def csv_table(source: str | os.PathLike[str] | IO[str]) -> pd.DataFrame:
-    """The cells of a CSV price table as text, its header row taken exactly as written.
+def csv_table(
+    source: str | os.PathLike[str] | IO[str] | bytes,
+    name: str | None = None,
+    max_assets: int = MAX_ASSETS,
+    max_rows: int = MAX_ROWS,
+) -> pd.DataFrame:
+    r"""The cells of a CSV price table as text, its header row taken exactly as written.
 
-    pandas would rename a repeated column name ("A.1") or a blank one ("Unnamed: 2") and hide both
-    from validation, so the header row is read as a data row and applied here.
+    The bytes are decoded and checked first (:mod:`riskshape.price_text`: gzip by its content, a
+    byte-order mark, a semicolon or tab delimiter, the size limits, fields per line). pandas would
+    rename a repeated column name ("A.1") or a blank one ("Unnamed: 2") and hide both from
+    validation, so the header row is read as a data row and applied here.
 
     Parameters
     ----------
-    source : path-like or text stream
-        The CSV file or its text.
+    source : path-like, text stream or bytes
+        The CSV file, its text or its bytes.
+    name : str, optional
+        Name used in messages (default: the path, or "prices").
+    max_assets, max_rows : int
+        The most asset columns and data lines accepted.
 
     Returns
     -------
@@ -142,10 +160,43 @@ def csv_table(source: str | os.PathLike[str] | IO[str]) -> pd.DataFrame:
 
     Raises
     ------
-    pandas.errors.ParserError, pandas.errors.EmptyDataError, ValueError
-        If the text is not well-formed CSV (callers turn these into a DataError naming the source).
+    DataError
+        If the bytes are not CSV text riskshape reads, or a limit is passed (the message names the
+        file, the line and the fix).
+
+    Examples
+    --------
+    >>> csv_table(b"date;QA01;QA02;QA03\n2031-01-02;1;2;3\n").columns.tolist()
+    ['date', 'QA01', 'QA02', 'QA03']
     """
-    cells = pd.read_csv(source, dtype=str, keep_default_na=False, skipinitialspace=True, header=None)
+    if isinstance(source, (bytes, bytearray)):
+        label = name or "prices"
+        text = decode_price_bytes(bytes(source), label)
+    elif hasattr(source, "read"):
+        label = name or "prices"
+        content = source.read()
+        text = decode_price_bytes(content, label) if isinstance(content, bytes) else content
+    else:
+        label = name or str(source)
+        try:
+            text = decode_price_bytes(Path(source).read_bytes(), label)
+        except OSError as err:
+            raise DataError(f"{label}: cannot read it ({err.strerror}); check the path and its permissions") from None
+    checked = check_csv_text(text, label, max_assets=max_assets, max_rows=max_rows)
+    try:
+        cells = pd.read_csv(
+            io.StringIO(checked.text),
+            sep=checked.delimiter,
+            dtype=str,
+            keep_default_na=False,
+            skipinitialspace=True,
+            header=None,
+        )
+    except (pd.errors.ParserError, pd.errors.EmptyDataError, ValueError) as err:
+        raise DataError(
+            f"{label}: not well-formed CSV ({' '.join(str(err).split())}); use one header line and one field per "
+            "column on every line"
+        ) from None
     raw = cells.iloc[1:].reset_index(drop=True)
     raw.columns = [str(c).strip() for c in cells.iloc[0]]
     return raw
@@ -158,6 +209,8 @@ def validate_prices(
     first_line: int = 1,
     row_label: str = "row",
     min_assets: int = MIN_ASSETS,
+    max_assets: int = MAX_ASSETS,
+    max_rows: int = MAX_ROWS,
 ) -> ValidPrices:
     """Validate a price table in any accepted layout and return it wide.
 
@@ -176,6 +229,8 @@ def validate_prices(
         How rows are numbered in messages (``line 2`` is the first data line of a CSV file).
     min_assets : int
         The fewest asset columns accepted (a day's feed for an existing portfolio may carry one).
+    max_assets, max_rows : int
+        The most assets and rows accepted (before any price is parsed).
 
     Returns
     -------
@@ -187,6 +242,12 @@ def validate_prices(
     DataError
         On any violation listed in the module notes.
     """
+    if len(table) > max_rows:
+        raise DataError(f"{source}: {len(table)} {row_label}s, more than the limit of {max_rows}; send fewer at once")
+    if table.shape[1] - 1 > max_assets:
+        raise DataError(
+            f"{source}: {table.shape[1] - 1} asset columns, more than the limit of {max_assets}; split the portfolio"
+        )
     frame = _to_wide(table, source, first_line, row_label)
     dates = frame.index
     lines = frame["__line__"].to_numpy()
@@ -203,6 +264,15 @@ def validate_prices(
         raise DataError(
             f"{source}: asset name {long_names[0][:40]!r}... is longer than {MAX_NAME} characters; shorten it"
         )
+    for name in frame.columns:
+        bad = next((ch for ch in str(name) if unicodedata.category(ch) in {"Cc", "Cf", "Zl", "Zp"}), None)
+        if bad is not None:
+            raise DataError(
+                f"{source}: asset name {str(name)[:60]!r} holds a control character ({bad!r}, e.g. a line break or "
+                "a tab); a name is one line of printable text, rename it"
+            )
+    if frame.shape[1] > max_assets:
+        raise DataError(f"{source}: {frame.shape[1]} assets, more than the limit of {max_assets}; split the portfolio")
     if frame.shape[1] < min_assets:
         raise DataError(
             f"{source}: {frame.shape[1]} asset column(s) found, at least {min_assets} are needed "
@@ -376,8 +446,10 @@ def _parse_prices(column: pd.Series, where: Callable[[int], str]) -> FloatArray:
         bad = np.isnan(numbers) & ~missing
         if bad.any():
             i = int(np.flatnonzero(bad)[0])
+            comma = "; write a decimal point, not a comma" if "," in str(column.iloc[i]) else ""
             raise DataError(
                 f"{where(i)}: {column.iloc[i]!r} is not a number; write a price like 101.25 or leave the cell empty"
+                + comma
             )
     present = ~np.isnan(numbers)
     infinite = present & ~np.isfinite(numbers)

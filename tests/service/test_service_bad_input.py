@@ -74,8 +74,8 @@ def test_json_that_does_not_fit_the_schema(client: TestClient, auth: Auth, portf
 @pytest.mark.parametrize(
     "text, words",
     [
-        (b"date,A,B,C\n2031-01-02,1,2\n2031-01-03,1,2,3,4\n", ("malformed CSV",)),
-        (b"\xff\xfe\x00d\x00a", ("not UTF-8",)),
+        (b"date,A,B,C\n2031-01-02,1,2\n2031-01-03,1,2,3,4\n", ("line 2 has 3 fields",)),
+        (b"date,A\xe9,B,C\n2031-01-02,1,2,3\n", ("line 1: byte 0xe9", "not UTF-8")),
         (b"", ("empty",)),
         (b"date,A,B,C\n", ("no data lines",)),
         (b"day,A,B,C\n2031-01-02,1,2,3\n", ("no 'date' column",)),

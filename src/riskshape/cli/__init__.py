@@ -28,6 +28,7 @@ COMMANDS: dict[str, str] = {
     "ingest": "riskshape.cli.daily:ingest",
     "days": "riskshape.cli.daily:days",
     "assets": "riskshape.cli.daily:assets",
+    "backup": "riskshape.cli.backup:backup",
 }
 
 

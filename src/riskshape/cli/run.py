@@ -6,13 +6,16 @@ from pathlib import Path
 
 import click
 
-from riskshape import CAUTION, Config, DataError, archive_run, monitor, read_prices
+from riskshape import CAUTION, Config, DataError, archive_run, check_cost, check_quality, monitor, read_prices
 from riskshape.cli.progress import progress_bar
 from riskshape.outputs import write_run
 from riskshape.store import open_store
 from riskshape.types import ExecutorKind
 
 __all__ = ["run", "load_config"]
+
+SHOWN_FINDINGS = 10
+"""Data-quality findings printed; the manifest lists every one."""
 
 
 def load_config(path: Path | None) -> Config:
@@ -68,9 +71,11 @@ def run(
     prices = read_prices(prices_path, min_rows=config.window + 1)
     if out_dir.exists() and not out_dir.is_dir():
         raise DataError(f"--out {out_dir}: exists and is not a folder; give a folder path")
+    check_cost(prices.shape[1], len(prices), config, source=str(prices_path))
+    findings = check_quality(prices, config, source=str(prices_path))
     with progress_bar("windows") as tick:
         result = monitor(prices, config, progress=tick)
-    files = write_run(result, out_dir, source=str(prices_path))
+    files = write_run(result, out_dir, source=str(prices_path), data_quality=[str(f) for f in findings])
     # the archive is written once the run folder is complete
     store_url = store_url or f"sqlite:///{(out_dir / 'riskshape.sqlite').resolve()}"
     with open_store(store_url) as store:
@@ -79,6 +84,10 @@ def run(
         f"{len(result.window_ends)} windows of {prices.shape[1]} assets "
         f"({result.window_ends[0].date()} to {result.window_ends[-1].date()})"
     )
+    for finding in findings[:SHOWN_FINDINGS]:
+        click.echo(f"warning:   {finding}")
+    if len(findings) > SHOWN_FINDINGS:
+        click.echo(f"warning:   ... and {len(findings) - SHOWN_FINDINGS} more data-quality finding(s), in the manifest")
     click.echo(f"features:  {files.features_csv}  ({files.features_parquet.name})")
     click.echo(f"diagrams:  {files.diagrams}")
     click.echo(f"left out:  {files.left_out}")

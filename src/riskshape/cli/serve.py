@@ -63,13 +63,34 @@ def worker_app() -> Any:
     show_default=True,
     help="Worker processes over the one archive; each answers from the archive's current state.",
 )
-def serve(store_url: str, host: str, port: int, config_path: str | None, workers: int) -> None:
+@click.option(
+    "--tls-cert",
+    type=click.Path(dir_okay=False, exists=True),
+    default=None,
+    help="PEM certificate (chain) to serve HTTPS; give --tls-key with it.",
+)
+@click.option(
+    "--tls-key",
+    type=click.Path(dir_okay=False, exists=True),
+    default=None,
+    help="PEM private key of --tls-cert.",
+)
+def serve(
+    store_url: str,
+    host: str,
+    port: int,
+    config_path: str | None,
+    workers: int,
+    tls_cert: str | None,
+    tls_key: str | None,
+) -> None:
     """Serve the archive over HTTP: series, diagrams, alerts, reviews, price ingest, audit, export.
 
     Other settings come from RISKSHAPE_* environment variables (see riskshape_service.settings.ServiceSettings).
     Logs are JSON lines on standard error. With --workers N, N processes share the port and the
     archive: a write through one is seen by every one at its next request; rate limits are counted
-    per process, so a key may make up to N times its limit in all.
+    per process, so a key may make up to N times its limit in all. With --tls-cert and --tls-key
+    the service speaks HTTPS only (uvicorn's ssl_certfile and ssl_keyfile).
     """
     import uvicorn
 
@@ -77,6 +98,8 @@ def serve(store_url: str, host: str, port: int, config_path: str | None, workers
     from riskshape_service.logs import configure_logging
     from riskshape_service.settings import ServiceSettings
 
+    if (tls_cert is None) != (tls_key is None):
+        raise click.UsageError("give --tls-cert and --tls-key together (or neither, for plain HTTP)")
     if config_path is not None:
         config_path = str(Path(config_path).expanduser().resolve())
     settings = ServiceSettings.from_env(store_url=store_url, config_path=config_path)
@@ -86,7 +109,9 @@ def serve(store_url: str, host: str, port: int, config_path: str | None, workers
     configure_logging(settings.log_level)
     click.echo(CAUTION, err=True)
     click.echo(
-        f"serving {settings.store_url} on http://{host}:{port} with {workers} worker(s) (docs at /docs)", err=True
+        f"serving {settings.store_url} on {'https' if tls_cert else 'http'}://{host}:{port} "
+        f"with {workers} worker(s) (docs at /docs)",
+        err=True,
     )
     # the workers make their app from the environment: hand them the settings this command resolved
     os.environ["RISKSHAPE_STORE_URL"] = settings.store_url
@@ -101,4 +126,6 @@ def serve(store_url: str, host: str, port: int, config_path: str | None, workers
         log_config=None,
         access_log=False,
         log_level=settings.log_level,
+        ssl_certfile=tls_cert,
+        ssl_keyfile=tls_key,
     )

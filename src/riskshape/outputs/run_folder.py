@@ -10,6 +10,7 @@ import json
 import os
 import shutil
 import tempfile
+from collections.abc import Sequence
 from dataclasses import dataclass
 from datetime import datetime, timezone
 from pathlib import Path
@@ -108,7 +109,9 @@ def run_manifest(result: MonitorResult, source: str) -> dict[str, Any]:
     }
 
 
-def write_run(result: MonitorResult, out_dir: str | os.PathLike[str], source: str) -> RunFiles:
+def write_run(
+    result: MonitorResult, out_dir: str | os.PathLike[str], source: str, data_quality: Sequence[str] = ()
+) -> RunFiles:
     """Write a run's results into ``out_dir`` (created if needed), all or nothing.
 
     Parameters
@@ -117,6 +120,8 @@ def write_run(result: MonitorResult, out_dir: str | os.PathLike[str], source: st
     out_dir : path-like
     source : str
         Where the prices came from (recorded in the manifest).
+    data_quality : sequence of str
+        Data-quality findings of the prices (:func:`riskshape.check_quality`), recorded in the manifest.
 
     Returns
     -------
@@ -158,7 +163,9 @@ def write_run(result: MonitorResult, out_dir: str | os.PathLike[str], source: st
         result.features.to_parquet(staging / "features.parquet")
         diagrams_table(result).to_parquet(staging / "diagrams.parquet", index=False)
         result.left_out.to_csv(staging / "left_out.csv", index=False)
-        (staging / "manifest.json").write_text(json.dumps(run_manifest(result, source), indent=2) + "\n")
+        (staging / "manifest.json").write_text(
+            json.dumps({**run_manifest(result, source), "data_quality": list(data_quality)}, indent=2) + "\n"
+        )
         target.mkdir(exist_ok=True)
         for item in staging.iterdir():
             os.replace(item, target / item.name)

@@ -13,6 +13,8 @@ from typing import TYPE_CHECKING
 from riskshape._lazy import lazy_exports
 
 if TYPE_CHECKING:
+    from riskshape.store.backup import BackupReport as BackupReport
+    from riskshape.store.backup import backup_store as backup_store
     from riskshape.store.markers import ChangeMarker as ChangeMarker
     from riskshape.store.records import GENESIS_HASH as GENESIS_HASH
     from riskshape.store.records import REVIEW_ACTIONS as REVIEW_ACTIONS
@@ -42,6 +44,8 @@ if TYPE_CHECKING:
     from riskshape.store.store import verify_chain as verify_chain
 
 _EXPORTS = {
+    "backup_store": "riskshape.store.backup",
+    "BackupReport": "riskshape.store.backup",
     "open_store": "riskshape.store.store",
     "Store": "riskshape.store.store",
     "verify_chain": "riskshape.store.store",
