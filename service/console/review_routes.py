@@ -16,7 +16,7 @@ from starlette.concurrency import run_in_threadpool
 from starlette.responses import RedirectResponse, Response
 
 import riskshape.reviews as reviews
-from riskshape import DataError, NotFoundError, RiskshapeError, reproduce_alert
+from riskshape import ConflictError, DataError, NotFoundError, RiskshapeError, reproduce_alert
 from riskshape.outputs import collect_review, export_alerts, render_html
 from riskshape.outputs.palette import SEVERITIES
 from riskshape.selection import to_period
@@ -236,7 +236,23 @@ def make_router() -> APIRouter:
                 role=session.role.value,
             )
         except RiskshapeError as err:
-            typed = {"start": form.get("start", ""), "end": form.get("end", ""), "portfolios": chosen}
+            typed: dict[str, object] = {
+                "start": form.get("start", ""),
+                "end": form.get("end", ""),
+                "portfolios": chosen,
+            }
+            if isinstance(err, ConflictError):  # the open items, each a link to its review form
+                typed["unsettled"] = (
+                    await _run(
+                        reviews.list_queue,
+                        store,
+                        status=reviews.UNSETTLED,
+                        portfolio=chosen or None,
+                        start=form.get("start"),
+                        end=form.get("end"),
+                        limit=None,
+                    )
+                ).items
             return await audit_page(request, session, problem=str(err), status_code=status_of(err), typed=typed)
         log.info("console sign-off", extra={"sign_off": made.id, "key_id": session.key_id})
         return await audit_page(

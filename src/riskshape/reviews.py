@@ -39,6 +39,7 @@ __all__ = [
     "ACTIONS",
     "REVIEW_ROLES",
     "SIGN_OFF_KIND",
+    "UNSETTLED",
     "AlertHistory",
     "QueueItem",
     "QueuePage",

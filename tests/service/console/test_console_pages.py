@@ -102,6 +102,9 @@ def test_a_refused_form_keeps_what_was_typed(client: TestClient, keys: dict[str,
     assert 'name="start" type="date" required value="2000-01-01"' in refused.text
     assert 'name="end" type="date" required value="2100-12-31"' in refused.text
     assert f'name="portfolio" value="{PORTFOLIO}" checked' in refused.text
+    listed = client.get("/v1/alerts", params={"portfolio": PORTFOLIO}, headers={"X-Riskshape-Key": keys["reader"]})
+    for alert in listed.json()["items"]:  # each open item links to its review form
+        assert f'<a href="/console/alerts/{alert["id"]}">Alert {alert["id"]}</a>' in refused.text
     typed = "Spread widening in two sectors"
     no_comment = client.post(
         f"/console/alerts/{first}/review", data={"action": "dismiss", "comment": " ", "csrf": csrf}
