@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import threading
 from collections.abc import Iterator
 from datetime import date
 
@@ -19,7 +20,7 @@ from riskshape.reviews import (
     sign_off,
     status_of,
 )
-from riskshape.store import AlertRecord, Store, chain_head, open_store, verify_chain
+from riskshape.store import AlertRecord, Head, Store, chain_head, open_store, verify_chain
 from tests.kit.archive import make_alerts, manifest, walk_prices
 
 
@@ -183,3 +184,80 @@ def test_sign_off_records_the_head_before_it(store: Store, alerts: tuple[AlertRe
 
 def test_statuses_are_the_published_set() -> None:
     assert STATUSES == ("open", "acknowledged", "escalated", "dismissed", "closed")
+
+
+def test_a_review_landing_before_the_append_is_caught(
+    store: Store, alerts: tuple[AlertRecord, ...], monkeypatch: pytest.MonkeyPatch
+) -> None:
+    north = [a for a in alerts if a.portfolio == "Fund North"]
+    for alert in north:
+        review_alert(store, alert.id, "acknowledge", "Reviewer One")
+    real_append = store.append_event
+
+    def append_after_a_late_escalation(*args: object, **kwargs: object) -> object:
+        # A review that lands after every read sign_off makes before the append itself.
+        review_alert(store, north[0].id, "escalate", "Reviewer Two", "late doubt")
+        monkeypatch.setattr(store, "append_event", real_append)
+        return real_append(*args, **kwargs)  # type: ignore[arg-type]
+
+    monkeypatch.setattr(store, "append_event", append_after_a_late_escalation)
+    head = None
+    with pytest.raises(ConflictError, match=rf"{north[0].id} \(Fund North, rule_a, .*escalated\)"):
+        head = chain_head(store)
+        sign_off(store, "2030-02-01", "2030-02-28", ["Fund North"], "Signer One")
+    assert head is not None and chain_head(store).count == head.count + 1  # the escalation only
+    assert list_sign_offs(store) == ()
+    assert verify_chain(store).ok
+
+
+def test_a_review_sent_during_the_check_waits_for_the_sign_off(
+    store: Store, alerts: tuple[AlertRecord, ...], monkeypatch: pytest.MonkeyPatch
+) -> None:
+    north = [a for a in alerts if a.portfolio == "Fund North"]
+    for alert in north:
+        review_alert(store, alert.id, "acknowledge", "Reviewer One")
+    real_append = store.append_event
+    landed: list[object] = []
+
+    def append_with_a_review_racing(*args: object, check: object = None, **kwargs: object) -> object:
+        def racing_check(head: object) -> object:
+            worker = threading.Thread(
+                target=lambda: landed.append(review_alert(store, north[0].id, "escalate", "Reviewer Two", "racing"))
+            )
+            worker.start()
+            worker.join(timeout=0.5)  # it cannot finish: the sign-off holds the write lock
+            assert landed == []
+            seen = check(head)  # type: ignore[operator]
+            threads.append(worker)
+            return seen
+
+        return real_append(*args, check=racing_check, **kwargs)  # type: ignore[arg-type]
+
+    threads: list[threading.Thread] = []
+    monkeypatch.setattr(store, "append_event", append_with_a_review_racing)
+    signed = sign_off(store, "2030-02-01", "2030-02-28", ["Fund North"], "Signer One")
+    threads[0].join(timeout=30)
+    assert signed.counts["acknowledged"] == len(north) and signed.counts["escalated"] == 0
+    (escalation,) = landed
+    assert escalation.seq == signed.seq + 1  # type: ignore[attr-defined]  # appended after the sign-off
+    assert verify_chain(store).ok
+
+
+def test_an_event_check_refuses_or_adds_what_it_saw(store: Store, alerts: tuple[AlertRecord, ...]) -> None:
+    before = chain_head(store)
+    with pytest.raises(ConflictError, match="refused by its check"):
+        store.append_event("test_note", {"a": 1}, check=lambda head: _refuse("refused by its check"))
+    assert chain_head(store) == before  # nothing half-written
+    seen: list[Head] = []
+
+    def note(head: Head) -> dict[str, object]:
+        seen.append(head)
+        return {"b": head.count}
+
+    made = store.append_event("test_note", {"a": 1}, check=note)
+    assert seen == [before] and made.data == {"a": 1, "b": before.count}
+    assert made.prev_hash == before.head_hash and verify_chain(store).ok
+
+
+def _refuse(message: str) -> None:
+    raise ConflictError(message)

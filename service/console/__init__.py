@@ -27,11 +27,12 @@ def mount_console(app: FastAPI, settings: ServiceSettings) -> None:
     settings : ServiceSettings
         ``console_secret`` signs the session cookies (a random one per process without it).
     """
-    from riskshape_service.console import review_routes, routes
+    from riskshape_service.console import key_routes, review_routes, routes
 
     app.state.console_signer = SessionSigner(settings.console_secret or secrets.token_urlsafe(32))
     app.include_router(routes.make_router())
     app.include_router(review_routes.make_router())
+    app.include_router(key_routes.make_router())
     app.mount(
         "/console/static",
         StaticFiles(packages=[("riskshape_service", "console/static")]),

@@ -85,7 +85,8 @@ def check_form(session: Session | None, form: dict[str, str], permission: Permis
     if not csrf_matches(session, form.get("csrf")):
         raise Refusal(403, "the form's security token is missing or out of date; reload the page and send it again")
     if not may(session.role, permission):
-        raise Refusal(403, f"a {session.role.value} key may not do this; ask for a reviewer key")
+        needed = "an admin" if permission is Permission.admin else "a reviewer"
+        raise Refusal(403, f"a {session.role.value} key may not do this; ask for {needed} key")
     return session
 
 

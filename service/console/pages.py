@@ -15,7 +15,7 @@ from starlette.responses import HTMLResponse
 from riskshape import CAUTION
 from riskshape_service.console.session import Session
 
-__all__ = ["PAGE_HEADERS", "render", "number"]
+__all__ = ["PAGE_HEADERS", "render", "number", "counted"]
 
 PAGE_HEADERS = {
     "Content-Security-Policy": (
@@ -39,6 +39,26 @@ def number(value: object, digits: int = 4) -> str:
     return "n/a" if not math.isfinite(x) else f"{x:.{digits}g}"
 
 
+def counted(n: object, word: str, plural: str | None = None) -> str:
+    """A count and its noun in the right form: ``1 review``, ``3 reviews``, ``0 alerts match``.
+
+    Parameters
+    ----------
+    n : int or sized
+        The count (or a collection, whose length is counted).
+    word : str
+        The noun for one.
+    plural : str, optional
+        The noun for any other count (default ``word`` + "s").
+
+    Returns
+    -------
+    str
+    """
+    count = len(n) if isinstance(n, (list, tuple, dict, set, frozenset)) else int(n)  # type: ignore[call-overload]
+    return f"{count} {word if count == 1 else (plural or word + 's')}"
+
+
 _environment = Environment(
     loader=PackageLoader("riskshape_service", "console/templates"),
     autoescape=select_autoescape(["html"]),
@@ -47,6 +67,7 @@ _environment = Environment(
     lstrip_blocks=True,
 )
 _environment.filters["number"] = number
+_environment.filters["counted"] = counted
 
 
 def render(

@@ -68,7 +68,8 @@ class PortfolioCard:
     window_end: date | None
     n_windows: int
     rules: tuple[RuleRow, ...]
-    trends: tuple[str, ...]
+    trends: tuple[tuple[str, str], ...]
+    """(summary, SVG) of each summary a rule watches, over the latest windows."""
     pending_days: tuple[date, ...] | None
 
 
@@ -183,11 +184,13 @@ def portfolio_card(store: Store, name: str, snapshots: Snapshots, *, trend_windo
     window_end, n_windows, rules = _rule_rows(store, name, snapshots)
     snapshot = snapshots.get(store, name, change_marker(store, name))
     frame = snapshot.frame.iloc[-trend_windows:]
-    trends: tuple[str, ...] = ()
+    trends: tuple[tuple[str, str], ...] = ()
     if len(frame):
         alerts = store.list_alerts(portfolio=name, since=frame.index[0].date(), limit=None).items
         ruled = [r.summary for r in snapshot.config.alerts.rules if r.summary in frame.columns]
-        trends = tuple(_summary_chart(frame, snapshot.config, s, alerts, small=True).svg for s in dict.fromkeys(ruled))
+        trends = tuple(
+            (s, _summary_chart(frame, snapshot.config, s, alerts, small=True).svg) for s in dict.fromkeys(ruled)
+        )
     return PortfolioCard(name, window_end, n_windows, rules, trends, _pending_days(store, name))
 
 

@@ -7,7 +7,7 @@ from __future__ import annotations
 
 import logging
 import re
-from collections.abc import Callable
+from collections.abc import Callable, Mapping
 from typing import Any, TypeVar
 from urllib.parse import parse_qsl
 
@@ -16,7 +16,7 @@ from starlette.concurrency import run_in_threadpool
 from starlette.responses import RedirectResponse, Response
 
 import riskshape.reviews as reviews
-from riskshape import DataError, NotFoundError, RiskshapeError, reproduce_alert
+from riskshape import ConflictError, DataError, NotFoundError, RiskshapeError, reproduce_alert
 from riskshape.outputs import collect_review, export_alerts, render_html
 from riskshape.outputs.palette import SEVERITIES
 from riskshape.selection import to_period
@@ -107,6 +107,7 @@ def make_router() -> APIRouter:
         problem: str = "",
         status_code: int = 200,
         reproduced: object = None,
+        typed: dict[str, str] | None = None,
     ) -> Response:
         store = store_of(request)
         try:
@@ -134,6 +135,7 @@ def make_router() -> APIRouter:
             message=message,
             problem=problem,
             reproduced=reproduced,
+            typed=typed or {},
         )
 
     @router.get("/alerts/{alert_id}")
@@ -156,7 +158,10 @@ def make_router() -> APIRouter:
         try:
             await _run(reviews.review_alert, store, alert_id, action, session.owner, comment, role=session.role.value)
         except RiskshapeError as err:
-            return await alert_page(request, session, alert_id, problem=str(err), status_code=status_of(err))
+            typed = {"action": action, "comment": comment}
+            return await alert_page(
+                request, session, alert_id, problem=str(err), status_code=status_of(err), typed=typed
+            )
         log.info("console review", extra={"alert_id": alert_id, "action": action, "key_id": session.key_id})
         return RedirectResponse(f"{PREFIX}/alerts/{alert_id}?done={action}", status_code=303)
 
@@ -184,7 +189,13 @@ def make_router() -> APIRouter:
         return await audit_page(request, session)
 
     async def audit_page(
-        request: Request, session: Session, *, message: str = "", problem: str = "", status_code: int = 200
+        request: Request,
+        session: Session,
+        *,
+        message: str = "",
+        problem: str = "",
+        status_code: int = 200,
+        typed: Mapping[str, object] | None = None,
     ) -> Response:
         store = store_of(request)
         verification = await _run(verify_chain, store)
@@ -200,6 +211,7 @@ def make_router() -> APIRouter:
             portfolios=portfolios,
             message=message,
             problem=problem,
+            typed=typed or {},
         )
 
     @router.post("/audit/sign-off")
@@ -224,7 +236,24 @@ def make_router() -> APIRouter:
                 role=session.role.value,
             )
         except RiskshapeError as err:
-            return await audit_page(request, session, problem=str(err), status_code=status_of(err))
+            typed: dict[str, object] = {
+                "start": form.get("start", ""),
+                "end": form.get("end", ""),
+                "portfolios": chosen,
+            }
+            if isinstance(err, ConflictError):  # the open items, each a link to its review form
+                typed["unsettled"] = (
+                    await _run(
+                        reviews.list_queue,
+                        store,
+                        status=reviews.UNSETTLED,
+                        portfolio=chosen or None,
+                        start=form.get("start"),
+                        end=form.get("end"),
+                        limit=None,
+                    )
+                ).items
+            return await audit_page(request, session, problem=str(err), status_code=status_of(err), typed=typed)
         log.info("console sign-off", extra={"sign_off": made.id, "key_id": session.key_id})
         return await audit_page(
             request,

@@ -15,7 +15,9 @@ once closed, else ``escalated`` once escalated, else ``dismissed``, else ``ackno
 
 A period is signed off by a chained event of kind ``period_signed_off`` naming the period, the
 portfolios, the counts by status, the signer and the chain head at signing; it is refused while an
-alert of the period is open or escalated.
+alert of the period is open or escalated. The statuses are counted and the head read inside the
+append's write transaction (``Store.append_event(check=...)``), so a review landing meanwhile
+either counts or waits until the sign-off is archived.
 """
 
 from __future__ import annotations
@@ -28,7 +30,7 @@ from typing import cast, get_args
 
 from riskshape.errors import AccessError, ConflictError, DataError
 from riskshape.selection import Period, split_names, to_period
-from riskshape.store import AlertRecord, Head, ReviewRecord, Store, chain_head
+from riskshape.store import AlertRecord, Head, ReviewRecord, Store
 from riskshape.types import AlertStatus
 
 __all__ = [
@@ -37,6 +39,7 @@ __all__ = [
     "ACTIONS",
     "REVIEW_ROLES",
     "SIGN_OFF_KIND",
+    "UNSETTLED",
     "AlertHistory",
     "QueueItem",
     "QueuePage",
@@ -416,28 +419,33 @@ def sign_off(
     names = split_names(portfolios) or tuple(p.name for p in store.list_portfolios())
     for name in names:
         store.get_portfolio(name)  # NotFoundError names an unknown portfolio
-    rows = _matching(store, names, None, None, period)
-    statuses = [status_of(rs) for _, rs in rows]
-    unsettled = [(a, s) for (a, _), s in zip(rows, statuses, strict=True) if s in UNSETTLED]
-    if unsettled:
-        listed = "; ".join(f"{a.id} ({a.portfolio}, {a.rule}, {a.window_end.isoformat()}, {s})" for a, s in unsettled)
-        raise ConflictError(
-            f"cannot sign off {period}: {len(unsettled)} alert(s) still open or escalated: {listed}; review them first"
-        )
-    head = chain_head(store)
-    counts = _count(statuses)
+
+    def check(head: Head) -> dict[str, object]:
+        # Runs under the archive's write lock: no review can land between this count and the append.
+        rows = _matching(store, names, None, None, period)
+        statuses = [status_of(rs) for _, rs in rows]
+        unsettled = [(a, s) for (a, _), s in zip(rows, statuses, strict=True) if s in UNSETTLED]
+        if unsettled:
+            listed = "; ".join(
+                f"{a.id} ({a.portfolio}, {a.rule}, {a.window_end.isoformat()}, {s})" for a, s in unsettled
+            )
+            raise ConflictError(
+                f"cannot sign off {period}: {len(unsettled)} alert(s) still open or escalated: {listed}; "
+                "review them first"
+            )
+        return {"counts": dict(_count(statuses)), "chain_head": {"count": head.count, "hash": head.head_hash}}
+
     event = store.append_event(
         SIGN_OFF_KIND,
         {
             "start": period.start.isoformat(),
             "end": period.end.isoformat(),
             "portfolios": sorted(names),
-            "counts": dict(counts),
             "signer": who,
-            "chain_head": {"count": head.count, "hash": head.head_hash},
         },
         subject=f"{period.start.isoformat()}/{period.end.isoformat()}",
         actor=who,
+        check=check,
     )
     return _sign_off_from(event.id, event.seq, event.entry_hash, event.data, event.recorded_at)
 

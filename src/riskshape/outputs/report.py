@@ -18,10 +18,11 @@ import base64
 import html
 import io
 import json
+from collections.abc import Mapping
 from dataclasses import dataclass
 from datetime import date, datetime, timezone
 from pathlib import Path
-from typing import Literal
+from typing import Any, Literal, cast
 
 import pandas as pd
 
@@ -222,7 +223,9 @@ def collect_review(
             used.add(feats.config_hash)
         latest: dict[str, Run] = {r.config_hash: r for r in store.list_runs(name) if r.config_hash in used}
         runs += sorted(latest.values(), key=lambda r: r.id)
-        corrections += store.list_corrections(name, start=first, end=last)
+        corrections += store.list_corrections(
+            name, start=_first_input_date(store, name, feats.frame, list(latest.values())), end=last
+        )
         for kind in ("window_superseded", "alert_superseded"):
             superseded += [e for e in store.list_events(kind=kind, portfolio=name) if _subject_in(e, first, last)]
     once: dict[str, Run] = {}
@@ -242,6 +245,23 @@ def collect_review(
         superseded=tuple(superseded),
         sign_offs=signed,
     )
+
+
+def _first_input_date(store: Store, name: str, frame: pd.DataFrame, runs: list[Run]) -> date | None:
+    """The earliest price date the period's windows of ``name`` read: a correction from then on changed them.
+
+    A window ending at ``t`` reads the ``window`` returns up to ``t``, so the prices from ``window``
+    archived dates before ``t`` (the longest window of the portfolio's runs in the period). None
+    (no lower bound) when the period holds no window.
+    """
+    lengths = [int(cast(Mapping[str, Any], r.config.get("monitor", {})).get("window", 0)) for r in runs]
+    window = max([n for n in lengths if n > 0], default=0)
+    if not len(frame) or window == 0:
+        return None
+    first_end = pd.Timestamp(min(frame.index))
+    dates = store.read_prices(name, end=first_end.date()).index
+    position = int(dates.searchsorted(first_end, side="right")) - 1
+    return pd.Timestamp(dates[max(position - window, 0)]).date() if len(dates) else None
 
 
 def _subject_in(event: EventRecord, first: date, last: date) -> bool:

@@ -13,7 +13,7 @@ from __future__ import annotations
 import json
 import math
 import re
-from collections.abc import Mapping
+from collections.abc import Callable, Mapping
 from datetime import datetime, timezone
 from typing import Any
 
@@ -25,9 +25,14 @@ from riskshape.store import schema as t
 from riskshape.store.canonical import entry_hash
 from riskshape.store.database import read_transaction, write_transaction
 from riskshape.store.ledger import ledger_head
-from riskshape.store.records import EventRecord
+from riskshape.store.records import EventRecord, Head
 
-__all__ = ["append_event", "list_events", "event_payload"]
+__all__ = ["append_event", "list_events", "event_payload", "EventCheck"]
+
+EventCheck = Callable[[Head], Mapping[str, object] | None]
+"""Called with the ledger head inside the write transaction, before an event is appended; it raises
+to refuse the event, or returns facts added to its payload (what it saw while no other record could
+be appended, so a rule over the archive holds under concurrency)."""
 
 _KIND = re.compile(r"^[a-z][a-z0-9_]{0,31}$")
 MAX_PAYLOAD = 1_000_000
@@ -75,6 +80,7 @@ def append_event(
     subject: str | None = None,
     actor: str | None = None,
     now: datetime | None = None,
+    check: EventCheck | None = None,
 ) -> EventRecord:
     """Append one event to the ledger. See :meth:`riskshape.store.Store.append_event`."""
     if not isinstance(kind, str) or not _KIND.match(kind):
@@ -93,6 +99,10 @@ def append_event(
             if portfolio_id is None:
                 raise NotFoundError(f"portfolio {portfolio!r} is not in the archive")
         seq, prev = ledger_head(connection)
+        if check is not None:
+            seen = check(Head(count=seq, head_hash=prev))
+            if seen:
+                payload = event_payload({**data, **seen})
         next_id = int(connection.execute(sa.select(sa.func.coalesce(sa.func.max(t.events.c.id), 0))).scalar_one()) + 1
         row: dict[str, Any] = {
             "id": next_id,

@@ -370,6 +370,7 @@ class Store:
         portfolio: str | None = None,
         subject: str | None = None,
         actor: str | None = None,
+        check: events.EventCheck | None = None,
     ) -> EventRecord:
         """Append a chained event (neither an alert nor a review) to the ledger.
 
@@ -385,6 +386,11 @@ class Store:
             What it concerns within the portfolio (a date, an alert id, a period).
         actor : str, optional
             Who recorded it (the owner of the API key, or the person at the command line).
+        check : callable, optional
+            Called with the ledger's :class:`Head` inside the write transaction, while no other
+            record can be appended; it raises to refuse the event (nothing is written), or returns
+            facts added to ``data`` (what it read under the lock). The store's reads see the
+            archive as it is then (the sign-off of :mod:`riskshape.reviews` uses it).
 
         Returns
         -------
@@ -397,7 +403,9 @@ class Store:
         NotFoundError
             If ``portfolio`` is not in the archive.
         """
-        return events.append_event(self.engine, kind, data, portfolio=portfolio, subject=subject, actor=actor)
+        return events.append_event(
+            self.engine, kind, data, portfolio=portfolio, subject=subject, actor=actor, check=check
+        )
 
     @_database_errors
     def list_events(

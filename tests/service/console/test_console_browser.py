@@ -261,3 +261,32 @@ def _settle_others(console: Console, window_end: str, alert_name: str | None) ->
             answer = client.post(f"/v1/alerts/{alert_id}/reviews", json={"action": "acknowledge"}, headers=headers)
             assert answer.status_code == 201, answer.text
     return len(others)
+
+
+def test_an_admin_manages_keys_in_the_browser(console: Console, browser: object) -> None:
+    context = browser.new_context(viewport={"width": 1280, "height": 900})  # type: ignore[attr-defined]
+    visit = Visit(context.new_page(), console)
+    page = visit.page
+    visit.sign_in(console.keys["admin"], "14-admin")
+    page.get_by_role("link", name="API keys").click()
+    visit.check("15-keys")
+    assert page.locator("tbody tr").count() == len(console.keys)
+
+    page.get_by_role("textbox", name="Owner").fill("Analyst Vey")
+    page.locator("#k-role-reader").check()
+    page.get_by_role("button", name="Create the key").click()
+    visit.check("16-key-created")
+    token = page.locator("#new-token").input_value()
+    assert token.count(".") == 1 and page.content().count(token) == 1  # shown once, on this page only
+    assert token not in page.url
+    key_id = token.split(".")[0]
+
+    page.goto(f"{console.base}/console/keys")  # shown never again
+    assert token not in page.content() and key_id in page.content()
+    page.get_by_role("button", name=f"Revoke key {key_id} of Analyst Vey").click()
+    visit.check("17-key-revoked")
+    assert f"Key {key_id}" in page.get_by_role("status").text_content()
+    assert page.get_by_role("button", name=f"Revoke key {key_id} of Analyst Vey").count() == 0
+    context.close()
+    assert token not in console.log.read_text(errors="replace")
+    assert all(token not in url for url, _ in visit.seen)

@@ -75,3 +75,40 @@ def test_unknown_pages_and_the_style_sheets(client: TestClient, keys: dict[str, 
     assert css.status_code == 200 and "text/css" in css.headers["content-type"]
     palette_css = client.get("/console/palette.css").text
     assert palette.SEVERITIES["critical"].color in palette_css  # the console's colours are the palette's
+
+
+def test_counts_read_in_the_right_number(client: TestClient, keys: dict[str, str], loaded: int) -> None:
+    from riskshape_service.console.pages import counted
+
+    assert [counted(n, "review") for n in (0, 1, 2)] == ["0 reviews", "1 review", "2 reviews"]
+    assert counted([1], "entry", "entries") == "1 entry" and counted(3, "entry", "entries") == "3 entries"
+    csrf = sign_in(client, keys["reviewer"])
+    first = client.get("/v1/alerts", headers={"X-Riskshape-Key": keys["reader"]}).json()["items"][0]["id"]
+    assert "0 reviews, oldest first" in client.get(f"/console/alerts/{first}").text
+    client.post(f"/console/alerts/{first}/review", data={"action": "acknowledge", "csrf": csrf})
+    page = client.get(f"/console/alerts/{first}").text
+    assert "1 review, oldest first" in page and "1 reviews" not in page
+    one = client.get("/console/alerts", params={"portfolio": PORTFOLIO, "status": "acknowledged"}).text
+    assert "1 alert matches" in one
+    assert "0 periods signed off" in client.get("/console/audit").text
+
+
+def test_a_refused_form_keeps_what_was_typed(client: TestClient, keys: dict[str, str], loaded: int) -> None:
+    csrf = sign_in(client, keys["reviewer"])
+    first = client.get("/v1/alerts", headers={"X-Riskshape-Key": keys["reader"]}).json()["items"][0]["id"]
+    period = {"start": "2000-01-01", "end": "2100-12-31", "portfolio": PORTFOLIO, "csrf": csrf}
+    refused = client.post("/console/audit/sign-off", data=period)  # its alerts are open
+    assert refused.status_code == 409 and "still open or escalated" in refused.text
+    assert 'name="start" type="date" required value="2000-01-01"' in refused.text
+    assert 'name="end" type="date" required value="2100-12-31"' in refused.text
+    assert f'name="portfolio" value="{PORTFOLIO}" checked' in refused.text
+    listed = client.get("/v1/alerts", params={"portfolio": PORTFOLIO}, headers={"X-Riskshape-Key": keys["reader"]})
+    for alert in listed.json()["items"]:  # each open item links to its review form
+        assert f'<a href="/console/alerts/{alert["id"]}">Alert {alert["id"]}</a>' in refused.text
+    typed = "Spread widening in two sectors"
+    no_comment = client.post(
+        f"/console/alerts/{first}/review", data={"action": "dismiss", "comment": " ", "csrf": csrf}
+    )
+    assert no_comment.status_code == 422 and '<option value="dismiss" selected>' in no_comment.text
+    kept = client.post(f"/console/alerts/{first}/review", data={"action": "close", "comment": typed, "csrf": csrf})
+    assert kept.status_code == 409 and f">{typed}</textarea>" in kept.text  # close does not apply to an open alert
