@@ -437,3 +437,82 @@ CASES: dict[str, Callable[[bool], list[Row]]] = {
 def frame(rows: list[Row]) -> pd.DataFrame:
     """A section's rows as a table."""
     return pd.DataFrame([row.values for row in rows], index=[row.case for row in rows])
+
+
+@contextmanager
+def _stage_clock_on_cpu() -> Iterator[None]:
+    """Profile a serial run on this process's CPU clock instead of ``perf_counter``.
+
+    On a busy machine the wall clock charges each stage the time it waited for a core, which
+    inflates the long stages (persistence) most; the CPU clock of a serial run does not.
+    """
+    import types
+
+    import riskshape.compute.monitor as monitor_module
+    import riskshape.compute.stages as stages_module
+
+    cpu_clock = types.SimpleNamespace(perf_counter=time.process_time)
+    saved = stages_module.time, monitor_module.time
+    stages_module.time = monitor_module.time = cpu_clock  # type: ignore[assignment]
+    try:
+        yield
+    finally:
+        stages_module.time, monitor_module.time = saved
+
+
+def engine_floor(quick: bool) -> list[Row]:
+    """Serial ``monitor`` against the persistence alone of the backend it used, and the pool.
+
+    For each size: the distance matrices of every window are computed first, then timed: the
+    Rips backend alone on them (``compute_diagrams``, what no engine can avoid); ``monitor``
+    serially, prices in, features out; ``monitor`` on the default process pool. Each in this
+    process, one after the other, best of ``repeats`` CPU (serial) or wall (pool) times. The
+    profiled run's split (:mod:`riskshape.compute.stages`, on the CPU clock: a serial run) shows
+    where the rest goes.
+    """
+    from riskshape.compute.persistence import resolve_backend
+
+    _warm_up()
+    rows = []
+    sizes = [(50, 60, 541), (100, 60, 541), (300, 250, 201)]
+    repeats = 1 if quick else 2
+    for n_assets, window, n_windows in sizes:
+        if quick:
+            n_windows = max(60, n_windows // 4)
+        prices = factor_prices(window + n_windows, n_assets, seed=n_assets)
+        config = Config(window=window, maxdim=1)
+        returns = to_returns(prices, config.returns).to_numpy()
+        ends = window_end_positions(len(returns), window, 1)
+        matrices = [correlation_to_distance(correlation_matrix(returns[e - window + 1 : e + 1])) for e in ends]
+        floor = serial = pool_wall = serial_wall = np.inf
+        for _ in range(repeats):
+            with threadpool_limits(1), span() as spent:
+                for matrix in matrices:
+                    compute_diagrams(matrix, 1, "auto")
+            # leaving threadpool_limits wakes BLAS threads that spin: let them settle (span waits)
+            floor = min(floor, spent.cpu)
+            with span() as spent:
+                _ = monitor(prices, _serial(config)).features
+            serial, serial_wall = min(serial, spent.cpu), min(serial_wall, spent.wall)
+            with span() as spent:
+                _ = monitor(prices, config).features
+            pool_wall = min(pool_wall, spent.wall)
+        with _stage_clock_on_cpu():
+            profiled = monitor(prices, _serial(config), profile=True).stage_times
+        assert profiled is not None
+        stage_total = profiled.total
+        values: dict[str, Any] = {
+            "backend": resolve_backend("auto"),
+            "windows": len(ends),
+            "persistence alone CPU s": floor,
+            "monitor serial CPU s": serial,
+            "serial / persistence": serial / floor,
+            "pool wall s": pool_wall,
+            "pool speed-up (wall)": serial_wall / pool_wall,
+        }
+        for name, seconds, _share in profiled.rows():
+            if name != "writing":
+                values[f"{name} / persistence"] = seconds / profiled.persistence
+        values["profiled stages / persistence"] = stage_total / profiled.persistence
+        rows.append(Row(f"{n_assets} assets, window {window}", values))
+    return rows

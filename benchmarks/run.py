@@ -35,6 +35,7 @@ SECTIONS = {
     "update": ("one-day update", cases.one_day_update),
     "executors": ("executors (demo scenario)", None),
     "distances": ("distance solvers", cases.distance_solvers),
+    "floor": ("serial monitor against the persistence alone, by stage", cases.engine_floor),
     "large": ("large run and peak memory", None),
 }
 

@@ -197,3 +197,36 @@ def test_an_input_where_gudhi_errs() -> None:
     assert bottleneck_distance(a, b) == pytest.approx(exact, abs=1e-12)
     assert bottleneck_distance(b, a) == pytest.approx(exact, abs=1e-12)
     assert threshold_bottleneck(a, b) == pytest.approx(exact, abs=1e-12)
+
+
+def _partial_matching_by_own_slots(gain: np.ndarray) -> float:
+    """Cheapest partial matching of the rows (unmatched costs 0): every row with its own zero slot
+    (the textbook reduction), solved by scipy's ``linear_sum_assignment``.
+    """
+    from scipy.optimize import linear_sum_assignment
+
+    n, m = gain.shape
+    cost = np.full((n, m + n), np.inf)
+    cost[:, :m] = gain
+    cost[np.arange(n), m + np.arange(n)] = 0.0
+    rows, cols = linear_sum_assignment(cost)
+    return float(cost[rows, cols].sum())
+
+
+@pytest.mark.parametrize("positive_share", [0.0, 0.5, 0.9, 0.99])
+def test_shared_diagonal_columns_give_the_optimum(rng: np.random.Generator, positive_share: float) -> None:
+    # many pairs dearer than the diagonal: most rows go unmatched, so the shared columns must grow
+    for n, m in [(1, 1), (5, 9), (40, 60), (64, 64)]:
+        gain = -rng.uniform(0.0, 1.0, (n, m))
+        gain[rng.uniform(size=(n, m)) < positive_share] = 1.0
+        rows, cols = matching._shared_diagonal_assignment(gain)
+        assert len(set(cols.tolist())) == len(cols) and len(set(rows.tolist())) == len(rows)
+        assert gain[rows, cols].sum() == pytest.approx(_partial_matching_by_own_slots(gain), rel=REL, abs=1e-12)
+
+
+def test_shared_diagonal_columns_grow_when_all_are_taken() -> None:
+    # every row wants column 0 only: one row is matched, the other 39 need 39 diagonal columns
+    gain = np.ones((40, 60))
+    gain[:, 0] = -1.0
+    rows, cols = matching._shared_diagonal_assignment(gain)
+    assert cols.tolist() == [0] and len(rows) == 1

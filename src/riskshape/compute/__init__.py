@@ -12,7 +12,8 @@ One module per step, in the order the data flow through them:
 - :mod:`~riskshape.compute.batch`: one window end to end, and a batch of consecutive windows;
 - :mod:`~riskshape.compute.executors`: where batches run (serial, a process pool, Dask);
 - :mod:`~riskshape.compute.window_view`: one computed window opened up (returns, distances, diagrams);
-- :mod:`~riskshape.compute.monitor`: the one orchestrator, ``monitor(prices, config)``.
+- :mod:`~riskshape.compute.monitor`: the one orchestrator, ``monitor(prices, config)``;
+- :mod:`~riskshape.compute.stages`: where a run's time goes, by stage (``monitor(..., profile=True)``).
 
 The orchestrator itself is ``riskshape.monitor`` (``riskshape.compute.monitor`` is its module).
 The names in ``__all__`` are public; each loads its module on first use.
@@ -41,7 +42,10 @@ if TYPE_CHECKING:
     from riskshape.compute.monitor import MonitorResult as MonitorResult
     from riskshape.compute.monitor import feature_columns as feature_columns
     from riskshape.compute.persistence import compute_diagrams as compute_diagrams
+    from riskshape.compute.persistence import describe_backend as describe_backend
+    from riskshape.compute.persistence import resolve_backend as resolve_backend
     from riskshape.compute.returns import to_returns as to_returns
+    from riskshape.compute.stages import StageTimes as StageTimes
     from riskshape.compute.summaries import DISTANCE_NAMES as DISTANCE_NAMES
     from riskshape.compute.summaries import SUMMARY_NAMES as SUMMARY_NAMES
     from riskshape.compute.summaries import DiagramSummary as DiagramSummary
@@ -64,6 +68,9 @@ _EXPORTS = {
     "correlation_matrix": "riskshape.compute.distance",
     "correlation_to_distance": "riskshape.compute.distance",
     "compute_diagrams": "riskshape.compute.persistence",
+    "resolve_backend": "riskshape.compute.persistence",
+    "describe_backend": "riskshape.compute.persistence",
+    "StageTimes": "riskshape.compute.stages",
     "DiagramSummary": "riskshape.compute.summaries",
     "summarize_diagram": "riskshape.compute.summaries",
     "wasserstein_distance": "riskshape.compute.summaries",

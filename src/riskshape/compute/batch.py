@@ -17,6 +17,7 @@ from scipy.spatial.distance import pdist, squareform
 from riskshape.compute.distance import correlation_matrix, correlation_to_distance, mean_offdiagonal
 from riskshape.compute.moments import RollingMoments, is_rebuild_point
 from riskshape.compute.persistence import EMPTY_DIAGRAM, compute_diagrams
+from riskshape.compute.stages import NO_CLOCK, StageClock, StageTimes
 from riskshape.compute.summaries import SUMMARY_NAMES, bottleneck_distance, summarize_diagram, wasserstein_distance
 from riskshape.compute.windows import (
     Selection,
@@ -49,6 +50,7 @@ __all__ = [
     "compute_window",
     "embedding_distance",
     "compute_batch",
+    "compute_batch_profiled",
     "diagram_distances",
     "first_row_needed",
     "preload",
@@ -194,7 +196,9 @@ def compute_window(block: ReturnsBlock, settings: WindowSettings) -> WindowResul
     return _from_selection(select_assets(block, settings.min_coverage), settings, None)
 
 
-def _from_selection(selection: Selection, settings: WindowSettings, corr: CorrelationMatrix | None) -> WindowResult:
+def _from_selection(
+    selection: Selection, settings: WindowSettings, corr: CorrelationMatrix | None, clock: StageClock = NO_CLOCK
+) -> WindowResult:
     """A window's result from its admitted assets; ``corr`` is their correlation if known already."""
     nan_distances = np.full((settings.maxdim + 1, 2), np.nan)
     if len(selection.used) < 2:
@@ -202,9 +206,15 @@ def _from_selection(selection: Selection, settings: WindowSettings, corr: Correl
         return WindowResult(selection.used, selection.left_out, float("nan"), empty, nan_distances)
     if corr is None:
         corr = correlation_matrix(selection.block, settings.correlation)
+    mean_correlation = mean_offdiagonal(corr)
+    clock.mark("correlation")
     distance = embedding_distance(selection.block, corr, settings.embedding, settings.standardize_cloud)
+    clock.mark("distance_matrix")
     diagrams = compute_diagrams(distance, settings.maxdim, settings.rips_backend)
-    return WindowResult(selection.used, selection.left_out, mean_offdiagonal(corr), diagrams, nan_distances)
+    clock.mark("persistence")
+    result = WindowResult(selection.used, selection.left_out, mean_correlation, diagrams, nan_distances)
+    clock.mark("summaries")
+    return result
 
 
 def embedding_distance(
@@ -275,6 +285,41 @@ def compute_batch(
     list of WindowResult
         One per end, with distances to the previous window filled in.
     """
+    return _compute_batch(rows, ends, settings, previous, row_offset, NO_CLOCK)
+
+
+def compute_batch_profiled(
+    rows: FloatArray,
+    ends: Positions,
+    settings: WindowSettings,
+    previous: Diagrams | None = None,
+    row_offset: int = 0,
+) -> tuple[list[WindowResult], StageTimes]:
+    """:func:`compute_batch`, with the seconds it spent in each stage (:mod:`riskshape.compute.stages`).
+
+    Parameters
+    ----------
+    rows, ends, settings, previous, row_offset
+        As for :func:`compute_batch`.
+
+    Returns
+    -------
+    tuple of (list of WindowResult, StageTimes)
+        The same results as :func:`compute_batch`, and the batch's time by stage.
+    """
+    clock = StageClock()
+    results = _compute_batch(rows, ends, settings, previous, row_offset, clock)
+    return results, clock.times()
+
+
+def _compute_batch(
+    rows: FloatArray,
+    ends: Positions,
+    settings: WindowSettings,
+    previous: Diagrams | None,
+    row_offset: int,
+    clock: StageClock,
+) -> list[WindowResult]:
     # one memory layout whatever the caller passes (a view of a Fortran-ordered table, or the
     # C-ordered copy a worker unpickles), so the floating-point reductions run in one order
     rows = np.ascontiguousarray(rows, dtype=float)
@@ -289,9 +334,10 @@ def compute_batch(
             selection = Selection(last_used, selection.block, selection.left_out)
         last_used = selection.used
         corr = rolling.correlation(end, selection.used) if rolling is not None else None
-        result = _from_selection(selection, settings, corr)
+        result = _from_selection(selection, settings, corr, clock)
         if previous is not None:
             result = result.with_distances(diagram_distances(previous, result.diagrams, settings.order_p))
+            clock.mark("distances")
         results.append(result)
         previous = result.diagrams
     return results

@@ -6,9 +6,11 @@ day(s) and computes only the new windows, giving the same numbers as a batch ove
 
 from __future__ import annotations
 
-from collections.abc import Callable
+import time
+from collections.abc import Callable, Iterator
 from dataclasses import dataclass, field
 from functools import cached_property, partial
+from typing import Any
 
 import numpy as np
 import pandas as pd
@@ -18,12 +20,14 @@ from riskshape.compute.batch import (
     WindowResult,
     WindowSettings,
     compute_batch,
+    compute_batch_profiled,
     diagram_distances,
     first_row_needed,
     preload,
 )
 from riskshape.compute.executors import Executor, make_executor
 from riskshape.compute.returns import to_returns
+from riskshape.compute.stages import StageTimes
 from riskshape.compute.summaries import DISTANCE_NAMES, SUMMARY_NAMES
 from riskshape.compute.window_view import Window, open_window
 from riskshape.compute.windows import window_end_positions, window_rows
@@ -71,6 +75,8 @@ class MonitorResult:
     window_ends: pd.DatetimeIndex
     windows: tuple[WindowResult, ...] = field(repr=False)
     package_version: str = __version__
+    stage_times: StageTimes | None = field(default=None, repr=False, compare=False)
+    """Seconds by stage of the run that made this result, with ``monitor(..., profile=True)``; else None."""
 
     @cached_property
     def features(self) -> pd.DataFrame:
@@ -213,7 +219,13 @@ class MonitorResult:
         )
 
 
-def monitor(prices: pd.DataFrame, config: Config | None = None, *, progress: ProgressFn | None = None) -> MonitorResult:
+def monitor(
+    prices: pd.DataFrame,
+    config: Config | None = None,
+    *,
+    progress: ProgressFn | None = None,
+    profile: bool = False,
+) -> MonitorResult:
     """Rolling persistent homology of a portfolio's correlation structure.
 
     Parameters
@@ -225,6 +237,9 @@ def monitor(prices: pd.DataFrame, config: Config | None = None, *, progress: Pro
         Defaults to ``Config()``.
     progress : callable, optional
         Called as ``progress(done, total)`` as windows complete.
+    profile : bool
+        Measure the time of each stage where the windows are computed and sum it into
+        ``MonitorResult.stage_times`` (:mod:`riskshape.compute.stages`); the results are the same.
 
     Returns
     -------
@@ -247,13 +262,14 @@ def monitor(prices: pd.DataFrame, config: Config | None = None, *, progress: Pro
     valid = ensure_valid(prices, source="prices", min_rows=config.window + 1)
     returns = to_returns(valid, config.returns)
     ends = window_end_positions(len(returns), config.window, config.step)
-    windows = _compute_windows(returns.to_numpy(), ends, config, None, progress)
+    windows, stage_times = _run_windows(returns.to_numpy(), ends, config, None, progress, None, profile)
     return MonitorResult(
         config=config,
         prices=valid,
         returns=returns,
         window_ends=pd.DatetimeIndex(returns.index[ends], name="window_end"),
         windows=tuple(windows),
+        stage_times=stage_times,
     )
 
 
@@ -294,16 +310,33 @@ def _compute_windows(
     progress: ProgressFn | None,
     executor: Executor | None = None,
 ) -> list[WindowResult]:
-    """Windows ending at ``ends``, computed in batches by the configured executor.
+    """Windows ending at ``ends``, computed in batches by the configured executor (see :func:`_run_windows`)."""
+    return _run_windows(values, ends, config, previous, progress, executor, False)[0]
+
+
+def _run_windows(
+    values: FloatArray,
+    ends: Positions,
+    config: Config,
+    previous: Diagrams | None,
+    progress: ProgressFn | None,
+    executor: Executor | None,
+    profile: bool,
+) -> tuple[list[WindowResult], StageTimes | None]:
+    """Windows ending at ``ends``, computed in batches by the configured executor; their stage times if profiled.
 
     Each batch computes its windows' diagrams and the distances between them; the distance
     from a batch's first window to the window before it is computed here, from the previous
     batch's last diagrams, as results arrive (no window is computed twice). Batches are made
     small enough to keep every worker of a pool busy (at least four per worker, at least 16
     windows each); results do not depend on the batching.
+
+    Profiled, each batch measures its stages where it runs and the parent sums them; the
+    workers' time (wall time of the batches times the workers used) not spent in a stage is
+    charged to the hand-off.
     """
     if len(ends) == 0:
-        return []
+        return [], StageTimes() if profile else None
     settings = settings_of(config)
     all_ends = np.asarray(ends)
     size = config.compute.batch_windows
@@ -317,19 +350,40 @@ def _compute_windows(
         rows = values[first_row : int(batch_ends[-1]) + 1]
         jobs.append((rows, batch_ends - first_row, settings, previous if start == 0 else None, first_row))
     results: list[WindowResult] = []
+    times = StageTimes()
+    started = time.perf_counter()
     try:
-        for b, batch_results in enumerate(runner.map(compute_batch, jobs)):
+        for b, (batch_results, batch_times) in enumerate(_batches(runner, jobs, profile)):
+            times = times + batch_times
             if b > 0:
+                link_start = time.perf_counter()
                 first = batch_results[0]
                 link = diagram_distances(results[-1].diagrams, first.diagrams, settings.order_p)
                 batch_results = [first.with_distances(link), *batch_results[1:]]
+                times = times.with_stage("distances", time.perf_counter() - link_start)
             results.extend(batch_results)
             if progress is not None:
                 progress(len(results), len(ends))
+        elapsed = time.perf_counter() - started
     finally:
         if own:
             runner.close()
-    return results
+    if not profile:
+        return results, None
+    capacity = elapsed * min(getattr(runner, "workers", 1), len(jobs))
+    return results, times.with_stage("handoff", max(0.0, capacity - times.total))
+
+
+def _batches(
+    runner: Executor, jobs: list[tuple[Any, ...]], profile: bool
+) -> Iterator[tuple[list[WindowResult], StageTimes]]:
+    """Each batch's results and its stage times (zero unless profiled), in job order."""
+    if profile:
+        yield from runner.map(compute_batch_profiled, jobs)
+        return
+    nothing = StageTimes()
+    for batch_results in runner.map(compute_batch, jobs):
+        yield batch_results, nothing
 
 
 def _balanced_batch_size(n_windows: int, size: int, workers: int) -> int:

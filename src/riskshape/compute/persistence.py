@@ -36,7 +36,14 @@ from scipy.spatial.distance import squareform
 from riskshape.errors import ConfigError
 from riskshape.types import Diagram, Diagrams, DistanceMatrix, FloatArray, Positions, ResolvedRipsBackend, RipsBackend
 
-__all__ = ["compute_diagrams", "h0_from_single_linkage", "resolve_backend", "vertex_order", "EMPTY_DIAGRAM"]
+__all__ = [
+    "compute_diagrams",
+    "h0_from_single_linkage",
+    "resolve_backend",
+    "describe_backend",
+    "vertex_order",
+    "EMPTY_DIAGRAM",
+]
 
 EMPTY_DIAGRAM = np.empty((0, 2), dtype=float)
 
@@ -71,6 +78,43 @@ def resolve_backend(backend: RipsBackend) -> ResolvedRipsBackend:
             "rips_backend = 'giotto' needs giotto-ph (pip install 'riskshape[fast]'); or set rips_backend = 'ripser'"
         )
     return backend
+
+
+def describe_backend(backend: RipsBackend, maxdim: int) -> str:
+    """What computes the diagrams of a run with this ``rips_backend`` and ``maxdim``, in words.
+
+    Parameters
+    ----------
+    backend : {"auto", "ripser", "giotto"}
+        The configured ``rips_backend``.
+    maxdim : int
+        Highest homology dimension.
+
+    Returns
+    -------
+    str
+        The library and its version (``giotto-ph 0.2.4``, ``ripser 0.6.12``), or single linkage
+        (scipy) when only H0 is computed.
+
+    Raises
+    ------
+    ConfigError
+        As :func:`resolve_backend`.
+
+    Examples
+    --------
+    >>> describe_backend("ripser", 0)
+    'single linkage (scipy), H0 only'
+    """
+    if maxdim == 0:
+        return "single linkage (scipy), H0 only"
+    package = "giotto-ph" if resolve_backend(backend) == "giotto" else "ripser"
+    from importlib.metadata import PackageNotFoundError, version
+
+    try:
+        return f"{package} {version(package)}"
+    except PackageNotFoundError:  # pragma: no cover - importable but not installed as a distribution
+        return package
 
 
 def resolve_engine(engine: RipsBackend) -> ResolvedRipsBackend:

@@ -21,6 +21,7 @@ import pandas as pd
 
 from riskshape.caution import CAUTION
 from riskshape.compute.monitor import MonitorResult
+from riskshape.compute.persistence import describe_backend, resolve_backend
 from riskshape.errors import DataError
 
 __all__ = ["RunFiles", "write_run", "diagrams_table", "run_manifest"]
@@ -83,7 +84,7 @@ def diagrams_table(result: MonitorResult) -> pd.DataFrame:
 
 
 def run_manifest(result: MonitorResult, source: str) -> dict[str, Any]:
-    """The run manifest: configuration, its hash, the input-data hash, package version, extent."""
+    """The run manifest: configuration, its hash, the input-data hash, package version, extent, Rips backend."""
     return {
         "caution": CAUTION,
         "package": "riskshape",
@@ -93,6 +94,11 @@ def run_manifest(result: MonitorResult, source: str) -> dict[str, Any]:
         "input_hash": result.input_hash,
         "config_hash": result.config.hash(),
         "config": result.config.to_mapping(),
+        "rips_backend": {
+            "configured": result.config.rips_backend,
+            "ran": resolve_backend(result.config.rips_backend),
+            "library": describe_backend(result.config.rips_backend, result.config.maxdim),
+        },
         "assets": list(result.prices.columns),
         "first_date": str(result.prices.index[0].date()),
         "last_date": str(result.prices.index[-1].date()),
