@@ -26,7 +26,7 @@ def test_schema_from_migrations_matches_the_models(store: Store) -> None:
     with store.engine.connect() as connection:
         context = MigrationContext.configure(connection, opts={"compare_type": True})
         assert compare_metadata(context, metadata) == []
-    assert store.revision == "0002"
+    assert store.revision == "0003"
 
 
 def test_reopening_runs_no_migration_and_keeps_data(store_url: str) -> None:
