@@ -10,10 +10,11 @@ from dataclasses import dataclass
 from datetime import date
 
 from riskshape.alerts import RuleState, rule_states
+from riskshape.daily import DayStatus, pending_days
 from riskshape.store import AlertRecord, ChangeMarker, FeaturesPage, Head, Store, chain_head
 from riskshape_service.snapshots import Snapshots
 
-__all__ = ["LatestState", "latest_state", "series_page", "store_status"]
+__all__ = ["LatestState", "latest_state", "series_page", "store_status", "pending"]
 
 
 @dataclass(frozen=True)
@@ -92,3 +93,14 @@ def series_page(
 def store_status(store: Store) -> Head:
     """A cheap round trip to the archive (its ledger head); raises StoreError when it cannot be read."""
     return chain_head(store)
+
+
+def pending(store: Store, portfolio: str) -> tuple[DayStatus, ...]:
+    """The portfolio's pending days (archived, not counting yet), oldest first.
+
+    Raises
+    ------
+    NotFoundError
+        If the portfolio does not exist.
+    """
+    return pending_days(store, portfolio)

@@ -42,8 +42,10 @@ from riskshape_service.readpath import LatestFastPath
 from riskshape_service.routers import (
     alerts,
     audit,
+    days,
     diagrams,
     export,
+    feed,
     health,
     metrics,
     portfolios,
@@ -51,14 +53,14 @@ from riskshape_service.routers import (
     reviews,
     series,
 )
-from riskshape_service.schemas import PricesIn
+from riskshape_service.schemas import FeedIn, PricesIn
 from riskshape_service.settings import ServiceSettings
 from riskshape_service.snapshots import Snapshots
 
 __all__ = ["create_app"]
 
 log = logging.getLogger(LOGGER_NAME)
-ROUTERS = (health, portfolios, series, diagrams, alerts, reviews, prices, audit, export, metrics)
+ROUTERS = (health, portfolios, series, diagrams, alerts, reviews, prices, days, feed, audit, export, metrics)
 
 DESCRIPTION = f"""Portfolio-regime monitor over rolling persistent homology: summaries, diagrams, alerts,
 reviews, price ingest and the audit chain.
@@ -72,14 +74,15 @@ verifies the audit chain and exports; `admin` does everything."""
 
 
 def _openapi(app: FastAPI) -> dict[str, Any]:
-    """The OpenAPI document, with the JSON prices body (read by hand, for its two media types) in it."""
+    """The OpenAPI document, with the JSON prices bodies (read by hand, for their two media types) in it."""
     if app.openapi_schema is None:
         schema = get_openapi(title=app.title, version=app.version, description=app.description, routes=app.routes)
         components = schema.setdefault("components", {}).setdefault("schemas", {})
-        body = PricesIn.model_json_schema(ref_template="#/components/schemas/{model}")
-        for name, definition in body.pop("$defs", {}).items():
-            components.setdefault(name, definition)
-        components["PricesIn"] = body
+        for model in (PricesIn, FeedIn):
+            body = model.model_json_schema(ref_template="#/components/schemas/{model}")
+            for name, definition in body.pop("$defs", {}).items():
+                components.setdefault(name, definition)
+            components[model.__name__] = body
         schema["info"]["x-caution"] = CAUTION
         app.openapi_schema = schema
     return app.openapi_schema

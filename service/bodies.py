@@ -20,13 +20,14 @@ JSON_SOURCE = "request body"
 CSV_SOURCE = "request body (CSV)"
 
 
-def _check_order(dates: list[str], source: str, label: str, first: int) -> None:
+def _check_order(dates: list[str], source: str, label: str, first: int, lines: list[int] | None = None) -> None:
     parsed = pd.to_datetime(pd.Series(dates, dtype=object), errors="coerce", format="ISO8601")
     for i in range(1, len(parsed)):
         before, now = parsed.iloc[i - 1], parsed.iloc[i]
         if pd.notna(before) and pd.notna(now) and now < before:
+            where = first + i if lines is None else lines[i]
             raise DataError(
-                f"{source}: {label} {first + i}: date {dates[i]} comes after {dates[i - 1]}; dates out of order are "
+                f"{source}: {label} {where}: date {dates[i]} comes after {dates[i - 1]}; dates out of order are "
                 "refused -- send the rows sorted by date, oldest first"
             )
 
@@ -66,9 +67,10 @@ def table_from_json(body: PricesIn) -> tuple[pd.DataFrame, str]:
     return pd.DataFrame({"date": dates, **columns}), "wide"
 
 
-def table_from_csv(raw: bytes, *, max_assets: int, max_rows: int) -> pd.DataFrame:
+def table_from_csv(raw: bytes, group: str | None = None, *, max_assets: int, max_rows: int) -> pd.DataFrame:
     """The raw table of a CSV body (wide: ``date`` then one column per asset; or long:
     ``date,asset,price``); line 1 is the header. At most ``max_assets`` asset columns and ``max_rows`` lines.
+    With ``group`` (a column, such as ``portfolio``), dates must be in order within each group's rows only.
 
     Raises
     ------
@@ -80,7 +82,12 @@ def table_from_csv(raw: bytes, *, max_assets: int, max_rows: int) -> pd.DataFram
         raise DataError(f"{CSV_SOURCE}: a header but no data lines; add one line per date")
     lower = {str(c).strip().lower(): c for c in table.columns}
     if "date" in lower:
-        _check_order(table[lower["date"]].astype(str).str.strip().tolist(), CSV_SOURCE, "line", 2)
+        dates = table[lower["date"]].astype(str).str.strip()
+        if group is None or group not in lower:
+            _check_order(dates.tolist(), CSV_SOURCE, "line", 2)
+        else:
+            for _, lines in dates.groupby(table[lower[group]].astype(str).str.strip(), sort=False):
+                _check_order(lines.tolist(), CSV_SOURCE, "line", 2, [2 + int(i) for i in lines.index])
     return table
 
 

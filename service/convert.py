@@ -3,10 +3,18 @@
 from __future__ import annotations
 
 from riskshape.alerts import RuleState
+from riskshape.daily import DayStatus
 from riskshape.store import AlertRecord, ReviewRecord
-from riskshape_service.schemas import AlertOut, ProvenanceOut, ReviewOut, RuleStateOut, finite_or_none
+from riskshape_service.schemas import (
+    AlertOut,
+    PendingDayOut,
+    ProvenanceOut,
+    ReviewOut,
+    RuleStateOut,
+    finite_or_none,
+)
 
-__all__ = ["alert_out", "provenance_out", "review_out", "rule_state_out"]
+__all__ = ["alert_out", "pending_out", "provenance_out", "review_out", "rule_state_out"]
 
 
 def alert_out(alert: AlertRecord) -> AlertOut:
@@ -65,3 +73,8 @@ def rule_state_out(state: RuleState) -> RuleStateOut:
         active_since=None if state.active_since is None else state.active_since.date(),
         last_fired=None if state.last_fired is None else state.last_fired.date(),
     )
+
+
+def pending_out(status: DayStatus) -> PendingDayOut:
+    """A pending day: its date, the listed assets still missing, and how many are priced."""
+    return PendingDayOut(date=status.day, missing=list(status.missing), priced=status.priced, listed=len(status.listed))

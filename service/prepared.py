@@ -54,12 +54,12 @@ def _tag(*parts: object) -> str:
 
 def latest_etag(marker: ChangeMarker) -> str:
     """The strong ETag of a portfolio's latest state: its runs, windows and the ledger head."""
-    return _tag("latest", marker.portfolio, marker.series_key, marker.ledger_count, marker.ledger_hash)
+    return _tag("latest", marker.portfolio, marker.series_key, marker.days_key, marker.ledger_count, marker.ledger_hash)
 
 
 def series_etag(marker: ChangeMarker, query: Hashable) -> str:
     """The strong ETag of one page of a portfolio's series (``query``: what the page asked for)."""
-    return _tag("series", marker.portfolio, marker.series_key, query)
+    return _tag("series", marker.portfolio, marker.series_key, marker.days_key, query)
 
 
 def etag_matches(if_none_match: str | None, etag: str) -> bool:

@@ -298,6 +298,17 @@ class RuleStateOut(BaseModel):
     last_fired: date | None
 
 
+class PendingDayOut(BaseModel):
+    """A day archived that does not count yet: the listed assets still missing (none when it waits on an
+    earlier pending day).
+    """
+
+    date: date
+    missing: list[str] = Field(description="listed assets without a price (or a missing mark) that day")
+    priced: int = Field(description="listed assets with a price that day")
+    listed: int = Field(description="assets listed that day (the portfolio's, less those delisted before it)")
+
+
 class LatestOut(Cautioned):
     """A portfolio's latest state: the last window's summaries, the alert rules' states and the
     alerts still active.
@@ -310,6 +321,9 @@ class LatestOut(Cautioned):
     values: dict[str, Number] = Field(description="the summaries of the last window")
     rules: list[RuleStateOut]
     active_alerts: list[AlertOut] = Field(description="archived alerts whose rule is still active")
+    pending: list[PendingDayOut] = Field(
+        default_factory=list, description="days archived that do not count yet (no window, no rule), oldest first"
+    )
 
 
 class SeriesRow(BaseModel):
@@ -330,6 +344,9 @@ class SeriesOut(Cautioned):
     offset: int
     limit: int
     next_offset: int | None
+    pending: list[PendingDayOut] = Field(
+        default_factory=list, description="days archived that do not count yet (no window, no rule), oldest first"
+    )
 
 
 class DiagramOut(Cautioned):
@@ -394,6 +411,56 @@ class IngestOut(Cautioned):
         description="data-quality findings of the prices sent (constant assets, windows with every asset left "
         "out, one-day moves beyond [checks] max_day_ratio), each naming the asset and date",
     )
+    pending: list[PendingDayOut] = Field(
+        default_factory=list, description="days archived that do not count yet (no window, no rule), oldest first"
+    )
+    closed: list[date] = Field(default_factory=list, description="days this request closed (by hand or by cut-off)")
+
+
+class PendingDaysOut(Cautioned):
+    """A portfolio's pending days: archived, not counting yet, oldest first."""
+
+    portfolio: str
+    items: list[PendingDayOut]
+    count: int
+
+
+class DelistIn(_Input):
+    """A delisting: the asset's last trading day (its prices up to it stay; later days do not wait for it)."""
+
+    last_trading_day: date
+
+
+class FeedRow(_Input):
+    """One price of a many-portfolio day: the portfolio, a date, an asset and its price (null where missing)."""
+
+    portfolio: Annotated[str, Field(min_length=1, max_length=200)]
+    date: date
+    asset: AssetName
+    price: Price | None
+
+
+class FeedIn(_Input):
+    """Prices for several portfolios: long rows, each naming its portfolio."""
+
+    rows: list[FeedRow] = Field(min_length=1)
+
+
+class FeedItemOut(BaseModel):
+    """One portfolio's answer: what its prices did, or why none of them was archived."""
+
+    portfolio: str
+    archived: bool = Field(description="whether this portfolio's prices were taken (false: nothing archived)")
+    result: IngestOut | None = Field(description="what ingesting them did (null when refused)")
+    error: str | None = Field(description="why they were refused (null when archived)")
+
+
+class FeedOut(Cautioned):
+    """The answers of a many-portfolio day, one per portfolio in the order first named."""
+
+    items: list[FeedItemOut]
+    count: int
+    refused: int = Field(description="portfolios whose prices were refused (the others were taken)")
 
 
 # -- audit ---------------------------------------------------------------------------------------

@@ -10,7 +10,7 @@ from starlette.concurrency import run_in_threadpool
 from riskshape.store import ChangeMarker, Store
 from riskshape_service import access
 from riskshape_service.context import ServiceContext
-from riskshape_service.convert import alert_out, rule_state_out
+from riskshape_service.convert import alert_out, pending_out, rule_state_out
 from riskshape_service.deps import AdminDep, ReadAccessDep, ReaderDep, StoreDep
 from riskshape_service.prepared import NOT_MODIFIED, etag_matches, latest_etag, not_modified, prepared_response
 from riskshape_service.routers import API_PREFIX, errors
@@ -81,5 +81,6 @@ def render_latest(store: Store, name: str, context: ServiceContext, marker: Chan
         values={k: finite_or_none(v) for k, v in state.values.items()},
         rules=[rule_state_out(s) for s in state.rules],
         active_alerts=[alert_out(a) for a in state.active_alerts],
+        pending=[pending_out(d) for d in access.pending(store, name)],
     )
     return out.model_dump_json().encode("utf-8")

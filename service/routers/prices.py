@@ -9,24 +9,27 @@ from __future__ import annotations
 
 import email.message
 import json
-from typing import Annotated
+from collections.abc import Sequence
+from typing import Annotated, TypeVar
 
 from fastapi import APIRouter, HTTPException, Query, Request
 from fastapi.exceptions import RequestValidationError
-from pydantic import ValidationError
+from pydantic import BaseModel, ValidationError
 from starlette.concurrency import run_in_threadpool
 
 from riskshape import check_quality
 from riskshape.daily import IngestReport
 from riskshape_service.bodies import CSV_SOURCE, JSON_SOURCE, table_from_csv, table_from_json, validated_prices
-from riskshape_service.convert import alert_out
+from riskshape_service.convert import alert_out, pending_out
 from riskshape_service.deps import ContextDep, IngestDep, StoreDep
 from riskshape_service.routers import API_PREFIX, errors
 from riskshape_service.routers.portfolios import PortfolioName
 from riskshape_service.schemas import IngestOut, PricesIn
 from riskshape_service.settings import ServiceSettings
 
-__all__ = ["make_router", "PRICES_BODY"]
+__all__ = ["make_router", "PRICES_BODY", "ingest_out", "media_type", "json_body"]
+
+Body = TypeVar("Body", bound=BaseModel)
 
 CSV_EXAMPLE = "date,QY01,QJ01,QK01\n2031-03-03,101.5,98.25,100.75\n"
 PRICES_BODY = {
@@ -44,7 +47,8 @@ PRICES_BODY = {
 }
 
 
-def _media_type(request: Request) -> str:
+def media_type(request: Request) -> str:
+    """The request's media type, without parameters (empty when none is given)."""
     header = request.headers.get("content-type")
     if not header:
         return ""
@@ -53,7 +57,8 @@ def _media_type(request: Request) -> str:
     return message.get_content_type()
 
 
-def _json_body(raw: bytes) -> PricesIn:
+def json_body(raw: bytes, model: type[Body]) -> Body:
+    """A JSON body parsed and validated as ``model``; errors in FastAPI's shape (422)."""
     try:
         data = json.loads(raw)
     except json.JSONDecodeError as err:
@@ -81,12 +86,13 @@ def _json_body(raw: bytes) -> PricesIn:
             ]
         ) from None
     try:
-        return PricesIn.model_validate(data)
+        return model.model_validate(data)
     except ValidationError as err:
         raise RequestValidationError([{**e, "loc": ("body", *e["loc"])} for e in err.errors()]) from None
 
 
-def _ingest_out(report: IngestReport, warnings: list[str]) -> IngestOut:
+def ingest_out(report: IngestReport, warnings: Sequence[str] = ()) -> IngestOut:
+    """The response of an ingest (or a closing, or a delisting), with the data-quality findings of its prices."""
     return IngestOut(
         portfolio=report.portfolio,
         prices_added=report.prices_added,
@@ -99,7 +105,9 @@ def _ingest_out(report: IngestReport, warnings: list[str]) -> IngestOut:
         alerts=[alert_out(a) for a in report.alerts],
         run_id=report.run_id,
         note=report.note,
-        warnings=warnings,
+        warnings=list(warnings),
+        pending=[pending_out(d) for d in report.pending],
+        closed=list(report.closed),
     )
 
 
@@ -133,8 +141,11 @@ def make_router(settings: ServiceSettings) -> APIRouter:
         {asset: price}}, ...]}`, or CSV text (`Content-Type: text/csv`, wide `date,A,B,...` or long
         `date,asset,price`). Dates in order, oldest first; a missing price is null (JSON) or an empty cell.
 
-        - Days after the last archived one are added, and the windows they complete computed and archived;
-          the alert rules are evaluated and new alerts returned.
+        - Days after the last archived one are added. A day counts once every listed asset has a price (or
+          is sent as missing) or the day is closed (`POST .../days/{date}/close`, or the `[daily] close_share`
+          cut-off); until then it is `pending` (its prices archived, no window, no rule), and sending the rest
+          of it is an ordinary ingest. The windows the counted days complete are computed and archived; the
+          alert rules are evaluated and new alerts returned.
         - Sending the same prices again adds nothing (no prices, windows, runs or alerts).
         - A price that differs from the archived one for a day already archived is refused with 409, unless
           `correction=true`: then it is archived as a correction (both revisions kept), and windows are
@@ -144,10 +155,10 @@ def make_router(settings: ServiceSettings) -> APIRouter:
           trading days. An asset the portfolio does not have is refused (422); a new portfolio's assets
           are those of its first prices, in name order.
         """
-        media = _media_type(request)
+        media = media_type(request)
         raw = await request.body()
         if media == "application/json" or media.endswith("+json"):
-            table, layout = table_from_json(_json_body(raw))
+            table, layout = table_from_json(json_body(raw, PricesIn))
             source, first, label = f"{JSON_SOURCE} ({layout})", 0, ("rows" if layout == "long" else "wide")
         elif media == "text/csv":
             table = await run_in_threadpool(
@@ -182,6 +193,6 @@ def make_router(settings: ServiceSettings) -> APIRouter:
         context.metrics.price_cells.labels("correction").inc(report.corrections)
         for alert in report.alerts:
             context.metrics.alerts.labels(alert.severity).inc()
-        return _ingest_out(report, [str(f) for f in findings])
+        return ingest_out(report, [str(f) for f in findings])
 
     return router

@@ -13,6 +13,7 @@ from starlette.concurrency import run_in_threadpool
 from riskshape.store import ChangeMarker, Store
 from riskshape_service import access
 from riskshape_service.context import ServiceContext
+from riskshape_service.convert import pending_out
 from riskshape_service.deps import ReadAccessDep
 from riskshape_service.prepared import NOT_MODIFIED, etag_matches, not_modified, prepared_response, series_etag
 from riskshape_service.routers import API_PREFIX, MAX_ID, errors
@@ -103,5 +104,6 @@ def render_series_page(
         offset=query.offset,
         limit=query.limit,
         next_offset=following if following < page.total else None,
+        pending=[pending_out(d) for d in access.pending(store, name)],
     )
     return out.model_dump_json().encode("utf-8")

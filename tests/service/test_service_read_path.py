@@ -88,6 +88,7 @@ def test_prepared_latest_equals_the_model_rendering(client: TestClient, auth: Au
         "values",
         "rules",
         "active_alerts",
+        "pending",
         "caution",
     }
     assert body["n_windows"] == loaded["windows_added"]

@@ -12,6 +12,7 @@ from typing import TYPE_CHECKING
 from riskshape._lazy import lazy_exports
 
 if TYPE_CHECKING:
+    from riskshape.daily.days import DayStatus as DayStatus
     from riskshape.daily.ingest import Ingestor as Ingestor
     from riskshape.daily.ingest import IngestReport as IngestReport
     from riskshape.daily.ingest import pending_days as pending_days
@@ -23,6 +24,7 @@ if TYPE_CHECKING:
     from riskshape.daily.many import split_feed as split_feed
 
 _EXPORTS = {
+    "DayStatus": "riskshape.daily.days",
     "Ingestor": "riskshape.daily.ingest",
     "IngestReport": "riskshape.daily.ingest",
     "portfolio_config": "riskshape.daily.ingest",

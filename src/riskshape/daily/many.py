@@ -6,9 +6,27 @@ validation is kept aside with its message. :func:`ingest_many` feeds each portfo
 :class:`riskshape.daily.Ingestor`, several at a time, each with its own answer: one portfolio's
 bad data never blocks the others, and each answer says what was archived.
 
-Portfolios are fed on threads (``[compute] workers``, one per core when 0; one at a time with
-``executor = "serial"``): each portfolio's windows are computed by the ingest on its own, and
-the archive serialises the writes.
+Where the work runs: portfolios are fed one at a time, and each portfolio's windows go on the
+configured executor (``[compute] executor``: a process pool by default, Dask when configured).
+That is where it pays: a portfolio rebuilt from the archive (the first day after a restart)
+computes its whole history, spread over the pool; a warm day computes one window, which
+:func:`riskshape.compute.make_executor` keeps in-process (a hop to a worker costs more than
+the window). Feeding several portfolios at once on threads was measured and is not the
+default (``benchmarks/daily.py``'s probe, 4 portfolios of 50 assets and 500 days, 2 cores at
+load 10; per portfolio):
+
+=========================  =========  ========
+portfolios at once         cold       warm
+=========================  =========  ========
+process pool, one          1.2 s      0.44 s
+process pool, two threads  10.4 s     0.97 s
+serial, one                2.0 s      0.69 s
+serial, two threads        1.9 s      0.79 s
+=========================  =========  ========
+
+Threads nest a process pool per portfolio (started by ``forkserver`` once threads exist,
+seconds each) and, for warm days, contend for the GIL and the archive's one writer. ``workers``
+still feeds several at once when asked.
 """
 
 from __future__ import annotations
@@ -152,16 +170,16 @@ def ingest_many(
     correction : bool
         As :meth:`Ingestor.ingest`.
     workers : int, optional
-        Portfolios fed at once (default: from the configuration).
+        Portfolios fed at once on threads (default 1: each portfolio's windows use the configured
+        executor instead; see the module notes for the measurement).
 
     Returns
     -------
     tuple of PortfolioOutcome
         In the feed's order; a refused portfolio has its message and archived nothing.
     """
-    compute = ingestor.default_config.compute
     if workers is None:
-        workers = 1 if compute.executor == "serial" else (compute.workers or os.cpu_count() or 1)
+        workers = 1
 
     def one(name: str) -> PortfolioOutcome:
         if name in feed.refused:

@@ -1,9 +1,11 @@
 """Change markers: what a reader needs to know whether anything it shows has changed, in one query.
 
 A portfolio's reads (its latest state, its series pages) change only when a run is recorded, its
-windows are written, or a record is appended to the ledger (an alert or a review). The archive is
-append-only, so three numbers that only grow say it: the portfolio's latest run id, the highest
-id of its feature rows, and the ledger's head (its count and the hash of its last record).
+windows are written, a record is appended to the ledger (an alert, a review or an event), or
+prices are archived (a pending day, which writes no run, shows as pending at once). The archive
+is append-only, so numbers that only grow say it: the portfolio's latest run id, the highest id
+of its feature rows, of its price rows and of its chained events (a day closed, an asset
+delisted), and the ledger's head (its count and the hash of its last record).
 
 The feature-row id is there because a run is recorded before its windows are written (separate
 transactions today): a reader that came between them would otherwise keep the run's series
@@ -37,6 +39,10 @@ class ChangeMarker:
         Records in the ledger (alerts and reviews of every portfolio).
     ledger_hash : str
         Hash of the ledger's last record (the genesis hash when empty).
+    prices_through : int or None
+        The highest id among the portfolio's price rows (None before any).
+    events_through : int or None
+        The highest id among the portfolio's chained events (None before any).
     """
 
     portfolio: str
@@ -44,11 +50,18 @@ class ChangeMarker:
     features_through: int | None
     ledger_count: int
     ledger_hash: str
+    prices_through: int | None = None
+    events_through: int | None = None
 
     @property
     def series_key(self) -> tuple[int | None, int | None]:
         """What the portfolio's series depends on (its runs and windows, not the ledger)."""
         return (self.run_id, self.features_through)
+
+    @property
+    def days_key(self) -> tuple[int | None, int | None]:
+        """What the portfolio's pending days depend on (its prices and its chained events)."""
+        return (self.prices_through, self.events_through)
 
 
 MARKER_SQL = (
@@ -56,7 +69,9 @@ MARKER_SQL = (
     " (SELECT max(r.id) FROM runs r WHERE r.portfolio_id = p.id),"
     " (SELECT max(f.id) FROM features f WHERE f.portfolio_id = p.id),"
     " (SELECT l.seq FROM ledger l ORDER BY l.seq DESC LIMIT 1),"
-    " (SELECT l.entry_hash FROM ledger l ORDER BY l.seq DESC LIMIT 1)"
+    " (SELECT l.entry_hash FROM ledger l ORDER BY l.seq DESC LIMIT 1),"
+    " (SELECT max(q.id) FROM prices q WHERE q.portfolio_id = p.id),"
+    " (SELECT max(e.id) FROM events e WHERE e.portfolio_id = p.id)"
     " FROM portfolios p WHERE p.name = {name}"
 )
 """The one query (each part an index lookup; the feature ids of one portfolio are a range of its
@@ -93,11 +108,13 @@ def read_change_marker(engine: Engine, portfolio: str) -> ChangeMarker:
         ) from None
     if row is None:
         raise NotFoundError(f"portfolio {portfolio!r} is not in the archive; create it or check the name")
-    _, run_id, features, seq, head = row
+    _, run_id, features, seq, head, prices, events = row
     return ChangeMarker(
         portfolio=portfolio,
         run_id=None if run_id is None else int(run_id),
         features_through=None if features is None else int(features),
         ledger_count=0 if seq is None else int(seq),
         ledger_hash=GENESIS_HASH if head is None else str(head),
+        prices_through=None if prices is None else int(prices),
+        events_through=None if events is None else int(events),
     )

@@ -10,13 +10,15 @@ from __future__ import annotations
 from datetime import date
 
 import pandas as pd
+import sqlalchemy as sa
 from sqlalchemy.engine import Engine
 
 from riskshape.store import catalog
+from riskshape.store import schema as t
 from riskshape.store.database import read_transaction
 from riskshape.store.pricebook import _latest
 
-__all__ = ["read_cells"]
+__all__ = ["read_cells", "recent_dates"]
 
 
 def read_cells(engine: Engine, portfolio: str, after: date | None) -> pd.DataFrame:
@@ -41,3 +43,37 @@ def read_cells(engine: Engine, portfolio: str, after: date | None) -> pd.DataFra
         start = None if after is None else pd.Timestamp(after) + pd.Timedelta(days=1)
         rows = _latest(connection, pid, None if start is None else start.date(), None, None, None)
     return rows[["date", "asset", "price"]].reset_index(drop=True)
+
+
+def recent_dates(engine: Engine, portfolio: str, through: date, count: int) -> tuple[date, ...]:
+    """The last ``count`` archived price dates on or before ``through``, oldest first.
+
+    One query walking the prices' ``(portfolio_id, date, ...)`` index backwards from ``through``:
+    a bounded read, however long the history (the daily loop's tail, :mod:`riskshape.daily.tail`).
+
+    Parameters
+    ----------
+    engine : sqlalchemy.engine.Engine
+        The archive's engine (``Store.engine``).
+    portfolio : str
+        An existing portfolio (NotFoundError otherwise).
+    through : datetime.date
+        The last date wanted.
+    count : int
+        How many dates (fewer when the history is shorter).
+
+    Returns
+    -------
+    tuple of datetime.date
+    """
+    with read_transaction(engine) as connection:
+        pid = catalog.portfolio_id(connection, portfolio)
+        query = (
+            sa.select(t.prices.c.date)
+            .where(t.prices.c.portfolio_id == pid, t.prices.c.date <= through)
+            .group_by(t.prices.c.date)
+            .order_by(t.prices.c.date.desc())
+            .limit(count)
+        )
+        found = [row[0] for row in connection.execute(query)]
+    return tuple(pd.Timestamp(d).date() for d in reversed(found))

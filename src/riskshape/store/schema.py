@@ -118,6 +118,7 @@ prices = sa.Table(
     sa.Column("revision", sa.Integer, nullable=False),
     sa.Column("recorded_at", UtcDateTime, nullable=False),
     sa.UniqueConstraint("portfolio_id", "date", "asset", "revision", name="uq_prices_cell_revision"),
+    sa.Index("ix_prices_portfolio_row", "portfolio_id", "id"),  # the change marker's newest price row
 )
 
 features = sa.Table(
