@@ -14,7 +14,8 @@ from typing import TYPE_CHECKING, cast
 import numpy as np
 from scipy.spatial.distance import pdist, squareform
 
-from riskshape.compute.distance import correlation_matrix, correlation_to_distance, mean_offdiagonal
+from riskshape.compute.distance import correlation_to_distance, mean_offdiagonal
+from riskshape.compute.estimators import estimate_correlation
 from riskshape.compute.moments import RollingMoments, is_rebuild_point
 from riskshape.compute.persistence import EMPTY_DIAGRAM, compute_diagrams
 from riskshape.compute.summaries import SUMMARY_NAMES, bottleneck_distance, summarize_diagram, wasserstein_distance
@@ -35,6 +36,7 @@ from riskshape.types import (
     DistanceMatrix,
     Embedding,
     FloatArray,
+    MatrixEstimator,
     Positions,
     ReturnsBlock,
     RipsBackend,
@@ -74,6 +76,7 @@ class WindowSettings:
     embedding: Embedding
     standardize_cloud: bool
     step: int = 1
+    estimator: MatrixEstimator = "sample"
     rolling: bool = True
 
     @classmethod
@@ -201,7 +204,7 @@ def _from_selection(selection: Selection, settings: WindowSettings, corr: Correl
         empty = tuple(EMPTY_DIAGRAM for _ in range(settings.maxdim + 1))
         return WindowResult(selection.used, selection.left_out, float("nan"), empty, nan_distances)
     if corr is None:
-        corr = correlation_matrix(selection.block, settings.correlation)
+        corr = estimate_correlation(selection.block, settings.correlation, settings.estimator)
     distance = embedding_distance(selection.block, corr, settings.embedding, settings.standardize_cloud)
     diagrams = compute_diagrams(distance, settings.maxdim, settings.rips_backend)
     return WindowResult(selection.used, selection.left_out, mean_offdiagonal(corr), diagrams, nan_distances)
@@ -324,8 +327,13 @@ def preload(settings: WindowSettings) -> None:
 
 
 def _rolling_applies(settings: WindowSettings) -> bool:
-    """Running sums pay when a slide changes few rows and the estimator is Pearson's."""
-    return settings.rolling and settings.correlation == "pearson" and 2 * settings.step < settings.window
+    """Running sums pay when a slide changes few rows and the estimator is Pearson's sample one."""
+    return (
+        settings.rolling
+        and settings.correlation == "pearson"
+        and settings.estimator == "sample"
+        and 2 * settings.step < settings.window
+    )
 
 
 class _Rolling:
