@@ -7,6 +7,7 @@ from pathlib import Path
 import click
 
 from riskshape import CAUTION, Config, DataError, archive_run, monitor, read_prices
+from riskshape.alerts import readiness_lines
 from riskshape.cli.progress import progress_bar
 from riskshape.outputs import write_run
 from riskshape.store import open_store
@@ -87,4 +88,6 @@ def run(
         f"archive:   {store_url} (portfolio '{archived.run.portfolio}', run {archived.run.id}): "
         f"{len(archived.alerts.added)} new alert(s), {archived.alerts.existing} already archived"
     )
+    for line in readiness_lines(result.features, config.alerts.rules, config.step):
+        click.echo(f"rule {line}")
     click.echo(CAUTION)
