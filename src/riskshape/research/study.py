@@ -38,9 +38,10 @@ precision, recall and F1 cannot contradict each other.
 * **crisis direction**: whether a summary warns when high or when low (:data:`CRISIS_DIRECTIONS`,
   :func:`crisis_direction`): the mean correlation, volatility, absorption ratio and turbulence
   rise in a crisis; the H0 lengths of the correlation distance (total persistence, landscape
-  norms) and its H0 entropy fall as the single-linkage tree shrinks (Onnela et al. 2003,
-  Phys. Rev. E 68:056110, from memory); H1 summaries and the distances between consecutive
-  diagrams are taken to rise (Gidea and Katz 2018). :func:`study_table` uses it unless told
+  norms) fall as the single-linkage tree shrinks (Onnela et al. 2003, Phys. Rev. E 68:056110,
+  from memory); the H0 entropy, which does not depend on the lengths' scale but on how even
+  they are, rises as the sectors melt into one cluster; H1 summaries and the distances between
+  consecutive diagrams are taken to rise (Gidea and Katz 2018). :func:`study_table` uses it unless told
   otherwise (``directions``).
 * **NaN says why**: a measure that cannot be computed (one class of labels for the AUC, no
   covered event for the hit rate, no resolved alert for the precision) is NaN, and
@@ -96,9 +97,11 @@ CRISIS_DIRECTIONS: Mapping[str, Direction] = {
     "turbulence": "above",
     # H0 of the correlation distance: the merge distances shrink as correlations rise
     "h0_total_persistence": "below",
-    "h0_entropy": "below",
     "h0_landscape_l1": "below",
     "h0_landscape_l2": "below",
+    # H0 entropy is scale-free: it measures how even the merge distances are, and they even out as
+    # the sectors melt into one cluster, so it rises (the demo scenario agrees)
+    "h0_entropy": "above",
 }
 """Whether each summary warns of a crisis when high (``above``) or low (``below``).
 
@@ -125,8 +128,8 @@ def crisis_direction(column: str, overrides: Mapping[str, Direction] | None = No
     --------
     >>> crisis_direction("h0_total_persistence"), crisis_direction("base_ew_volatility")
     ('below', 'above')
-    >>> crisis_direction("h0_entropy", {"h0_entropy": "above"})
-    'above'
+    >>> crisis_direction("h0_entropy", {"h0_entropy": "below"})
+    'below'
     """
     if overrides and column in overrides:
         return overrides[column]
@@ -546,8 +549,8 @@ def study_table(
         Columns to study; default every numeric column except ``n_assets``, ``n_left_out``.
     directions : mapping, optional
         ``"above"`` or ``"below"`` per column, over the crisis directions of
-        :data:`CRISIS_DIRECTIONS` (:func:`crisis_direction`: H0 persistence, landscape norms and
-        entropy warn when low; correlation, volatility and the rest when high).
+        :data:`CRISIS_DIRECTIONS` (:func:`crisis_direction`: H0 persistence and landscape norms
+        warn when low; correlation, volatility, H0 entropy and the rest when high).
     rules : sequence of RuleConfig
         Alert rules; a column without a rule gets :func:`default_rule` in its direction.
     horizon, lookback, trend, post_event_days
