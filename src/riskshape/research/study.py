@@ -279,7 +279,7 @@ class EventStudy:
         Returns
         -------
         pandas.Series
-            The measures, and ``nan_reasons``: why the NaN ones are NaN ("" when none is).
+            The measures (numbers); :meth:`nan_reasons` says why a NaN one is NaN.
         """
         labels = self.labels.dropna()
         return pd.Series(
@@ -298,7 +298,6 @@ class EventStudy:
                 "n_positive": int((labels == 1).sum()),
                 "n_negative": int((labels == 0).sum()),
                 "mean_kendall_tau": self.mean_kendall_tau,
-                "nan_reasons": "; ".join(f"{k}: {v}" for k, v in self.nan_reasons().items()),
             },
             name=self.signal,
         )
@@ -559,7 +558,8 @@ def study_table(
     Returns
     -------
     pandas.DataFrame
-        One row per column (index ``signal``), the columns of :meth:`EventStudy.table` plus ``direction``.
+        One row per column (index ``signal``): ``direction``, the columns of :meth:`EventStudy.table`,
+        and ``nan_reasons``, why its NaN measures are NaN ("" when none is).
 
     Warns
     -----
@@ -622,7 +622,16 @@ def study_table(
             post_event_days=post_event_days,
         )
         reasons[col] = study.nan_reasons()
-        rows.append(pd.concat([pd.Series({"direction": direction}, name=col), study.table()]))
+        why = "; ".join(f"{measure}: {reason}" for measure, reason in reasons[col].items())
+        rows.append(
+            pd.concat(
+                [
+                    pd.Series({"direction": direction}, name=col),
+                    study.table(),
+                    pd.Series({"nan_reasons": why}, name=col),
+                ]
+            )
+        )
     table = pd.DataFrame(rows)
     table.index.name = "signal"
     _warn_nan(reasons)
