@@ -72,6 +72,10 @@ def rule_state_out(state: RuleState) -> RuleStateOut:
         active=state.active,
         active_since=None if state.active_since is None else state.active_since.date(),
         last_fired=None if state.last_fired is None else state.last_fired.date(),
+        history=state.history,
+        history_needed=state.history_needed,
+        can_fire=state.can_fire,
+        windows_to_go=state.windows_to_go,
     )
 
 

@@ -296,6 +296,14 @@ class RuleStateOut(BaseModel):
     active: bool = Field(description="fired and not yet cleared")
     active_since: date | None
     last_fired: date | None
+    history: int = Field(
+        0, description="values of history the last window held (non-missing, in the lookback before it)"
+    )
+    history_needed: int = Field(0, description="values of history a window needs before the rule judges it")
+    can_fire: bool = Field(True, description="whether the rule has enough history to fire; silent until then")
+    windows_to_go: int = Field(
+        0, description="windows still needed before it can first fire (times step: trading days)"
+    )
 
 
 class PendingDayOut(BaseModel):

@@ -33,6 +33,7 @@ from riskshape.types import (
     Direction,
     Embedding,
     ExecutorKind,
+    MatrixEstimator,
     ReturnsKind,
     RipsBackend,
     RuleKind,
@@ -275,6 +276,11 @@ class Config(_Frozen):
         How returns are made from prices.
     correlation : {"pearson", "spearman"}
         Correlation estimator.
+    estimator : {"sample", "ledoit_wolf", "clipped", "market_removed", "ewma"}
+        How the window's correlation matrix is estimated from its returns (their ranks with
+        ``spearman``): the sample estimate, Ledoit-Wolf shrinkage, eigenvalue clipping at the
+        Marchenko-Pastur edge, the market mode removed, or exponential weights (decay 0.94); see
+        :mod:`riskshape.compute.estimators`.
     maxdim : int
         Highest homology dimension computed (0, 1 or 2).
     order_p : float
@@ -301,6 +307,7 @@ class Config(_Frozen):
     min_coverage: float = Field(0.9, gt=0.0, le=1.0)
     returns: ReturnsKind = "log"
     correlation: CorrelationEstimator = "pearson"
+    estimator: MatrixEstimator = "sample"
     maxdim: int = Field(1, ge=0, le=2)
     order_p: float = Field(1.0, ge=1.0)
     rips_backend: RipsBackend = "auto"
@@ -440,6 +447,10 @@ class Config(_Frozen):
         # Hashed under its old name: archived runs are looked up by this hash, and they were stored
         # when the key was called `engine`; renaming it must not change the hash of any configuration.
         payload["engine"] = payload.pop("rips_backend")
+        # Hashed only when it is not the sample estimate: every configuration written before the key
+        # existed computed the sample estimate, and its archived runs are looked up by this hash.
+        if payload["estimator"] == "sample":
+            del payload["estimator"]
         text = json.dumps(payload, sort_keys=True, separators=(",", ":"), allow_nan=False)
         return hashlib.sha256(text.encode("utf-8")).hexdigest()
 

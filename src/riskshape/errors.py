@@ -12,6 +12,7 @@ Every public function raises only these. The tree::
     +-- AccessError    the caller's role does not allow the action
 
     DataQualityWarning  repairable data (for example unsorted dates, sorted for you)
+    ResearchWarning     a research measure that is NaN or untrustworthy, and why
 """
 
 from __future__ import annotations
@@ -26,6 +27,7 @@ __all__ = [
     "AuditError",
     "AccessError",
     "DataQualityWarning",
+    "ResearchWarning",
 ]
 
 
@@ -75,3 +77,7 @@ class AccessError(RiskshapeError, PermissionError):
 
 class DataQualityWarning(UserWarning):
     """Data that riskshape repaired (and says how) rather than rejected."""
+
+
+class ResearchWarning(UserWarning):
+    """A research measure that came out NaN or cannot be trusted, and why (too few events, one class, ...)."""

@@ -36,7 +36,7 @@ Frames
 Options
 -------
 ``RipsBackend``, ``Severity``, ``RuleKind``, ``Direction``, ``ReturnsKind``, ``CorrelationEstimator``,
-``Embedding``, ``ExecutorKind``: the values a configuration key of that meaning accepts.
+``MatrixEstimator``, ``Embedding``, ``ExecutorKind``: the values a configuration key of that meaning accepts.
 ``AlertStatus``: where an alert stands in its review (derived from its chained reviews).
 """
 
@@ -70,6 +70,7 @@ __all__ = [
     "Direction",
     "ReturnsKind",
     "CorrelationEstimator",
+    "MatrixEstimator",
     "Embedding",
     "ExecutorKind",
     "AlertStatus",
@@ -97,6 +98,7 @@ RuleKind: TypeAlias = Literal["level", "quantile", "zscore"]
 Direction: TypeAlias = Literal["above", "below"]
 ReturnsKind: TypeAlias = Literal["log", "simple"]
 CorrelationEstimator: TypeAlias = Literal["pearson", "spearman"]
+MatrixEstimator: TypeAlias = Literal["sample", "ledoit_wolf", "clipped", "market_removed", "ewma"]
 Embedding: TypeAlias = Literal["correlation", "point_cloud"]
 ExecutorKind: TypeAlias = Literal["serial", "process", "dask"]
 AlertStatus: TypeAlias = Literal["open", "acknowledged", "escalated", "dismissed", "closed"]

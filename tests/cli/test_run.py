@@ -20,6 +20,7 @@ import pytest
 
 import riskshape
 from riskshape import CAUTION, Config, DataQualityWarning, MonitorResult, monitor, read_prices
+from riskshape.alerts import describe_readiness, rule_states
 from riskshape.cli import main
 
 OUTPUTS = {"features.csv", "features.parquet", "diagrams.parquet", "left_out.csv", "manifest.json", "riskshape.sqlite"}
@@ -60,6 +61,11 @@ def test_run_writes_every_output_and_they_match_the_api(
     assert {p.name for p in out.iterdir()} == OUTPUTS
     assert not list(tmp_path.glob(".riskshape-*"))  # no staging folder left behind
     expected = _expected(prices, config)
+    # 17 windows: the default rules cannot fire yet, and the run says so for each, with the windows to go
+    for state in rule_states(expected.features, expected.config.alerts.rules):
+        assert f"rule {describe_readiness(state, step=3)}" in printed.out
+        assert not state.can_fire or state.history_needed == 0
+    assert printed.out.count("cannot fire yet") == 5
 
     features = pd.read_parquet(out / "features.parquet")
     pd.testing.assert_frame_equal(

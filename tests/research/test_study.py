@@ -5,6 +5,8 @@ The demo scenario (riskshape.demo.scenario) knows its regimes; its stress episod
 
 from __future__ import annotations
 
+import warnings
+
 import numpy as np
 import pandas as pd
 import pytest
@@ -15,7 +17,7 @@ from riskshape.alerts.rules import evaluate_rule
 from riskshape.compute.returns import to_returns
 from riskshape.config import RuleConfig
 from riskshape.demo.scenario import generate_scenario
-from riskshape.errors import DataError
+from riskshape.errors import DataError, ResearchWarning
 from riskshape.research.events import (
     DrawdownEvents,
     equal_weight_wealth,
@@ -61,12 +63,18 @@ def test_alert_scores_by_hand() -> None:
     # day 58: 58 + 5 passes the data -> unknown
     assert study.alerts["outcome"].tolist() == ["false", "true", "in_event", "false", "unknown"]
     assert study.precision == pytest.approx(1 / 3)
-    assert study.recall == pytest.approx(1 / 2)  # event 2 (day 45) had no alert in [40, 45)
+    # one definition of a hit, an alert in [s - 5, s): event 1 (day 20) has day 18, event 2 (day 45)
+    # has none in [40, 45); hit rate and recall are the same number
+    assert study.recall == pytest.approx(1 / 2)
+    assert study.hit_rate == study.recall
     assert study.f1 == pytest.approx(2 * (1 / 3) * (1 / 2) / (1 / 3 + 1 / 2))
     per = study.per_event.set_index("start")
-    assert per.loc[CAL[20], "lead_days"] == 15  # first alert in [4, 20) is day 5: 20 - 5
-    assert per.loc[CAL[45], "lead_days"] == 15  # day 30 is within [29, 45): 45 - 30
-    assert study.hit_rate == 1.0
+    assert per.loc[CAL[20], "lead_days"] == 2  # the true alert of day 18: 20 - 18
+    assert per.loc[CAL[20], "first_alert"] == CAL[18]
+    assert np.isnan(per.loc[CAL[45], "lead_days"]) and not per.loc[CAL[45], "hit"]
+    assert study.mean_lead_days == 2
+    # every true alert warns of a hit event, and every hit event has a true alert
+    assert study._count("true") >= 1 and per["hit"].sum() == 1
     assert study.false_alarms_per_year == pytest.approx(2 / (60 / 252))
     assert per["kendall_tau"].tolist() == pytest.approx([1.0, 1.0])  # a rising signal: tau = 1
 
@@ -74,12 +82,14 @@ def test_alert_scores_by_hand() -> None:
 def test_auc_is_the_mann_whitney_u_statistic_over_n1_n0(rng: np.random.Generator) -> None:
     events = _events([20, 45], [22, 47])
     signal = pd.Series(rng.standard_normal(60), index=CAL, name="x")
-    study = event_study(signal, events, horizon=5, alerts=pd.DatetimeIndex([]))
+    with pytest.warns(ResearchWarning, match="precision is NaN: no alert could be scored"):
+        study = event_study(signal, events, horizon=5, alerts=pd.DatetimeIndex([]))
     labels = study.labels.dropna()
     pos, neg = signal[labels.index[labels == 1]], signal[labels.index[labels == 0]]
     u = mannwhitneyu(pos, neg).statistic  # scipy's U of the first sample (Mann and Whitney 1947)
     assert study.auc == pytest.approx(u / (len(pos) * len(neg)))
-    below = event_study(signal, events, horizon=5, alerts=pd.DatetimeIndex([]), direction="below")
+    with pytest.warns(ResearchWarning):
+        below = event_study(signal, events, horizon=5, alerts=pd.DatetimeIndex([]), direction="below")
     assert below.auc == pytest.approx(1 - study.auc)
 
 
@@ -117,15 +127,25 @@ def demo():
 def _study(prices: pd.DataFrame, stress: pd.DataFrame, config: Config = DEMO) -> pd.DataFrame:
     result = monitor(prices, config)
     known = events_from_periods(stress, equal_weight_wealth(result.prices))
-    return study_table(
-        result.features,
-        known,
-        columns=list(TOPOLOGICAL),
-        directions=TOPOLOGICAL,
-        horizon=HORIZON,
-        lookback=LOOKBACK,
-        post_event_days=DEMO.window,
-    )
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always", ResearchWarning)
+        table = study_table(
+            result.features,
+            known,
+            columns=list(TOPOLOGICAL),
+            directions=TOPOLOGICAL,
+            horizon=HORIZON,
+            lookback=LOOKBACK,
+            post_event_days=DEMO.window,
+        )
+    # every NaN measure says why, in the table and in the one warning
+    for signal, row in table.iterrows():
+        for measure in ("auc", "hit_rate", "precision", "f1", "mean_lead_days"):
+            if np.isnan(float(row[measure])):
+                assert f"{measure}: " in row["nan_reasons"]
+                assert f"{signal}: {measure} is NaN" in str(caught[0].message)
+    assert len(caught) <= 1
+    return table
 
 
 def test_drawdown_events_find_the_demo_stress_episode(demo) -> None:
@@ -180,6 +200,7 @@ def test_rule_alerts_are_the_alert_engines_firings(demo) -> None:
         min_history=30,
     )
     events = portfolio_drawdown_events(result.prices, 0.2, 126)
-    study = event_study(result.features[rule.summary], events, alerts=rule, direction="below")
+    with pytest.warns(ResearchWarning, match="mean_lead_days is NaN: no event was hit"):
+        study = event_study(result.features[rule.summary], events, alerts=rule, direction="below")
     fired = [f.window_end for f in evaluate_rule(result.features[rule.summary], rule)]
     assert study.alerts["window_end"].tolist() == fired

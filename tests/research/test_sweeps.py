@@ -3,8 +3,10 @@
 from __future__ import annotations
 
 import pandas as pd
+import pytest
 
 from riskshape import Config, monitor
+from riskshape.errors import ResearchWarning
 from riskshape.research.events import equal_weight_wealth, events_from_periods
 from riskshape.research.study import study_table
 from riskshape.research.sweeps import sweep
@@ -29,13 +31,15 @@ def test_sweep_runs_the_study_per_grid_point_identically_on_any_executor(small_p
     assert set(serial.table.index.droplevel("signal")) == {(20, 3), (20, 5), (30, 3), (30, 5)}
     # each grid point is the plain study of that configuration's monitor run
     cfg = Config(window=30, step=5, compute={"executor": "serial"})
-    direct = study_table(
-        monitor(small_prices, cfg).features,
-        events,
-        columns=["mean_correlation"],
-        horizon=5,
-        lookback=30,
-        post_event_days=30,
-    )
+    with pytest.warns(ResearchWarning, match="precision is NaN"):  # the sweep keeps the reasons in its table
+        direct = study_table(
+            monitor(small_prices, cfg).features,
+            events,
+            columns=["mean_correlation"],
+            horizon=5,
+            lookback=30,
+            post_event_days=30,
+        )
     assert serial.table.loc[(30, 5, "mean_correlation"), "auc"] == direct.loc["mean_correlation", "auc"]
+    assert serial.table.loc[(30, 5, "mean_correlation"), "nan_reasons"] == direct.loc["mean_correlation", "nan_reasons"]
     assert serial.pivot("auc").shape == (2, 4)

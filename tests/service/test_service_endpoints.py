@@ -16,6 +16,7 @@ from fastapi.testclient import TestClient
 from prometheus_client.parser import text_string_to_metric_families
 
 from riskshape import monitor
+from riskshape.alerts import rule_states
 from riskshape.archive import reproduce_alert
 from riskshape.caution import CAUTION
 from riskshape.store import open_store
@@ -125,6 +126,10 @@ def test_latest_state_is_the_last_window_of_the_batch(client: TestClient, auth: 
         expected = None if not np.isfinite(value) else float(value)
         assert body["values"][name] == expected, name
     assert {r["rule"] for r in body["rules"]} == {"corr_high", "h0_jump"}
+    for state in rule_states(batch.features, batch.config.alerts.rules):  # whether each rule can fire yet
+        served = next(r for r in body["rules"] if r["rule"] == state.rule)
+        assert (served["can_fire"], served["windows_to_go"]) == (state.can_fire, state.windows_to_go)
+        assert (served["history"], served["history_needed"]) == (state.history, state.history_needed)
     for alert in body["active_alerts"]:  # an active alert is the firing that made its rule active
         state = next(r for r in body["rules"] if r["rule"] == alert["rule"])
         assert state["active"] and state["active_since"] == alert["window_end"]

@@ -14,6 +14,8 @@ from riskshape._lazy import lazy_exports
 if TYPE_CHECKING:
     from riskshape.alerts.model import Alert as Alert
     from riskshape.alerts.model import Firing as Firing
+    from riskshape.alerts.readiness import describe_readiness as describe_readiness
+    from riskshape.alerts.readiness import readiness_lines as readiness_lines
     from riskshape.alerts.rules import RuleState as RuleState
     from riskshape.alerts.rules import active_rules as active_rules
     from riskshape.alerts.rules import evaluate_rule as evaluate_rule
@@ -21,12 +23,15 @@ if TYPE_CHECKING:
     from riskshape.alerts.rules import recheck_firing as recheck_firing
     from riskshape.alerts.rules import rule_state as rule_state
     from riskshape.alerts.rules import rule_states as rule_states
+    from riskshape.alerts.rules import windows_until_ready as windows_until_ready
     from riskshape.alerts.thresholds import trailing_levels as trailing_levels
 
 _EXPORTS = {
     "trailing_levels": "riskshape.alerts.thresholds",
     "Alert": "riskshape.alerts.model",
     "Firing": "riskshape.alerts.model",
+    "describe_readiness": "riskshape.alerts.readiness",
+    "readiness_lines": "riskshape.alerts.readiness",
     "RuleState": "riskshape.alerts.rules",
     "active_rules": "riskshape.alerts.rules",
     "evaluate_rule": "riskshape.alerts.rules",
@@ -34,6 +39,7 @@ _EXPORTS = {
     "recheck_firing": "riskshape.alerts.rules",
     "rule_state": "riskshape.alerts.rules",
     "rule_states": "riskshape.alerts.rules",
+    "windows_until_ready": "riskshape.alerts.rules",
 }
 
 __all__ = list(_EXPORTS)

@@ -33,6 +33,12 @@ Semantics, for a rule with ``direction="above"`` (``"below"`` mirrors every comp
 
 Windows are positions in the series (its index labels them); the cool-down and the lookback
 count windows, not calendar days.
+
+**When a rule can fire.** By points 3 and 8 a rule is silent until it has judged ``consecutive``
+windows, whatever the summary does: with ``min_history = 250`` and ``consecutive = 10`` that is
+260 windows with a value. :class:`RuleState` says whether it can fire yet (``can_fire``), the
+history it needs against the history it holds, and how many more windows it needs
+(:func:`windows_until_ready`); the CLI's ``run`` and the service's ``latest`` show them.
 """
 
 from __future__ import annotations
@@ -57,6 +63,7 @@ __all__ = [
     "rule_states",
     "active_rules",
     "recheck_firing",
+    "windows_until_ready",
 ]
 
 
@@ -91,6 +98,16 @@ class RuleState:
         Windows after this one during which it may not fire.
     severity : str
         The rule's severity.
+    history_needed : int
+        Values of history a window needs to be judged: ``min_history``, and at least 1 for
+        ``quantile``, 2 for ``zscore`` (compare with ``history``, the history held).
+    can_fire : bool
+        Whether the rule has held enough history for ``consecutive`` judged windows, so that it
+        can fire now (:func:`windows_until_ready`); a rule that cannot fire yet is silent
+        whatever the summary does.
+    windows_to_go : int
+        Windows (each with a value) still needed before it can first fire; 0 when ``can_fire``.
+        Times ``step`` it is trading days.
     """
 
     rule: str
@@ -107,6 +124,9 @@ class RuleState:
     last_fired: pd.Timestamp | None
     cooldown_left: int
     severity: Severity
+    history_needed: int = 0
+    can_fire: bool = True
+    windows_to_go: int = 0
 
 
 @dataclass(frozen=True)
@@ -121,6 +141,9 @@ class _Trace:
     run: int  # at the last window
     active_since: int | None  # position, after the last window
     last_fired: int | None
+    history_needed: int
+    n_judged: int  # windows judged so far
+    next_history: int  # the history the window after the last one will hold
 
 
 def _check_series(series: pd.Series, what: str) -> pd.Series:
@@ -171,7 +194,50 @@ def _trace(values: pd.Series, rule: RuleConfig) -> _Trace:
         run=run,
         active_since=active_since,
         last_fired=fired[-1] if fired else None,
+        history_needed=need,
+        n_judged=int(np.count_nonzero(judged)),
+        next_history=int(np.count_nonzero(present[-rule.lookback :])),
     )
+
+
+def windows_until_ready(history_held: int, history_needed: int, judged: int, consecutive: int) -> int:
+    """Windows (each with a value) before a rule can first fire; 0 when it can fire now.
+
+    A rule fires at the earliest at its ``consecutive``-th judged window, and a window is judged
+    once its history holds ``history_needed`` values. With ``judged`` windows judged so far and
+    ``history_held`` values of history for the next window: 0 when ``judged >= consecutive``;
+    ``consecutive - judged`` when the next window will be judged; else
+    ``history_needed - history_held + consecutive``.
+
+    Parameters
+    ----------
+    history_held : int
+        Non-missing values among the ``lookback`` windows up to and including the last one.
+    history_needed : int
+        ``RuleState.history_needed``.
+    judged : int
+        Windows judged so far.
+    consecutive : int
+        The rule's ``consecutive``.
+
+    Returns
+    -------
+    int
+
+    Examples
+    --------
+    >>> windows_until_ready(history_held=100, history_needed=250, judged=0, consecutive=10)
+    160
+    >>> windows_until_ready(history_held=250, history_needed=250, judged=3, consecutive=10)
+    7
+    >>> windows_until_ready(history_held=250, history_needed=250, judged=40, consecutive=10)
+    0
+    """
+    if judged >= consecutive:
+        return 0
+    if history_held >= history_needed:
+        return consecutive - judged
+    return history_needed - history_held + consecutive
 
 
 def _firing(rule: RuleConfig, index: pd.DatetimeIndex, trace: _Trace, t: int) -> Firing:
@@ -304,6 +370,9 @@ def rule_state(series: pd.Series, rule: RuleConfig) -> RuleState:
         last_fired=_stamp(values.index, trace.last_fired),
         cooldown_left=cooldown_left,
         severity=rule.severity,
+        history_needed=trace.history_needed,
+        can_fire=trace.n_judged >= rule.consecutive,
+        windows_to_go=windows_until_ready(trace.next_history, trace.history_needed, trace.n_judged, rule.consecutive),
     )
 
 

@@ -9,6 +9,7 @@ from pathlib import Path
 import click
 
 from riskshape import CAUTION, Config, DataError, archive_run, check_cost, check_quality, monitor, read_prices
+from riskshape.alerts import readiness_lines
 from riskshape.cli.progress import progress_bar
 from riskshape.compute import StageTimes, describe_backend
 from riskshape.outputs import write_run
@@ -113,6 +114,8 @@ def run(
     )
     if result.stage_times is not None:
         click.echo(format_stage_times(replace(result.stage_times, writing=writing)))
+    for line in readiness_lines(result.features, config.alerts.rules, config.step):
+        click.echo(f"rule {line}")
     click.echo(CAUTION)
 
 

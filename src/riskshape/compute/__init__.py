@@ -6,6 +6,7 @@ One module per step, in the order the data flow through them:
 - :mod:`~riskshape.compute.windows`: causal window ends, their index arithmetic, and the coverage policy;
 - :mod:`~riskshape.compute.moments`: running sums that give a sliding window's correlation;
 - :mod:`~riskshape.compute.distance`: correlation estimators and d = sqrt(2 (1 - rho));
+- :mod:`~riskshape.compute.estimators`: the sample estimate and its cleaned forms (shrinkage, clipping, ...);
 - :mod:`~riskshape.compute.persistence`: Vietoris-Rips diagrams (ripser or giotto-ph; single linkage for H0);
 - :mod:`~riskshape.compute.matching`: exact Wasserstein and bottleneck matchings between diagrams;
 - :mod:`~riskshape.compute.summaries`: per-diagram summaries and the distances to the previous window;
@@ -32,6 +33,7 @@ from riskshape._lazy import lazy_exports
 if TYPE_CHECKING:
     from riskshape.compute.distance import correlation_matrix as correlation_matrix
     from riskshape.compute.distance import correlation_to_distance as correlation_to_distance
+    from riskshape.compute.estimators import estimate_correlation as estimate_correlation
     from riskshape.compute.executors import DaskExecutor as DaskExecutor
     from riskshape.compute.executors import Executor as Executor
     from riskshape.compute.executors import ProcessExecutor as ProcessExecutor
@@ -67,6 +69,7 @@ _EXPORTS = {
     "Selection": "riskshape.compute.windows",
     "correlation_matrix": "riskshape.compute.distance",
     "correlation_to_distance": "riskshape.compute.distance",
+    "estimate_correlation": "riskshape.compute.estimators",
     "compute_diagrams": "riskshape.compute.persistence",
     "resolve_backend": "riskshape.compute.persistence",
     "describe_backend": "riskshape.compute.persistence",

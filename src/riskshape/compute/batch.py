@@ -14,7 +14,8 @@ from typing import TYPE_CHECKING, cast
 import numpy as np
 from scipy.spatial.distance import pdist, squareform
 
-from riskshape.compute.distance import correlation_matrix, correlation_to_distance, mean_offdiagonal
+from riskshape.compute.distance import correlation_to_distance, mean_offdiagonal
+from riskshape.compute.estimators import estimate_correlation
 from riskshape.compute.moments import RollingMoments, is_rebuild_point
 from riskshape.compute.persistence import EMPTY_DIAGRAM, compute_diagrams
 from riskshape.compute.stages import NO_CLOCK, StageClock, StageTimes
@@ -36,6 +37,7 @@ from riskshape.types import (
     DistanceMatrix,
     Embedding,
     FloatArray,
+    MatrixEstimator,
     Positions,
     ReturnsBlock,
     RipsBackend,
@@ -76,6 +78,7 @@ class WindowSettings:
     embedding: Embedding
     standardize_cloud: bool
     step: int = 1
+    estimator: MatrixEstimator = "sample"
     rolling: bool = True
 
     @classmethod
@@ -205,7 +208,7 @@ def _from_selection(
         empty = tuple(EMPTY_DIAGRAM for _ in range(settings.maxdim + 1))
         return WindowResult(selection.used, selection.left_out, float("nan"), empty, nan_distances)
     if corr is None:
-        corr = correlation_matrix(selection.block, settings.correlation)
+        corr = estimate_correlation(selection.block, settings.correlation, settings.estimator)
     mean_correlation = mean_offdiagonal(corr)
     clock.mark("correlation")
     distance = embedding_distance(selection.block, corr, settings.embedding, settings.standardize_cloud)
@@ -370,8 +373,13 @@ def preload(settings: WindowSettings) -> None:
 
 
 def _rolling_applies(settings: WindowSettings) -> bool:
-    """Running sums pay when a slide changes few rows and the estimator is Pearson's."""
-    return settings.rolling and settings.correlation == "pearson" and 2 * settings.step < settings.window
+    """Running sums pay when a slide changes few rows and the estimator is Pearson's sample one."""
+    return (
+        settings.rolling
+        and settings.correlation == "pearson"
+        and settings.estimator == "sample"
+        and 2 * settings.step < settings.window
+    )
 
 
 class _Rolling:

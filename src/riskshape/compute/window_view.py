@@ -3,7 +3,7 @@
 The engine keeps only what a window gives (admitted assets, diagrams, summaries); explanations,
 plots and research tools also need what the diagrams came from. :func:`open_window` rebuilds it
 with the engine's own steps and settings (:func:`riskshape.compute.windows.select_assets`,
-:func:`riskshape.compute.distance.correlation_matrix`, :func:`riskshape.compute.batch.embedding_distance`),
+:func:`riskshape.compute.estimators.estimate_correlation`, :func:`riskshape.compute.batch.embedding_distance`),
 so it cannot drift from the engine. ``MonitorResult.window(end)`` is the way to get one.
 
 The correlation is the plain estimator's. Where the monitor took a window's correlation from
@@ -19,7 +19,7 @@ import numpy as np
 import pandas as pd
 
 from riskshape.compute.batch import WindowResult, WindowSettings, embedding_distance
-from riskshape.compute.distance import correlation_matrix
+from riskshape.compute.estimators import estimate_correlation
 from riskshape.compute.windows import select_assets
 from riskshape.types import CorrelationMatrix, Diagrams, DistanceMatrix, ReturnsBlock, ReturnsFrame
 
@@ -109,6 +109,6 @@ def open_window(frame: ReturnsFrame, computed: WindowResult, settings: WindowSet
     if n < 2:
         empty = np.zeros((n, n))
         return Window(frame.index[-1], assets, left_out, returns, selection.block, empty, empty, computed.diagrams)
-    corr = correlation_matrix(selection.block, settings.correlation)
+    corr = estimate_correlation(selection.block, settings.correlation, settings.estimator)
     distance = embedding_distance(selection.block, corr, settings.embedding, settings.standardize_cloud)
     return Window(frame.index[-1], assets, left_out, returns, selection.block, corr, distance, computed.diagrams)

@@ -13,14 +13,17 @@ from riskshape._lazy import lazy_exports
 if TYPE_CHECKING:
     from riskshape.research.baselines import absorption_ratio as absorption_ratio
     from riskshape.research.baselines import compute_baselines as compute_baselines
+    from riskshape.research.baselines import features_with_baselines as features_with_baselines
     from riskshape.research.baselines import mean_pairwise_correlation as mean_pairwise_correlation
     from riskshape.research.baselines import portfolio_volatility as portfolio_volatility
     from riskshape.research.baselines import turbulence as turbulence
+    from riskshape.research.baselines import window_baselines as window_baselines
     from riskshape.research.events import DrawdownEvents as DrawdownEvents
     from riskshape.research.events import drawdown_events as drawdown_events
     from riskshape.research.events import events_from_periods as events_from_periods
     from riskshape.research.events import portfolio_drawdown_events as portfolio_drawdown_events
     from riskshape.research.study import EventStudy as EventStudy
+    from riskshape.research.study import crisis_direction as crisis_direction
     from riskshape.research.study import event_study as event_study
     from riskshape.research.study import study_table as study_table
     from riskshape.research.surrogates import SurrogateTest as SurrogateTest
@@ -30,10 +33,13 @@ if TYPE_CHECKING:
     from riskshape.research.sweeps import SweepResult as SweepResult
     from riskshape.research.sweeps import sweep as sweep
     from riskshape.research.walkforward import WalkForward as WalkForward
+    from riskshape.research.walkforward import nested_feature_sets as nested_feature_sets
     from riskshape.research.walkforward import walk_forward as walk_forward
 
 _EXPORTS = {
     "compute_baselines": "riskshape.research.baselines",
+    "features_with_baselines": "riskshape.research.baselines",
+    "window_baselines": "riskshape.research.baselines",
     "portfolio_volatility": "riskshape.research.baselines",
     "mean_pairwise_correlation": "riskshape.research.baselines",
     "absorption_ratio": "riskshape.research.baselines",
@@ -45,8 +51,10 @@ _EXPORTS = {
     "EventStudy": "riskshape.research.study",
     "event_study": "riskshape.research.study",
     "study_table": "riskshape.research.study",
+    "crisis_direction": "riskshape.research.study",
     "WalkForward": "riskshape.research.walkforward",
     "walk_forward": "riskshape.research.walkforward",
+    "nested_feature_sets": "riskshape.research.walkforward",
     "SurrogateTest": "riskshape.research.surrogates",
     "surrogate": "riskshape.research.surrogates",
     "surrogate_zscores": "riskshape.research.surrogates",

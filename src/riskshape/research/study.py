@@ -17,21 +17,46 @@ signal is indexed by window ends, which are days of that calendar. For an event 
   the mean over negative windows, over the standard deviation (ddof = 1) of the negatives;
   overlapping windows are autocorrelated, so it is a size, not a test;
 * **alerts** are window ends (from an alert rule, :func:`riskshape.alerts.rules.evaluate_rule`,
-  or given). An alert at ``t`` is *true* when an event starts in ``(t, t + H]``, *in event*
-  inside an event, *unknown* when ``t + H`` passes the end of the data, else *false*;
-  **precision** = true / (true + false); **recall** = events with an alert in ``[s - H, s)``
-  over the events the signal covers (it has a window end at or before ``s - H``); **F1** their
-  harmonic mean; **false alarms per year** = false alerts per 252 trading days of signal;
-* **hit** and **lead time**: the first alert in ``[s - L, s)`` and ``s`` minus its day, in
-  trading days; **hit rate** = hit events over covered events;
+  or given).
+
+**One definition of a hit.** An alert at ``t`` *warns of* an event starting on day ``s`` when
+``s - H <= t < s``: the alert comes within the span ``H`` (``horizon``) before the event's start.
+Every alert and event measure rests on it:
+
+* an alert is *true* when it warns of an event, *in event* when it falls inside one (start to
+  trough), *unknown* when ``t + H`` passes the end of the data, else *false*;
+* an event is *hit* when some alert warns of it; its **lead time** is ``s`` minus the first such
+  alert, in trading days;
+* **hit rate** = **recall** = hit events over the events the signal covers (it has a window end at
+  or before ``s - H``): one number under two names;
+* **precision** = true / (true + false); **F1** their harmonic mean; **false alarms per year** =
+  false alerts per 252 trading days of signal.
+
+So an alert that is true always hits an event, and a hit event always has a true alert: hit rate,
+precision, recall and F1 cannot contradict each other.
+
+* **crisis direction**: whether a summary warns when high or when low (:data:`CRISIS_DIRECTIONS`,
+  :func:`crisis_direction`): the mean correlation, volatility, absorption ratio and turbulence
+  rise in a crisis; the H0 lengths of the correlation distance (total persistence, landscape
+  norms) fall as the single-linkage tree shrinks (Onnela et al. 2003, Phys. Rev. E 68:056110,
+  from memory); the H0 entropy, which does not depend on the lengths' scale but on how even
+  they are, rises as the sectors melt into one cluster; H1 summaries and the distances between
+  consecutive diagrams are taken to rise (Gidea and Katz 2018). :func:`study_table` uses it unless told
+  otherwise (``directions``).
+* **NaN says why**: a measure that cannot be computed (one class of labels for the AUC, no
+  covered event for the hit rate, no resolved alert for the precision) is NaN, and
+  :meth:`EventStudy.nan_reasons` says why; :func:`event_study` and :func:`study_table` issue a
+  :class:`riskshape.errors.ResearchWarning` with the reasons.
 * **Kendall tau trend** (Gidea and Katz 2018, Physica A 491:820, who test the trend of the
   L^p norms' variance over the 250 days before a crash; from memory): ``scipy.stats.kendalltau``
   between time and the signal (``trend="level"``) or its rolling variance over
-  ``variance_window`` windows (``trend="variance"``) at the window ends in ``[s - L, s)``.
+  ``variance_window`` windows (``trend="variance"``) at the window ends in ``[s - L, s)``; ``L``
+  (``lookback``) is the trend's span only, never a hit's.
 """
 
 from __future__ import annotations
 
+import warnings
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 from typing import Literal, TypeAlias
@@ -44,7 +69,7 @@ from sklearn.metrics import roc_auc_score
 from riskshape.alerts.model import Firing
 from riskshape.alerts.rules import evaluate_rule
 from riskshape.config import RuleConfig
-from riskshape.errors import ConfigError
+from riskshape.errors import ConfigError, ResearchWarning
 from riskshape.research.baselines import TRADING_DAYS_PER_YEAR
 from riskshape.research.events import DrawdownEvents
 from riskshape.research.labels import event_labels, event_positions, positions
@@ -56,11 +81,60 @@ __all__ = [
     "event_study",
     "study_table",
     "default_rule",
+    "crisis_direction",
     "ALERT_OUTCOMES",
+    "CRISIS_DIRECTIONS",
 ]  # event_labels: from labels
 
 ALERT_OUTCOMES: tuple[str, ...] = ("true", "false", "in_event", "unknown")
 Alerts: TypeAlias = RuleConfig | Sequence[Firing] | pd.DatetimeIndex | None
+
+CRISIS_DIRECTIONS: Mapping[str, Direction] = {
+    # the baselines (riskshape.research.baselines) and the monitor's correlation level rise
+    "mean_correlation": "above",
+    "ew_volatility": "above",
+    "absorption_ratio": "above",
+    "turbulence": "above",
+    # H0 of the correlation distance: the merge distances shrink as correlations rise
+    "h0_total_persistence": "below",
+    "h0_landscape_l1": "below",
+    "h0_landscape_l2": "below",
+    # H0 entropy is scale-free: it measures how even the merge distances are, and they even out as
+    # the sectors melt into one cluster, so it rises (the demo scenario agrees)
+    "h0_entropy": "above",
+}
+"""Whether each summary warns of a crisis when high (``above``) or low (``below``).
+
+Columns not listed (H1 summaries, the diagram distances, anything else) are taken to rise;
+a ``base_`` prefix (baselines computed with the features) is read through.
+"""
+
+
+def crisis_direction(column: str, overrides: Mapping[str, Direction] | None = None) -> Direction:
+    """The direction in which a summary column warns of a crisis.
+
+    Parameters
+    ----------
+    column : str
+        A features or baselines column.
+    overrides : mapping of str to {"above", "below"}, optional
+        Directions that take precedence over :data:`CRISIS_DIRECTIONS`.
+
+    Returns
+    -------
+    {"above", "below"}
+
+    Examples
+    --------
+    >>> crisis_direction("h0_total_persistence"), crisis_direction("base_ew_volatility")
+    ('below', 'above')
+    >>> crisis_direction("h0_entropy", {"h0_entropy": "below"})
+    'below'
+    """
+    if overrides and column in overrides:
+        return overrides[column]
+    name = column.removeprefix("base_")
+    return CRISIS_DIRECTIONS.get(name, "above")
 
 
 @dataclass(frozen=True)
@@ -74,8 +148,8 @@ class EventStudy:
     horizon, lookback : int
         ``H`` and ``L`` in trading days.
     per_event : pandas.DataFrame
-        One row per event: ``start``, ``trough``, ``depth``, ``covered``, ``hit``,
-        ``first_alert``, ``lead_days``, ``warned`` (alert in ``[s - H, s)``), ``kendall_tau``,
+        One row per event: ``start``, ``trough``, ``depth``, ``covered``, ``hit`` (an alert in
+        ``[s - H, s)``), ``first_alert`` (the first such alert), ``lead_days``, ``kendall_tau``,
         ``kendall_p``, ``trend_points``.
     alerts : pandas.DataFrame
         One row per alert: ``window_end``, ``outcome`` (one of :data:`ALERT_OUTCOMES`).
@@ -112,7 +186,7 @@ class EventStudy:
 
     @property
     def hit_rate(self) -> float:
-        """Covered events with an alert in the ``L`` days before their start, over covered events."""
+        """Covered events with an alert in the ``H`` days before their start, over covered events."""
         return _ratio(int((self.per_event["hit"] & self.per_event["covered"]).sum()), self.n_covered)
 
     @property
@@ -122,8 +196,8 @@ class EventStudy:
 
     @property
     def recall(self) -> float:
-        """Covered events with an alert in the ``H`` days before their start, over covered events."""
-        return _ratio(int((self.per_event["warned"] & self.per_event["covered"]).sum()), self.n_covered)
+        """The hit rate under its classification name (one definition of a hit)."""
+        return self.hit_rate
 
     @property
     def f1(self) -> float:
@@ -161,8 +235,52 @@ class EventStudy:
             float(self.per_event["kendall_tau"].mean()) if self.per_event["kendall_tau"].notna().any() else float("nan")
         )
 
+    def nan_reasons(self) -> dict[str, str]:
+        """Why each measure that is NaN is NaN (measure name -> reason); empty when none is.
+
+        Returns
+        -------
+        dict of str to str
+        """
+        labels = self.labels[self.labels.notna() & np.isfinite(self.score)]
+        n_pos, n_neg = int((labels == 1).sum()), int((labels == 0).sum())
+        reasons: dict[str, str] = {}
+        if np.isnan(self.auc):
+            reasons["auc"] = (
+                f"needs windows of both labels; got {n_pos} before an event and {n_neg} calm "
+                "(too few events in the signal's span, or a shorter horizon)"
+            )
+        if self.score.dropna().nunique() <= 1:
+            reasons["auc"] = "the signal is constant: it cannot rank windows"
+        if np.isnan(self.hit_rate):
+            reasons["hit_rate"] = (
+                f"no event is covered: none of the {len(self.per_event)} events starts at least "
+                f"{self.horizon} trading days after the signal's first window"
+            )
+            reasons["recall"] = reasons["hit_rate"]
+        if np.isnan(self.precision):
+            reasons["precision"] = (
+                f"no alert could be scored: {len(self.alerts)} alerts, none of them true or false "
+                "(inside an event, or too close to the end of the data)"
+            )
+        if np.isnan(self.f1) and ("precision" in reasons or "recall" in reasons):
+            reasons["f1"] = "precision or recall is NaN"
+        if np.isnan(self.mean_lead_days):
+            reasons["mean_lead_days"] = "no event was hit"
+        if np.isnan(self.effect_size):
+            reasons["effect_size"] = (
+                f"needs one window before an event and two calm ones with spread; got {n_pos} and {n_neg}"
+            )
+        return reasons
+
     def table(self) -> pd.Series:
-        """The study in one row (for :func:`study_table`)."""
+        """The study in one row (for :func:`study_table`).
+
+        Returns
+        -------
+        pandas.Series
+            The measures (numbers); :meth:`nan_reasons` says why a NaN one is NaN.
+        """
         labels = self.labels.dropna()
         return pd.Series(
             {
@@ -247,9 +365,10 @@ def event_study(
     events : DrawdownEvents
         From :func:`riskshape.research.events.portfolio_drawdown_events` on the same prices.
     horizon : int
-        ``H``: the warning horizon, trading days.
+        ``H``, trading days: the span of a hit (an alert in ``[s - H, s)`` warns of an event
+        starting on ``s``) and of the labels.
     lookback : int
-        ``L``: how far before an event alerts count as hits and the trend is measured.
+        ``L``: how far before an event the trend is measured (the Kendall tau only).
     alerts : RuleConfig, sequence of Firing, DatetimeIndex, optional
         A rule (evaluated causally on ``signal``), firings, or alert dates; default
         :func:`default_rule` in ``direction``.
@@ -266,25 +385,60 @@ def event_study(
     -------
     EventStudy
 
+    Warns
+    -----
+    ResearchWarning
+        When a measure is NaN, with the reason (:meth:`EventStudy.nan_reasons`).
+
     Examples
     --------
-    The event of :func:`event_labels`' example (start day 2, trough day 4), a signal and two
-    alerts. By hand: the labelled days are 0 and 1 (positive) and 5 (negative), and the signal
-    ranks both positives above the negative (AUC 1); the alert on day 1 precedes the start by
-    one day (true, a hit with a lead of 1), the one on day 5 is false:
-
     >>> import pandas as pd
-    >>> from riskshape.research.events import drawdown_events
-    >>> days = pd.bdate_range("2031-01-06", periods=8)
-    >>> wealth = pd.Series([1.0, 1.02, 1.03, 0.95, 0.88, 0.92, 1.05, 1.06], index=days)
-    >>> events = drawdown_events(wealth, min_depth=0.1)
-    >>> signal = pd.Series([0.5, 0.9, 1.2, 1.1, 0.7, 0.4, 0.3, 0.3], index=days, name="mean_correlation")
-    >>> study = event_study(signal, events, horizon=2, lookback=3, alerts=days[[1, 5]])
-    >>> study.auc, study.alerts["outcome"].tolist()
-    (1.0, ['true', 'false'])
-    >>> study.hit_rate, study.precision, study.recall, study.mean_lead_days
-    (1.0, 0.5, 1.0, 1.0)
+    >>> from riskshape.research import events_from_periods
+    >>> days = pd.bdate_range("2031-01-01", periods=40)
+    >>> wealth = pd.Series(1.0, index=days)
+    >>> events = events_from_periods(pd.DataFrame({"start": [days[30]], "end": [days[35]]}), wealth)
+    >>> signal = pd.Series(range(40), index=days, name="x", dtype=float)
+    >>> study = event_study(signal, events, horizon=5, alerts=days[[10, 27]])
+    >>> study.hit_rate, study.precision, int(study.per_event["lead_days"].iloc[0])
+    (1.0, 0.5, 3)
     """
+    study = _event_study(
+        signal,
+        events,
+        horizon=horizon,
+        lookback=lookback,
+        alerts=alerts,
+        direction=direction,
+        trend=trend,
+        variance_window=variance_window,
+        exclude_in_event=exclude_in_event,
+        post_event_days=post_event_days,
+    )
+    _warn_nan({study.signal: study.nan_reasons()})
+    return study
+
+
+def _warn_nan(reasons: Mapping[str, Mapping[str, str]]) -> None:
+    """One ResearchWarning listing, per signal, why its NaN measures are NaN (none when all are numbers)."""
+    lines = [f"{signal}: {measure} is NaN: {why}" for signal, r in reasons.items() for measure, why in r.items()]
+    if lines:
+        warnings.warn("event study: " + "; ".join(lines), ResearchWarning, stacklevel=3)
+
+
+def _event_study(
+    signal: pd.Series,
+    events: DrawdownEvents,
+    *,
+    horizon: int,
+    lookback: int,
+    alerts: Alerts,
+    direction: Direction,
+    trend: Literal["level", "variance"],
+    variance_window: int,
+    exclude_in_event: bool,
+    post_event_days: int,
+) -> EventStudy:
+    """:func:`event_study` without the warning."""
     if lookback < 1:
         raise ConfigError(f"lookback must be at least 1 trading day, got {lookback}")
     name = str(signal.name)
@@ -309,7 +463,7 @@ def event_study(
     rows = []
     first_signal = pos.min() if len(pos) else len(cal)
     for k, (s, trough) in enumerate(zip(starts, troughs)):
-        before = alert_pos[(alert_pos >= s - lookback) & (alert_pos < s)]
+        before = alert_pos[(alert_pos >= s - horizon) & (alert_pos < s)]  # the alerts that warn of it
         in_window = (pos >= s - lookback) & (pos < s)
         points = trend_series.iloc[np.flatnonzero(in_window)].dropna()
         tau, p_value = (np.nan, np.nan)
@@ -325,7 +479,6 @@ def event_study(
                 "hit": bool(len(before)),
                 "first_alert": cal[before.min()] if len(before) else pd.NaT,
                 "lead_days": float(s - before.min()) if len(before) else np.nan,
-                "warned": bool(((alert_pos >= s - horizon) & (alert_pos < s)).any()),
                 "kendall_tau": tau,
                 "kendall_p": p_value,
                 "trend_points": int(len(points)),
@@ -355,7 +508,6 @@ _PER_EVENT_COLUMNS = (
     "hit",
     "first_alert",
     "lead_days",
-    "warned",
     "kendall_tau",
     "kendall_p",
     "trend_points",
@@ -401,7 +553,9 @@ def study_table(
     columns : sequence of str, optional
         Columns to study; default every numeric column except ``n_assets``, ``n_left_out``.
     directions : mapping, optional
-        ``"above"`` or ``"below"`` per column (default ``"above"``).
+        ``"above"`` or ``"below"`` per column, over the crisis directions of
+        :data:`CRISIS_DIRECTIONS` (:func:`crisis_direction`: H0 persistence and landscape norms
+        warn when low; correlation, volatility, H0 entropy and the rest when high).
     rules : sequence of RuleConfig
         Alert rules; a column without a rule gets :func:`default_rule` in its direction.
     horizon, lookback, trend, post_event_days
@@ -410,7 +564,37 @@ def study_table(
     Returns
     -------
     pandas.DataFrame
-        One row per column (index ``signal``), the columns of :meth:`EventStudy.table` plus ``direction``.
+        One row per column (index ``signal``): ``direction``, the columns of :meth:`EventStudy.table`,
+        and ``nan_reasons``, why its NaN measures are NaN ("" when none is).
+
+    Warns
+    -----
+    ResearchWarning
+        One, listing the NaN measures of every column and why.
+
+    Examples
+    --------
+    >>> import numpy as np, pandas as pd
+    >>> from riskshape.config import RuleConfig
+    >>> from riskshape.research import events_from_periods
+    >>> days = pd.bdate_range("2031-01-01", periods=40)
+    >>> events = events_from_periods(
+    ...     pd.DataFrame({"start": [days[30]], "end": [days[35]]}), pd.Series(1.0, index=days)
+    ... )
+    >>> ramp = np.r_[np.tile([0.0, 1.0], 12), np.arange(16.0)]  # rises before the event (day 30)
+    >>> features = pd.DataFrame({"mean_correlation": ramp, "h0_total_persistence": -ramp}, index=days)
+    >>> rules = [
+    ...     RuleConfig(name="up", summary="mean_correlation", kind="level", threshold=3.5, min_history=0),
+    ...     RuleConfig(
+    ...         name="down", summary="h0_total_persistence", kind="level", threshold=-3.5,
+    ...         direction="below", min_history=0,
+    ...     ),
+    ... ]
+    >>> table = study_table(features, events, horizon=5, rules=rules)
+    >>> table[["direction", "hit_rate", "precision", "mean_lead_days"]].to_dict("list")
+    {'direction': ['above', 'below'], 'hit_rate': [1.0, 1.0], 'precision': [1.0, 1.0], 'mean_lead_days': [2.0, 2.0]}
+    >>> table["auc"].round(2).tolist()  # day 25 (ramp 1) is labelled positive: it ties calm days
+    [0.82, 0.82]
     """
     chosen = (
         list(columns)
@@ -428,9 +612,10 @@ def study_table(
         )
     by_summary = {rule.summary: rule for rule in rules}
     rows = []
+    reasons = {}
     for col in chosen:
-        direction = (directions or {}).get(col, "above")
-        study = event_study(
+        direction = crisis_direction(col, directions)
+        study = _event_study(
             features[col].astype(float),
             events,
             horizon=horizon,
@@ -438,9 +623,22 @@ def study_table(
             alerts=by_summary.get(col),
             direction=direction,
             trend=trend,
+            variance_window=20,
+            exclude_in_event=True,
             post_event_days=post_event_days,
         )
-        rows.append(pd.concat([pd.Series({"direction": direction}, name=col), study.table()]))
+        reasons[col] = study.nan_reasons()
+        why = "; ".join(f"{measure}: {reason}" for measure, reason in reasons[col].items())
+        rows.append(
+            pd.concat(
+                [
+                    pd.Series({"direction": direction}, name=col),
+                    study.table(),
+                    pd.Series({"nan_reasons": why}, name=col),
+                ]
+            )
+        )
     table = pd.DataFrame(rows)
     table.index.name = "signal"
+    _warn_nan(reasons)
     return table

@@ -8,6 +8,7 @@ points go to the executor the configuration's ``compute`` section names
 
 from __future__ import annotations
 
+import warnings
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 from itertools import product
@@ -17,7 +18,7 @@ import pandas as pd
 from riskshape.compute.executors import make_executor
 from riskshape.compute.monitor import monitor
 from riskshape.config import Config
-from riskshape.errors import ConfigError
+from riskshape.errors import ConfigError, ResearchWarning
 from riskshape.research.baselines import compute_baselines
 from riskshape.research.events import DrawdownEvents
 from riskshape.research.study import study_table
@@ -66,15 +67,19 @@ def _one_point(
     result = monitor(prices, config)
     baselines = compute_baselines(result.returns, config, data_are_returns=True)
     features = result.features.join(baselines.drop(columns=[c for c in baselines.columns if c in result.features]))
-    table = study_table(
-        features,
-        events,
-        columns=columns,
-        directions=directions,
-        horizon=horizon,
-        lookback=lookback,
-        post_event_days=config.window if post_event_days is None else post_event_days,
-    )
+    with warnings.catch_warnings():
+        # one warning per grid point (raised in a worker) would drown the sweep's table, whose
+        # nan_reasons column says why each NaN is NaN
+        warnings.simplefilter("ignore", ResearchWarning)
+        table = study_table(
+            features,
+            events,
+            columns=columns,
+            directions=directions,
+            horizon=horizon,
+            lookback=lookback,
+            post_event_days=config.window if post_event_days is None else post_event_days,
+        )
     return table.assign(window=config.window, step=config.step).reset_index()
 
 

@@ -10,7 +10,7 @@ SQLite cannot change a UNIQUE constraint in place, so there the two tables are r
 rows (as migration 0002 rebuilds a table), inside the migration's transaction.
 
 Revision ID: 0004
-Revises: 0002 (to be re-linked to 0003 once the day-completeness migration is in)
+Revises: 0003
 Create Date: 2026-12-04
 """
 
