@@ -459,8 +459,9 @@ def render_html(report: ReviewReport, images: dict[str, bytes] | None = None) ->
     plots = (
         "".join(
             f'<figure><img alt="summaries of {_e(name)}" src="data:image/png;base64,'
-            f'{base64.b64encode(png).decode("ascii")}"><figcaption>{_e(name)}: summaries by window end; red '
-            f"triangles mark alerts.</figcaption></figure>"
+            f'{base64.b64encode(png).decode("ascii")}"><figcaption>{_e(name)}: summaries by window end; each '
+            f"alert is marked by its severity's shape (circle: info, diamond: warning, cross: critical) with "
+            f"its threshold beside it.</figcaption></figure>"
             for name, png in images.items()
         )
         or "<p>No summaries archived for the period.</p>"
