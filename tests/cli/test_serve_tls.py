@@ -7,7 +7,6 @@ from __future__ import annotations
 import datetime
 import ipaddress
 import os
-import socket
 import ssl
 import subprocess
 import sys
@@ -18,6 +17,7 @@ import httpx
 import pytest
 
 from riskshape.cli import main
+from tests.kit.service import free_port
 
 STARTUP_SECONDS = 90  # a bound on waiting, not a speed requirement
 
@@ -50,15 +50,9 @@ def _self_signed(folder: Path) -> tuple[Path, Path]:
     return cert_path, key_path
 
 
-def _free_port() -> int:
-    with socket.socket() as sock:
-        sock.bind(("127.0.0.1", 0))
-        return int(sock.getsockname()[1])
-
-
 def test_serve_speaks_https_with_the_given_certificate(tmp_path: Path) -> None:
     cert, key = _self_signed(tmp_path)
-    port = _free_port()
+    port = free_port()
     url = f"sqlite:///{tmp_path / 'archive.sqlite'}"
     command = [sys.executable, "-m", "riskshape", "serve", "--store", url, "--port", str(port)]
     log = tmp_path / "serve.log"

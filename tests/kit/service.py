@@ -4,10 +4,15 @@ price bodies in the layouts the API accepts.
 
 from __future__ import annotations
 
+import socket
+import subprocess
+import time
 from pathlib import Path
 
+import httpx
 import numpy as np
 import pandas as pd
+import pytest
 
 ROLES = ("reader", "ingest", "reviewer", "admin")
 
@@ -93,3 +98,29 @@ def cautioned(response: object) -> object:
             assert body["caution"] == CAUTION
         return body
     return response.text  # type: ignore[attr-defined]
+
+
+STARTUP_SECONDS = 60  # a bound on waiting for a server, not a speed requirement
+
+
+def free_port() -> int:
+    """A TCP port on the loopback that nothing listens on now."""
+    with socket.socket(socket.AF_INET, socket.SOCK_STREAM) as sock:
+        sock.bind(("127.0.0.1", 0))
+        return int(sock.getsockname()[1])
+
+
+def wait_until_healthy(
+    process: subprocess.Popen[bytes], base: str, log: Path, seconds: float = STARTUP_SECONDS
+) -> None:
+    """Wait until ``base``'s health endpoint answers 200; fail with the server's log if it exits or times out."""
+    deadline = time.monotonic() + seconds
+    while True:
+        try:
+            if httpx.get(f"{base}/v1/health", timeout=2).status_code == 200:
+                return
+        except httpx.TransportError:
+            pass
+        if process.poll() is not None or time.monotonic() > deadline:
+            pytest.fail(f"the server did not start: {log.read_text(errors='replace')[-2000:]}")
+        time.sleep(0.2)

@@ -6,7 +6,6 @@ from __future__ import annotations
 
 import json
 import os
-import socket
 import subprocess
 import sys
 import time
@@ -20,15 +19,7 @@ from click.testing import CliRunner
 
 from riskshape.cli import cli
 from riskshape.demo.scenario import generate_scenario
-from tests.kit.service import cautioned, csv_body, write_config
-
-STARTUP_SECONDS = 60  # a bound on waiting for the server, not a speed requirement
-
-
-def free_port() -> int:
-    with socket.socket(socket.AF_INET, socket.SOCK_STREAM) as sock:
-        sock.bind(("127.0.0.1", 0))
-        return int(sock.getsockname()[1])
+from tests.kit.service import cautioned, csv_body, free_port, wait_until_healthy, write_config
 
 
 @dataclass(frozen=True)
@@ -70,16 +61,7 @@ def server(tmp_path_factory: pytest.TempPathFactory) -> Iterator[Server]:
         process = subprocess.Popen(command, stdout=sink, stderr=subprocess.STDOUT, env=env)
     base = f"http://127.0.0.1:{port}"
     try:
-        deadline = time.monotonic() + STARTUP_SECONDS
-        while True:
-            try:
-                if httpx.get(f"{base}/v1/health", timeout=2).status_code == 200:
-                    break
-            except httpx.TransportError:
-                pass
-            if process.poll() is not None or time.monotonic() > deadline:
-                pytest.fail(f"the server did not start: {log.read_text(errors='replace')[-2000:]}")
-            time.sleep(0.2)
+        wait_until_healthy(process, base, log)
         yield Server(base, keys, log)
     finally:
         process.terminate()

@@ -24,21 +24,13 @@ import pytest
 from riskshape.demo.scenario import generate_scenario
 from riskshape.store import open_store
 from tests.kit.postgres import fresh_schema_url
-from tests.kit.service import csv_body, write_config
+from tests.kit.service import csv_body, free_port, write_config
 
 pytestmark = pytest.mark.skipif(not Path("/proc/net/tcp").exists(), reason="needs Linux /proc to tell workers apart")
 
 STARTUP_SECONDS = 90  # bounds on waiting, not speed requirements
 WORKERS = 2
 RECHECK_SECONDS = 1.0  # the default of ServiceSettings.key_recheck_seconds
-
-
-def free_port() -> int:
-    import socket
-
-    with socket.socket(socket.AF_INET, socket.SOCK_STREAM) as sock:
-        sock.bind(("127.0.0.1", 0))
-        return int(sock.getsockname()[1])
 
 
 def _children(pid: int) -> list[int]:

@@ -16,7 +16,6 @@ import os
 import shutil
 import subprocess
 import sys
-import time
 from collections.abc import Iterator
 from dataclasses import dataclass
 from pathlib import Path
@@ -28,9 +27,8 @@ from click.testing import CliRunner
 from riskshape.caution import CAUTION
 from riskshape.cli import cli
 from riskshape.demo.scenario import generate_scenario
-from tests.kit.service import csv_body, write_config
+from tests.kit.service import csv_body, free_port, wait_until_healthy, write_config
 from tests.service.console.conftest import PORTFOLIO
-from tests.service.test_service_uvicorn import STARTUP_SECONDS, free_port
 
 CHROMIUM = shutil.which("chromium") or "/usr/bin/chromium"
 ARTIFACTS = Path(__file__).resolve().parents[3] / "test-artifacts" / "console"
@@ -82,16 +80,7 @@ def console(tmp_path_factory: pytest.TempPathFactory) -> Iterator[Console]:
         process = subprocess.Popen(command, stdout=sink, stderr=subprocess.STDOUT, env=dict(os.environ))
     base = f"http://127.0.0.1:{port}"
     try:
-        deadline = time.monotonic() + STARTUP_SECONDS
-        while True:
-            try:
-                if httpx.get(f"{base}/v1/health", timeout=2).status_code == 200:
-                    break
-            except httpx.TransportError:
-                pass
-            if process.poll() is not None or time.monotonic() > deadline:
-                pytest.fail(f"the server did not start: {log.read_text(errors='replace')[-2000:]}")
-            time.sleep(0.2)
+        wait_until_healthy(process, base, log)
         prices = generate_scenario(seed=5, n_days=60, assets_per_sector=4).prices
         with httpx.Client(base_url=base, timeout=120) as client:
             made = client.post("/v1/portfolios", json={"name": PORTFOLIO}, headers={"X-Riskshape-Key": keys["admin"]})
