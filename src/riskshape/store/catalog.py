@@ -176,13 +176,16 @@ def get_run(engine: Engine, run_id: int) -> Run:
     return _run(row)
 
 
-def latest_run(engine: Engine, portfolio: str) -> Run | None:
-    """The portfolio's most recent run, or None if it has none (NotFoundError if no such portfolio)."""
+def latest_run(engine: Engine, portfolio: str, as_known_at: datetime | None = None) -> Run | None:
+    """The portfolio's most recent run (recorded by ``as_known_at``), or None if it has none
+    (NotFoundError if no such portfolio).
+    """
+    query = _run_query().where(t.portfolios.c.name == portfolio)
+    if as_known_at is not None:
+        query = query.where(t.runs.c.created_at <= as_known_at)
     with read_transaction(engine) as connection:
         portfolio_id(connection, portfolio)
-        row = connection.execute(
-            _run_query().where(t.portfolios.c.name == portfolio).order_by(t.runs.c.id.desc()).limit(1)
-        ).first()
+        row = connection.execute(query.order_by(t.runs.c.id.desc()).limit(1)).first()
     return None if row is None else _run(row)
 
 

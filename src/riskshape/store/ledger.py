@@ -21,6 +21,7 @@ from riskshape.errors import NotFoundError, StoreError
 from riskshape.store import schema as t
 from riskshape.store.canonical import entry_hash
 from riskshape.store.database import read_transaction, write_transaction
+from riskshape.store.knowledge import known_runs
 from riskshape.store.records import (
     GENESIS_HASH,
     REVIEW_ACTIONS,
@@ -242,6 +243,7 @@ def list_alerts(
     reviewed: bool | None = None,
     limit: int | None = 100,
     offset: int = 0,
+    as_known_at: datetime | None = None,
 ) -> AlertPage:
     """Alerts matching the filters. See :meth:`riskshape.store.Store.list_alerts`."""
     if limit is not None and limit < 0 or offset < 0:
@@ -259,8 +261,12 @@ def list_alerts(
         conditions.append(a.c.severity.in_(levels))
     if rule is not None:
         conditions.append(a.c.rule == rule)
+    if as_known_at is not None:
+        conditions.append(a.c.run_id.in_(known_runs(as_known_at)))
     if reviewed is not None:
         has_review = sa.exists().where(t.reviews.c.alert_id == a.c.id)
+        if as_known_at is not None:
+            has_review = has_review.where(t.reviews.c.created_at <= as_known_at)
         conditions.append(has_review if reviewed else ~has_review)
     where = sa.and_(sa.true(), *conditions)
     with read_transaction(engine) as connection:
@@ -272,12 +278,16 @@ def list_alerts(
     return AlertPage(items=items, total=total, offset=offset)
 
 
-def list_reviews(engine: Engine, alert_ids: Sequence[int] | None = None) -> tuple[ReviewRecord, ...]:
-    """Reviews in ledger order, of the given alerts (default every alert).
+def list_reviews(
+    engine: Engine, alert_ids: Sequence[int] | None = None, as_known_at: datetime | None = None
+) -> tuple[ReviewRecord, ...]:
+    """Reviews in ledger order, of the given alerts (default every alert), recorded by ``as_known_at``.
 
     See :meth:`riskshape.store.Store.list_reviews`.
     """
     query = sa.select(t.reviews).order_by(t.reviews.c.seq)
+    if as_known_at is not None:
+        query = query.where(t.reviews.c.created_at <= as_known_at)
     with read_transaction(engine) as connection:
         if alert_ids is None:
             return tuple(review_from_row(r) for r in connection.execute(query))
@@ -289,13 +299,18 @@ def list_reviews(engine: Engine, alert_ids: Sequence[int] | None = None) -> tupl
     return tuple(sorted(found, key=lambda r: r.seq))
 
 
-def get_alert(engine: Engine, alert_id: int) -> AlertDetail:
-    """One alert and its reviews. See :meth:`riskshape.store.Store.get_alert`."""
+def get_alert(engine: Engine, alert_id: int, as_known_at: datetime | None = None) -> AlertDetail:
+    """One alert and its reviews (as known at ``as_known_at``). See :meth:`riskshape.store.Store.get_alert`."""
     with read_transaction(engine) as connection:
-        row = connection.execute(sa.select(t.alerts).where(t.alerts.c.id == alert_id)).first()
+        query = sa.select(t.alerts).where(t.alerts.c.id == alert_id)
+        if as_known_at is not None:
+            query = query.where(t.alerts.c.run_id.in_(known_runs(as_known_at)))
+        row = connection.execute(query).first()
         if row is None:
-            raise NotFoundError(f"alert {alert_id} is not in the archive; list alerts to find its id")
-        reviews = connection.execute(
-            sa.select(t.reviews).where(t.reviews.c.alert_id == alert_id).order_by(t.reviews.c.seq)
-        )
+            known = "" if as_known_at is None else f" as known at {as_known_at.isoformat()}"
+            raise NotFoundError(f"alert {alert_id} is not in the archive{known}; list alerts to find its id")
+        asked = sa.select(t.reviews).where(t.reviews.c.alert_id == alert_id)
+        if as_known_at is not None:
+            asked = asked.where(t.reviews.c.created_at <= as_known_at)
+        reviews = connection.execute(asked.order_by(t.reviews.c.seq))
         return AlertDetail(alert=alert_from_row(row), reviews=tuple(review_from_row(r) for r in reviews))

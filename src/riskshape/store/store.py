@@ -219,9 +219,12 @@ class Store:
         return catalog.get_run(self.engine, run_id)
 
     @_database_errors
-    def latest_run(self, portfolio: str) -> Run | None:
-        """The portfolio's most recent run, or None. Raises :class:`NotFoundError` for an unknown portfolio."""
-        return catalog.latest_run(self.engine, portfolio)
+    def latest_run(self, portfolio: str, *, as_known_at: object = None) -> Run | None:
+        """The portfolio's most recent run (recorded by ``as_known_at``, if given), or None.
+
+        Raises :class:`NotFoundError` for an unknown portfolio, :class:`DataError` for a bad ``as_known_at``.
+        """
+        return catalog.latest_run(self.engine, portfolio, to_known_at(as_known_at))
 
     @_database_errors
     def list_runs(self, portfolio: str | None = None) -> tuple[Run, ...]:
@@ -322,9 +325,11 @@ class Store:
         reviewed: bool | None = None,
         limit: int | None = 100,
         offset: int = 0,
+        as_known_at: object = None,
     ) -> AlertPage:
         """Alerts by window end (then id). ``since``/``until`` bound the window end (inclusive);
-        ``reviewed`` True/False keeps alerts with / without any review.
+        ``reviewed`` True/False keeps alerts with / without any review. With ``as_known_at`` (see
+        :meth:`read_features`), only the alerts of runs recorded by then (and reviews made by then).
         """
         return ledger.list_alerts(
             self.engine,
@@ -336,12 +341,15 @@ class Store:
             reviewed=reviewed,
             limit=limit,
             offset=offset,
+            as_known_at=to_known_at(as_known_at),
         )
 
     @_database_errors
-    def get_alert(self, alert_id: int) -> AlertDetail:
-        """One alert with its reviews. Raises :class:`NotFoundError` if absent."""
-        return ledger.get_alert(self.engine, alert_id)
+    def get_alert(self, alert_id: int, *, as_known_at: object = None) -> AlertDetail:
+        """One alert with its reviews (as known at ``as_known_at``: the alert if its run was recorded by
+        then, the reviews made by then). Raises :class:`NotFoundError` if absent (or not yet raised then).
+        """
+        return ledger.get_alert(self.engine, alert_id, to_known_at(as_known_at))
 
     @_database_errors
     def append_review(
@@ -356,9 +364,11 @@ class Store:
         return ledger.append_review(self.engine, alert_id, action, reviewer, comment, check=check)
 
     @_database_errors
-    def list_reviews(self, alert_ids: Sequence[int] | None = None) -> tuple[ReviewRecord, ...]:
-        """Reviews in ledger order, of the given alerts (default every alert)."""
-        return ledger.list_reviews(self.engine, alert_ids)
+    def list_reviews(
+        self, alert_ids: Sequence[int] | None = None, *, as_known_at: object = None
+    ) -> tuple[ReviewRecord, ...]:
+        """Reviews in ledger order, of the given alerts (default every alert); made by ``as_known_at`` if given."""
+        return ledger.list_reviews(self.engine, alert_ids, to_known_at(as_known_at))
 
     # -- other chained events ----------------------------------------------------------------------
     @_database_errors
@@ -409,10 +419,19 @@ class Store:
 
     @_database_errors
     def list_events(
-        self, *, kind: str | None = None, portfolio: str | None = None, subject: str | None = None
+        self,
+        *,
+        kind: str | None = None,
+        portfolio: str | None = None,
+        subject: str | None = None,
+        as_known_at: object = None,
     ) -> tuple[EventRecord, ...]:
-        """Chained events in ledger order, optionally of one kind, portfolio and subject."""
-        return events.list_events(self.engine, kind=kind, portfolio=portfolio, subject=subject)
+        """Chained events in ledger order, optionally of one kind, portfolio and subject (recorded by
+        ``as_known_at``, if given).
+        """
+        return events.list_events(
+            self.engine, kind=kind, portfolio=portfolio, subject=subject, as_known_at=to_known_at(as_known_at)
+        )
 
     # -- API keys --------------------------------------------------------------------------------
     @_database_errors
