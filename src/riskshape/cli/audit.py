@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import click
 
-from riskshape import CAUTION, ComputeConfig, store_url_from_env
+from riskshape import CAUTION
 from riskshape.store import chain_head, open_store, verify_chain
 from riskshape.types import ExecutorKind
 
@@ -12,7 +12,11 @@ __all__ = ["audit", "STORE_OPTION"]
 
 
 def _store_url(ctx: click.Context, param: click.Parameter, value: str | None) -> str:
-    url = value or store_url_from_env()
+    if value:
+        return value
+    from riskshape import store_url_from_env  # the configuration module (pydantic) only when needed
+
+    url = store_url_from_env()
     if not url:
         raise click.UsageError("--store is required (or set RISKSHAPE_STORE_URL)", ctx=ctx)
     return url
@@ -81,7 +85,7 @@ def reproduce(alert_id: int, store_url: str, executor: ExecutorKind) -> None:
     As known then: from the prices and configuration its run saw; every check must pass. As known
     now: from the prices after every later correction; whether it would still fire, with the value now.
     """
-    from riskshape import reproduce_alert, reproduce_alert_now  # the engine loads only for this command
+    from riskshape import ComputeConfig, reproduce_alert, reproduce_alert_now  # the engine loads only here
 
     click.echo(CAUTION)
     compute = ComputeConfig(executor=executor)

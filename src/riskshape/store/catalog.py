@@ -8,14 +8,12 @@ import unicodedata
 from datetime import datetime, timezone
 from typing import Any
 
-import pandas as pd
 import sqlalchemy as sa
 from sqlalchemy.engine import Connection, Engine
 
 from riskshape.errors import ConflictError, NotFoundError, StoreError
 from riskshape.store import schema as t
 from riskshape.store.database import read_transaction, write_transaction
-from riskshape.store.pricebook import append_prices, max_price_id, validated
 from riskshape.store.records import Portfolio, PriceWrite, Run, RunManifest
 from riskshape.types import PriceFrame
 
@@ -130,6 +128,10 @@ def create_run(engine: Engine, portfolio: str, manifest: RunManifest, prices: Pr
     """Archive the prices of a run (as corrections where they differ) and record its manifest, in one
     transaction. See :meth:`riskshape.store.Store.create_run`.
     """
+    import pandas as pd  # writing a run only: the archive's reads load no pandas
+
+    from riskshape.store.pricebook import append_prices, max_price_id, validated
+
     for name in ("config_hash", "input_hash"):
         value = getattr(manifest, name)
         if not isinstance(value, str) or not _HEX64.match(value):

@@ -12,7 +12,6 @@ from collections.abc import Callable, Sequence
 from datetime import date, datetime, timezone
 from typing import Any, cast
 
-import pandas as pd
 import sqlalchemy as sa
 from sqlalchemy.engine import Connection, Engine
 
@@ -52,6 +51,13 @@ def to_date(value: object, what: str) -> date:
     """A whole day from a date, a datetime-like at midnight, or an ISO string."""
     if isinstance(value, date) and not isinstance(value, datetime):
         return value
+    if isinstance(value, str) and len(value) == 10:  # YYYY-MM-DD: the common case, without pandas
+        try:
+            return date.fromisoformat(value)
+        except ValueError:
+            pass
+    import pandas as pd  # other date-likes (timestamps, numpy dates, other spellings)
+
     try:
         stamp = pd.Timestamp(value)
     except (ValueError, TypeError):
@@ -102,6 +108,8 @@ def append_alerts(engine: Engine, alerts: Sequence[Alert], run_id: int) -> Alert
     """
     for n, alert in enumerate(alerts):
         _check_alert(alert, n)
+    import pandas as pd  # writing alerts: the writer has loaded pandas already
+
     ordered = sorted(alerts, key=lambda a: (pd.Timestamp(a.firing.window_end), a.firing.rule))
     with write_transaction(engine) as connection:
         run = connection.execute(
@@ -220,6 +228,9 @@ def append_review(
     return ReviewRecord(**row)
 
 
+_ALERT_FIELDS = tuple(AlertRecord.__dataclass_fields__)
+
+
 def alert_from_row(row: Any) -> AlertRecord:
     """An :class:`AlertRecord` from a result row of the ``alerts`` table."""
     m = row._mapping
@@ -271,10 +282,11 @@ def list_alerts(
     where = sa.and_(sa.true(), *conditions)
     with read_transaction(engine) as connection:
         total = int(connection.execute(sa.select(sa.func.count()).select_from(a).where(where)).scalar_one())
-        query = sa.select(a).where(where).order_by(a.c.window_end, a.c.id).offset(offset)
+        columns = [a.c[name] for name in _ALERT_FIELDS]  # in the record's order: built by position
+        query = sa.select(*columns).where(where).order_by(a.c.window_end, a.c.id).offset(offset)
         if limit is not None:
             query = query.limit(limit)
-        items = tuple(alert_from_row(r) for r in connection.execute(query))
+        items = tuple(AlertRecord(*r) for r in connection.execute(query))
     return AlertPage(items=items, total=total, offset=offset)
 
 

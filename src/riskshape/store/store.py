@@ -10,15 +10,14 @@ from __future__ import annotations
 import functools
 from collections.abc import Callable, Iterable, Mapping, Sequence
 from datetime import date, datetime, timezone
-from typing import ParamSpec, TypeVar
+from typing import TYPE_CHECKING, ParamSpec, TypeVar
 
-import pandas as pd
 import sqlalchemy as sa
 from sqlalchemy.engine import Engine
 
 from riskshape.alerts.model import Alert
 from riskshape.errors import ConflictError, StoreError
-from riskshape.store import catalog, events, keys, ledger, pricebook, series
+from riskshape.store import catalog, events, keys, ledger
 from riskshape.store.chain import verify_ledger
 from riskshape.store.database import (
     archive_exists,
@@ -50,6 +49,12 @@ from riskshape.store.records import (
 )
 from riskshape.types import Diagram as DiagramArray
 from riskshape.types import PriceFrame
+
+if TYPE_CHECKING:
+    import pandas as pd
+
+# The price book and the series (pandas, numpy) load with the first method that reads or writes
+# them, so the commands that read only alerts, reviews and the chain start quickly.
 
 __all__ = ["Store", "open_store", "verify_chain", "chain_head", "change_marker"]
 
@@ -143,9 +148,13 @@ class Store:
         PriceWrite
             Cells added, corrections added and cells already archived with the same price.
         """
+        from riskshape.store import pricebook  # pandas and numpy load here, not at start
+
         valid = pricebook.validated(prices, source)
         with write_transaction(self.engine) as connection:
             pid = catalog.portfolio_id(connection, portfolio)
+            from riskshape.store import pricebook  # pandas and numpy load here, not at start
+
             return pricebook.append_prices(connection, pid, valid, datetime.now(timezone.utc))
 
     @_database_errors
@@ -186,12 +195,16 @@ class Store:
                     raise StoreError(f"run {as_of_run} belongs to portfolio {run.portfolio!r}, not {portfolio!r}")
                 through = run.prices_through_id
             columns = None if assets is None else list(assets)
+            from riskshape.store import pricebook  # pandas and numpy load here, not at start
+
             return pricebook.read_prices(connection, pid, first, last, columns, through)
 
     @_database_errors
     def price_dates(self, portfolio: str) -> tuple[date, ...]:
         """Every date with an archived price of the portfolio (its trading days), ascending."""
         with read_transaction(self.engine) as connection:
+            from riskshape.store import pricebook  # pandas and numpy load here, not at start
+
             return tuple(pricebook.price_dates(connection, catalog.portfolio_id(connection, portfolio)))
 
     @_database_errors
@@ -202,6 +215,8 @@ class Store:
         first = None if start is None else ledger.to_date(start, "start")
         last = None if end is None else ledger.to_date(end, "end")
         with read_transaction(self.engine) as connection:
+            from riskshape.store import pricebook  # pandas and numpy load here, not at start
+
             return pricebook.list_corrections(connection, catalog.portfolio_id(connection, portfolio), first, last)
 
     @_database_errors
@@ -240,11 +255,15 @@ class Store:
         force is archived again as a new version of that run (counted in ``added`` and ``differing``);
         without it, it keeps its archived values (counted in ``differing`` only).
         """
+        from riskshape.store import series  # pandas and numpy load here, not at start
+
         return series.write_features(self.engine, run_id, features, supersede)
 
     @_database_errors
     def window_ends(self, portfolio: str, config_hash: str | None = None) -> tuple[date, ...]:
         """Window ends whose features are archived (for ``config_hash``, default the latest run's), ascending."""
+        from riskshape.store import series  # pandas and numpy load here, not at start
+
         return series.window_ends(self.engine, portfolio, config_hash)
 
     @_database_errors
@@ -268,6 +287,8 @@ class Store:
         text; DataError otherwise) exactly as it was known then: the versions of runs recorded by that
         moment, the latest run's configuration then (see :mod:`riskshape.store.knowledge`).
         """
+        from riskshape.store import series  # pandas and numpy load here, not at start
+
         return series.read_features(
             self.engine,
             portfolio,
@@ -285,6 +306,8 @@ class Store:
         self, run_id: int, diagrams: Iterable[tuple[object, int, DiagramArray]], *, supersede: bool = False
     ) -> WriteCount:
         """Archive (window_end, dim, bars) triples of a run as float32; idempotent and versioned like features."""
+        from riskshape.store import series  # pandas and numpy load here, not at start
+
         return series.write_diagrams(self.engine, run_id, diagrams, supersede)
 
     @_database_errors
@@ -301,6 +324,8 @@ class Store:
 
         Raises :class:`NotFoundError` if absent (or not yet archived at ``as_known_at``).
         """
+        from riskshape.store import series  # pandas and numpy load here, not at start
+
         return series.read_diagram(self.engine, portfolio, window_end, dim, config_hash, to_known_at(as_known_at))
 
     # -- alerts and reviews (the ledger) ---------------------------------------------------------
