@@ -11,6 +11,7 @@ from riskshape.reviews import STATUSES, QueueItem, list_queue, status_of
 from riskshape.selection import pick_alias, split_names
 from riskshape_service.convert import alert_out, provenance_out, review_out
 from riskshape_service.deps import ReaderDep, StoreDep
+from riskshape_service.knowledge import KnownAtQuery, knowledge_headers, read_known_at
 from riskshape_service.routers import API_PREFIX, MAX_ID, errors
 from riskshape_service.schemas import AlertDetailOut, AlertOut, AlertPageOut, StatusCounts
 from riskshape_service.settings import ServiceSettings
@@ -61,8 +62,15 @@ def make_router(settings: ServiceSettings) -> APIRouter:
         ] = None,
         limit: Annotated[int, Query(ge=1, le=cap, description=f"alerts per page (at most {cap})")] = min(100, cap),
         offset: Annotated[int, Query(ge=0, le=MAX_ID)] = 0,
+        as_known_at: KnownAtQuery = None,
     ) -> AlertPageOut:
-        """Archived alerts with their review status: open first, then newest window first; counts by status."""
+        """Archived alerts with their review status: open first, then newest window first; counts by status.
+
+        With `as_known_at`, the queue as it stood then: alerts raised by then, statuses from the
+        reviews made by then.
+        """
+        known_at = read_known_at(as_known_at)
+        response.headers.update(knowledge_headers(known_at))
         first = pick_alias("start", start, warn=False, since=since)
         last = pick_alias("end", end, warn=False, until=until)
         if since is not None or until is not None or reviewed is not None:
@@ -80,6 +88,7 @@ def make_router(settings: ServiceSettings) -> APIRouter:
             end=last,
             limit=limit,
             offset=offset,
+            as_known_at=known_at,
         )
         following = offset + len(page.items)
         return AlertPageOut(
@@ -92,9 +101,16 @@ def make_router(settings: ServiceSettings) -> APIRouter:
         )
 
     @router.get("/{alert_id}", response_model=AlertDetailOut, responses=errors(401, 403, 404, 422, 429))
-    def get_alert(alert_id: AlertId, caller: ReaderDep, store: StoreDep) -> AlertDetailOut:
-        """One alert, where it came from (configuration, inputs, version, run, chain), and its reviews."""
-        detail = store.get_alert(alert_id)
+    def get_alert(
+        alert_id: AlertId, caller: ReaderDep, store: StoreDep, response: Response, as_known_at: KnownAtQuery = None
+    ) -> AlertDetailOut:
+        """One alert, where it came from (configuration, inputs, version, run, chain), and its reviews.
+
+        With `as_known_at`, as it stood then: 404 if it was not raised yet, the reviews made by then.
+        """
+        known_at = read_known_at(as_known_at)
+        detail = store.get_alert(alert_id, as_known_at=known_at)
+        response.headers.update(knowledge_headers(known_at))
         last = detail.reviews[-1].reviewer if detail.reviews else None
         return AlertDetailOut(
             alert=alert_out(detail.alert).model_copy(

@@ -13,6 +13,7 @@ from starlette.concurrency import run_in_threadpool
 from riskshape.outputs import export_alerts
 from riskshape.selection import pick_alias
 from riskshape_service.deps import ReviewerDep, StoreDep
+from riskshape_service.knowledge import KnownAtQuery, knowledge_headers, read_known_at
 from riskshape_service.routers import API_PREFIX, errors
 from riskshape_service.settings import ServiceSettings
 
@@ -50,17 +51,32 @@ def make_router(settings: ServiceSettings) -> APIRouter:
         status: Annotated[list[str] | None, Query(description="repeat or comma-separate")] = None,
         since: Annotated[date | None, Query(alias="from", deprecated=True, description="old name of start")] = None,
         until: Annotated[date | None, Query(alias="to", deprecated=True, description="old name of end")] = None,
+        as_known_at: KnownAtQuery = None,
     ) -> Response:
         """Every matching alert (or review) with its hashes and status: a header row first, the caution in a
         column, exact values; CSV cells made safe for spreadsheets; JSON Lines one record per line.
+
+        With `as_known_at`, exactly the export riskshape gave at that moment; every record states
+        the knowledge it shows in `known_at`.
         """
+        known_at = read_known_at(as_known_at)
         first = pick_alias("start", start, warn=False, **{"from": since})
         last = pick_alias("end", end, warn=False, to=until)
         text = await run_in_threadpool(
-            partial(export_alerts, store, format, what=what, start=first, end=last, portfolio=portfolio, status=status)
+            partial(
+                export_alerts,
+                store,
+                format,
+                what=what,
+                start=first,
+                end=last,
+                portfolio=portfolio,
+                status=status,
+                as_known_at=known_at,
+            )
         )
         name = f"riskshape-{what}.{format}"
-        headers = {"Content-Disposition": f'attachment; filename="{name}"'}
+        headers = {"Content-Disposition": f'attachment; filename="{name}"', **knowledge_headers(known_at)}
         if since is not None or until is not None:
             headers["Deprecation"] = "true"
             headers["Warning"] = '299 - "from and to are deprecated; use start and end"'

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from datetime import datetime
 from typing import Annotated
 
 from fastapi import APIRouter, Path, Request, Response
@@ -12,6 +13,7 @@ from riskshape_service import access
 from riskshape_service.context import ServiceContext
 from riskshape_service.convert import alert_out, pending_out, rule_state_out
 from riskshape_service.deps import AdminDep, ReadAccessDep, ReaderDep, StoreDep
+from riskshape_service.knowledge import KnownAtQuery, knowledge_headers, read_known_at
 from riskshape_service.prepared import NOT_MODIFIED, etag_matches, latest_etag, not_modified, prepared_response
 from riskshape_service.routers import API_PREFIX, errors
 from riskshape_service.schemas import (
@@ -24,7 +26,7 @@ from riskshape_service.schemas import (
 )
 from riskshape_service.settings import ServiceSettings
 
-__all__ = ["make_router", "PortfolioName", "render_latest"]
+__all__ = ["make_router", "PortfolioName", "render_latest", "render_latest_known_at"]
 
 PortfolioName = Annotated[str, Path(min_length=1, max_length=200, description="portfolio name")]
 
@@ -50,13 +52,20 @@ def make_router(settings: ServiceSettings) -> APIRouter:
         response_model=LatestOut,
         responses={**errors(401, 403, 404, 429), **NOT_MODIFIED},
     )
-    async def latest(name: PortfolioName, request: Request, access: ReadAccessDep) -> Response:
+    async def latest(
+        name: PortfolioName, request: Request, access: ReadAccessDep, as_known_at: KnownAtQuery = None
+    ) -> Response:
         """The last window: its summaries, where each alert rule stands, and the alerts still active.
 
         Served from bytes prepared once per change of the archive, with a strong `ETag`; send it back
-        in `If-None-Match` to get `304 Not Modified` while nothing has changed.
+        in `If-None-Match` to get `304 Not Modified` while nothing has changed. With `as_known_at`,
+        exactly the state riskshape showed at that moment (read for the request, without an ETag).
         """
         store, context = access.store, access.context
+        known_at = read_known_at(as_known_at)
+        if known_at is not None:
+            then = await run_in_threadpool(render_latest_known_at, store, name, context, known_at)
+            return Response(then, media_type="application/json", headers=knowledge_headers(known_at))
         marker = await context.markers.current(store, name)
         etag = latest_etag(marker)
         if etag_matches(request.headers.get("if-none-match"), etag):
@@ -65,14 +74,27 @@ def make_router(settings: ServiceSettings) -> APIRouter:
         if body is None:
             body = await run_in_threadpool(render_latest, store, name, context, marker)
             context.prepared.put(("latest", name), etag, body)
-        return prepared_response(body, etag)
+        response = prepared_response(body, etag)
+        response.headers.update(knowledge_headers(None))
+        return response
 
     return router
 
 
 def render_latest(store: Store, name: str, context: ServiceContext, marker: ChangeMarker) -> bytes:
     """The JSON bytes of a portfolio's latest state, as of ``marker``."""
-    state = access.latest_state(store, name, context.snapshots, marker)
+    return _latest_bytes(store, name, access.latest_state(store, name, context.snapshots, marker))
+
+
+def render_latest_known_at(store: Store, name: str, context: ServiceContext, known_at: datetime) -> bytes:
+    """The JSON bytes of a portfolio's latest state exactly as riskshape showed it at ``known_at``.
+
+    The pending days are those of the archive now (the days' own knowledge time is not kept).
+    """
+    return _latest_bytes(store, name, access.latest_state_known_at(store, name, known_at, context.config))
+
+
+def _latest_bytes(store: Store, name: str, state: access.LatestState) -> bytes:
     out = LatestOut(
         portfolio=state.portfolio,
         config_hash=state.config_hash,

@@ -43,6 +43,8 @@ if TYPE_CHECKING:
     from riskshape.errors import NotFoundError as NotFoundError
     from riskshape.errors import RiskshapeError as RiskshapeError
     from riskshape.errors import StoreError as StoreError
+    from riskshape.hindsight import AlertNow as AlertNow
+    from riskshape.hindsight import reproduce_alert_now as reproduce_alert_now
     from riskshape.prices import csv_table as csv_table
     from riskshape.prices import read_prices as read_prices
     from riskshape.prices import validate_prices as validate_prices
@@ -66,6 +68,8 @@ _EXPORTS = {
     "CostEstimate": "riskshape.cost",
     "archive_run": "riskshape.archive",
     "reproduce_alert": "riskshape.archive",
+    "reproduce_alert_now": "riskshape.hindsight",
+    "AlertNow": "riskshape.hindsight",
     "RiskshapeError": "riskshape.errors",
     "DataError": "riskshape.errors",
     "ConfigError": "riskshape.errors",
@@ -95,6 +99,8 @@ __all__ = [
     "CostEstimate",
     "archive_run",
     "reproduce_alert",
+    "reproduce_alert_now",
+    "AlertNow",
     "RiskshapeError",
     "DataError",
     "ConfigError",

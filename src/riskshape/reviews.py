@@ -265,7 +265,7 @@ def review_alert(
     return store.append_review(alert_id, action, who, text.strip(), check=check)
 
 
-def alert_history(store: Store, alert_id: int) -> AlertHistory:
+def alert_history(store: Store, alert_id: int, *, as_known_at: object = None) -> AlertHistory:
     """An alert with its status and every review (who, when, action, comment), oldest first.
 
     Parameters
@@ -274,6 +274,8 @@ def alert_history(store: Store, alert_id: int) -> AlertHistory:
         The archive.
     alert_id : int
         The alert's id.
+    as_known_at : datetime or str, optional
+        As known at that moment (ISO 8601 with a timezone): the reviews made by then only.
 
     Returns
     -------
@@ -283,9 +285,9 @@ def alert_history(store: Store, alert_id: int) -> AlertHistory:
     Raises
     ------
     NotFoundError
-        If the alert is not archived.
+        If the alert is not archived (or was not raised yet at ``as_known_at``).
     """
-    detail = store.get_alert(alert_id)
+    detail = store.get_alert(alert_id, as_known_at=as_known_at)
     return AlertHistory(alert=detail.alert, status=status_of(detail.reviews), reviews=detail.reviews)
 
 
@@ -305,16 +307,22 @@ def _matching(
     severities: tuple[str, ...] | None,
     rules: tuple[str, ...] | None,
     period: Period,
+    as_known_at: object = None,
 ) -> list[tuple[AlertRecord, tuple[ReviewRecord, ...]]]:
     """Alerts matching the filters (all pages) with their reviews."""
     alerts: list[AlertRecord] = []
     for portfolio in portfolios or (None,):
         page = store.list_alerts(
-            portfolio=portfolio, since=period.start, until=period.end, severity=severities, limit=None
+            portfolio=portfolio,
+            since=period.start,
+            until=period.end,
+            severity=severities,
+            limit=None,
+            as_known_at=as_known_at,
         )
         alerts.extend(a for a in page.items if rules is None or a.rule in rules)
     by_alert: dict[int, list[ReviewRecord]] = {a.id: [] for a in alerts}
-    for review in store.list_reviews([a.id for a in alerts]) if alerts else ():
+    for review in store.list_reviews([a.id for a in alerts], as_known_at=as_known_at) if alerts else ():
         by_alert[review.alert_id].append(review)
     return [(a, tuple(by_alert[a.id])) for a in alerts]
 
@@ -335,6 +343,7 @@ def list_queue(
     end: object = None,
     limit: int | None = 100,
     offset: int = 0,
+    as_known_at: object = None,
 ) -> QueuePage:
     """The review queue: alerts with their status and last reviewer, open first.
 
@@ -349,6 +358,9 @@ def list_queue(
         Items per page (None: all).
     offset : int
         Items skipped.
+    as_known_at : datetime or str, optional
+        The queue as it stood at that moment (ISO 8601 with a timezone): alerts raised by then,
+        statuses from the reviews made by then.
 
     Returns
     -------
@@ -359,13 +371,13 @@ def list_queue(
     Raises
     ------
     DataError
-        If a status is unknown, a date unreadable, ``start`` after ``end``, or paging negative.
+        If a status is unknown, a date or moment unreadable, ``start`` after ``end``, or paging negative.
     """
     if (limit is not None and limit < 0) or offset < 0:
         raise DataError(f"paging: limit and offset must not be negative, got limit={limit}, offset={offset}")
     wanted = _statuses(status)
     period = to_period(start, end)
-    rows = _matching(store, split_names(portfolio), split_names(severity), split_names(rule), period)
+    rows = _matching(store, split_names(portfolio), split_names(severity), split_names(rule), period, as_known_at)
     items = [
         QueueItem(alert=a, status=status_of(rs), last_review=rs[-1] if rs else None, n_reviews=len(rs))
         for a, rs in rows

@@ -13,8 +13,6 @@ from collections.abc import Iterable
 from dataclasses import dataclass
 from datetime import date, datetime
 
-import pandas as pd
-
 from riskshape.errors import DataError
 
 __all__ = ["Period", "to_period", "pick_alias", "split_names"]
@@ -45,6 +43,13 @@ def _to_day(value: object, name: str) -> date | None:
         return None
     if isinstance(value, date) and not isinstance(value, datetime):
         return value
+    if isinstance(value, str) and len(value) == 10:  # YYYY-MM-DD: the common case, without pandas
+        try:
+            return date.fromisoformat(value)
+        except ValueError:
+            pass
+    import pandas as pd  # other date-likes (timestamps, numpy dates, other spellings)
+
     try:
         stamp = pd.Timestamp(value)
     except (ValueError, TypeError):

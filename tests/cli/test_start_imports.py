@@ -58,3 +58,49 @@ def test_opening_an_archive_at_the_current_revision_loads_no_migration_tool(tmp_
     )
     again = subprocess.run([sys.executable, "-c", probe], capture_output=True, text=True, check=True, timeout=120)
     assert again.stdout.strip() == "False"
+
+
+QUICK_READS_MUST_NOT_LOAD = ("pandas", "numpy", "pydantic", "alembic", *HEAVY)
+"""What ``--version``, ``alerts list`` and ``audit head`` must not import (issue 12, item 7): their
+reads are alerts, reviews and the chain head; pandas and numpy load only with prices and series,
+pydantic only with the configuration (a --store given on the command line needs none)."""
+
+
+@pytest.mark.parametrize(
+    "argv",
+    [["--version"], ["alerts", "list", "--store", "{url}"], ["audit", "head", "--store", "{url}"]],
+    ids=["version", "alerts list", "audit head"],
+)
+def test_quick_reads_load_no_dataframe_or_configuration_library(tmp_path, argv: list[str]) -> None:
+    url = f"sqlite:///{tmp_path / 'a.sqlite'}"
+    subprocess.run(
+        [sys.executable, "-c", f"from riskshape.store import open_store; open_store({url!r}).close()"],
+        check=True,
+        timeout=120,
+    )
+    args = [a.format(url=url) for a in argv]
+    probe = (
+        "import json, sys\nfrom riskshape.cli import main\n"
+        f"try:\n    main({args!r})\nexcept SystemExit:\n    pass\n"
+        "print(json.dumps(sorted({m.split('.')[0] for m in sys.modules} & set(sys.argv[1:]))))"
+    )
+    out = subprocess.run(
+        [sys.executable, "-c", probe, *QUICK_READS_MUST_NOT_LOAD],
+        capture_output=True,
+        text=True,
+        check=True,
+        timeout=120,
+    )
+    assert json.loads(out.stdout.strip().splitlines()[-1]) == []
+
+
+def test_the_quick_read_probe_sees_pandas_where_a_command_reads_prices(tmp_path) -> None:
+    # the probe can fail: the report command reads the series (a DataFrame) and so loads pandas
+    url = f"sqlite:///{tmp_path / 'a.sqlite'}"
+    probe = (
+        "import sys\nfrom riskshape.store import open_store\n"
+        f"store = open_store({url!r})\nstore.ensure_portfolio('book')\nstore.read_prices('book')\n"
+        "print('pandas' in sys.modules)"
+    )
+    out = subprocess.run([sys.executable, "-c", probe], capture_output=True, text=True, check=True, timeout=120)
+    assert out.stdout.strip().splitlines()[-1] == "True"

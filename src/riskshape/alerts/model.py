@@ -4,10 +4,12 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 from datetime import datetime
-
-import pandas as pd
+from typing import TYPE_CHECKING
 
 from riskshape.types import RuleKind, Severity
+
+if TYPE_CHECKING:  # annotations only: reading alerts from the archive loads no pandas
+    import pandas as pd
 
 __all__ = ["Firing", "Alert"]
 

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 from collections.abc import Callable
+from datetime import datetime
 from pathlib import Path
 
 import click
@@ -13,9 +14,30 @@ from riskshape.explain import explanation_text
 from riskshape.outputs import export_alerts
 from riskshape.reviews import ACTIONS, STATUSES, alert_history, list_queue, next_actions, review_alert
 from riskshape.selection import Period, pick_alias, to_period
-from riskshape.store import AlertRecord, open_store
+from riskshape.store import KNOWN_AT_FORMAT, AlertRecord, open_store, to_known_at
 
-__all__ = ["alerts", "period_options", "resolve_period"]
+__all__ = ["alerts", "period_options", "resolve_period", "KNOWN_AT_OPTION", "knowledge_note"]
+
+
+def _known_at(ctx: click.Context, param: click.Parameter, value: str | None) -> datetime | None:
+    return to_known_at(value, "--as-known-at")  # a DataError: one line, exit status 2
+
+
+KNOWN_AT_OPTION = click.option(
+    "--as-known-at",
+    "as_known_at",
+    default=None,
+    metavar="TIMESTAMP",
+    callback=_known_at,
+    help=f"Show exactly what riskshape showed at that moment ({KNOWN_AT_FORMAT}); default: current knowledge.",
+)
+
+
+def knowledge_note(as_known_at: datetime | None) -> str:
+    """The line stating the knowledge a command shows."""
+    if as_known_at is None:
+        return "knowledge: current"
+    return f"knowledge: as known at {as_known_at.isoformat()} (later alerts, reviews and corrections left out)"
 
 
 @click.group()
@@ -76,6 +98,7 @@ def _cell(text: str | None, width: int) -> str:
 @period_options
 @click.option("--limit", type=click.IntRange(min=0), default=50, show_default=True)
 @click.option("--offset", type=click.IntRange(min=0), default=0, show_default=True)
+@KNOWN_AT_OPTION
 def list_alerts(
     store_url: str,
     status: tuple[str, ...],
@@ -90,6 +113,7 @@ def list_alerts(
     old_to: str | None,
     limit: int,
     offset: int,
+    as_known_at: datetime | None,
 ) -> None:
     """List archived alerts with their review status: open first, then newest window first."""
     period = resolve_period(start, end, old_since, old_until, old_from, old_to)
@@ -105,6 +129,7 @@ def list_alerts(
             end=period.end,
             limit=limit,
             offset=offset,
+            as_known_at=as_known_at,
         )
     click.echo(
         f"{'id':>6}  {'window_end':<10}  {'portfolio':<16}  {'rule':<20}  {'severity':<8}  "
@@ -118,17 +143,19 @@ def list_alerts(
         )
     shown = f"{offset + 1}-{offset + len(page.items)}" if page.items else "none"
     counts = ", ".join(f"{n} {s}" for s, n in page.counts.items())
-    click.echo(f"{shown} of {page.total} alert(s); by status: {counts}")
+    click.echo(f"{shown} of {page.total} alert(s); by status: {counts}; {knowledge_note(as_known_at)}")
 
 
 @alerts.command()
 @click.argument("alert_id", type=int)
 @STORE_OPTION
-def show(alert_id: int, store_url: str) -> None:
+@KNOWN_AT_OPTION
+def show(alert_id: int, store_url: str, as_known_at: datetime | None) -> None:
     """Show one alert: every archived field, its status and its whole review history."""
     click.echo(CAUTION)
+    click.echo(knowledge_note(as_known_at))
     with open_store(store_url, create=False) as store:
-        history = alert_history(store, alert_id)
+        history = alert_history(store, alert_id, as_known_at=as_known_at)
     alert = history.alert
     for name in AlertRecord.__dataclass_fields__:
         if name in ("explanation", "portfolio_id"):
@@ -195,6 +222,7 @@ def review(alert_id: int, store_url: str, action: str, reviewer: str, comment: s
     default=None,
     help="Write to this file (default: standard output).",
 )
+@KNOWN_AT_OPTION
 def export(
     store_url: str,
     fmt: str,
@@ -208,10 +236,12 @@ def export(
     portfolio: tuple[str, ...],
     status: tuple[str, ...],
     out_path: Path | None,
+    as_known_at: datetime | None,
 ) -> None:
     """Export alerts (or their reviews) for programs: a header row first, the caution in a column.
 
-    CSV reads with ``pandas.read_csv(path)`` as it is; values are exact; text cells that a
+    Each record states the knowledge it shows (``known_at``: ``current``, or the moment of
+    ``--as-known-at``). CSV reads with ``pandas.read_csv(path)`` as it is; values are exact; text cells that a
     spreadsheet would run as a formula are prefixed with an apostrophe. JSON Lines: one record per line.
     """
     period = resolve_period(start, end, old_since, old_until, old_from, old_to)
@@ -224,6 +254,7 @@ def export(
             end=period.end,
             portfolio=portfolio or None,
             status=status or None,
+            as_known_at=as_known_at,
         )
     if out_path is None:
         click.echo(text, nl=False)

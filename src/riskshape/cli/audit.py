@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import click
 
-from riskshape import CAUTION, ComputeConfig, store_url_from_env
+from riskshape import CAUTION
 from riskshape.store import chain_head, open_store, verify_chain
 from riskshape.types import ExecutorKind
 
@@ -12,7 +12,11 @@ __all__ = ["audit", "STORE_OPTION"]
 
 
 def _store_url(ctx: click.Context, param: click.Parameter, value: str | None) -> str:
-    url = value or store_url_from_env()
+    if value:
+        return value
+    from riskshape import store_url_from_env  # the configuration module (pydantic) only when needed
+
+    url = store_url_from_env()
     if not url:
         raise click.UsageError("--store is required (or set RISKSHAPE_STORE_URL)", ctx=ctx)
     return url
@@ -76,18 +80,29 @@ def head(store_url: str) -> None:
     help="Where the windows are recomputed (never changes a result).",
 )
 def reproduce(alert_id: int, store_url: str, executor: ExecutorKind) -> None:
-    """Recompute ALERT_ID from the archived prices and configuration; exit 1 unless it is confirmed."""
-    from riskshape import reproduce_alert  # the engine loads only for this command
+    """Recompute ALERT_ID as known when it was raised and as known now; exit 1 unless it is confirmed.
+
+    As known then: from the prices and configuration its run saw; every check must pass. As known
+    now: from the prices after every later correction; whether it would still fire, with the value now.
+    """
+    from riskshape import ComputeConfig, reproduce_alert, reproduce_alert_now  # the engine loads only here
 
     click.echo(CAUTION)
+    compute = ComputeConfig(executor=executor)
     with open_store(store_url, create=False) as store:
-        report = reproduce_alert(store, alert_id, compute=ComputeConfig(executor=executor))
+        report = reproduce_alert(store, alert_id, compute=compute)
+        now = reproduce_alert_now(store, alert_id, compute=compute)
+    click.echo("as known when it was raised:")
     width = max(len(c.name) for c in report.checks)
     for check in report.checks:
         mark = "ok  " if check.ok else "FAIL"
         same = check.archived == check.recomputed
         detail = check.archived if same else f"archived {check.archived} | recomputed {check.recomputed}"
         click.echo(f"{mark} {check.name:<{width}}  {detail}")
+    click.echo(f"as known now ({now.corrections} price correction(s) since it was raised):")
+    click.echo(f"  {now.verdict}")
+    agrees = "agrees with" if now.matches_archive else "DIFFERS from"
+    click.echo(f"  the archive's current window value {now.archive_value!r} {agrees} the recomputation")
     if report.ok:
         how = "bit-identical" if report.exact else "within float32-level tolerance"
         click.echo(f"alert {alert_id} reproduced ({how})")

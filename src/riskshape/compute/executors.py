@@ -19,10 +19,12 @@ import threading
 from collections.abc import Callable, Iterator, Sequence
 from concurrent.futures import ProcessPoolExecutor
 from contextlib import AbstractContextManager, nullcontext
-from typing import Any, Protocol, TypeVar, cast
+from typing import TYPE_CHECKING, Any, Protocol, TypeVar, cast
 
-from riskshape.config import ComputeConfig
 from riskshape.errors import ConfigError
+
+if TYPE_CHECKING:  # annotations only: the CLI pins BLAS through this module without loading pydantic
+    from riskshape.config import ComputeConfig
 
 __all__ = [
     "Executor",

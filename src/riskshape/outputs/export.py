@@ -10,6 +10,10 @@ of every row, so ``pandas.read_csv(path)`` and ``csv.DictReader`` read it with n
 cells that a spreadsheet would run as a formula get a leading apostrophe (:func:`neutralise_cell`);
 floats are written exactly (their shortest round-trip text).
 
+Every record states the knowledge it shows in ``known_at``: ``current`` (what the archive knows
+now), or the moment asked for with ``as_known_at`` (ISO 8601, UTC), when the export is exactly
+what riskshape showed then (alerts raised by then, reviews made by then).
+
 JSON Lines: every line is one record of the same kind (an alert, or a review), with the caution as
 a field and the explanation as an object.
 
@@ -25,7 +29,7 @@ import csv
 import io
 import json
 from collections.abc import Mapping, Sequence
-from datetime import date, datetime
+from datetime import date, datetime, timezone
 from typing import Any, Literal
 
 from riskshape.caution import CAUTION
@@ -34,6 +38,7 @@ from riskshape.explain.model import Explanation
 from riskshape.reviews import QueueItem, list_queue, status_of
 from riskshape.selection import pick_alias, split_names
 from riskshape.store import ReviewRecord, Store
+from riskshape.store.knowledge import to_known_at
 
 __all__ = [
     "EXPORT_COLUMNS",
@@ -44,7 +49,37 @@ __all__ = [
     "export_rows",
     "review_rows",
     "export_alerts",
+    "CURRENT_KNOWLEDGE",
+    "knowledge_label",
 ]
+
+CURRENT_KNOWLEDGE = "current"
+"""``known_at`` of an export of what the archive knows now."""
+
+
+def knowledge_label(known_at: datetime | None) -> str:
+    """What an export or a report states as its knowledge time: :data:`CURRENT_KNOWLEDGE` or the moment.
+
+    Parameters
+    ----------
+    known_at : datetime or None
+        The moment read as known (aware), or None for the current knowledge.
+
+    Returns
+    -------
+    str
+        ``current``, or the moment in ISO 8601, UTC.
+
+    Examples
+    --------
+    >>> from datetime import timezone
+    >>> knowledge_label(datetime(2026, 3, 2, 17, 30, tzinfo=timezone.utc))
+    '2026-03-02T17:30:00+00:00'
+    >>> knowledge_label(None)
+    'current'
+    """
+    return CURRENT_KNOWLEDGE if known_at is None else known_at.astimezone(timezone.utc).isoformat()
+
 
 ExportWhat = Literal["alerts", "reviews"]
 
@@ -67,6 +102,7 @@ EXPLANATION_COLUMNS = (
 
 EXPORT_COLUMNS = (
     "caution",
+    "known_at",
     "id",
     "portfolio",
     "portfolio_id",
@@ -97,6 +133,7 @@ EXPORT_COLUMNS = (
 
 REVIEW_COLUMNS = (
     "caution",
+    "known_at",
     "review_id",
     "alert_id",
     "portfolio",
@@ -185,9 +222,9 @@ def explanation_facts(stored: str | None) -> dict[str, object]:
     return facts
 
 
-def _alert_row(item: QueueItem) -> dict[str, object]:
+def _alert_row(item: QueueItem, known_at: str) -> dict[str, object]:
     alert, last = item.alert, item.last_review
-    row: dict[str, object] = {"caution": CAUTION}
+    row: dict[str, object] = {"caution": CAUTION, "known_at": known_at}
     for name in EXPORT_COLUMNS:
         if hasattr(alert, name):
             row[name] = _plain(getattr(alert, name))
@@ -203,13 +240,41 @@ def _alert_row(item: QueueItem) -> dict[str, object]:
     return {name: row.get(name) for name in EXPORT_COLUMNS}
 
 
-def export_rows(items: Sequence[QueueItem]) -> list[dict[str, object]]:
-    """One record per alert, keys in :data:`EXPORT_COLUMNS` order, dates as ISO text, None where empty."""
-    return [_alert_row(item) for item in items]
+def export_rows(items: Sequence[QueueItem], known_at: str = CURRENT_KNOWLEDGE) -> list[dict[str, object]]:
+    """One record per alert, keys in :data:`EXPORT_COLUMNS` order, dates as ISO text, None where empty.
+
+    Parameters
+    ----------
+    items : sequence of QueueItem
+        The alerts with their status.
+    known_at : str
+        The knowledge the records show (:func:`knowledge_label`).
+
+    Returns
+    -------
+    list of dict
+    """
+    return [_alert_row(item, known_at) for item in items]
 
 
-def review_rows(items: Sequence[QueueItem], reviews: Sequence[ReviewRecord]) -> list[dict[str, object]]:
-    """One record per review (ledger order), keys in :data:`REVIEW_COLUMNS` order."""
+def review_rows(
+    items: Sequence[QueueItem], reviews: Sequence[ReviewRecord], known_at: str = CURRENT_KNOWLEDGE
+) -> list[dict[str, object]]:
+    """One record per review (ledger order), keys in :data:`REVIEW_COLUMNS` order.
+
+    Parameters
+    ----------
+    items : sequence of QueueItem
+        The alerts the reviews are of.
+    reviews : sequence of ReviewRecord
+        The reviews (of other alerts: left out).
+    known_at : str
+        The knowledge the records show (:func:`knowledge_label`).
+
+    Returns
+    -------
+    list of dict
+    """
     alerts = {item.alert.id: item.alert for item in items}
     so_far: dict[int, list[ReviewRecord]] = {}
     rows = []
@@ -222,6 +287,7 @@ def review_rows(items: Sequence[QueueItem], reviews: Sequence[ReviewRecord]) -> 
         rows.append(
             {
                 "caution": CAUTION,
+                "known_at": known_at,
                 "review_id": review.id,
                 "alert_id": alert.id,
                 "portfolio": alert.portfolio,
@@ -282,6 +348,7 @@ def export_alerts(
     status: str | Sequence[str] | None = None,
     since: object = None,
     until: object = None,
+    as_known_at: object = None,
 ) -> str:
     """The export of the alerts (or their reviews) whose window ends fall in [start, end], as text.
 
@@ -298,6 +365,9 @@ def export_alerts(
         Only these portfolios / statuses (repeats or comma-separated text).
     since, until : date-like, optional
         Deprecated names of ``start`` and ``end`` (a :class:`DeprecationWarning`).
+    as_known_at : datetime or str, optional
+        Export exactly what riskshape showed at that moment (ISO 8601 with a timezone); stated in
+        every record's ``known_at``.
 
     Returns
     -------
@@ -307,7 +377,7 @@ def export_alerts(
     Raises
     ------
     DataError
-        If ``what`` or ``fmt`` is unknown, a date unreadable or ``start`` after ``end``.
+        If ``what`` or ``fmt`` is unknown, a date or ``as_known_at`` unreadable or ``start`` after ``end``.
     NotFoundError
         If a portfolio is given and not archived.
     """
@@ -317,15 +387,17 @@ def export_alerts(
         raise DataError(f"format: {fmt!r} is not one of csv, jsonl")
     first = pick_alias("start", start, since=since)
     last = pick_alias("end", end, until=until)
+    known_at = to_known_at(as_known_at)
     names = split_names(portfolio)
     for name in names or ():
         store.get_portfolio(name)
-    page = list_queue(store, status=status, portfolio=names, start=first, end=last, limit=None)
+    page = list_queue(store, status=status, portfolio=names, start=first, end=last, limit=None, as_known_at=known_at)
     items = sorted(page.items, key=lambda i: (i.alert.window_end, i.alert.id))
+    label = knowledge_label(known_at)
     columns: Sequence[str]
     if what == "alerts":
-        columns, rows = EXPORT_COLUMNS, export_rows(items)
+        columns, rows = EXPORT_COLUMNS, export_rows(items, label)
     else:
-        reviews = store.list_reviews([i.alert.id for i in items]) if items else ()
-        columns, rows = REVIEW_COLUMNS, review_rows(items, reviews)
+        reviews = store.list_reviews([i.alert.id for i in items], as_known_at=known_at) if items else ()
+        columns, rows = REVIEW_COLUMNS, review_rows(items, reviews, label)
     return _to_csv(columns, rows) if fmt == "csv" else _to_jsonl(rows)

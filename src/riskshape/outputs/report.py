@@ -32,6 +32,7 @@ from riskshape.caution import CAUTION
 from riskshape.errors import ConfigError, DataError, RiskshapeError, StoreError
 from riskshape.explain import Explanation, explain_alert, render_text
 from riskshape.outputs import palette
+from riskshape.outputs.export import knowledge_label
 from riskshape.reviews import STATUSES, UNSETTLED, SignOff, list_sign_offs, status_of
 from riskshape.selection import to_period
 from riskshape.store import (
@@ -44,6 +45,7 @@ from riskshape.store import (
     VerifyReport,
     verify_chain,
 )
+from riskshape.store.knowledge import to_known_at
 from riskshape.types import AlertStatus
 
 __all__ = [
@@ -112,11 +114,24 @@ class ReviewReport:
     """Chained ``window_superseded`` / ``alert_superseded`` records of the period, where archived."""
     sign_offs: tuple[SignOff, ...] = ()
     """Sign-offs whose period overlaps this one."""
+    known_at: datetime | None = None
+    """The knowledge shown: None for what the archive knows now, else the moment asked for (the
+    alerts, reviews, windows, runs, corrections and chained records recorded by then)."""
 
     @property
     def counts(self) -> dict[AlertStatus, int]:
         """Alerts of the period by status."""
         return {s: sum(a.status == s for a in self.alerts) for s in STATUSES}
+
+
+def _knowledge_text(known_at: datetime | None) -> str:
+    if known_at is None:
+        return "Knowledge shown: current (everything the archive holds now)."
+    return (
+        f"Knowledge shown: as known at {knowledge_label(known_at)} -- exactly what riskshape showed then "
+        "(alerts, reviews, windows and corrections recorded later are left out; the chain verification "
+        "is of the archive now)."
+    )
 
 
 def archived_explanation(record: AlertRecord) -> Explanation | None:
@@ -166,6 +181,7 @@ def collect_review(
     portfolio: str | None = None,
     recompute: bool = True,
     now: datetime | None = None,
+    as_known_at: object = None,
 ) -> ReviewReport:
     """Read what the review report shows for window ends from ``since`` to ``until`` (inclusive).
 
@@ -180,6 +196,10 @@ def collect_review(
         Recompute explanations the archive does not hold (see the module notes).
     now : datetime, optional
         Time stamp of the report (default: now, UTC).
+    as_known_at : datetime or str, optional
+        Report what riskshape showed at that moment (ISO 8601 with a timezone): alerts raised,
+        reviews, windows, runs, corrections and chained records recorded by then. The chain
+        verification is always of the archive as it is now. The report states the knowledge time.
 
     Returns
     -------
@@ -196,8 +216,9 @@ def collect_review(
     if period.start is None or period.end is None:
         raise DataError("period: give both start and end of the period to report on")
     first, last = period.start, period.end
-    page = store.list_alerts(portfolio=portfolio, since=first, until=last, limit=None)
-    details = [store.get_alert(a.id) for a in page.items]
+    known_at = to_known_at(as_known_at)
+    page = store.list_alerts(portfolio=portfolio, since=first, until=last, limit=None, as_known_at=known_at)
+    details = [store.get_alert(a.id, as_known_at=known_at) for a in page.items]
     missing = [d.alert for d in details if archived_explanation(d.alert) is None]
     recomputed = _recompute(store, missing) if recompute else {}
     alerts = []
@@ -215,23 +236,35 @@ def collect_review(
     corrections: list[PriceCorrection] = []
     superseded: list[EventRecord] = []
     for name in names:
-        feats = store.read_features(name, start=first, end=last, limit=None)
+        feats = store.read_features(name, start=first, end=last, limit=None, as_known_at=known_at)
         if len(feats.frame):
             series.append(PortfolioSeries(name, feats.frame, feats.config_hash))
         used = {a.alert.config_hash for a in alerts if a.alert.portfolio == name}
         if len(feats.frame) and feats.config_hash is not None:
             used.add(feats.config_hash)
-        latest: dict[str, Run] = {r.config_hash: r for r in store.list_runs(name) if r.config_hash in used}
+        latest: dict[str, Run] = {
+            r.config_hash: r for r in store.list_runs(name) if r.config_hash in used and _known(r.created_at, known_at)
+        }
         runs += sorted(latest.values(), key=lambda r: r.id)
-        corrections += store.list_corrections(
-            name, start=_first_input_date(store, name, feats.frame, list(latest.values())), end=last
-        )
+        corrections += [
+            c
+            for c in store.list_corrections(
+                name, start=_first_input_date(store, name, feats.frame, list(latest.values())), end=last
+            )
+            if _known(c.recorded_at, known_at)
+        ]
         for kind in ("window_superseded", "alert_superseded"):
-            superseded += [e for e in store.list_events(kind=kind, portfolio=name) if _subject_in(e, first, last)]
+            superseded += [
+                e
+                for e in store.list_events(kind=kind, portfolio=name, as_known_at=known_at)
+                if _subject_in(e, first, last)
+            ]
     once: dict[str, Run] = {}
     for r in runs:
         once.setdefault(r.config_hash, r)
-    signed = tuple(s for s in list_sign_offs(store) if s.start <= last and s.end >= first)
+    signed = tuple(
+        s for s in list_sign_offs(store) if s.start <= last and s.end >= first and _known(s.signed_at, known_at)
+    )
     return ReviewReport(
         period_from=first,
         period_to=last,
@@ -244,7 +277,12 @@ def collect_review(
         corrections=tuple(corrections),
         superseded=tuple(superseded),
         sign_offs=signed,
+        known_at=known_at,
     )
+
+
+def _known(stamp: datetime, known_at: datetime | None) -> bool:
+    return known_at is None or stamp <= known_at
 
 
 def _first_input_date(store: Store, name: str, frame: pd.DataFrame, runs: list[Run]) -> date | None:
@@ -493,6 +531,7 @@ def render_html(report: ReviewReport, images: dict[str, bytes] | None = None) ->
 <p class="caution" id="caution">{_e(CAUTION)}</p>
 <p>Generated {_e(report.generated_at.isoformat())} by riskshape {_e(report.package_version)} from the archive
 <code>{_e(report.store)}</code>.</p>
+<p id="known-at">{_e(_knowledge_text(report.known_at))}</p>
 {_sign_off_html(report)}
 <h2>Chain verification</h2>{verdict}<p>Chain head: <code id="chain-head">{_e(v.head)}</code></p>
 <h2>Alerts ({len(report.alerts)})</h2><table id="alert-summary"><tr><th>id</th><th>window end</th><th>portfolio</th>

@@ -15,6 +15,8 @@ from riskshape._lazy import lazy_exports
 if TYPE_CHECKING:
     from riskshape.store.backup import BackupReport as BackupReport
     from riskshape.store.backup import backup_store as backup_store
+    from riskshape.store.knowledge import KNOWN_AT_FORMAT as KNOWN_AT_FORMAT
+    from riskshape.store.knowledge import to_known_at as to_known_at
     from riskshape.store.markers import ChangeMarker as ChangeMarker
     from riskshape.store.records import GENESIS_HASH as GENESIS_HASH
     from riskshape.store.records import REVIEW_ACTIONS as REVIEW_ACTIONS
@@ -52,6 +54,8 @@ _EXPORTS = {
     "chain_head": "riskshape.store.store",
     "change_marker": "riskshape.store.store",
     "ChangeMarker": "riskshape.store.markers",
+    "to_known_at": "riskshape.store.knowledge",
+    "KNOWN_AT_FORMAT": "riskshape.store.knowledge",
     "GENESIS_HASH": "riskshape.store.records",
     "REVIEW_ACTIONS": "riskshape.store.records",
     "AlertAppend": "riskshape.store.records",

@@ -8,14 +8,12 @@ import unicodedata
 from datetime import datetime, timezone
 from typing import Any
 
-import pandas as pd
 import sqlalchemy as sa
 from sqlalchemy.engine import Connection, Engine
 
 from riskshape.errors import ConflictError, NotFoundError, StoreError
 from riskshape.store import schema as t
 from riskshape.store.database import read_transaction, write_transaction
-from riskshape.store.pricebook import append_prices, max_price_id, validated
 from riskshape.store.records import Portfolio, PriceWrite, Run, RunManifest
 from riskshape.types import PriceFrame
 
@@ -130,6 +128,10 @@ def create_run(engine: Engine, portfolio: str, manifest: RunManifest, prices: Pr
     """Archive the prices of a run (as corrections where they differ) and record its manifest, in one
     transaction. See :meth:`riskshape.store.Store.create_run`.
     """
+    import pandas as pd  # writing a run only: the archive's reads load no pandas
+
+    from riskshape.store.pricebook import append_prices, max_price_id, validated
+
     for name in ("config_hash", "input_hash"):
         value = getattr(manifest, name)
         if not isinstance(value, str) or not _HEX64.match(value):
@@ -176,13 +178,16 @@ def get_run(engine: Engine, run_id: int) -> Run:
     return _run(row)
 
 
-def latest_run(engine: Engine, portfolio: str) -> Run | None:
-    """The portfolio's most recent run, or None if it has none (NotFoundError if no such portfolio)."""
+def latest_run(engine: Engine, portfolio: str, as_known_at: datetime | None = None) -> Run | None:
+    """The portfolio's most recent run (recorded by ``as_known_at``), or None if it has none
+    (NotFoundError if no such portfolio).
+    """
+    query = _run_query().where(t.portfolios.c.name == portfolio)
+    if as_known_at is not None:
+        query = query.where(t.runs.c.created_at <= as_known_at)
     with read_transaction(engine) as connection:
         portfolio_id(connection, portfolio)
-        row = connection.execute(
-            _run_query().where(t.portfolios.c.name == portfolio).order_by(t.runs.c.id.desc()).limit(1)
-        ).first()
+        row = connection.execute(query.order_by(t.runs.c.id.desc()).limit(1)).first()
     return None if row is None else _run(row)
 
 

@@ -126,9 +126,14 @@ def append_event(
 
 
 def list_events(
-    engine: Engine, *, kind: str | None = None, portfolio: str | None = None, subject: str | None = None
+    engine: Engine,
+    *,
+    kind: str | None = None,
+    portfolio: str | None = None,
+    subject: str | None = None,
+    as_known_at: datetime | None = None,
 ) -> tuple[EventRecord, ...]:
-    """Events in ledger order, filtered by kind, portfolio and subject.
+    """Events in ledger order, filtered by kind, portfolio and subject (recorded by ``as_known_at``).
 
     See :meth:`riskshape.store.Store.list_events`.
     """
@@ -139,6 +144,8 @@ def list_events(
         query = query.where(t.events.c.portfolio == portfolio)
     if subject is not None:
         query = query.where(t.events.c.subject == subject)
+    if as_known_at is not None:
+        query = query.where(t.events.c.recorded_at <= as_known_at)
     with read_transaction(engine) as connection:
         rows = connection.execute(query).all()
     fields = EventRecord.__dataclass_fields__

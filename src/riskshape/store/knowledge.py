@@ -13,7 +13,6 @@ from __future__ import annotations
 from datetime import datetime, timezone
 from typing import Any
 
-import pandas as pd
 import sqlalchemy as sa
 
 from riskshape.errors import DataError
@@ -54,12 +53,10 @@ def to_known_at(value: object, what: str = "as_known_at") -> datetime | None:
     if isinstance(value, datetime):
         stamp = value
     else:
-        try:
-            stamp = pd.Timestamp(str(value)).to_pydatetime()
-        except (ValueError, TypeError):
+        try:  # ISO 8601 (Python 3.11 reads the Z suffix and the basic format too)
+            stamp = datetime.fromisoformat(str(value).strip())
+        except ValueError:
             raise DataError(f"{what}: cannot read {value!r} as a moment; write it as {KNOWN_AT_FORMAT}") from None
-        if pd.isna(stamp):
-            raise DataError(f"{what}: cannot read {value!r} as a moment; write it as {KNOWN_AT_FORMAT}")
     if stamp.tzinfo is None:
         raise DataError(f"{what}: {value!r} has no timezone; write it as {KNOWN_AT_FORMAT}")
     return stamp.astimezone(timezone.utc)

@@ -12,7 +12,6 @@ from collections.abc import Callable, Sequence
 from datetime import date, datetime, timezone
 from typing import Any, cast
 
-import pandas as pd
 import sqlalchemy as sa
 from sqlalchemy.engine import Connection, Engine
 
@@ -21,6 +20,7 @@ from riskshape.errors import NotFoundError, StoreError
 from riskshape.store import schema as t
 from riskshape.store.canonical import entry_hash
 from riskshape.store.database import read_transaction, write_transaction
+from riskshape.store.knowledge import known_runs
 from riskshape.store.records import (
     GENESIS_HASH,
     REVIEW_ACTIONS,
@@ -51,6 +51,13 @@ def to_date(value: object, what: str) -> date:
     """A whole day from a date, a datetime-like at midnight, or an ISO string."""
     if isinstance(value, date) and not isinstance(value, datetime):
         return value
+    if isinstance(value, str) and len(value) == 10:  # YYYY-MM-DD: the common case, without pandas
+        try:
+            return date.fromisoformat(value)
+        except ValueError:
+            pass
+    import pandas as pd  # other date-likes (timestamps, numpy dates, other spellings)
+
     try:
         stamp = pd.Timestamp(value)
     except (ValueError, TypeError):
@@ -101,6 +108,8 @@ def append_alerts(engine: Engine, alerts: Sequence[Alert], run_id: int) -> Alert
     """
     for n, alert in enumerate(alerts):
         _check_alert(alert, n)
+    import pandas as pd  # writing alerts: the writer has loaded pandas already
+
     ordered = sorted(alerts, key=lambda a: (pd.Timestamp(a.firing.window_end), a.firing.rule))
     with write_transaction(engine) as connection:
         run = connection.execute(
@@ -219,6 +228,9 @@ def append_review(
     return ReviewRecord(**row)
 
 
+_ALERT_FIELDS = tuple(AlertRecord.__dataclass_fields__)
+
+
 def alert_from_row(row: Any) -> AlertRecord:
     """An :class:`AlertRecord` from a result row of the ``alerts`` table."""
     m = row._mapping
@@ -242,6 +254,7 @@ def list_alerts(
     reviewed: bool | None = None,
     limit: int | None = 100,
     offset: int = 0,
+    as_known_at: datetime | None = None,
 ) -> AlertPage:
     """Alerts matching the filters. See :meth:`riskshape.store.Store.list_alerts`."""
     if limit is not None and limit < 0 or offset < 0:
@@ -259,25 +272,34 @@ def list_alerts(
         conditions.append(a.c.severity.in_(levels))
     if rule is not None:
         conditions.append(a.c.rule == rule)
+    if as_known_at is not None:
+        conditions.append(a.c.run_id.in_(known_runs(as_known_at)))
     if reviewed is not None:
         has_review = sa.exists().where(t.reviews.c.alert_id == a.c.id)
+        if as_known_at is not None:
+            has_review = has_review.where(t.reviews.c.created_at <= as_known_at)
         conditions.append(has_review if reviewed else ~has_review)
     where = sa.and_(sa.true(), *conditions)
     with read_transaction(engine) as connection:
         total = int(connection.execute(sa.select(sa.func.count()).select_from(a).where(where)).scalar_one())
-        query = sa.select(a).where(where).order_by(a.c.window_end, a.c.id).offset(offset)
+        columns = [a.c[name] for name in _ALERT_FIELDS]  # in the record's order: built by position
+        query = sa.select(*columns).where(where).order_by(a.c.window_end, a.c.id).offset(offset)
         if limit is not None:
             query = query.limit(limit)
-        items = tuple(alert_from_row(r) for r in connection.execute(query))
+        items = tuple(AlertRecord(*r) for r in connection.execute(query))
     return AlertPage(items=items, total=total, offset=offset)
 
 
-def list_reviews(engine: Engine, alert_ids: Sequence[int] | None = None) -> tuple[ReviewRecord, ...]:
-    """Reviews in ledger order, of the given alerts (default every alert).
+def list_reviews(
+    engine: Engine, alert_ids: Sequence[int] | None = None, as_known_at: datetime | None = None
+) -> tuple[ReviewRecord, ...]:
+    """Reviews in ledger order, of the given alerts (default every alert), recorded by ``as_known_at``.
 
     See :meth:`riskshape.store.Store.list_reviews`.
     """
     query = sa.select(t.reviews).order_by(t.reviews.c.seq)
+    if as_known_at is not None:
+        query = query.where(t.reviews.c.created_at <= as_known_at)
     with read_transaction(engine) as connection:
         if alert_ids is None:
             return tuple(review_from_row(r) for r in connection.execute(query))
@@ -289,13 +311,18 @@ def list_reviews(engine: Engine, alert_ids: Sequence[int] | None = None) -> tupl
     return tuple(sorted(found, key=lambda r: r.seq))
 
 
-def get_alert(engine: Engine, alert_id: int) -> AlertDetail:
-    """One alert and its reviews. See :meth:`riskshape.store.Store.get_alert`."""
+def get_alert(engine: Engine, alert_id: int, as_known_at: datetime | None = None) -> AlertDetail:
+    """One alert and its reviews (as known at ``as_known_at``). See :meth:`riskshape.store.Store.get_alert`."""
     with read_transaction(engine) as connection:
-        row = connection.execute(sa.select(t.alerts).where(t.alerts.c.id == alert_id)).first()
+        query = sa.select(t.alerts).where(t.alerts.c.id == alert_id)
+        if as_known_at is not None:
+            query = query.where(t.alerts.c.run_id.in_(known_runs(as_known_at)))
+        row = connection.execute(query).first()
         if row is None:
-            raise NotFoundError(f"alert {alert_id} is not in the archive; list alerts to find its id")
-        reviews = connection.execute(
-            sa.select(t.reviews).where(t.reviews.c.alert_id == alert_id).order_by(t.reviews.c.seq)
-        )
+            known = "" if as_known_at is None else f" as known at {as_known_at.isoformat()}"
+            raise NotFoundError(f"alert {alert_id} is not in the archive{known}; list alerts to find its id")
+        asked = sa.select(t.reviews).where(t.reviews.c.alert_id == alert_id)
+        if as_known_at is not None:
+            asked = asked.where(t.reviews.c.created_at <= as_known_at)
+        reviews = connection.execute(asked.order_by(t.reviews.c.seq))
         return AlertDetail(alert=alert_from_row(row), reviews=tuple(review_from_row(r) for r in reviews))

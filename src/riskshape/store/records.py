@@ -8,11 +8,13 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 from datetime import date, datetime
-
-import pandas as pd
+from typing import TYPE_CHECKING
 
 from riskshape.alerts.model import Alert, Firing
 from riskshape.types import Float32Array, RuleKind, Severity
+
+if TYPE_CHECKING:
+    import pandas as pd
 
 __all__ = [
     "GENESIS_HASH",
@@ -196,6 +198,8 @@ class AlertRecord:
 
     def to_alert(self) -> Alert:
         """The :class:`riskshape.alerts.model.Alert` this record archives."""
+        import pandas as pd  # only here: reading records loads no pandas
+
         firing = Firing(
             rule=self.rule,
             summary=self.summary,

@@ -10,15 +10,14 @@ from __future__ import annotations
 import functools
 from collections.abc import Callable, Iterable, Mapping, Sequence
 from datetime import date, datetime, timezone
-from typing import ParamSpec, TypeVar
+from typing import TYPE_CHECKING, ParamSpec, TypeVar
 
-import pandas as pd
 import sqlalchemy as sa
 from sqlalchemy.engine import Engine
 
 from riskshape.alerts.model import Alert
 from riskshape.errors import ConflictError, StoreError
-from riskshape.store import catalog, events, keys, ledger, pricebook, series
+from riskshape.store import catalog, events, keys, ledger
 from riskshape.store.chain import verify_ledger
 from riskshape.store.database import (
     archive_exists,
@@ -50,6 +49,12 @@ from riskshape.store.records import (
 )
 from riskshape.types import Diagram as DiagramArray
 from riskshape.types import PriceFrame
+
+if TYPE_CHECKING:
+    import pandas as pd
+
+# The price book and the series (pandas, numpy) load with the first method that reads or writes
+# them, so the commands that read only alerts, reviews and the chain start quickly.
 
 __all__ = ["Store", "open_store", "verify_chain", "chain_head", "change_marker"]
 
@@ -143,9 +148,13 @@ class Store:
         PriceWrite
             Cells added, corrections added and cells already archived with the same price.
         """
+        from riskshape.store import pricebook  # pandas and numpy load here, not at start
+
         valid = pricebook.validated(prices, source)
         with write_transaction(self.engine) as connection:
             pid = catalog.portfolio_id(connection, portfolio)
+            from riskshape.store import pricebook  # pandas and numpy load here, not at start
+
             return pricebook.append_prices(connection, pid, valid, datetime.now(timezone.utc))
 
     @_database_errors
@@ -186,12 +195,16 @@ class Store:
                     raise StoreError(f"run {as_of_run} belongs to portfolio {run.portfolio!r}, not {portfolio!r}")
                 through = run.prices_through_id
             columns = None if assets is None else list(assets)
+            from riskshape.store import pricebook  # pandas and numpy load here, not at start
+
             return pricebook.read_prices(connection, pid, first, last, columns, through)
 
     @_database_errors
     def price_dates(self, portfolio: str) -> tuple[date, ...]:
         """Every date with an archived price of the portfolio (its trading days), ascending."""
         with read_transaction(self.engine) as connection:
+            from riskshape.store import pricebook  # pandas and numpy load here, not at start
+
             return tuple(pricebook.price_dates(connection, catalog.portfolio_id(connection, portfolio)))
 
     @_database_errors
@@ -202,6 +215,8 @@ class Store:
         first = None if start is None else ledger.to_date(start, "start")
         last = None if end is None else ledger.to_date(end, "end")
         with read_transaction(self.engine) as connection:
+            from riskshape.store import pricebook  # pandas and numpy load here, not at start
+
             return pricebook.list_corrections(connection, catalog.portfolio_id(connection, portfolio), first, last)
 
     @_database_errors
@@ -219,9 +234,12 @@ class Store:
         return catalog.get_run(self.engine, run_id)
 
     @_database_errors
-    def latest_run(self, portfolio: str) -> Run | None:
-        """The portfolio's most recent run, or None. Raises :class:`NotFoundError` for an unknown portfolio."""
-        return catalog.latest_run(self.engine, portfolio)
+    def latest_run(self, portfolio: str, *, as_known_at: object = None) -> Run | None:
+        """The portfolio's most recent run (recorded by ``as_known_at``, if given), or None.
+
+        Raises :class:`NotFoundError` for an unknown portfolio, :class:`DataError` for a bad ``as_known_at``.
+        """
+        return catalog.latest_run(self.engine, portfolio, to_known_at(as_known_at))
 
     @_database_errors
     def list_runs(self, portfolio: str | None = None) -> tuple[Run, ...]:
@@ -237,11 +255,15 @@ class Store:
         force is archived again as a new version of that run (counted in ``added`` and ``differing``);
         without it, it keeps its archived values (counted in ``differing`` only).
         """
+        from riskshape.store import series  # pandas and numpy load here, not at start
+
         return series.write_features(self.engine, run_id, features, supersede)
 
     @_database_errors
     def window_ends(self, portfolio: str, config_hash: str | None = None) -> tuple[date, ...]:
         """Window ends whose features are archived (for ``config_hash``, default the latest run's), ascending."""
+        from riskshape.store import series  # pandas and numpy load here, not at start
+
         return series.window_ends(self.engine, portfolio, config_hash)
 
     @_database_errors
@@ -265,6 +287,8 @@ class Store:
         text; DataError otherwise) exactly as it was known then: the versions of runs recorded by that
         moment, the latest run's configuration then (see :mod:`riskshape.store.knowledge`).
         """
+        from riskshape.store import series  # pandas and numpy load here, not at start
+
         return series.read_features(
             self.engine,
             portfolio,
@@ -282,6 +306,8 @@ class Store:
         self, run_id: int, diagrams: Iterable[tuple[object, int, DiagramArray]], *, supersede: bool = False
     ) -> WriteCount:
         """Archive (window_end, dim, bars) triples of a run as float32; idempotent and versioned like features."""
+        from riskshape.store import series  # pandas and numpy load here, not at start
+
         return series.write_diagrams(self.engine, run_id, diagrams, supersede)
 
     @_database_errors
@@ -298,6 +324,8 @@ class Store:
 
         Raises :class:`NotFoundError` if absent (or not yet archived at ``as_known_at``).
         """
+        from riskshape.store import series  # pandas and numpy load here, not at start
+
         return series.read_diagram(self.engine, portfolio, window_end, dim, config_hash, to_known_at(as_known_at))
 
     # -- alerts and reviews (the ledger) ---------------------------------------------------------
@@ -322,9 +350,11 @@ class Store:
         reviewed: bool | None = None,
         limit: int | None = 100,
         offset: int = 0,
+        as_known_at: object = None,
     ) -> AlertPage:
         """Alerts by window end (then id). ``since``/``until`` bound the window end (inclusive);
-        ``reviewed`` True/False keeps alerts with / without any review.
+        ``reviewed`` True/False keeps alerts with / without any review. With ``as_known_at`` (see
+        :meth:`read_features`), only the alerts of runs recorded by then (and reviews made by then).
         """
         return ledger.list_alerts(
             self.engine,
@@ -336,12 +366,15 @@ class Store:
             reviewed=reviewed,
             limit=limit,
             offset=offset,
+            as_known_at=to_known_at(as_known_at),
         )
 
     @_database_errors
-    def get_alert(self, alert_id: int) -> AlertDetail:
-        """One alert with its reviews. Raises :class:`NotFoundError` if absent."""
-        return ledger.get_alert(self.engine, alert_id)
+    def get_alert(self, alert_id: int, *, as_known_at: object = None) -> AlertDetail:
+        """One alert with its reviews (as known at ``as_known_at``: the alert if its run was recorded by
+        then, the reviews made by then). Raises :class:`NotFoundError` if absent (or not yet raised then).
+        """
+        return ledger.get_alert(self.engine, alert_id, to_known_at(as_known_at))
 
     @_database_errors
     def append_review(
@@ -356,9 +389,11 @@ class Store:
         return ledger.append_review(self.engine, alert_id, action, reviewer, comment, check=check)
 
     @_database_errors
-    def list_reviews(self, alert_ids: Sequence[int] | None = None) -> tuple[ReviewRecord, ...]:
-        """Reviews in ledger order, of the given alerts (default every alert)."""
-        return ledger.list_reviews(self.engine, alert_ids)
+    def list_reviews(
+        self, alert_ids: Sequence[int] | None = None, *, as_known_at: object = None
+    ) -> tuple[ReviewRecord, ...]:
+        """Reviews in ledger order, of the given alerts (default every alert); made by ``as_known_at`` if given."""
+        return ledger.list_reviews(self.engine, alert_ids, to_known_at(as_known_at))
 
     # -- other chained events ----------------------------------------------------------------------
     @_database_errors
@@ -409,10 +444,19 @@ class Store:
 
     @_database_errors
     def list_events(
-        self, *, kind: str | None = None, portfolio: str | None = None, subject: str | None = None
+        self,
+        *,
+        kind: str | None = None,
+        portfolio: str | None = None,
+        subject: str | None = None,
+        as_known_at: object = None,
     ) -> tuple[EventRecord, ...]:
-        """Chained events in ledger order, optionally of one kind, portfolio and subject."""
-        return events.list_events(self.engine, kind=kind, portfolio=portfolio, subject=subject)
+        """Chained events in ledger order, optionally of one kind, portfolio and subject (recorded by
+        ``as_known_at``, if given).
+        """
+        return events.list_events(
+            self.engine, kind=kind, portfolio=portfolio, subject=subject, as_known_at=to_known_at(as_known_at)
+        )
 
     # -- API keys --------------------------------------------------------------------------------
     @_database_errors
