@@ -25,6 +25,7 @@ from riskshape.compute.batch import (
     first_row_needed,
     preload,
 )
+from riskshape.compute.derived import DerivedColumns, derive_columns, window_volatility
 from riskshape.compute.executors import Executor, make_executor
 from riskshape.compute.returns import to_returns
 from riskshape.compute.stages import StageTimes
@@ -80,7 +81,26 @@ class MonitorResult:
 
     @cached_property
     def features(self) -> pd.DataFrame:
-        """One row per window end: ``n_assets``, ``n_left_out``, ``mean_correlation``, ``h{k}_*``."""
+        """One row per window end: ``n_assets``, ``n_left_out``, ``mean_correlation``, ``h{k}_*``.
+
+        With ``[derived]`` settings, the derived columns follow (:attr:`derived`).
+        """
+        if not self.config.derived.active:
+            return self._summaries
+        return self._summaries.join(self.derived.frame)
+
+    @cached_property
+    def derived(self) -> DerivedColumns:
+        """The columns ``[derived]`` asks for, and why any value is NaN (:mod:`riskshape.compute.derived`)."""
+        settings = self.config.derived
+        if not settings.active:
+            return DerivedColumns(pd.DataFrame(index=self.window_ends))
+        volatility = window_volatility(self.returns, self.window_ends, self.config)
+        return derive_columns(self._summaries, volatility, settings, self.config.step)
+
+    @cached_property
+    def _summaries(self) -> pd.DataFrame:
+        """The features computed window by window (the columns of :func:`feature_columns`)."""
         columns = feature_columns(self.config.maxdim)
         head = np.array([(len(r.used), len(r.left_out), r.mean_correlation) for r in self.windows], dtype=float)
         # per window, dimension by dimension: the summaries, then the distances (the column order)

@@ -1,0 +1,454 @@
+"""Summaries net of the market, and their changes: optional columns derived from the features table.
+
+Every desk already watches the mean pairwise correlation and the volatility of the equal-weight
+portfolio. These columns ask what the topological summaries (the ``h{k}_*`` columns) say beyond
+those two numbers, and how fast they move:
+
+* **net of the market** (``{summary}_net``): the residual of the summary at window ``t`` from an
+  ordinary least-squares fit of the summary on ``[1, mean_correlation, ew_volatility]`` over the
+  ``L`` windows *before* ``t`` (``t - L .. t - 1``; ``L`` is ``net_of_market_window``). The fit
+  leaves ``t`` out: an out-of-sample residual is the usual causal choice, and an in-sample one is
+  pulled towards the fit by the window's own leverage, so a break at ``t`` - what a rule wants
+  to see - would be damped by the very value that shows it. The fit uses the windows of the slice
+  where the summary and both regressors are present, and needs at least half of them
+  (``ceil(L / 2)``); where the design is rank-deficient (a regressor constant over the slice) it
+  is the minimum-norm solution, as ``numpy.linalg.lstsq`` gives.
+* **its z-score** (``{summary}_net_z``): the residual over its prediction standard error,
+  ``e_t / (s * sqrt(1 + x_t' (X'X)^+ x_t))``, with ``s^2`` the fit's residual variance
+  (residual sum of squares over complete rows minus the design's rank). This is the studentized
+  prediction error of a regression textbook (the standard error ``statsmodels`` reports as
+  ``se_obs`` of a prediction); under Gaussian errors it is Student t with ``n - rank`` degrees
+  of freedom. NaN where the fit is exact up to rounding (``s`` below 1e-9 times the root mean
+  square of the summary over the slice): the residuals then carry no spread to compare with.
+* **changes** (``{summary}_chg_{h}``): the value at ``t`` minus the value ``h`` trading days
+  (``h / step`` windows) before. A difference, not a relative change: several summaries are
+  zero or near zero in calm markets (H1 persistence without loops, the distances between
+  consecutive diagrams), where a ratio is undefined or explodes; a difference stays in the
+  summary's units, and a z-score rule on it makes it scale-free. The mean correlation gets change
+  columns too, as the yardstick the topological changes are compared with.
+
+Everything is causal: the columns at ``t`` use the features of windows up to ``t`` and the
+volatility of windows up to ``t``, so a one-day update gives the same numbers as a batch. A value
+that cannot be computed is NaN, and :meth:`DerivedColumns.nan_reasons` says why.
+
+The equal-weight volatility comes from :func:`window_volatility`, the one place that says where it
+comes from (today the baselines' :func:`riskshape.research.baselines.portfolio_volatility` on each
+window's admitted block).
+"""
+
+from __future__ import annotations
+
+import math
+import re
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass, field
+
+import numpy as np
+import pandas as pd
+from numpy.lib.stride_tricks import sliding_window_view
+
+from riskshape.config import Config, DerivedConfig
+from riskshape.types import FloatArray, IntArray
+
+__all__ = [
+    "DerivedColumns",
+    "derive_columns",
+    "derived_column_names",
+    "derived_source",
+    "net_of_market",
+    "summary_changes",
+    "topological_columns",
+    "trailing_residuals",
+    "window_volatility",
+]
+
+_TOPOLOGICAL = re.compile(r"^h\d+_")
+_DERIVED = re.compile(r"^(?P<source>.+?)_(?:(?P<net>net(?:_z)?)|chg_(?P<horizon>\d+))$")
+_EXACT_FIT = 1e-9
+"""A fit is exact up to rounding when its residual standard error is below this share of the summary's RMS."""
+
+
+@dataclass(frozen=True)
+class DerivedColumns:
+    """The derived columns of one features table, and why any of their values is NaN.
+
+    Attributes
+    ----------
+    frame : pandas.DataFrame
+        The new columns only, indexed like the features (empty of columns when none is asked for).
+    reasons : mapping of str to str
+        Column name -> why it holds NaN values (columns without NaN are absent).
+    """
+
+    frame: pd.DataFrame
+    reasons: Mapping[str, str] = field(default_factory=dict)
+
+    def nan_reasons(self) -> dict[str, str]:
+        """Why each column that holds NaN values holds them (column name -> reason); empty when none does.
+
+        Returns
+        -------
+        dict of str to str
+        """
+        return dict(self.reasons)
+
+
+def topological_columns(columns: Sequence[str]) -> list[str]:
+    """The topological summary columns (``h{k}_*``) of a features table, in table order.
+
+    Parameters
+    ----------
+    columns : sequence of str
+        Column names of ``MonitorResult.features``.
+
+    Returns
+    -------
+    list of str
+
+    Examples
+    --------
+    >>> topological_columns(["n_assets", "mean_correlation", "h0_entropy", "h1_landscape_l2"])
+    ['h0_entropy', 'h1_landscape_l2']
+    """
+    return [c for c in columns if _TOPOLOGICAL.match(c)]
+
+
+def _change_sources(columns: Sequence[str]) -> list[str]:
+    """The columns that get change columns: the topological summaries and the mean correlation."""
+    return [c for c in columns if c == "mean_correlation" or _TOPOLOGICAL.match(c)]
+
+
+def derived_column_names(columns: Sequence[str], settings: DerivedConfig) -> list[str]:
+    """Names of the derived columns a features table with ``columns`` gets under ``settings``.
+
+    Parameters
+    ----------
+    columns : sequence of str
+        The features table's own columns (:func:`riskshape.compute.feature_columns`).
+    settings : DerivedConfig
+        The configuration's ``[derived]`` section.
+
+    Returns
+    -------
+    list of str
+        ``{s}_net`` and ``{s}_net_z`` per topological summary (with ``net_of_market``), then
+        ``{s}_chg_{h}`` per summary and horizon; none clashes with a features column.
+
+    Examples
+    --------
+    >>> from riskshape.config import DerivedConfig
+    >>> settings = DerivedConfig(net_of_market=True, change_horizons=[20])
+    >>> derived_column_names(["mean_correlation", "h0_entropy"], settings)
+    ['h0_entropy_net', 'h0_entropy_net_z', 'mean_correlation_chg_20', 'h0_entropy_chg_20']
+    """
+    names: list[str] = []
+    if settings.net_of_market:
+        for c in topological_columns(columns):
+            names += [f"{c}_net", f"{c}_net_z"]
+    for c in _change_sources(columns):
+        names += [f"{c}_chg_{h}" for h in settings.change_horizons]
+    return names
+
+
+def derived_source(column: str) -> tuple[str, str] | None:
+    """The column a derived column is made from, and the setting that makes it; None for other names.
+
+    Parameters
+    ----------
+    column : str
+        A column name, e.g. ``h0_entropy_chg_60``.
+
+    Returns
+    -------
+    tuple of (str, str) or None
+        ``(source column, what to set)``, e.g. ``("h0_entropy", "add 60 to change_horizons")``.
+
+    Examples
+    --------
+    >>> derived_source("h1_landscape_l2_net_z")
+    ('h1_landscape_l2', 'set net_of_market = true')
+    >>> derived_source("h0_entropy") is None
+    True
+    """
+    match = _DERIVED.match(column)
+    if match is None:
+        return None
+    if match["net"]:
+        return match["source"], "set net_of_market = true"
+    return match["source"], f"add {int(match['horizon'])} to change_horizons"
+
+
+def trailing_residuals(
+    y: FloatArray, design: FloatArray, window: int, min_rows: int | None = None
+) -> tuple[FloatArray, FloatArray, IntArray]:
+    """Out-of-sample residuals of ``y`` on ``design`` from trailing least-squares fits, and their z-scores.
+
+    Row ``t`` is predicted by the fit on rows ``t - window .. t - 1`` (the rows of that slice where
+    ``y`` and every column of ``design`` are finite); vectorised over rows with one batched SVD.
+
+    Parameters
+    ----------
+    y : numpy.ndarray
+        (n,) the response, NaN where missing.
+    design : numpy.ndarray
+        (n, p) the regressors, the intercept's column of ones included; NaN where missing.
+    window : int
+        Rows of each trailing fit.
+    min_rows : int, optional
+        Complete rows a fit needs; default ``ceil(window / 2)`` (and always more than ``p``).
+
+    Returns
+    -------
+    residual : numpy.ndarray
+        (n,) ``y_t - x_t' b_t``; NaN for the first ``window`` rows, where the fit has too few
+        complete rows, or where ``y_t`` or ``x_t`` is missing.
+    z : numpy.ndarray
+        (n,) the residual over its prediction standard error ``s * sqrt(1 + x_t' (X'X)^+ x_t)``;
+        NaN also where the fit is exact up to rounding.
+    code : numpy.ndarray
+        (n,) why each row is NaN: 0 not NaN, 1 short history, 2 too few complete rows in the
+        slice, 3 ``y_t`` or ``x_t`` missing, 4 (z only) an exact fit.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> x = np.arange(8.0)
+    >>> y = 2.0 + 3.0 * x
+    >>> y[7] += 1.0  # a break at the last row
+    >>> res, z, code = trailing_residuals(y, np.column_stack([np.ones(8), x]), window=5)
+    >>> np.round(res[5:], 9).tolist(), code.tolist()
+    ([0.0, 0.0, 1.0], [1, 1, 1, 1, 1, 4, 4, 4])
+    """
+    y = np.asarray(y, dtype=float)
+    design = np.asarray(design, dtype=float)
+    n, p = design.shape
+    need = max(p + 1, math.ceil(window / 2) if min_rows is None else min_rows)
+    residual: FloatArray = np.full(n, np.nan)
+    z: FloatArray = np.full(n, np.nan)
+    code: IntArray = np.ones(n, dtype=np.int64)
+    if n <= window:
+        return residual, z, code
+    complete = np.isfinite(y) & np.isfinite(design).all(axis=1)
+    # rows left out of a fit are zero rows: they add nothing to X'X, X'y or the residual sum of squares
+    xs = np.where(complete[:, None], design, 0.0)
+    ys = np.where(complete, y, 0.0)
+    slices = sliding_window_view(xs, window, axis=0)[: n - window].transpose(0, 2, 1)  # (m, window, p)
+    y_slices = sliding_window_view(ys, window)[: n - window]  # (m, window)
+    counts = sliding_window_view(complete, window).sum(axis=1)[: n - window]
+    u, sv, vt = np.linalg.svd(slices, full_matrices=False)  # slices = u diag(sv) vt
+    # numpy.linalg.lstsq's default cut-off: singular values below eps * max(rows, cols) * the largest
+    kept = sv > np.finfo(float).eps * window * sv[:, :1]
+    inv_sv = np.where(kept, 1.0 / np.where(kept, sv, 1.0), 0.0)
+    rank = kept.sum(axis=1)
+    uty = np.einsum("mwk,mw->mk", u, y_slices)
+    coef = np.einsum("mkp,mk->mp", vt, inv_sv * uty)  # the minimum-norm least-squares solution
+    fitted = np.einsum("mwp,mp->mw", slices, coef)
+    rss = ((y_slices - fitted) ** 2 * sliding_window_view(complete, window)[: n - window]).sum(axis=1)
+    dof = counts - rank
+    now = design[window:]
+    residual_now = y[window:] - np.einsum("mp,mp->m", now, coef)
+    leverage = ((np.einsum("mkp,mp->mk", vt, now) * inv_sv) ** 2).sum(axis=1)
+    scale = np.sqrt(np.where(dof > 0, rss, np.nan) / np.where(dof > 0, dof, 1))
+    rms = np.sqrt((y_slices**2).sum(axis=1) / np.maximum(counts, 1))
+    exact = scale <= _EXACT_FIT * rms
+
+    enough = counts >= need
+    present = complete[window:]
+    later = np.where(~enough, 2, np.where(~present, 3, 0))
+    residual[window:] = np.where(later == 0, residual_now, np.nan)
+    ok_z = (later == 0) & ~exact
+    z[window:] = np.where(ok_z, residual_now / (scale * np.sqrt(1.0 + leverage)), np.nan)
+    code[window:] = np.where((later == 0) & exact, 4, later)
+    return residual, z, code
+
+
+def net_of_market(
+    summaries: pd.DataFrame, mean_correlation: pd.Series, volatility: pd.Series, window: int
+) -> DerivedColumns:
+    """Each summary net of the mean correlation and the equal-weight volatility, and its z-score.
+
+    Parameters
+    ----------
+    summaries : pandas.DataFrame
+        Summary columns indexed by window end.
+    mean_correlation, volatility : pandas.Series
+        The two regressors on the same index.
+    window : int
+        Windows of each trailing fit (``net_of_market_window``).
+
+    Returns
+    -------
+    DerivedColumns
+        ``{summary}_net`` and ``{summary}_net_z`` per column (see :func:`trailing_residuals`).
+
+    Examples
+    --------
+    >>> import numpy as np, pandas as pd
+    >>> days = pd.bdate_range("2031-01-01", periods=30)
+    >>> rng = np.random.default_rng(0)
+    >>> corr, vol = pd.Series(rng.uniform(0.2, 0.6, 30), days), pd.Series(rng.uniform(0.1, 0.3, 30), days)
+    >>> noise = np.r_[np.zeros(25), 0.5, np.zeros(4)]
+    >>> h0 = pd.DataFrame({"h0_total_persistence": 4.0 - 3.0 * corr + 2.0 * vol + noise}, index=days)
+    >>> net = net_of_market(h0, corr, vol, window=20)
+    >>> (net.frame["h0_total_persistence_net"].iloc[24:26].abs() + 0.0).round(9).tolist()  # fits before 26 exact
+    [0.0, 0.5]
+    """
+    design = np.column_stack(
+        [np.ones(len(summaries)), mean_correlation.to_numpy(dtype=float), volatility.to_numpy(dtype=float)]
+    )
+    columns: dict[str, FloatArray] = {}
+    reasons: dict[str, str] = {}
+    for name in summaries.columns:
+        residual, z, code = trailing_residuals(summaries[name].to_numpy(dtype=float), design, window)
+        columns[f"{name}_net"], columns[f"{name}_net_z"] = residual, z
+        for column, codes in ((f"{name}_net", np.where(code == 4, 0, code)), (f"{name}_net_z", code)):
+            why = _describe_codes(codes, window)
+            if why:
+                reasons[column] = why
+    return DerivedColumns(pd.DataFrame(columns, index=summaries.index), reasons)
+
+
+def _describe_codes(code: IntArray, window: int) -> str:
+    """One sentence per NaN cause of :func:`trailing_residuals`, with how many windows each covers."""
+    parts = []
+    counts = np.bincount(np.asarray(code, dtype=np.int64), minlength=5)
+    if counts[1]:
+        parts.append(f"{counts[1]} window(s) before the trailing fit has net_of_market_window = {window} earlier ones")
+    if counts[2]:
+        parts.append(
+            f"{counts[2]} window(s) whose trailing {window} windows hold fewer than {math.ceil(window / 2)} "
+            "with the summary, mean_correlation and ew_volatility all present"
+        )
+    if counts[3]:
+        parts.append(f"{counts[3]} window(s) where the summary, mean_correlation or ew_volatility is missing")
+    if counts[4]:
+        parts.append(f"{counts[4]} window(s) where the trailing fit is exact (no residual spread to scale by)")
+    return "; ".join(parts)
+
+
+def summary_changes(summaries: pd.DataFrame, horizons: Sequence[int], step: int = 1) -> DerivedColumns:
+    """Each summary's change over each horizon: its value minus its value ``h`` trading days before.
+
+    Parameters
+    ----------
+    summaries : pandas.DataFrame
+        Summary columns indexed by window end, one row per window (windows ``step`` days apart).
+    horizons : sequence of int
+        Trading days; each a multiple of ``step``.
+    step : int
+        Trading days between consecutive windows.
+
+    Returns
+    -------
+    DerivedColumns
+        ``{summary}_chg_{h}`` per column and horizon, NaN for the first ``h / step`` windows and
+        where either value is missing.
+
+    Examples
+    --------
+    >>> import pandas as pd
+    >>> s = pd.DataFrame({"h1_entropy": [1.0, 2.0, 4.0, 7.0]}, index=pd.bdate_range("2031-01-01", periods=4))
+    >>> summary_changes(s, [2]).frame["h1_entropy_chg_2"].tolist()
+    [nan, nan, 3.0, 5.0]
+    """
+    columns: dict[str, FloatArray] = {}
+    reasons: dict[str, str] = {}
+    for name in summaries.columns:
+        values = summaries[name].to_numpy(dtype=float)
+        for h in horizons:
+            lag = h // step
+            change = np.full(len(values), np.nan)
+            change[lag:] = values[lag:] - values[: len(values) - lag]
+            column = f"{name}_chg_{h}"
+            columns[column] = change
+            head = min(lag, len(values))
+            gaps = int(np.isnan(change[head:]).sum())
+            parts = [f"{head} window(s) before {h} trading days of history"] if head else []
+            if gaps:
+                parts.append(f"{gaps} window(s) where the summary is missing at the window or {h} days before")
+            if parts:
+                reasons[column] = "; ".join(parts)
+    return DerivedColumns(pd.DataFrame(columns, index=summaries.index), reasons)
+
+
+def derive_columns(
+    features: pd.DataFrame, volatility: pd.Series, settings: DerivedConfig, step: int = 1
+) -> DerivedColumns:
+    """Every derived column ``settings`` asks for, from a features table and each window's volatility.
+
+    Parameters
+    ----------
+    features : pandas.DataFrame
+        ``MonitorResult``'s summaries: ``mean_correlation`` and the ``h{k}_*`` columns, by window end.
+    volatility : pandas.Series
+        The equal-weight volatility of each window (:func:`window_volatility`), same index.
+    settings : DerivedConfig
+        The ``[derived]`` section.
+    step : int
+        Trading days between windows (the configuration's ``step``).
+
+    Returns
+    -------
+    DerivedColumns
+        The columns of :func:`derived_column_names`, in that order.
+
+    Examples
+    --------
+    >>> import pandas as pd
+    >>> from riskshape.config import DerivedConfig
+    >>> days = pd.bdate_range("2031-01-01", periods=3)
+    >>> f = pd.DataFrame({"mean_correlation": [0.2, 0.3, 0.5], "h0_entropy": [2.0, 1.5, 1.0]}, index=days)
+    >>> out = derive_columns(f, pd.Series(0.1, index=days), DerivedConfig(change_horizons=[1]))
+    >>> out.frame["h0_entropy_chg_1"].tolist(), out.nan_reasons()["h0_entropy_chg_1"]
+    ([nan, -0.5, -0.5], '1 window(s) before 1 trading days of history')
+    """
+    parts: list[DerivedColumns] = []
+    if settings.net_of_market:
+        topo = features[topological_columns(list(features.columns))]
+        parts.append(net_of_market(topo, features["mean_correlation"], volatility, settings.net_of_market_window))
+    if settings.change_horizons:
+        parts.append(summary_changes(features[_change_sources(list(features.columns))], settings.change_horizons, step))
+    if not parts:
+        return DerivedColumns(pd.DataFrame(index=features.index))
+    frame = pd.concat([part.frame for part in parts], axis=1)
+    reasons = {k: v for part in parts for k, v in part.reasons.items()}
+    return DerivedColumns(frame, reasons)
+
+
+def window_volatility(returns: pd.DataFrame, window_ends: pd.DatetimeIndex, config: Config) -> pd.Series:
+    """The equal-weight portfolio's volatility of each window: the one source of the net-of-market regressor.
+
+    Today it is :func:`riskshape.research.baselines.portfolio_volatility` on each window's admitted
+    block (:func:`riskshape.compute.windows.select_window`), as the baselines compute it.
+
+    Parameters
+    ----------
+    returns : pandas.DataFrame
+        ``MonitorResult.returns``.
+    window_ends : pandas.DatetimeIndex
+        ``MonitorResult.window_ends``.
+    config : Config
+        Uses ``window`` and ``min_coverage``.
+
+    Returns
+    -------
+    pandas.Series
+        ``ew_volatility`` indexed by window end (annualised, as the baselines give it).
+
+    Examples
+    --------
+    >>> import numpy as np, pandas as pd
+    >>> days = pd.bdate_range("2031-01-01", periods=6)
+    >>> r = pd.DataFrame({"XQ01": [0.01, -0.01, 0.02, 0.0, 0.01, -0.02], "XQ02": 0.0}, index=days)
+    >>> vol = window_volatility(r, days[4:], Config(window=5))
+    >>> vol.index.equals(days[4:]), bool(vol.iloc[0] > 0)
+    (True, True)
+    """
+    # lazy: the research wing loads scipy, which the monitor does not need unless asked for these columns
+    from riskshape.compute.windows import select_window
+    from riskshape.research.baselines import portfolio_volatility
+
+    values = returns.to_numpy(dtype=float)
+    rows = returns.index.get_indexer(window_ends)
+    vols = [portfolio_volatility(select_window(values, int(r), config.window, config.min_coverage).block) for r in rows]
+    return pd.Series(vols, index=window_ends, name="ew_volatility", dtype=float)
