@@ -94,7 +94,7 @@ class DerivedColumns:
 
 
 def topological_columns(columns: Sequence[str]) -> list[str]:
-    """The topological summary columns (``h{k}_*``) of a features table, in table order.
+    """The topological summary columns (``h{k}_*``, derived columns left out) of a features table, in table order.
 
     Parameters
     ----------
@@ -107,15 +107,15 @@ def topological_columns(columns: Sequence[str]) -> list[str]:
 
     Examples
     --------
-    >>> topological_columns(["n_assets", "mean_correlation", "h0_entropy", "h1_landscape_l2"])
+    >>> topological_columns(["n_assets", "mean_correlation", "h0_entropy", "h1_landscape_l2", "h0_entropy_net"])
     ['h0_entropy', 'h1_landscape_l2']
     """
-    return [c for c in columns if _TOPOLOGICAL.match(c)]
+    return [c for c in columns if _TOPOLOGICAL.match(c) and not _DERIVED.match(c)]
 
 
 def _change_sources(columns: Sequence[str]) -> list[str]:
     """The columns that get change columns: the topological summaries and the mean correlation."""
-    return [c for c in columns if c == "mean_correlation" or _TOPOLOGICAL.match(c)]
+    return [c for c in columns if c == "mean_correlation" or c in topological_columns([c])]
 
 
 def derived_column_names(columns: Sequence[str], settings: DerivedConfig) -> list[str]:
