@@ -24,6 +24,8 @@ from riskshape.compute.derived import (
     derive_columns,
     derived_column_names,
     derived_source,
+    extend_columns,
+    history_needed,
     net_of_market,
     summary_changes,
     trailing_residuals,
@@ -165,3 +167,33 @@ def test_derive_columns_are_the_parts_side_by_side(rng: np.random.Generator) -> 
     net = net_of_market(features[["h0_entropy"]], features["mean_correlation"], vol, 20).frame
     pd.testing.assert_frame_equal(out.frame[net.columns], net)
     assert derive_columns(features, vol, DerivedConfig()).frame.empty
+
+
+def test_extending_held_columns_reads_only_the_history_needed_and_equals_the_whole(rng: np.random.Generator) -> None:
+    n, held_rows = 200, 150
+    days = pd.bdate_range("2031-01-01", periods=n)
+    design = _design(rng, n)
+    features = pd.DataFrame(
+        {
+            "mean_correlation": design[:, 1],
+            "h0_total_persistence": 2.0 - design[:, 1] + rng.normal(0, 0.05, n),
+            "h0_wasserstein": np.r_[np.nan, rng.gamma(2.0, 0.1, n - 1)],  # missing at the first window only
+        },
+        days,
+    )
+    vol = pd.Series(design[:, 2], days)
+    settings = DerivedConfig(net_of_market=True, net_of_market_window=60, change_horizons=[4, 20])
+    step = 2
+    whole = derive_columns(features, vol, settings, step)
+    held = derive_columns(features.iloc[:held_rows], vol.iloc[:held_rows], settings, step)
+    asked: list[int] = []
+
+    def volatility_of(ends: pd.DatetimeIndex) -> pd.Series:
+        asked.append(len(ends))
+        return vol.loc[ends]
+
+    extended = extend_columns(held, features, volatility_of, settings, step)
+    assert asked == [n - (held_rows - history_needed(settings, step))] == [110]  # 60 held windows + 50 new
+    pd.testing.assert_frame_equal(extended.frame, whole.frame, check_exact=True)
+    pd.testing.assert_frame_equal(extended.codes, whole.codes, check_exact=True)
+    assert extended.nan_reasons() == whole.nan_reasons()

@@ -40,21 +40,23 @@ from __future__ import annotations
 
 import math
 import re
-from collections.abc import Mapping, Sequence
-from dataclasses import dataclass, field
+from collections.abc import Callable, Sequence
+from dataclasses import dataclass
 
 import numpy as np
 import pandas as pd
 from numpy.lib.stride_tricks import sliding_window_view
 
 from riskshape.config import Config, DerivedConfig
-from riskshape.types import FloatArray, IntArray
+from riskshape.types import BoolArray, FloatArray, IntArray
 
 __all__ = [
     "DerivedColumns",
     "derive_columns",
     "derived_column_names",
     "derived_source",
+    "extend_columns",
+    "history_needed",
     "net_of_market",
     "summary_changes",
     "topological_columns",
@@ -76,12 +78,16 @@ class DerivedColumns:
     ----------
     frame : pandas.DataFrame
         The new columns only, indexed like the features (empty of columns when none is asked for).
-    reasons : mapping of str to str
-        Column name -> why it holds NaN values (columns without NaN are absent).
+    codes : pandas.DataFrame
+        Why each value is NaN, same shape: 0 it is not, 1 too little history, 2 too few complete
+        windows in the trailing fit, 3 a value it rests on is missing, 4 an exact trailing fit.
+    net_window : int
+        The trailing fit's windows (``net_of_market_window``), for the reasons' wording.
     """
 
     frame: pd.DataFrame
-    reasons: Mapping[str, str] = field(default_factory=dict)
+    codes: pd.DataFrame
+    net_window: int = 0
 
     def nan_reasons(self) -> dict[str, str]:
         """Why each column that holds NaN values holds them (column name -> reason); empty when none does.
@@ -90,7 +96,40 @@ class DerivedColumns:
         -------
         dict of str to str
         """
-        return dict(self.reasons)
+        reasons = {}
+        for column in self.codes.columns:
+            code = self.codes[column].to_numpy(dtype=np.int64)
+            horizon = _DERIVED.match(column)
+            if horizon is not None and horizon["horizon"]:
+                why = _describe_change_codes(code, int(horizon["horizon"]))
+            else:
+                why = _describe_codes(code, self.net_window)
+            if why:
+                reasons[column] = why
+        return reasons
+
+    def extended(self, tail: DerivedColumns) -> DerivedColumns:
+        """These rows followed by the rows of ``tail`` after them (``tail`` computed over a later span).
+
+        Parameters
+        ----------
+        tail : DerivedColumns
+            Derived columns whose index ends after this one's; its rows up to this one's last are dropped.
+
+        Returns
+        -------
+        DerivedColumns
+        """
+        later = tail.frame.index > self.frame.index[-1] if len(self.frame) else slice(None)
+        return DerivedColumns(
+            pd.concat([self.frame, tail.frame.loc[later]]),
+            pd.concat([self.codes, tail.codes.loc[later]]),
+            self.net_window,
+        )
+
+
+def _empty(index: pd.Index) -> DerivedColumns:
+    return DerivedColumns(pd.DataFrame(index=index), pd.DataFrame(index=index))
 
 
 def topological_columns(columns: Sequence[str]) -> list[str]:
@@ -221,44 +260,57 @@ def trailing_residuals(
     """
     y = np.asarray(y, dtype=float)
     design = np.asarray(design, dtype=float)
+    complete = np.isfinite(y) & np.isfinite(design).all(axis=1)
+    residual, z, code = _trailing_fits(y[:, None], design, complete, window, min_rows)
+    return residual[:, 0], z[:, 0], code[:, 0]
+
+
+def _trailing_fits(
+    ys: FloatArray, design: FloatArray, complete: BoolArray, window: int, min_rows: int | None
+) -> tuple[FloatArray, FloatArray, IntArray]:
+    """:func:`trailing_residuals` of the k columns of ``ys`` (n, k) that are complete on the same rows.
+
+    One batched SVD of the trailing slices of the design serves every column.
+    """
     n, p = design.shape
+    k = ys.shape[1]
     need = max(p + 1, math.ceil(window / 2) if min_rows is None else min_rows)
-    residual: FloatArray = np.full(n, np.nan)
-    z: FloatArray = np.full(n, np.nan)
-    code: IntArray = np.ones(n, dtype=np.int64)
+    residual: FloatArray = np.full((n, k), np.nan)
+    z: FloatArray = np.full((n, k), np.nan)
+    code: IntArray = np.ones((n, k), dtype=np.int64)
     if n <= window:
         return residual, z, code
-    complete = np.isfinite(y) & np.isfinite(design).all(axis=1)
+    m = n - window
     # rows left out of a fit are zero rows: they add nothing to X'X, X'y or the residual sum of squares
     xs = np.where(complete[:, None], design, 0.0)
-    ys = np.where(complete, y, 0.0)
-    slices = sliding_window_view(xs, window, axis=0)[: n - window].transpose(0, 2, 1)  # (m, window, p)
-    y_slices = sliding_window_view(ys, window)[: n - window]  # (m, window)
-    counts = sliding_window_view(complete, window).sum(axis=1)[: n - window]
+    slices = sliding_window_view(xs, window, axis=0)[:m].transpose(0, 2, 1)  # (m, window, p)
+    counts = sliding_window_view(complete, window)[:m].sum(axis=1)
     u, sv, vt = np.linalg.svd(slices, full_matrices=False)  # slices = u diag(sv) vt
     # numpy.linalg.lstsq's default cut-off: singular values below eps * max(rows, cols) * the largest
     kept = sv > np.finfo(float).eps * window * sv[:, :1]
     inv_sv = np.where(kept, 1.0 / np.where(kept, sv, 1.0), 0.0)
-    rank = kept.sum(axis=1)
-    uty = np.einsum("mwk,mw->mk", u, y_slices)
-    coef = np.einsum("mkp,mk->mp", vt, inv_sv * uty)  # the minimum-norm least-squares solution
-    fitted = np.einsum("mwp,mp->mw", slices, coef)
-    rss = ((y_slices - fitted) ** 2 * sliding_window_view(complete, window)[: n - window]).sum(axis=1)
-    dof = counts - rank
+    dof = counts - kept.sum(axis=1)
     now = design[window:]
-    residual_now = y[window:] - np.einsum("mp,mp->m", now, coef)
-    leverage = ((np.einsum("mkp,mp->mk", vt, now) * inv_sv) ** 2).sum(axis=1)
-    scale = np.sqrt(np.where(dof > 0, rss, np.nan) / np.where(dof > 0, dof, 1))
-    rms = np.sqrt((y_slices**2).sum(axis=1) / np.maximum(counts, 1))
-    exact = scale <= _EXACT_FIT * rms
-
+    leverage = ((np.einsum("mrp,mp->mr", vt, now) * inv_sv) ** 2).sum(axis=1)
     enough = counts >= need
-    present = complete[window:]
-    later = np.where(~enough, 2, np.where(~present, 3, 0))
-    residual[window:] = np.where(later == 0, residual_now, np.nan)
-    ok_z = (later == 0) & ~exact
-    z[window:] = np.where(ok_z, residual_now / (scale * np.sqrt(1.0 + leverage)), np.nan)
-    code[window:] = np.where((later == 0) & exact, 4, later)
+    later = np.where(~enough, 2, np.where(~complete[window:], 3, 0))
+    # column by column, each with the same shapes and strides whatever the group or the span: a column's
+    # numbers do not depend on which columns share its fit, nor on how many windows are computed at once
+    for j in range(k):
+        y = np.ascontiguousarray(np.where(complete, ys[:, j], 0.0))
+        y_slices = sliding_window_view(y, window)[:m, None, :]  # (m, 1, window)
+        coef = (inv_sv[:, None, :] * (y_slices @ u)) @ vt  # (m, 1, p): the minimum-norm least-squares solution
+        fitted = coef @ slices.transpose(0, 2, 1)  # (m, 1, window); rows left out are zero rows, fitted 0
+        rss = ((y_slices - fitted) ** 2).sum(axis=2)[:, 0]
+        residual_now = ys[window:, j] - (now[:, None, :] @ coef.transpose(0, 2, 1))[:, 0, 0]
+        scale = np.sqrt(np.where(dof > 0, rss, np.nan) / np.where(dof > 0, dof, 1))
+        rms = np.sqrt((y_slices[:, 0, :] ** 2).sum(axis=1) / np.maximum(counts, 1))
+        exact = scale <= _EXACT_FIT * rms
+        ok_z = (later == 0) & ~exact
+        spread = scale * np.sqrt(1.0 + leverage)
+        residual[window:, j] = np.where(later == 0, residual_now, np.nan)
+        z[window:, j] = np.divide(residual_now, spread, out=np.full_like(residual_now, np.nan), where=ok_z)
+        code[window:, j] = np.where((later == 0) & exact, 4, later)
     return residual, z, code
 
 
@@ -296,16 +348,28 @@ def net_of_market(
     design = np.column_stack(
         [np.ones(len(summaries)), mean_correlation.to_numpy(dtype=float), volatility.to_numpy(dtype=float)]
     )
+    values = summaries.to_numpy(dtype=float)
+    complete = np.isfinite(values) & np.isfinite(design).all(axis=1)[:, None]
     columns: dict[str, FloatArray] = {}
-    reasons: dict[str, str] = {}
+    codes: dict[str, IntArray] = {}
+    # the columns complete on the same windows share one fit of the design (most of them: the
+    # distances to the previous window lack the first window only, an H1 entropy the windows without loops)
+    groups: dict[bytes, list[int]] = {}
+    for j in range(values.shape[1]):
+        groups.setdefault(np.packbits(complete[:, j]).tobytes(), []).append(j)
+    for members in groups.values():
+        residual, z, code = _trailing_fits(values[:, members], design, complete[:, members[0]], window, None)
+        for i, j in enumerate(members):
+            name = summaries.columns[j]
+            columns[f"{name}_net"], columns[f"{name}_net_z"] = residual[:, i], z[:, i]
+            codes[name] = code[:, i]
+    ordered = [c for name in summaries.columns for c in (f"{name}_net", f"{name}_net_z")]
+    frame = pd.DataFrame({c: columns[c] for c in ordered}, index=summaries.index)
+    kinds = {}
     for name in summaries.columns:
-        residual, z, code = trailing_residuals(summaries[name].to_numpy(dtype=float), design, window)
-        columns[f"{name}_net"], columns[f"{name}_net_z"] = residual, z
-        for column, codes in ((f"{name}_net", np.where(code == 4, 0, code)), (f"{name}_net_z", code)):
-            why = _describe_codes(codes, window)
-            if why:
-                reasons[column] = why
-    return DerivedColumns(pd.DataFrame(columns, index=summaries.index), reasons)
+        kinds[f"{name}_net"] = np.where(codes[name] == 4, 0, codes[name])  # an exact fit still has its residual
+        kinds[f"{name}_net_z"] = codes[name]
+    return DerivedColumns(frame, pd.DataFrame(kinds, index=summaries.index, dtype=np.int8), window)
 
 
 def _describe_codes(code: IntArray, window: int) -> str:
@@ -352,23 +416,27 @@ def summary_changes(summaries: pd.DataFrame, horizons: Sequence[int], step: int 
     [nan, nan, 3.0, 5.0]
     """
     columns: dict[str, FloatArray] = {}
-    reasons: dict[str, str] = {}
+    codes: dict[str, IntArray] = {}
     for name in summaries.columns:
         values = summaries[name].to_numpy(dtype=float)
         for h in horizons:
             lag = h // step
             change = np.full(len(values), np.nan)
             change[lag:] = values[lag:] - values[: len(values) - lag]
-            column = f"{name}_chg_{h}"
-            columns[column] = change
-            head = min(lag, len(values))
-            gaps = int(np.isnan(change[head:]).sum())
-            parts = [f"{head} window(s) before {h} trading days of history"] if head else []
-            if gaps:
-                parts.append(f"{gaps} window(s) where the summary is missing at the window or {h} days before")
-            if parts:
-                reasons[column] = "; ".join(parts)
-    return DerivedColumns(pd.DataFrame(columns, index=summaries.index), reasons)
+            code = np.where(np.isnan(change), 3, 0)
+            code[:lag] = 1
+            columns[f"{name}_chg_{h}"], codes[f"{name}_chg_{h}"] = change, code
+    index = summaries.index
+    return DerivedColumns(pd.DataFrame(columns, index=index), pd.DataFrame(codes, index=index, dtype=np.int8))
+
+
+def _describe_change_codes(code: IntArray, horizon: int) -> str:
+    """The reasons of :func:`summary_changes`' NaN values, with how many windows each covers."""
+    counts = np.bincount(code, minlength=5)
+    parts = [f"{counts[1]} window(s) before {horizon} trading days of history"] if counts[1] else []
+    if counts[3]:
+        parts.append(f"{counts[3]} window(s) where the summary is missing at the window or {horizon} days before")
+    return "; ".join(parts)
 
 
 def derive_columns(
@@ -409,10 +477,69 @@ def derive_columns(
     if settings.change_horizons:
         parts.append(summary_changes(features[_change_sources(list(features.columns))], settings.change_horizons, step))
     if not parts:
-        return DerivedColumns(pd.DataFrame(index=features.index))
+        return _empty(features.index)
     frame = pd.concat([part.frame for part in parts], axis=1)
-    reasons = {k: v for part in parts for k, v in part.reasons.items()}
-    return DerivedColumns(frame, reasons)
+    codes = pd.concat([part.codes for part in parts], axis=1)
+    return DerivedColumns(frame, codes, settings.net_of_market_window if settings.net_of_market else 0)
+
+
+def history_needed(settings: DerivedConfig, step: int = 1) -> int:
+    """Windows before a window that its derived columns read: the trailing fit's, or the longest change's.
+
+    Parameters
+    ----------
+    settings : DerivedConfig
+        The ``[derived]`` section.
+    step : int
+        Trading days between windows.
+
+    Returns
+    -------
+    int
+        0 when no derived column is asked for.
+
+    Examples
+    --------
+    >>> from riskshape.config import DerivedConfig
+    >>> history_needed(DerivedConfig(net_of_market=True, change_horizons=[20, 300]), step=1)
+    300
+    """
+    fit = settings.net_of_market_window if settings.net_of_market else 0
+    return max([fit, *(h // step for h in settings.change_horizons)])
+
+
+def extend_columns(
+    held: DerivedColumns,
+    features: pd.DataFrame,
+    volatility_of: Callable[[pd.DatetimeIndex], pd.Series],
+    settings: DerivedConfig,
+    step: int = 1,
+) -> DerivedColumns:
+    """``held`` (the derived columns of the first windows of ``features``) and those of the windows after them.
+
+    Computes only the new windows, from the :func:`history_needed` windows before them: the numbers
+    equal :func:`derive_columns` over the whole table (a one-day update costs one window).
+
+    Parameters
+    ----------
+    held : DerivedColumns
+        The derived columns of ``features``' first rows.
+    features : pandas.DataFrame
+        Every window's summaries (as :func:`derive_columns` takes them).
+    volatility_of : callable
+        Given window ends, their equal-weight volatility (:func:`window_volatility`).
+    settings : DerivedConfig
+    step : int
+
+    Returns
+    -------
+    DerivedColumns
+        Equal to ``derive_columns(features, volatility_of(features.index), settings, step)``.
+    """
+    start = max(0, len(held.frame) - history_needed(settings, step))
+    span = features.iloc[start:]
+    ends = pd.DatetimeIndex(span.index)
+    return held.extended(derive_columns(span, volatility_of(ends), settings, step))
 
 
 def window_volatility(returns: pd.DataFrame, window_ends: pd.DatetimeIndex, config: Config) -> pd.Series:
