@@ -30,7 +30,7 @@ from riskshape.store import Store, open_store
 from tests.kit.postgres import fresh_schema_url
 
 DERIVED = {"net_of_market": True, "net_of_market_window": 30, "change_horizons": [4, 10]}
-CONFIG = Config(window=20, step=2, maxdim=0, compute={"executor": "serial"}, derived=DERIVED)
+CONFIG = Config(window=20, step=2, maxdim=0, compute={"executor": "serial"}, alerts={"rules": []}, derived=DERIVED)
 
 
 def _prices(scenario: Scenario) -> pd.DataFrame:
@@ -152,3 +152,18 @@ def test_the_archive_stores_the_derived_columns_and_alerts_on_them(base: Monitor
         archived[names], result.features[names], check_exact=False, rtol=1e-15, check_freq=False, check_names=False
     )
     assert len(report.alerts.added) == len(evaluate_rules(result.features, config.alerts.rules)) > 0
+
+
+def test_a_correction_is_refused_before_writing_while_derived_columns_are_archived(
+    base: MonitorResult, tmp_path: Path
+) -> None:
+    from riskshape.daily.corrections import apply_corrections
+
+    with open_store(f"sqlite:///{tmp_path / 'archive.sqlite'}") as store:
+        archive_run(store, "derived", base, explain=False)
+        before = store.read_prices("derived")
+        revised = base.prices.iloc[[50]] * 1.01
+        with pytest.raises(ConfigError, match=r"\[derived\] columns .* corrections do not recompute them yet"):
+            apply_corrections(store, "derived", revised, CONFIG, store.latest_run("derived"))
+        pd.testing.assert_frame_equal(store.read_prices("derived"), before)
+        assert len(store.list_runs("derived")) == 1
