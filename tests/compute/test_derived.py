@@ -1,4 +1,4 @@
-"""The derived columns' maths (riskshape.compute.derived), against outside references.
+"""The derived columns' maths (riskshape.compute.derived, .trailing_fit), against outside references.
 
 * The trailing residual at t is the residual of an ordinary least-squares fit on the slice
   t - L .. t - 1 (its complete rows): checked against ``numpy.linalg.lstsq`` and against
@@ -28,8 +28,8 @@ from riskshape.compute.derived import (
     history_needed,
     net_of_market,
     summary_changes,
-    trailing_residuals,
 )
+from riskshape.compute.trailing_fit import trailing_residuals
 from riskshape.config import DerivedConfig
 
 

@@ -6,20 +6,10 @@ those two numbers, and how fast they move:
 
 * **net of the market** (``{summary}_net``): the residual of the summary at window ``t`` from an
   ordinary least-squares fit of the summary on ``[1, mean_correlation, ew_volatility]`` over the
-  ``L`` windows *before* ``t`` (``t - L .. t - 1``; ``L`` is ``net_of_market_window``). The fit
-  leaves ``t`` out: an out-of-sample residual is the usual causal choice, and an in-sample one is
-  pulled towards the fit by the window's own leverage, so a break at ``t`` - what a rule wants
-  to see - would be damped by the very value that shows it. The fit uses the windows of the slice
-  where the summary and both regressors are present, and needs at least half of them
-  (``ceil(L / 2)``); where the design is rank-deficient (a regressor constant over the slice) it
-  is the minimum-norm solution, as ``numpy.linalg.lstsq`` gives.
-* **its z-score** (``{summary}_net_z``): the residual over its prediction standard error,
-  ``e_t / (s * sqrt(1 + x_t' (X'X)^+ x_t))``, with ``s^2`` the fit's residual variance
-  (residual sum of squares over complete rows minus the design's rank). This is the studentized
-  prediction error of a regression textbook (the standard error ``statsmodels`` reports as
-  ``se_obs`` of a prediction); under Gaussian errors it is Student t with ``n - rank`` degrees
-  of freedom. NaN where the fit is exact up to rounding (``s`` below 1e-9 times the root mean
-  square of the summary over the slice): the residuals then carry no spread to compare with.
+  ``L`` windows *before* ``t`` (``L`` is ``net_of_market_window``): out of sample, so a break at
+  ``t`` is not damped by its own leverage; and **its z-score** (``{summary}_net_z``), the
+  residual over its prediction standard error (a studentized residual). See
+  :mod:`riskshape.compute.trailing_fit` for the fit, the rows it uses and when it is NaN.
 * **changes** (``{summary}_chg_{h}``): the value at ``t`` minus the value ``h`` trading days
   (``h / step`` windows) before. A difference, not a relative change: several summaries are
   zero or near zero in calm markets (H1 persistence without loops, the distances between
@@ -38,17 +28,16 @@ window's admitted block).
 
 from __future__ import annotations
 
-import math
 import re
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 
 import numpy as np
 import pandas as pd
-from numpy.lib.stride_tricks import sliding_window_view
 
+from riskshape.compute.trailing_fit import describe_fit_codes, trailing_fits
 from riskshape.config import Config, DerivedConfig
-from riskshape.types import BoolArray, FloatArray, IntArray
+from riskshape.types import FloatArray, IntArray
 
 __all__ = [
     "DerivedColumns",
@@ -60,14 +49,11 @@ __all__ = [
     "net_of_market",
     "summary_changes",
     "topological_columns",
-    "trailing_residuals",
     "window_volatility",
 ]
 
 _TOPOLOGICAL = re.compile(r"^h\d+_")
 _DERIVED = re.compile(r"^(?P<source>.+?)_(?:(?P<net>net(?:_z)?)|chg_(?P<horizon>\d+))$")
-_EXACT_FIT = 1e-9
-"""A fit is exact up to rounding when its residual standard error is below this share of the summary's RMS."""
 
 
 @dataclass(frozen=True)
@@ -103,7 +89,7 @@ class DerivedColumns:
             if horizon is not None and horizon["horizon"]:
                 why = _describe_change_codes(code, int(horizon["horizon"]))
             else:
-                why = _describe_codes(code, self.net_window)
+                why = describe_fit_codes(code, self.net_window)
             if why:
                 reasons[column] = why
         return reasons
@@ -217,103 +203,6 @@ def derived_source(column: str) -> tuple[str, str] | None:
     return match["source"], f"add {int(match['horizon'])} to change_horizons"
 
 
-def trailing_residuals(
-    y: FloatArray, design: FloatArray, window: int, min_rows: int | None = None
-) -> tuple[FloatArray, FloatArray, IntArray]:
-    """Out-of-sample residuals of ``y`` on ``design`` from trailing least-squares fits, and their z-scores.
-
-    Row ``t`` is predicted by the fit on rows ``t - window .. t - 1`` (the rows of that slice where
-    ``y`` and every column of ``design`` are finite); vectorised over rows with one batched SVD.
-
-    Parameters
-    ----------
-    y : numpy.ndarray
-        (n,) the response, NaN where missing.
-    design : numpy.ndarray
-        (n, p) the regressors, the intercept's column of ones included; NaN where missing.
-    window : int
-        Rows of each trailing fit.
-    min_rows : int, optional
-        Complete rows a fit needs; default ``ceil(window / 2)`` (and always more than ``p``).
-
-    Returns
-    -------
-    residual : numpy.ndarray
-        (n,) ``y_t - x_t' b_t``; NaN for the first ``window`` rows, where the fit has too few
-        complete rows, or where ``y_t`` or ``x_t`` is missing.
-    z : numpy.ndarray
-        (n,) the residual over its prediction standard error ``s * sqrt(1 + x_t' (X'X)^+ x_t)``;
-        NaN also where the fit is exact up to rounding.
-    code : numpy.ndarray
-        (n,) why each row is NaN: 0 not NaN, 1 short history, 2 too few complete rows in the
-        slice, 3 ``y_t`` or ``x_t`` missing, 4 (z only) an exact fit.
-
-    Examples
-    --------
-    >>> import numpy as np
-    >>> x = np.arange(8.0)
-    >>> y = 2.0 + 3.0 * x
-    >>> y[7] += 1.0  # a break at the last row
-    >>> res, z, code = trailing_residuals(y, np.column_stack([np.ones(8), x]), window=5)
-    >>> np.round(res[5:], 9).tolist(), code.tolist()
-    ([0.0, 0.0, 1.0], [1, 1, 1, 1, 1, 4, 4, 4])
-    """
-    y = np.asarray(y, dtype=float)
-    design = np.asarray(design, dtype=float)
-    complete = np.isfinite(y) & np.isfinite(design).all(axis=1)
-    residual, z, code = _trailing_fits(y[:, None], design, complete, window, min_rows)
-    return residual[:, 0], z[:, 0], code[:, 0]
-
-
-def _trailing_fits(
-    ys: FloatArray, design: FloatArray, complete: BoolArray, window: int, min_rows: int | None
-) -> tuple[FloatArray, FloatArray, IntArray]:
-    """:func:`trailing_residuals` of the k columns of ``ys`` (n, k) that are complete on the same rows.
-
-    One batched SVD of the trailing slices of the design serves every column.
-    """
-    n, p = design.shape
-    k = ys.shape[1]
-    need = max(p + 1, math.ceil(window / 2) if min_rows is None else min_rows)
-    residual: FloatArray = np.full((n, k), np.nan)
-    z: FloatArray = np.full((n, k), np.nan)
-    code: IntArray = np.ones((n, k), dtype=np.int64)
-    if n <= window:
-        return residual, z, code
-    m = n - window
-    # rows left out of a fit are zero rows: they add nothing to X'X, X'y or the residual sum of squares
-    xs = np.where(complete[:, None], design, 0.0)
-    slices = sliding_window_view(xs, window, axis=0)[:m].transpose(0, 2, 1)  # (m, window, p)
-    counts = sliding_window_view(complete, window)[:m].sum(axis=1)
-    u, sv, vt = np.linalg.svd(slices, full_matrices=False)  # slices = u diag(sv) vt
-    # numpy.linalg.lstsq's default cut-off: singular values below eps * max(rows, cols) * the largest
-    kept = sv > np.finfo(float).eps * window * sv[:, :1]
-    inv_sv = np.where(kept, 1.0 / np.where(kept, sv, 1.0), 0.0)
-    dof = counts - kept.sum(axis=1)
-    now = design[window:]
-    leverage = ((np.einsum("mrp,mp->mr", vt, now) * inv_sv) ** 2).sum(axis=1)
-    enough = counts >= need
-    later = np.where(~enough, 2, np.where(~complete[window:], 3, 0))
-    # column by column, each with the same shapes and strides whatever the group or the span: a column's
-    # numbers do not depend on which columns share its fit, nor on how many windows are computed at once
-    for j in range(k):
-        y = np.ascontiguousarray(np.where(complete, ys[:, j], 0.0))
-        y_slices = sliding_window_view(y, window)[:m, None, :]  # (m, 1, window)
-        coef = (inv_sv[:, None, :] * (y_slices @ u)) @ vt  # (m, 1, p): the minimum-norm least-squares solution
-        fitted = coef @ slices.transpose(0, 2, 1)  # (m, 1, window); rows left out are zero rows, fitted 0
-        rss = ((y_slices - fitted) ** 2).sum(axis=2)[:, 0]
-        residual_now = ys[window:, j] - (now[:, None, :] @ coef.transpose(0, 2, 1))[:, 0, 0]
-        scale = np.sqrt(np.where(dof > 0, rss, np.nan) / np.where(dof > 0, dof, 1))
-        rms = np.sqrt((y_slices[:, 0, :] ** 2).sum(axis=1) / np.maximum(counts, 1))
-        exact = scale <= _EXACT_FIT * rms
-        ok_z = (later == 0) & ~exact
-        spread = scale * np.sqrt(1.0 + leverage)
-        residual[window:, j] = np.where(later == 0, residual_now, np.nan)
-        z[window:, j] = np.divide(residual_now, spread, out=np.full_like(residual_now, np.nan), where=ok_z)
-        code[window:, j] = np.where((later == 0) & exact, 4, later)
-    return residual, z, code
-
-
 def net_of_market(
     summaries: pd.DataFrame, mean_correlation: pd.Series, volatility: pd.Series, window: int
 ) -> DerivedColumns:
@@ -358,7 +247,7 @@ def net_of_market(
     for j in range(values.shape[1]):
         groups.setdefault(np.packbits(complete[:, j]).tobytes(), []).append(j)
     for members in groups.values():
-        residual, z, code = _trailing_fits(values[:, members], design, complete[:, members[0]], window, None)
+        residual, z, code = trailing_fits(values[:, members], design, complete[:, members[0]], window, None)
         for i, j in enumerate(members):
             name = summaries.columns[j]
             columns[f"{name}_net"], columns[f"{name}_net_z"] = residual[:, i], z[:, i]
@@ -370,24 +259,6 @@ def net_of_market(
         kinds[f"{name}_net"] = np.where(codes[name] == 4, 0, codes[name])  # an exact fit still has its residual
         kinds[f"{name}_net_z"] = codes[name]
     return DerivedColumns(frame, pd.DataFrame(kinds, index=summaries.index, dtype=np.int8), window)
-
-
-def _describe_codes(code: IntArray, window: int) -> str:
-    """One sentence per NaN cause of :func:`trailing_residuals`, with how many windows each covers."""
-    parts = []
-    counts = np.bincount(np.asarray(code, dtype=np.int64), minlength=5)
-    if counts[1]:
-        parts.append(f"{counts[1]} window(s) before the trailing fit has net_of_market_window = {window} earlier ones")
-    if counts[2]:
-        parts.append(
-            f"{counts[2]} window(s) whose trailing {window} windows hold fewer than {math.ceil(window / 2)} "
-            "with the summary, mean_correlation and ew_volatility all present"
-        )
-    if counts[3]:
-        parts.append(f"{counts[3]} window(s) where the summary, mean_correlation or ew_volatility is missing")
-    if counts[4]:
-        parts.append(f"{counts[4]} window(s) where the trailing fit is exact (no residual spread to scale by)")
-    return "; ".join(parts)
 
 
 def summary_changes(summaries: pd.DataFrame, horizons: Sequence[int], step: int = 1) -> DerivedColumns:
