@@ -24,7 +24,7 @@ from importlib import resources
 from pathlib import Path
 from typing import Any, Literal
 
-from pydantic import BaseModel, ConfigDict, Field, ValidationError, model_validator
+from pydantic import BaseModel, ConfigDict, Field, ValidationError, field_validator, model_validator
 from pydantic_core import InitErrorDetails, PydanticCustomError
 
 from riskshape.errors import ConfigError
@@ -49,6 +49,7 @@ __all__ = [
     "Config",
     "ComputeConfig",
     "ChecksConfig",
+    "DerivedConfig",
     "AlertsConfig",
     "RuleConfig",
     "format_validation_error",
@@ -178,6 +179,38 @@ class ChecksConfig(_Frozen):
     budget_memory_mb: float = Field(4096.0, gt=0, description="largest estimated peak memory accepted (MB)")
 
 
+class DerivedConfig(_Frozen):
+    """Optional columns derived from the summaries (:mod:`riskshape.compute.derived`); off by default.
+
+    ``net_of_market`` adds, for each topological summary, its residual from a causal trailing
+    regression on the mean correlation and the equal-weight volatility (``{summary}_net``) and that
+    residual's z-score (``{summary}_net_z``), the fit at a window using the ``net_of_market_window``
+    windows before it. ``change_horizons`` adds each summary's change over each horizon, in trading
+    days (``{summary}_chg_{h}``, the value at the window minus the value ``h`` days before).
+    """
+
+    net_of_market: bool = False
+    net_of_market_window: int = Field(
+        250, ge=10, le=5000, description="windows before each window that its net-of-market fit uses"
+    )
+    change_horizons: tuple[int, ...] = Field((), description="trading days of each change column, e.g. [20, 60, 100]")
+
+    @field_validator("change_horizons")
+    @classmethod
+    def _check_horizons(cls, horizons: tuple[int, ...]) -> tuple[int, ...]:
+        if any(h < 1 for h in horizons) or len(set(horizons)) != len(horizons):
+            raise ValueError(
+                "each horizon must be a whole number of trading days of at least 1, listed once "
+                "(e.g. change_horizons = [20, 60, 100])"
+            )
+        return horizons
+
+    @property
+    def active(self) -> bool:
+        """Whether any derived column is asked for."""
+        return self.net_of_market or bool(self.change_horizons)
+
+
 class RuleConfig(_Frozen):
     """One alert rule over one summary column.
 
@@ -260,6 +293,10 @@ class AlertsConfig(_Frozen):
         return self
 
 
+_SECTIONS = ("compute", "alerts", "daily", "checks", "derived")
+"""The configuration's sections besides ``[monitor]``, whose keys are the Config's own fields."""
+
+
 class Config(_Frozen):
     """Everything that decides what riskshape computes.
 
@@ -293,8 +330,9 @@ class Config(_Frozen):
         window are points in R^n (one coordinate per asset).
     standardize_cloud : bool
         For ``point_cloud``: divide each asset's returns by its window standard deviation.
-    compute, alerts, daily, checks
-        See :class:`ComputeConfig`, :class:`AlertsConfig`, :class:`DailyConfig` and :class:`ChecksConfig`.
+    compute, alerts, daily, checks, derived
+        See :class:`ComputeConfig`, :class:`AlertsConfig`, :class:`DailyConfig`, :class:`ChecksConfig`
+        and :class:`DerivedConfig`.
 
     Examples
     --------
@@ -317,6 +355,7 @@ class Config(_Frozen):
     alerts: AlertsConfig = AlertsConfig()
     daily: DailyConfig = DailyConfig()
     checks: ChecksConfig = ChecksConfig()
+    derived: DerivedConfig = DerivedConfig()
 
     @model_validator(mode="before")
     @classmethod
@@ -352,14 +391,23 @@ class Config(_Frozen):
         """
         if "alerts" not in self.model_fields_set or "rules" not in self.alerts.model_fields_set:
             return self
-        from riskshape.compute.monitor import feature_columns  # lazy: the computation imports this module
+        # lazy: the computation imports this module
+        from riskshape.compute.derived import derived_column_names, derived_source
+        from riskshape.compute.monitor import feature_columns
 
         computed = feature_columns(self.maxdim)
+        computed += derived_column_names(computed, self.derived)
         for i, rule in enumerate(self.alerts.rules):
             if rule.summary in computed:
                 continue
             key = ("alerts", "rules", i, "summary")
-            if rule.summary in feature_columns(2):
+            source = derived_source(rule.summary)
+            if source is not None and source[0] in computed:
+                message = (
+                    f"rule '{rule.name}' watches {rule.summary}, a derived column that this configuration does not "
+                    f"compute; {source[1]} (in [derived]), or watch another summary"
+                )
+            elif rule.summary in feature_columns(2):
                 dim = int(rule.summary[1])
                 message = (
                     f"rule '{rule.name}' watches {rule.summary}, an H{dim} summary, but maxdim = {self.maxdim} "
@@ -372,6 +420,20 @@ class Config(_Frozen):
                     f"use one of: {', '.join(computed)}"
                 )
             raise _key_error("Config", key, rule.summary, message)
+        return self
+
+    @model_validator(mode="after")
+    def _check_change_horizons(self) -> Config:
+        """Each change horizon spans whole windows: a multiple of ``step``."""
+        uneven = [h for h in self.derived.change_horizons if h % self.step]
+        if uneven:
+            raise _key_error(
+                "Config",
+                ("derived", "change_horizons"),
+                list(self.derived.change_horizons),
+                f"change horizons {uneven} are not multiples of step = {self.step}: a change compares two "
+                "windows, which lie step trading days apart; use multiples of step",
+            )
         return self
 
     @classmethod
@@ -406,16 +468,16 @@ class Config(_Frozen):
     @classmethod
     def from_mapping(cls, data: Mapping[str, Any], where: str = "configuration") -> Config:
         """Build a Config from the nested mapping a TOML file holds (``monitor``, ``compute``, ``alerts``,
-        ``daily``, ``checks``).
+        ``daily``, ``checks``, ``derived``).
         """
-        unknown = set(data) - {"monitor", "compute", "alerts", "daily", "checks"}
+        unknown = set(data) - {"monitor", *_SECTIONS}
         if unknown:
             raise ConfigError(
                 f"{where}: unknown section(s) {sorted(unknown)}; "
-                "allowed are [monitor], [compute], [alerts], [daily], [checks]"
+                "allowed are [monitor], [compute], [alerts], [daily], [checks], [derived]"
             )
         flat: dict[str, Any] = dict(data.get("monitor", {}))
-        for section in ("compute", "alerts", "daily", "checks"):
+        for section in _SECTIONS:
             if section in data:
                 flat[section] = data[section]
         built: Config = cls._build(flat, where)
@@ -424,16 +486,13 @@ class Config(_Frozen):
     @staticmethod
     def _file_key(loc: tuple[Any, ...]) -> str:
         dotted = ".".join(str(p) for p in loc)
-        return dotted if not loc or loc[0] in ("compute", "alerts", "daily", "checks") else f"monitor.{dotted}"
+        return dotted if not loc or loc[0] in _SECTIONS else f"monitor.{dotted}"
 
     def to_mapping(self) -> dict[str, Any]:
         """The nested mapping :meth:`from_mapping` reads (round-trips)."""
         dumped = self.model_dump(mode="json")
-        compute = dumped.pop("compute")
-        alerts = dumped.pop("alerts")
-        daily = dumped.pop("daily")
-        checks = dumped.pop("checks")
-        return {"monitor": dumped, "compute": compute, "alerts": alerts, "daily": daily, "checks": checks}
+        sections = {section: dumped.pop(section) for section in _SECTIONS}
+        return {"monitor": dumped, **sections}
 
     def replace(self, **changes: Any) -> Config:
         """A copy with some fields changed, validated like a new Config."""
@@ -451,6 +510,10 @@ class Config(_Frozen):
         # existed computed the sample estimate, and its archived runs are looked up by this hash.
         if payload["estimator"] == "sample":
             del payload["estimator"]
+        # Hashed only when it adds columns: with [derived] off a run computes what it computed before
+        # the section existed, and its archived runs are looked up by this hash.
+        if not self.derived.active:
+            del payload["derived"]
         text = json.dumps(payload, sort_keys=True, separators=(",", ":"), allow_nan=False)
         return hashlib.sha256(text.encode("utf-8")).hexdigest()
 

@@ -14,6 +14,8 @@ One module per step, in the order the data flow through them:
 - :mod:`~riskshape.compute.executors`: where batches run (serial, a process pool, Dask);
 - :mod:`~riskshape.compute.window_view`: one computed window opened up (returns, distances, diagrams);
 - :mod:`~riskshape.compute.monitor`: the one orchestrator, ``monitor(prices, config)``;
+- :mod:`~riskshape.compute.derived`: optional columns from the features: summaries net of the market, changes;
+- :mod:`~riskshape.compute.trailing_fit`: causal trailing least-squares fits, their residuals and z-scores;
 - :mod:`~riskshape.compute.stages`: where a run's time goes, by stage (``monitor(..., profile=True)``).
 
 The orchestrator itself is ``riskshape.monitor`` (``riskshape.compute.monitor`` is its module).
@@ -31,6 +33,12 @@ from typing import TYPE_CHECKING
 from riskshape._lazy import lazy_exports
 
 if TYPE_CHECKING:
+    from riskshape.compute.derived import DerivedColumns as DerivedColumns
+    from riskshape.compute.derived import derive_columns as derive_columns
+    from riskshape.compute.derived import derived_column_names as derived_column_names
+    from riskshape.compute.derived import net_of_market as net_of_market
+    from riskshape.compute.derived import summary_changes as summary_changes
+    from riskshape.compute.derived import window_volatility as window_volatility
     from riskshape.compute.distance import correlation_matrix as correlation_matrix
     from riskshape.compute.distance import correlation_to_distance as correlation_to_distance
     from riskshape.compute.estimators import estimate_correlation as estimate_correlation
@@ -54,12 +62,20 @@ if TYPE_CHECKING:
     from riskshape.compute.summaries import bottleneck_distance as bottleneck_distance
     from riskshape.compute.summaries import summarize_diagram as summarize_diagram
     from riskshape.compute.summaries import wasserstein_distance as wasserstein_distance
+    from riskshape.compute.trailing_fit import trailing_residuals as trailing_residuals
     from riskshape.compute.window_view import Window as Window
     from riskshape.compute.windows import Selection as Selection
     from riskshape.compute.windows import select_assets as select_assets
     from riskshape.compute.windows import window_end_positions as window_end_positions
 
 _EXPORTS = {
+    "DerivedColumns": "riskshape.compute.derived",
+    "derive_columns": "riskshape.compute.derived",
+    "derived_column_names": "riskshape.compute.derived",
+    "net_of_market": "riskshape.compute.derived",
+    "summary_changes": "riskshape.compute.derived",
+    "trailing_residuals": "riskshape.compute.trailing_fit",
+    "window_volatility": "riskshape.compute.derived",
     "Window": "riskshape.compute.window_view",
     "MonitorResult": "riskshape.compute.monitor",
     "feature_columns": "riskshape.compute.monitor",

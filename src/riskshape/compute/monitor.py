@@ -25,6 +25,7 @@ from riskshape.compute.batch import (
     first_row_needed,
     preload,
 )
+from riskshape.compute.derived import DerivedColumns, derive_columns, extend_columns, window_volatility
 from riskshape.compute.executors import Executor, make_executor
 from riskshape.compute.returns import to_returns
 from riskshape.compute.stages import StageTimes
@@ -77,10 +78,35 @@ class MonitorResult:
     package_version: str = __version__
     stage_times: StageTimes | None = field(default=None, repr=False, compare=False)
     """Seconds by stage of the run that made this result, with ``monitor(..., profile=True)``; else None."""
+    derived_held: DerivedColumns | None = field(default=None, repr=False, compare=False)
+    """The derived columns of the windows held before an update (so only the new ones are computed); else None."""
 
     @cached_property
     def features(self) -> pd.DataFrame:
-        """One row per window end: ``n_assets``, ``n_left_out``, ``mean_correlation``, ``h{k}_*``."""
+        """One row per window end: ``n_assets``, ``n_left_out``, ``mean_correlation``, ``h{k}_*``.
+
+        With ``[derived]`` settings, the derived columns follow (:attr:`derived`).
+        """
+        if not self.config.derived.active:
+            return self._summaries
+        return self._summaries.join(self.derived.frame)
+
+    @cached_property
+    def derived(self) -> DerivedColumns:
+        """The columns ``[derived]`` asks for, and why any value is NaN (:mod:`riskshape.compute.derived`)."""
+        settings = self.config.derived
+        if not settings.active:
+            return derive_columns(self._summaries, pd.Series(dtype=float), settings)
+        if self.derived_held is not None:  # after an update: only the new windows are computed
+            return extend_columns(self.derived_held, self._summaries, self._volatility, settings, self.config.step)
+        return derive_columns(self._summaries, self._volatility(self.window_ends), settings, self.config.step)
+
+    def _volatility(self, ends: pd.DatetimeIndex) -> pd.Series:
+        return window_volatility(self.returns, ends, self.config)
+
+    @cached_property
+    def _summaries(self) -> pd.DataFrame:
+        """The features computed window by window (the columns of :func:`feature_columns`)."""
         columns = feature_columns(self.config.maxdim)
         head = np.array([(len(r.used), len(r.left_out), r.mean_correlation) for r in self.windows], dtype=float)
         # per window, dimension by dimension: the summaries, then the distances (the column order)
@@ -216,6 +242,7 @@ class MonitorResult:
             returns=returns,
             window_ends=pd.DatetimeIndex(returns.index[ends], name="window_end"),
             windows=self.windows + tuple(added),
+            derived_held=self.derived if self.config.derived.active else None,
         )
 
 

@@ -40,7 +40,7 @@ from riskshape.compute.returns import to_returns
 from riskshape.compute.summaries import DISTANCE_NAMES
 from riskshape.compute.windows import window_end_positions, window_index
 from riskshape.config import Config
-from riskshape.errors import DataError
+from riskshape.errors import ConfigError, DataError
 from riskshape.explain.archived import explanation_json
 from riskshape.prices import ValidPrices, hash_prices
 from riskshape.store import AlertRecord, EventRecord, Run, RunManifest, Store
@@ -288,7 +288,18 @@ def apply_corrections(
     ------
     DataError
         If a date is not an archived trading day of the portfolio or an asset is not one of its assets.
+    ConfigError
+        If the configuration has ``[derived]`` columns: a correction recomputes only the windows
+        it touches, while each derived value rests on up to ``net_of_market_window`` (or the
+        longest change horizon) windows before it, so it refuses before writing anything.
     """
+    if config.derived.active:
+        raise ConfigError(
+            f"{source}: portfolio {portfolio!r} archives [derived] columns (derived.net_of_market, "
+            "derived.change_horizons), which rest on many earlier windows; corrections do not recompute "
+            "them yet, so nothing was archived. Archive the corrected history as a new portfolio, or turn "
+            "[derived] off for this portfolio"
+        )
     assets = list(run.assets)
     calendar = pd.DatetimeIndex(pd.to_datetime(store.price_dates(portfolio)))
     revised = revised.dropna(how="all").dropna(axis=1, how="all")

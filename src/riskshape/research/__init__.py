@@ -1,4 +1,5 @@
-"""Research tools: baselines, stress events, event studies, walk-forward comparisons, surrogates, sweeps.
+"""Research tools: baselines, stress events, event studies (of levels and changes), walk-forward comparisons,
+surrogates, sweeps.
 
 The names in ``__all__`` load their module on first use; the event study, walk-forward and
 surrogate tools load scikit-learn and arch, which the monitor itself does not need.
@@ -18,6 +19,7 @@ if TYPE_CHECKING:
     from riskshape.research.baselines import portfolio_volatility as portfolio_volatility
     from riskshape.research.baselines import turbulence as turbulence
     from riskshape.research.baselines import window_baselines as window_baselines
+    from riskshape.research.changes import change_study as change_study
     from riskshape.research.events import DrawdownEvents as DrawdownEvents
     from riskshape.research.events import drawdown_events as drawdown_events
     from riskshape.research.events import events_from_periods as events_from_periods
@@ -52,6 +54,7 @@ _EXPORTS = {
     "event_study": "riskshape.research.study",
     "study_table": "riskshape.research.study",
     "crisis_direction": "riskshape.research.study",
+    "change_study": "riskshape.research.changes",
     "WalkForward": "riskshape.research.walkforward",
     "walk_forward": "riskshape.research.walkforward",
     "nested_feature_sets": "riskshape.research.walkforward",
