@@ -19,7 +19,7 @@ from riskshape.compute.estimators import estimate_correlation
 from riskshape.compute.moments import RollingMoments, is_rebuild_point
 from riskshape.compute.persistence import EMPTY_DIAGRAM, compute_diagrams
 from riskshape.compute.stages import NO_CLOCK, StageClock, StageTimes
-from riskshape.compute.summaries import SUMMARY_NAMES, bottleneck_distance, summarize_diagram, wasserstein_distance
+from riskshape.compute.summaries import SUMMARY_NAMES, diagram_pair_distances, summarize_diagram
 from riskshape.compute.windows import (
     Selection,
     is_on_grid,
@@ -253,9 +253,7 @@ def embedding_distance(
 
 def diagram_distances(previous: Diagrams, current: Diagrams, order_p: float) -> FloatArray:
     """(maxdim + 1, 2) array of Wasserstein (order ``order_p``) and bottleneck distances per dimension."""
-    return np.array(
-        [[wasserstein_distance(a, b, order_p), bottleneck_distance(a, b)] for a, b in zip(previous, current)]
-    )
+    return np.array([diagram_pair_distances(a, b, order_p) for a, b in zip(previous, current)])
 
 
 def compute_batch(
