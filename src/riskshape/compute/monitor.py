@@ -77,6 +77,29 @@ class MonitorResult:
     package_version: str = __version__
     stage_times: StageTimes | None = field(default=None, repr=False, compare=False)
     """Seconds by stage of the run that made this result, with ``monitor(..., profile=True)``; else None."""
+    with_baselines: bool = False
+    """Whether each window's baselines were computed with it (``monitor(..., baselines=True)``);
+    :meth:`update` keeps doing so."""
+
+    @cached_property
+    def baselines(self) -> pd.DataFrame:
+        """The baselines of every window, columns prefixed ``base_`` so they never clash with a feature.
+
+        ``base_n_assets``, ``base_ew_volatility``, ``base_mean_correlation``,
+        ``base_absorption_ratio`` and ``base_turbulence``, indexed like :attr:`features`, bit for
+        bit what :func:`riskshape.research.compute_baselines` gives on the same returns and
+        configuration. Computed by the workers with the windows where the run asked for them
+        (``monitor(..., baselines=True)``: a few per cent of the run); otherwise computed now,
+        by :func:`riskshape.research.compute_baselines` (as long again as a quarter of the run).
+        """
+        from riskshape.research.baselines import BASELINE_COLUMNS, BASELINE_PREFIX, compute_baselines
+
+        if not self.with_baselines:
+            return compute_baselines(self.returns, self.config, data_are_returns=True, prefix=BASELINE_PREFIX)
+        values = np.array([r.baselines for r in self.windows], dtype=float).reshape(-1, len(BASELINE_COLUMNS))
+        frame = pd.DataFrame(values, index=self.window_ends, columns=list(BASELINE_COLUMNS))
+        frame.insert(0, "n_assets", np.array([len(r.used) for r in self.windows], dtype=np.int64))
+        return frame.add_prefix(BASELINE_PREFIX)
 
     @cached_property
     def features(self) -> pd.DataFrame:
@@ -209,13 +232,16 @@ class MonitorResult:
         ends = window_end_positions(len(returns), self.config.window, self.config.step)
         new_ends = ends[len(self.windows) :]
         previous = self.windows[-1].diagrams if self.windows else None
-        added = _compute_windows(returns.to_numpy(), new_ends, self.config, previous, progress)
+        added, _ = _run_windows(
+            returns.to_numpy(), new_ends, self.config, previous, progress, None, False, self.with_baselines
+        )
         return MonitorResult(
             config=self.config,
             prices=prices,
             returns=returns,
             window_ends=pd.DatetimeIndex(returns.index[ends], name="window_end"),
             windows=self.windows + tuple(added),
+            with_baselines=self.with_baselines,
         )
 
 
@@ -225,6 +251,7 @@ def monitor(
     *,
     progress: ProgressFn | None = None,
     profile: bool = False,
+    baselines: bool = False,
 ) -> MonitorResult:
     """Rolling persistent homology of a portfolio's correlation structure.
 
@@ -240,6 +267,11 @@ def monitor(
     profile : bool
         Measure the time of each stage where the windows are computed and sum it into
         ``MonitorResult.stage_times`` (:mod:`riskshape.compute.stages`); the results are the same.
+    baselines : bool
+        Compute each window's baselines (equal-weight volatility, mean correlation, absorption
+        ratio, turbulence: :mod:`riskshape.research.baselines`) with it, in the workers, on the
+        same admitted returns; read them from ``MonitorResult.baselines``. The features are the
+        same either way.
 
     Returns
     -------
@@ -262,7 +294,7 @@ def monitor(
     valid = ensure_valid(prices, source="prices", min_rows=config.window + 1)
     returns = to_returns(valid, config.returns)
     ends = window_end_positions(len(returns), config.window, config.step)
-    windows, stage_times = _run_windows(returns.to_numpy(), ends, config, None, progress, None, profile)
+    windows, stage_times = _run_windows(returns.to_numpy(), ends, config, None, progress, None, profile, baselines)
     return MonitorResult(
         config=config,
         prices=valid,
@@ -270,6 +302,7 @@ def monitor(
         window_ends=pd.DatetimeIndex(returns.index[ends], name="window_end"),
         windows=tuple(windows),
         stage_times=stage_times,
+        with_baselines=baselines,
     )
 
 
@@ -322,6 +355,7 @@ def _run_windows(
     progress: ProgressFn | None,
     executor: Executor | None,
     profile: bool,
+    baselines: bool = False,
 ) -> tuple[list[WindowResult], StageTimes | None]:
     """Windows ending at ``ends``, computed in batches by the configured executor; their stage times if profiled.
 
@@ -337,7 +371,7 @@ def _run_windows(
     """
     if len(ends) == 0:
         return [], StageTimes() if profile else None
-    settings = settings_of(config)
+    settings = WindowSettings.from_config(config, baselines=baselines)
     all_ends = np.asarray(ends)
     size = config.compute.batch_windows
     own = executor is None
