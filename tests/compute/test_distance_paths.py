@@ -248,3 +248,22 @@ def test_pair_distances_share_costs_and_equal_each_distance(rng: np.random.Gener
             assert got == (wasserstein_distance(a, b, order), bottleneck_distance(a, b))
             if len(a) and len(b):
                 assert got[1] == pytest.approx(persim_bottleneck(a, b), rel=REL, abs=1e-15)
+
+
+@pytest.mark.parametrize("density", [0.05, 0.2, 0.6])
+def test_augmenting_paths_find_a_maximum_matching_as_hopcroft_karp_does(
+    rng: np.random.Generator, density: float
+) -> None:
+    """The small graphs' matching (Kuhn's augmenting paths) is a matching of scipy's maximum size."""
+    from scipy.sparse import csr_matrix
+    from scipy.sparse.csgraph import maximum_bipartite_matching
+
+    for _ in range(60):
+        rows, cols = int(rng.integers(1, matching._SMALL_GRAPH_ROWS + 1)), int(rng.integers(1, 60))
+        allowed = rng.uniform(size=(rows, cols)) < density
+        match = matching._maximum_matching(allowed)
+        taken = match[match >= 0]
+        assert len(set(taken.tolist())) == len(taken)  # distinct columns
+        assert all(allowed[i, j] for i, j in enumerate(match) if j >= 0)  # along edges only
+        reference = maximum_bipartite_matching(csr_matrix(allowed), perm_type="column")
+        assert len(taken) == int(np.count_nonzero(reference >= 0))

@@ -347,10 +347,53 @@ def _smallest_covering_threshold(cross: FloatArray, diag: FloatArray, start: flo
 
 
 def _maximum_matching(allowed: BoolArray) -> Positions:
-    """Column matched to each row of the bipartite graph ``allowed`` (-1: none); scipy's Hopcroft-Karp."""
+    """Column matched to each row of the bipartite graph ``allowed`` in a maximum matching (-1: none).
+
+    Up to :data:`_SMALL_GRAPH_ROWS` rows by augmenting paths in Python (Kuhn's algorithm): at the
+    lower bound of consecutive windows' H1 diagrams a dozen or so points are forced, and building
+    scipy's sparse graph costs more than the search (0.09 against 0.16 ms a pair at 50 assets,
+    window 60); above it scipy's Hopcroft-Karp (``maximum_bipartite_matching``). Both maximum:
+    the searches that read the matching need no more.
+    """
     rows, cols = allowed.shape
     r, c = np.nonzero(allowed)
+    if rows <= _SMALL_GRAPH_ROWS:
+        return _augmenting_matching(rows, cols, r, c)
     indptr = np.zeros(rows + 1, dtype=np.int32)
     np.cumsum(np.bincount(r, minlength=rows), out=indptr[1:])
     graph = csr_matrix((np.ones(len(c), dtype=bool), c.astype(np.int32), indptr), shape=(rows, cols))
     return cast("Positions", maximum_bipartite_matching(graph, perm_type="column"))
+
+
+_SMALL_GRAPH_ROWS = 48
+
+
+def _augmenting_matching(rows: int, cols: int, r: Positions, c: Positions) -> Positions:
+    """A maximum matching of the graph with edges ``(r[k], c[k])`` (row-major) by Kuhn's augmenting paths."""
+    bounds = np.searchsorted(r, np.arange(rows + 1)).tolist()
+    targets = c.tolist()
+    neighbours = [targets[lo:hi] for lo, hi in zip(bounds[:-1], bounds[1:])]
+    owner = [-1] * cols
+
+    def place(row: int, seen: list[bool]) -> bool:
+        """Give ``row`` a column, moving earlier rows along an augmenting path where needed."""
+        for col in neighbours[row]:
+            if not seen[col]:
+                seen[col] = True
+                if owner[col] < 0 or place(owner[col], seen):
+                    owner[col] = row
+                    return True
+        return False
+
+    for row in range(rows):
+        # a free neighbour first (the greedy step), else an augmenting path
+        free = next((col for col in neighbours[row] if owner[col] < 0), -1)
+        if free >= 0:
+            owner[free] = row
+        else:
+            place(row, [False] * cols)
+    match = np.full(rows, -1, dtype=np.int64)
+    for col, row in enumerate(owner):
+        if row >= 0:
+            match[row] = col
+    return match
