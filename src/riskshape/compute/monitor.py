@@ -7,7 +7,7 @@ day(s) and computes only the new windows, giving the same numbers as a batch ove
 from __future__ import annotations
 
 import time
-from collections.abc import Callable, Iterator
+from collections.abc import Callable, Iterator, Sequence
 from dataclasses import dataclass, field
 from functools import cached_property, partial
 from typing import Any
@@ -104,16 +104,7 @@ class MonitorResult:
     @cached_property
     def features(self) -> pd.DataFrame:
         """One row per window end: ``n_assets``, ``n_left_out``, ``mean_correlation``, ``h{k}_*``."""
-        columns = feature_columns(self.config.maxdim)
-        head = np.array([(len(r.used), len(r.left_out), r.mean_correlation) for r in self.windows], dtype=float)
-        # per window, dimension by dimension: the summaries, then the distances (the column order)
-        per_dim = [np.hstack([r.summaries, r.distances]).ravel() for r in self.windows]
-        values = np.column_stack(
-            [head.reshape(-1, 3), np.array(per_dim, dtype=float).reshape(len(head), len(columns) - 3)]
-        )
-        frame = pd.DataFrame(values, index=self.window_ends, columns=columns)
-        int_columns = ["n_assets", "n_left_out"] + [f"h{k}_n_bars" for k in range(self.config.maxdim + 1)]
-        return frame.astype({c: "int64" for c in int_columns})
+        return _features_table(self.windows, self.window_ends, self.config.maxdim)
 
     @cached_property
     def left_out(self) -> pd.DataFrame:
@@ -235,7 +226,7 @@ class MonitorResult:
         added, _ = _run_windows(
             returns.to_numpy(), new_ends, self.config, previous, progress, None, False, self.with_baselines
         )
-        return MonitorResult(
+        grown = MonitorResult(
             config=self.config,
             prices=prices,
             returns=returns,
@@ -243,6 +234,24 @@ class MonitorResult:
             windows=self.windows + tuple(added),
             with_baselines=self.with_baselines,
         )
+        if "features" in self.__dict__ and added:
+            # the rows held stay as they are: only the new windows' rows are made (the same values
+            # and types as a table made over every window; tests/compute checks it)
+            new_rows = _features_table(added, grown.window_ends[len(self.windows) :], self.config.maxdim)
+            grown.__dict__["features"] = pd.concat([self.features, new_rows])
+        return grown
+
+
+def _features_table(windows: Sequence[WindowResult], ends: pd.DatetimeIndex, maxdim: int) -> pd.DataFrame:
+    """The features of ``windows`` (ending at ``ends``), one row each (see ``MonitorResult.features``)."""
+    columns = feature_columns(maxdim)
+    head = np.array([(len(r.used), len(r.left_out), r.mean_correlation) for r in windows], dtype=float)
+    # per window, dimension by dimension: the summaries, then the distances (the column order)
+    per_dim = [np.hstack([r.summaries, r.distances]).ravel() for r in windows]
+    values = np.column_stack([head.reshape(-1, 3), np.array(per_dim, dtype=float).reshape(len(head), len(columns) - 3)])
+    frame = pd.DataFrame(values, index=ends, columns=columns)
+    int_columns = ["n_assets", "n_left_out"] + [f"h{k}_n_bars" for k in range(maxdim + 1)]
+    return frame.astype({c: "int64" for c in int_columns})
 
 
 def monitor(
