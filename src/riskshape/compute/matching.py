@@ -47,9 +47,10 @@ point's cost to the diagonal is half its lifetime.
   in Python for up to 48 forced points, where building scipy's sparse graph would cost more
   than the search; scipy's ``maximum_bipartite_matching``, Hopcroft-Karp, above). Where the
   matching leaves a forced point out, the points it reaches by alternating paths form a set
-  that violates Hall's condition; the condition keeps failing until t reaches the cheapest pair from that set to a point outside
-  its neighbourhood or the smallest diagonal cost in it (below both, the set and its
-  neighbourhood are unchanged), so the search jumps there and tests again. Every value tested
+  that violates Hall's condition; the condition keeps failing until t reaches the cheapest
+  pair from that set to a point outside its neighbourhood or the smallest diagonal cost in it
+  (below both, the set and its neighbourhood are unchanged), so the search jumps there and
+  tests again. Every value tested
   is a candidate no larger than the answer, so the first that holds is the answer, exactly.
   On the H1 diagrams of consecutive windows this tests 2.4 matchings a pair against 4.5 for
   the bisection over the sorted candidates it replaced (1.4x to 1.8x faster, see
