@@ -80,7 +80,7 @@ def test_features_read_before_each_update_grow_to_the_batch_table(small_scenario
     for day in range(40, len(prices), 3):
         held = result.features
         result = result.update(prices.iloc[day : day + 3])
-        assert "features" in result.__dict__  # made from the rows held, not rebuilt
+        assert result.__dict__["_held_features"] is held  # grown from the rows held, not rebuilt
         pd.testing.assert_frame_equal(result.features.iloc[: len(held)], held, check_exact=True)
     batch = monitor(prices, config)
     pd.testing.assert_frame_equal(result.features, batch.features, check_exact=True)

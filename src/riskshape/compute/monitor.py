@@ -104,6 +104,13 @@ class MonitorResult:
     @cached_property
     def features(self) -> pd.DataFrame:
         """One row per window end: ``n_assets``, ``n_left_out``, ``mean_correlation``, ``h{k}_*``."""
+        held = self.__dict__.pop("_held_features", None)
+        if held is not None:
+            # an update of a result whose features were read: only the new windows' rows are made
+            # (the same values and types as a table made over every window; tests/compute checks it)
+            start = len(held)
+            new_rows = _features_table(self.windows[start:], self.window_ends[start:], self.config.maxdim)
+            return pd.concat([held, new_rows])
         return _features_table(self.windows, self.window_ends, self.config.maxdim)
 
     @cached_property
@@ -235,10 +242,7 @@ class MonitorResult:
             with_baselines=self.with_baselines,
         )
         if "features" in self.__dict__ and added:
-            # the rows held stay as they are: only the new windows' rows are made (the same values
-            # and types as a table made over every window; tests/compute checks it)
-            new_rows = _features_table(added, grown.window_ends[len(self.windows) :], self.config.maxdim)
-            grown.__dict__["features"] = pd.concat([self.features, new_rows])
+            grown.__dict__["_held_features"] = self.features  # the rows held, for grown.features
         return grown
 
 
