@@ -465,7 +465,8 @@ def engine_floor(quick: bool) -> list[Row]:
 
     For each size: the distance matrices of every window are computed first, then timed: the
     Rips backend alone on them (``compute_diagrams``, what no engine can avoid); ``monitor``
-    serially, prices in, features out; ``monitor`` on the default process pool. Each in this
+    serially, prices in, features out; the same with ``baselines=True`` (the baselines' share of
+    the serial CPU); ``monitor`` on the default process pool. Each in this
     process, one after the other, best of ``repeats`` CPU (serial) or wall (pool) times. The
     profiled run's split (:mod:`riskshape.compute.stages`, on the CPU clock: a serial run) shows
     where the rest goes.
@@ -484,7 +485,7 @@ def engine_floor(quick: bool) -> list[Row]:
         returns = to_returns(prices, config.returns).to_numpy()
         ends = window_end_positions(len(returns), window, 1)
         matrices = [correlation_to_distance(correlation_matrix(returns[e - window + 1 : e + 1])) for e in ends]
-        floor = serial = pool_wall = serial_wall = np.inf
+        floor = serial = pool_wall = serial_wall = with_baselines = np.inf
         for _ in range(repeats):
             with threadpool_limits(1), span() as spent:
                 for matrix in matrices:
@@ -494,6 +495,9 @@ def engine_floor(quick: bool) -> list[Row]:
             with span() as spent:
                 _ = monitor(prices, _serial(config)).features
             serial, serial_wall = min(serial, spent.cpu), min(serial_wall, spent.wall)
+            with span() as spent:
+                _ = monitor(prices, _serial(config), baselines=True).features
+            with_baselines = min(with_baselines, spent.cpu)
             with span() as spent:
                 _ = monitor(prices, config).features
             pool_wall = min(pool_wall, spent.wall)
@@ -507,6 +511,7 @@ def engine_floor(quick: bool) -> list[Row]:
             "persistence alone CPU s": floor,
             "monitor serial CPU s": serial,
             "serial / persistence": serial / floor,
+            "baselines: extra CPU / serial": with_baselines / serial - 1.0,
             "pool wall s": pool_wall,
             "pool speed-up (wall)": serial_wall / pool_wall,
         }

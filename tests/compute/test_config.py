@@ -139,7 +139,7 @@ def test_window_settings_take_every_result_key_the_windows_use() -> None:
 
     # returns are made before the windows, alerts are evaluated after them, compute never changes a
     # result: every other key of Config must reach the workers, so a new key cannot be forgotten
-    names = {field.name for field in fields(WindowSettings)} - {"rolling"}
+    names = {field.name for field in fields(WindowSettings)} - {"rolling", "baselines"}
     # (daily decides when a day counts, never what a window holds; [checks] warns or refuses before the work;
     # [derived] columns are made from the features table after the windows)
     assert names == set(Config.model_fields) - {"returns", "alerts", "compute", "daily", "checks", "derived"}

@@ -25,7 +25,7 @@ from riskshape.compute.matching import (
     threshold_bottleneck,
 )
 from riskshape.compute.persistence import compute_diagrams
-from riskshape.compute.summaries import bottleneck_distance, wasserstein_distance
+from riskshape.compute.summaries import bottleneck_distance, diagram_pair_distances, wasserstein_distance
 
 REL = 1e-12
 
@@ -144,15 +144,15 @@ def test_sorted_h0_bottleneck_check_is_sound(rng: np.random.Generator) -> None:
 
 
 def test_threshold_bottleneck_equals_persim(rng: np.random.Generator, monkeypatch: pytest.MonkeyPatch) -> None:
-    """Both branches: the lower bound is the answer, or the bisection over candidates runs."""
+    """Both branches: the lower bound is the answer, or the search jumps past Hall violators."""
     checks = []
-    original = matching._covers
+    original = matching._maximum_matching
 
-    def counted(allowed: np.ndarray) -> bool:
+    def counted(allowed: np.ndarray) -> np.ndarray:
         checks.append(1)
         return original(allowed)
 
-    monkeypatch.setattr(matching, "_covers", counted)
+    monkeypatch.setattr(matching, "_maximum_matching", counted)
     per_pair = []
     for n, m in [(1, 1), (1, 6), (5, 4), (20, 25), (60, 60), (150, 140)]:
         for _ in range(4):
@@ -160,7 +160,7 @@ def test_threshold_bottleneck_equals_persim(rng: np.random.Generator, monkeypatc
             checks.clear()
             assert threshold_bottleneck(a, b) == pytest.approx(persim_bottleneck(a, b), rel=REL, abs=1e-15)
             per_pair.append(len(checks))
-    # at most one matching per diagram at the lower bound; more where the bisection ran
+    # at most one matching per diagram at the lower bound; more where the search jumped
     assert min(per_pair) <= 2 and max(per_pair) > 2
     diagrams = _consecutive_diagrams(rng, 60, 30, 6)
     for x, y in zip(diagrams[:-1], diagrams[1:]):
@@ -230,3 +230,40 @@ def test_shared_diagonal_columns_grow_when_all_are_taken() -> None:
     gain[:, 0] = -1.0
     rows, cols = matching._shared_diagonal_assignment(gain)
     assert cols.tolist() == [0] and len(rows) == 1
+
+
+def test_pair_distances_share_costs_and_equal_each_distance(rng: np.random.Generator) -> None:
+    """``diagram_pair_distances`` gives bit for bit what the two distances give one at a time.
+
+    On consecutive windows' H0 and H1 diagrams (the sorted H0 paths and the general ones), on
+    random diagrams of unequal sizes, and with an empty side; the bottleneck also against persim.
+    """
+    diagrams = _consecutive_diagrams(rng, 40, 30, 8)
+    cases = [(x[dim], y[dim]) for x, y in zip(diagrams[:-1], diagrams[1:]) for dim in (0, 1)]
+    cases += [(_general(rng, n), _general(rng, m)) for n, m in [(1, 1), (7, 3), (30, 45)]]
+    cases += [(_general(rng, 4), np.empty((0, 2))), (np.empty((0, 2)), np.empty((0, 2)))]
+    for order in (1.0, 2.0):
+        for a, b in cases:
+            got = diagram_pair_distances(a, b, order)
+            assert got == (wasserstein_distance(a, b, order), bottleneck_distance(a, b))
+            if len(a) and len(b):
+                assert got[1] == pytest.approx(persim_bottleneck(a, b), rel=REL, abs=1e-15)
+
+
+@pytest.mark.parametrize("density", [0.05, 0.2, 0.6])
+def test_augmenting_paths_find_a_maximum_matching_as_hopcroft_karp_does(
+    rng: np.random.Generator, density: float
+) -> None:
+    """The small graphs' matching (Kuhn's augmenting paths) is a matching of scipy's maximum size."""
+    from scipy.sparse import csr_matrix
+    from scipy.sparse.csgraph import maximum_bipartite_matching
+
+    for _ in range(60):
+        rows, cols = int(rng.integers(1, matching._SMALL_GRAPH_ROWS + 1)), int(rng.integers(1, 60))
+        allowed = rng.uniform(size=(rows, cols)) < density
+        match = matching._maximum_matching(allowed)
+        taken = match[match >= 0]
+        assert len(set(taken.tolist())) == len(taken)  # distinct columns
+        assert all(allowed[i, j] for i, j in enumerate(match) if j >= 0)  # along edges only
+        reference = maximum_bipartite_matching(csr_matrix(allowed), perm_type="column")
+        assert len(taken) == int(np.count_nonzero(reference >= 0))

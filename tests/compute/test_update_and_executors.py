@@ -72,6 +72,22 @@ def test_update_one_day_at_a_time_equals_batch(small_scenario: Scenario) -> None
     assert_same_result(result, monitor(prices, config))
 
 
+def test_features_read_before_each_update_grow_to_the_batch_table(small_scenario: Scenario) -> None:
+    """Where the features were read already, an update adds the new windows' rows to them only."""
+    prices = _prices(small_scenario)
+    config = _config(1)
+    result = monitor(prices.iloc[:40], config)
+    for day in range(40, len(prices), 3):
+        held = result.features
+        result = result.update(prices.iloc[day : day + 3])
+        assert result.__dict__["_held_summaries"] is held  # grown from the rows held, not rebuilt
+        pd.testing.assert_frame_equal(result.features.iloc[: len(held)], held, check_exact=True)
+    batch = monitor(prices, config)
+    pd.testing.assert_frame_equal(result.features, batch.features, check_exact=True)
+    assert result.features.index.equals(batch.features.index) and result.features.index.name == "window_end"
+    assert list(result.features.dtypes) == list(batch.features.dtypes)
+
+
 def test_update_accepts_matching_overlap_and_rejects_revised_prices(small_scenario: Scenario) -> None:
     prices = _prices(small_scenario)
     config = _config(1)

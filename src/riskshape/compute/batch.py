@@ -19,7 +19,7 @@ from riskshape.compute.estimators import estimate_correlation
 from riskshape.compute.moments import RollingMoments, is_rebuild_point
 from riskshape.compute.persistence import EMPTY_DIAGRAM, compute_diagrams
 from riskshape.compute.stages import NO_CLOCK, StageClock, StageTimes
-from riskshape.compute.summaries import SUMMARY_NAMES, bottleneck_distance, summarize_diagram, wasserstein_distance
+from riskshape.compute.summaries import SUMMARY_NAMES, diagram_pair_distances, summarize_diagram
 from riskshape.compute.windows import (
     Selection,
     is_on_grid,
@@ -80,9 +80,10 @@ class WindowSettings:
     step: int = 1
     estimator: MatrixEstimator = "sample"
     rolling: bool = True
+    baselines: bool = False
 
     @classmethod
-    def from_config(cls, config: Config, *, rolling: bool = True) -> WindowSettings:
+    def from_config(cls, config: Config, *, rolling: bool = True, baselines: bool = False) -> WindowSettings:
         """The worker's share of a configuration: each field read from the key of the same name.
 
         Parameters
@@ -91,6 +92,8 @@ class WindowSettings:
             The configuration in force.
         rolling : bool
             Whether correlations may come from running sums (not a configuration key).
+        baselines : bool
+            Whether each window's baselines are computed with it (not a configuration key).
 
         Returns
         -------
@@ -102,8 +105,11 @@ class WindowSettings:
         >>> WindowSettings.from_config(Config(window=90, maxdim=0)).window
         90
         """
-        keys = {field.name: getattr(config, field.name) for field in fields(cls) if field.name != "rolling"}
-        return cls(**keys, rolling=rolling)
+        keys = {field.name: getattr(config, field.name) for field in fields(cls) if field.name not in _NOT_KEYS}
+        return cls(**keys, rolling=rolling, baselines=baselines)
+
+
+_NOT_KEYS = ("rolling", "baselines")
 
 
 @dataclass(frozen=True, init=False)
@@ -126,6 +132,9 @@ class WindowResult:
     distances : numpy.ndarray
         (maxdim + 1, 2) Wasserstein and bottleneck distance of each dimension's diagram to the
         previous window's; NaN where there is no previous window.
+    baselines : tuple of float, optional
+        The window's baselines in :data:`riskshape.research.baselines.BASELINE_COLUMNS` order,
+        where they were asked for (``WindowSettings.baselines``).
 
     Attributes
     ----------
@@ -141,6 +150,7 @@ class WindowResult:
     sizes: tuple[int, ...]
     summaries: FloatArray
     distances: FloatArray
+    baselines: tuple[float, ...] | None
 
     def __init__(
         self,
@@ -149,6 +159,7 @@ class WindowResult:
         mean_correlation: float,
         diagrams: Diagrams,
         distances: FloatArray,
+        baselines: tuple[float, ...] | None = None,
     ) -> None:
         bars = (
             np.concatenate([np.asarray(d, dtype=float).reshape(-1, 2) for d in diagrams]) if diagrams else EMPTY_DIAGRAM
@@ -165,6 +176,7 @@ class WindowResult:
             ("sizes", tuple(len(d) for d in diagrams)),
             ("summaries", summaries.reshape(len(diagrams), len(SUMMARY_NAMES))),
             ("distances", distances),
+            ("baselines", baselines),
         ):
             object.__setattr__(self, name, value)
 
@@ -204,9 +216,10 @@ def _from_selection(
 ) -> WindowResult:
     """A window's result from its admitted assets; ``corr`` is their correlation if known already."""
     nan_distances = np.full((settings.maxdim + 1, 2), np.nan)
+    baselines = _window_baselines(selection, settings, clock)
     if len(selection.used) < 2:
         empty = tuple(EMPTY_DIAGRAM for _ in range(settings.maxdim + 1))
-        return WindowResult(selection.used, selection.left_out, float("nan"), empty, nan_distances)
+        return WindowResult(selection.used, selection.left_out, float("nan"), empty, nan_distances, baselines)
     if corr is None:
         corr = estimate_correlation(selection.block, settings.correlation, settings.estimator)
     mean_correlation = mean_offdiagonal(corr)
@@ -215,9 +228,21 @@ def _from_selection(
     clock.mark("distance_matrix")
     diagrams = compute_diagrams(distance, settings.maxdim, settings.rips_backend)
     clock.mark("persistence")
-    result = WindowResult(selection.used, selection.left_out, mean_correlation, diagrams, nan_distances)
+    result = WindowResult(selection.used, selection.left_out, mean_correlation, diagrams, nan_distances, baselines)
     clock.mark("summaries")
     return result
+
+
+def _window_baselines(selection: Selection, settings: WindowSettings, clock: StageClock) -> tuple[float, ...] | None:
+    """The window's baselines on its admitted returns, where asked for (charged to ``baselines``)."""
+    if not settings.baselines:
+        return None
+    clock.mark("correlation")  # the selection of the admitted assets, before
+    from riskshape.research.baselines import window_baselines
+
+    values = window_baselines(selection.block, settings.correlation)[1:]
+    clock.mark("baselines")
+    return values
 
 
 def embedding_distance(
@@ -253,9 +278,7 @@ def embedding_distance(
 
 def diagram_distances(previous: Diagrams, current: Diagrams, order_p: float) -> FloatArray:
     """(maxdim + 1, 2) array of Wasserstein (order ``order_p``) and bottleneck distances per dimension."""
-    return np.array(
-        [[wasserstein_distance(a, b, order_p), bottleneck_distance(a, b)] for a, b in zip(previous, current)]
-    )
+    return np.array([diagram_pair_distances(a, b, order_p) for a, b in zip(previous, current)])
 
 
 def compute_batch(
@@ -364,12 +387,15 @@ def first_row_needed(end: int, settings: WindowSettings) -> int:
 def preload(settings: WindowSettings) -> None:
     """Import the libraries the windows of these settings will need (before forking workers).
 
-    giotto-ph where it is the Rips backend (it imports scikit-learn: about a second).
+    giotto-ph where it is the Rips backend (it imports scikit-learn: about a second); the
+    baselines' module where they are asked for.
     """
     from riskshape.compute.persistence import resolve_backend
 
     if settings.maxdim >= 1 and resolve_backend(settings.rips_backend) == "giotto":
         import gph  # noqa: F401
+    if settings.baselines:
+        import riskshape.research.baselines  # noqa: F401
 
 
 def _rolling_applies(settings: WindowSettings) -> bool:

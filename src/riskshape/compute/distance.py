@@ -15,7 +15,7 @@ from scipy.stats import rankdata
 
 from riskshape.types import CorrelationEstimator, CorrelationMatrix, DistanceMatrix, FloatArray, ReturnsBlock
 
-__all__ = ["correlation_matrix", "correlation_to_distance", "mean_offdiagonal"]
+__all__ = ["correlation_matrix", "covariance_to_correlation", "correlation_to_distance", "mean_offdiagonal"]
 
 
 def correlation_matrix(block: ReturnsBlock, method: CorrelationEstimator = "pearson") -> CorrelationMatrix:
@@ -34,7 +34,42 @@ def correlation_matrix(block: ReturnsBlock, method: CorrelationEstimator = "pear
         (assets, assets) symmetric, unit diagonal, entries in [-1, 1].
     """
     data = rankdata(block, axis=0) if method == "spearman" else block
-    corr = cast("CorrelationMatrix", np.corrcoef(data, rowvar=False))
+    if data.shape[1] < 2:
+        corr = cast("CorrelationMatrix", np.corrcoef(data, rowvar=False))
+        corr = np.clip((corr + corr.T) / 2.0, -1.0, 1.0)
+        np.fill_diagonal(corr, 1.0)
+        return corr
+    return covariance_to_correlation(np.cov(data, rowvar=False))
+
+
+def covariance_to_correlation(cov: FloatArray) -> CorrelationMatrix:
+    """The correlation matrix of a sample covariance matrix, as :func:`correlation_matrix` makes it.
+
+    ``numpy.corrcoef``'s own steps on ``numpy.cov``'s result (each entry divided by the two
+    standard deviations, clipped to [-1, 1]), then made exactly symmetric with a unit diagonal:
+    :func:`correlation_matrix` is ``covariance_to_correlation(numpy.cov(block, rowvar=False))``,
+    so a caller holding the covariance already (the baselines) gets the same bits for free.
+
+    Parameters
+    ----------
+    cov : numpy.ndarray
+        (assets, assets) sample covariance, at least 2 assets, positive variances; not modified.
+
+    Returns
+    -------
+    numpy.ndarray
+        (assets, assets) symmetric, unit diagonal, entries in [-1, 1].
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> covariance_to_correlation(np.array([[4.0, 2.0], [2.0, 4.0]])).tolist()
+    [[1.0, 0.5], [0.5, 1.0]]
+    """
+    stddev = np.sqrt(np.diag(cov))
+    corr = cov / stddev[:, None]
+    corr /= stddev[None, :]
+    np.clip(corr, -1.0, 1.0, out=corr)
     corr = np.clip((corr + corr.T) / 2.0, -1.0, 1.0)
     np.fill_diagonal(corr, 1.0)
     return corr

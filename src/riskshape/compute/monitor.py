@@ -7,7 +7,7 @@ day(s) and computes only the new windows, giving the same numbers as a batch ove
 from __future__ import annotations
 
 import time
-from collections.abc import Callable, Iterator
+from collections.abc import Callable, Iterator, Sequence
 from dataclasses import dataclass, field
 from functools import cached_property, partial
 from typing import Any
@@ -80,6 +80,29 @@ class MonitorResult:
     """Seconds by stage of the run that made this result, with ``monitor(..., profile=True)``; else None."""
     derived_held: DerivedColumns | None = field(default=None, repr=False, compare=False)
     """The derived columns of the windows held before an update (so only the new ones are computed); else None."""
+    with_baselines: bool = False
+    """Whether each window's baselines were computed with it (``monitor(..., baselines=True)``);
+    :meth:`update` keeps doing so."""
+
+    @cached_property
+    def baselines(self) -> pd.DataFrame:
+        """The baselines of every window, columns prefixed ``base_`` so they never clash with a feature.
+
+        ``base_n_assets``, ``base_ew_volatility``, ``base_mean_correlation``,
+        ``base_absorption_ratio`` and ``base_turbulence``, indexed like :attr:`features`, bit for
+        bit what :func:`riskshape.research.compute_baselines` gives on the same returns and
+        configuration. Computed by the workers with the windows where the run asked for them
+        (``monitor(..., baselines=True)``: a few per cent of the run); otherwise computed now,
+        by :func:`riskshape.research.compute_baselines` (as long again as a quarter of the run).
+        """
+        from riskshape.research.baselines import BASELINE_COLUMNS, BASELINE_PREFIX, compute_baselines
+
+        if not self.with_baselines:
+            return compute_baselines(self.returns, self.config, data_are_returns=True, prefix=BASELINE_PREFIX)
+        values = np.array([r.baselines for r in self.windows], dtype=float).reshape(-1, len(BASELINE_COLUMNS))
+        frame = pd.DataFrame(values, index=self.window_ends, columns=list(BASELINE_COLUMNS))
+        frame.insert(0, "n_assets", np.array([len(r.used) for r in self.windows], dtype=np.int64))
+        return frame.add_prefix(BASELINE_PREFIX)
 
     @cached_property
     def features(self) -> pd.DataFrame:
@@ -102,21 +125,23 @@ class MonitorResult:
         return derive_columns(self._summaries, self._volatility(self.window_ends), settings, self.config.step)
 
     def _volatility(self, ends: pd.DatetimeIndex) -> pd.Series:
+        """The equal-weight volatility of the windows ending at ``ends``: the workers' baselines where
+        the run computed them with the windows, else the same function on the same blocks."""
+        if self.with_baselines:
+            return self.baselines["base_ew_volatility"].reindex(ends)
         return window_volatility(self.returns, ends, self.config)
 
     @cached_property
     def _summaries(self) -> pd.DataFrame:
         """The features computed window by window (the columns of :func:`feature_columns`)."""
-        columns = feature_columns(self.config.maxdim)
-        head = np.array([(len(r.used), len(r.left_out), r.mean_correlation) for r in self.windows], dtype=float)
-        # per window, dimension by dimension: the summaries, then the distances (the column order)
-        per_dim = [np.hstack([r.summaries, r.distances]).ravel() for r in self.windows]
-        values = np.column_stack(
-            [head.reshape(-1, 3), np.array(per_dim, dtype=float).reshape(len(head), len(columns) - 3)]
-        )
-        frame = pd.DataFrame(values, index=self.window_ends, columns=columns)
-        int_columns = ["n_assets", "n_left_out"] + [f"h{k}_n_bars" for k in range(self.config.maxdim + 1)]
-        return frame.astype({c: "int64" for c in int_columns})
+        held = self.__dict__.pop("_held_summaries", None)
+        if held is not None:
+            # an update of a result whose features were read: only the new windows' rows are made
+            # (the same values and types as a table made over every window; tests/compute checks it)
+            start = len(held)
+            new_rows = _features_table(self.windows[start:], self.window_ends[start:], self.config.maxdim)
+            return pd.concat([held, new_rows])
+        return _features_table(self.windows, self.window_ends, self.config.maxdim)
 
     @cached_property
     def left_out(self) -> pd.DataFrame:
@@ -235,15 +260,33 @@ class MonitorResult:
         ends = window_end_positions(len(returns), self.config.window, self.config.step)
         new_ends = ends[len(self.windows) :]
         previous = self.windows[-1].diagrams if self.windows else None
-        added = _compute_windows(returns.to_numpy(), new_ends, self.config, previous, progress)
-        return MonitorResult(
+        added, _ = _run_windows(
+            returns.to_numpy(), new_ends, self.config, previous, progress, None, False, self.with_baselines
+        )
+        grown = MonitorResult(
             config=self.config,
             prices=prices,
             returns=returns,
             window_ends=pd.DatetimeIndex(returns.index[ends], name="window_end"),
             windows=self.windows + tuple(added),
             derived_held=self.derived if self.config.derived.active else None,
+            with_baselines=self.with_baselines,
         )
+        if "_summaries" in self.__dict__ and added:
+            grown.__dict__["_held_summaries"] = self._summaries  # the rows held, for grown.features
+        return grown
+
+
+def _features_table(windows: Sequence[WindowResult], ends: pd.DatetimeIndex, maxdim: int) -> pd.DataFrame:
+    """The features of ``windows`` (ending at ``ends``), one row each (see ``MonitorResult.features``)."""
+    columns = feature_columns(maxdim)
+    head = np.array([(len(r.used), len(r.left_out), r.mean_correlation) for r in windows], dtype=float)
+    # per window, dimension by dimension: the summaries, then the distances (the column order)
+    per_dim = [np.hstack([r.summaries, r.distances]).ravel() for r in windows]
+    values = np.column_stack([head.reshape(-1, 3), np.array(per_dim, dtype=float).reshape(len(head), len(columns) - 3)])
+    frame = pd.DataFrame(values, index=ends, columns=columns)
+    int_columns = ["n_assets", "n_left_out"] + [f"h{k}_n_bars" for k in range(maxdim + 1)]
+    return frame.astype({c: "int64" for c in int_columns})
 
 
 def monitor(
@@ -252,6 +295,7 @@ def monitor(
     *,
     progress: ProgressFn | None = None,
     profile: bool = False,
+    baselines: bool = False,
 ) -> MonitorResult:
     """Rolling persistent homology of a portfolio's correlation structure.
 
@@ -267,6 +311,11 @@ def monitor(
     profile : bool
         Measure the time of each stage where the windows are computed and sum it into
         ``MonitorResult.stage_times`` (:mod:`riskshape.compute.stages`); the results are the same.
+    baselines : bool
+        Compute each window's baselines (equal-weight volatility, mean correlation, absorption
+        ratio, turbulence: :mod:`riskshape.research.baselines`) with it, in the workers, on the
+        same admitted returns; read them from ``MonitorResult.baselines``. The features are the
+        same either way.
 
     Returns
     -------
@@ -289,7 +338,7 @@ def monitor(
     valid = ensure_valid(prices, source="prices", min_rows=config.window + 1)
     returns = to_returns(valid, config.returns)
     ends = window_end_positions(len(returns), config.window, config.step)
-    windows, stage_times = _run_windows(returns.to_numpy(), ends, config, None, progress, None, profile)
+    windows, stage_times = _run_windows(returns.to_numpy(), ends, config, None, progress, None, profile, baselines)
     return MonitorResult(
         config=config,
         prices=valid,
@@ -297,6 +346,7 @@ def monitor(
         window_ends=pd.DatetimeIndex(returns.index[ends], name="window_end"),
         windows=tuple(windows),
         stage_times=stage_times,
+        with_baselines=baselines,
     )
 
 
@@ -349,6 +399,7 @@ def _run_windows(
     progress: ProgressFn | None,
     executor: Executor | None,
     profile: bool,
+    baselines: bool = False,
 ) -> tuple[list[WindowResult], StageTimes | None]:
     """Windows ending at ``ends``, computed in batches by the configured executor; their stage times if profiled.
 
@@ -364,7 +415,7 @@ def _run_windows(
     """
     if len(ends) == 0:
         return [], StageTimes() if profile else None
-    settings = settings_of(config)
+    settings = WindowSettings.from_config(config, baselines=baselines)
     all_ends = np.asarray(ends)
     size = config.compute.batch_windows
     own = executor is None

@@ -9,6 +9,7 @@ workers) and the writing of the results.
 Stages, in the order a window meets them:
 
 * ``correlation``: selecting the admitted assets and their correlation (running sums or plain);
+* ``baselines``: the window's baselines, where asked for (``monitor(..., baselines=True)``);
 * ``distance_matrix``: the distance matrix of the embedding;
 * ``persistence``: the Vietoris-Rips diagrams (the floor of a window's cost);
 * ``summaries``: the per-diagram summaries and the compact storage of the bars;
@@ -31,6 +32,7 @@ class StageTimes:
     """Seconds spent in each stage of a run (summed over windows and workers)."""
 
     correlation: float = 0.0
+    baselines: float = 0.0
     distance_matrix: float = 0.0
     persistence: float = 0.0
     summaries: float = 0.0

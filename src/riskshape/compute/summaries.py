@@ -28,6 +28,7 @@ import numpy as np
 
 from riskshape.compute.matching import (
     assignment_wasserstein,
+    pair_costs,
     persim_bottleneck,
     reduced_assignment_wasserstein,
     sorted_bottleneck_is_optimal,
@@ -44,6 +45,7 @@ __all__ = [
     "landscape_norm",
     "wasserstein_distance",
     "bottleneck_distance",
+    "diagram_pair_distances",
     "SUMMARY_NAMES",
     "DISTANCE_NAMES",
 ]
@@ -198,6 +200,50 @@ def bottleneck_distance(a: Diagram, b: Diagram, method: Literal["auto", "persim"
                 return float(np.max(np.abs(da - db)))
         return threshold_bottleneck(a, b)
     return persim_bottleneck(a, b)
+
+
+def diagram_pair_distances(a: Diagram, b: Diagram, order_p: float = 1.0) -> tuple[float, float]:
+    """Wasserstein (order ``order_p``) and bottleneck distances between two diagrams, pair costs shared.
+
+    The same values as :func:`wasserstein_distance` and :func:`bottleneck_distance` with
+    ``method="auto"`` (the same paths, in the same arithmetic); the (n, m) pair costs both need,
+    where they need them, are computed once.
+
+    Parameters
+    ----------
+    a, b : numpy.ndarray
+        (n, 2) and (m, 2) finite bars.
+    order_p : float
+        Order of the Wasserstein distance, ``p >= 1``.
+
+    Returns
+    -------
+    tuple of float
+        ``(wasserstein, bottleneck)``.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> diagram_pair_distances(np.array([[0.0, 2.0]]), np.array([[0.0, 1.5]]))
+    (0.5, 0.5)
+    """
+    n, m = len(a), len(b)
+    if n == 0 or m == 0:
+        return wasserstein_distance(a, b, order_p), bottleneck_distance(a, b)
+    cross = None
+    wasserstein = bottleneck = None
+    if n == m and _births_zero(a) and _births_zero(b):
+        da, db = np.sort(a[:, 1]), np.sort(b[:, 1])
+        if sorted_matching_is_optimal(da, db, order_p):
+            wasserstein = float(np.sum(np.abs(da - db) ** order_p) ** (1.0 / order_p))
+        if sorted_bottleneck_is_optimal(da, db):
+            bottleneck = float(np.max(np.abs(da - db)))
+    if wasserstein is None:
+        cross = pair_costs(a, b)
+        wasserstein = reduced_assignment_wasserstein(a, b, order_p, cross)
+    if bottleneck is None:
+        bottleneck = threshold_bottleneck(a, b, pair_costs(a, b) if cross is None else cross)
+    return wasserstein, bottleneck
 
 
 def _births_zero(dgm: Diagram) -> bool:

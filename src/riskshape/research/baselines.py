@@ -33,7 +33,7 @@ import numpy as np
 import pandas as pd
 from scipy.linalg import cho_factor, cho_solve
 
-from riskshape.compute.distance import correlation_matrix, mean_offdiagonal
+from riskshape.compute.distance import correlation_matrix, covariance_to_correlation, mean_offdiagonal
 from riskshape.compute.executors import make_executor
 from riskshape.compute.returns import to_returns
 from riskshape.compute.windows import select_window, window_end_positions
@@ -146,7 +146,11 @@ def absorption_ratio(block: ReturnsBlock, k: int | None = None) -> float:
     top = math.ceil(n / 5) if k is None else int(k)
     if not 1 <= top <= n:
         raise DataError(f"absorption_ratio: k must be between 1 and the {n} assets, got {k}")
-    cov = np.atleast_2d(np.cov(block, rowvar=False))
+    return _absorption_of(np.atleast_2d(np.cov(block, rowvar=False)), top)
+
+
+def _absorption_of(cov: FloatArray, top: int) -> float:
+    """Top-``top`` eigenvalues of the covariance ``cov`` over their total (NaN for a zero covariance)."""
     eig = np.clip(np.linalg.eigvalsh(cov), 0.0, None)  # ascending; clip rounding below zero
     total = eig.sum()
     if not total > 0:
@@ -205,7 +209,11 @@ def window_baselines(
     Returns
     -------
     tuple
-        ``(n_assets, ew_volatility, mean_correlation, absorption_ratio, turbulence)``.
+        ``(n_assets, ew_volatility, mean_correlation, absorption_ratio, turbulence)``, each
+        bit for bit what its own function gives. With Pearson correlation the window's sample
+        covariance is computed once for the mean correlation and the absorption ratio
+        (:func:`riskshape.compute.distance.covariance_to_correlation` makes the same bits as
+        :func:`riskshape.compute.distance.correlation_matrix`): a third less time per window.
 
     Examples
     --------
@@ -214,11 +222,21 @@ def window_baselines(
     >>> n, 0.0 < ar <= 1.0
     (4, True)
     """
+    days, n = block.shape
+    if method == "pearson" and days >= 2 and n >= 2:
+        cov = np.cov(block, rowvar=False)
+        return (
+            n,
+            portfolio_volatility(block),
+            mean_offdiagonal(covariance_to_correlation(cov)),
+            _absorption_of(cov, math.ceil(n / 5)),
+            turbulence(block),
+        )
     return (
-        block.shape[1],
+        n,
         portfolio_volatility(block),
         mean_pairwise_correlation(block, method),
-        absorption_ratio(block) if block.shape[1] else float("nan"),
+        absorption_ratio(block) if n else float("nan"),
         turbulence(block),
     )
 
@@ -304,8 +322,10 @@ def features_with_baselines(result: MonitorResult, prefix: str = BASELINE_PREFIX
     Returns
     -------
     pandas.DataFrame
-        ``result.features`` and, after them, :func:`compute_baselines` of ``result.returns``
-        (equal to it bit for bit) with ``prefix``.
+        ``result.features`` and, after them, the baselines of the same windows with ``prefix``:
+        those the workers computed with the windows where the run asked for them
+        (``monitor(..., baselines=True)``), else :func:`compute_baselines` of ``result.returns``;
+        bit for bit the same either way.
 
     Examples
     --------
@@ -317,5 +337,9 @@ def features_with_baselines(result: MonitorResult, prefix: str = BASELINE_PREFIX
     >>> "mean_correlation" in joined and "base_mean_correlation" in joined, len(joined) == len(result.features)
     (True, True)
     """
-    baselines = compute_baselines(result.returns, result.config, data_are_returns=True, prefix=prefix)
+    if result.with_baselines:
+        held = result.baselines
+        baselines = held.set_axis([prefix + name[len(BASELINE_PREFIX) :] for name in held.columns], axis=1)
+    else:
+        baselines = compute_baselines(result.returns, result.config, data_are_returns=True, prefix=prefix)
     return result.features.join(baselines)
