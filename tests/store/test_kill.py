@@ -17,7 +17,6 @@ The large counts are in ``benchmarks/reliability.py``; CI runs a few kill points
 
 from __future__ import annotations
 
-import signal
 from collections.abc import Callable, Iterator
 from contextlib import ExitStack
 from pathlib import Path
@@ -26,23 +25,13 @@ import numpy as np
 import pytest
 
 from riskshape.demo.scenario import generate_scenario
-from riskshape.store import open_store, verify_chain
-from riskshape.store.schema import metadata
+from riskshape.store import open_store
 from tests.kit.archive import make_alerts, manifest, walk_prices
-from tests.kit.crash import (
-    archive_view,
-    post_prices,
-    read_log,
-    run_cli,
-    start_server,
-    table_counts,
-    wait_killed,
-)
+from tests.kit.crash import archive_view, post_prices, read_log, run_cli, start_server
+from tests.kit.kill_trials import KILLED, kill_cli, kill_ingest
 from tests.kit.postgres import fresh_schema_url
 from tests.kit.service import csv_body, write_config
 
-KILLED = -signal.SIGKILL
-EMPTY = {t.name: 0 for t in metadata.sorted_tables}
 Archives = Callable[[], str]
 
 
@@ -97,18 +86,6 @@ def _run_args(url: str, inputs: tuple[Path, Path, bytes], out: Path) -> list[str
     return ["run", "--prices", str(prices), "--config", str(config), "--out", str(out), "--store", url]
 
 
-def _assert_exactly_committed(url: str, log: Path, before: dict[str, int]) -> None:
-    """The archive after a kill: what the child committed (``before`` it, if nothing), nothing more or
-    less, and the chain verifies.
-    """
-    logged = read_log(log)
-    assert logged.inside_writes, "the kill did not land inside a write transaction"
-    assert table_counts(url) == (logged.committed or before)  # 0 committed records lost, 0 half-writes kept
-    with open_store(url, create=False) as store:
-        report = verify_chain(store)
-    assert report.ok, report.first_bad
-
-
 def _first_event(log: str, statement: str) -> int:
     """The number of the write event before the first ``statement`` in the text of a reference log."""
     for line in log.splitlines():
@@ -129,24 +106,12 @@ def test_run_killed_inside_its_writes_then_rerun(
     total, expected, _ = _run_reference(archives, inputs, tmp_path, run_references)
     assert expected["alerts"] and expected["diagrams"]  # the reference raised alerts (so a kill can cut them)
     for kill_at in _kill_points(total, 1, seed=19):
-        url, log = archives(), tmp_path / f"kill{kill_at}.log"
-        killed = run_cli(log, kill_at, _run_args(url, inputs, tmp_path / f"out{kill_at}"))
-        assert killed.returncode == KILLED, killed.stderr
-        assert read_log(log).killed_at == kill_at
-        _assert_exactly_committed(url, log, EMPTY)
-        again = run_cli(tmp_path / f"rerun{kill_at}.log", 0, _run_args(url, inputs, tmp_path / f"again{kill_at}"))
-        assert again.returncode == 0, again.stderr
-        rerun = archive_view(url)
-        # same windows, prices, alerts and chain records; no diagram twice (a run killed between its
-        # windows' commit and its diagrams' commit leaves diagrams the re-run does not write: the next test)
-        assert {t: r for t, r in rerun.items() if t != "diagrams"} == {
-            t: r for t, r in expected.items() if t != "diagrams"
-        }
-        assert set(rerun["diagrams"]) <= set(expected["diagrams"]) and len(set(rerun["diagrams"])) == len(
-            rerun["diagrams"]
-        )
-        with open_store(url, create=False) as store:
-            assert verify_chain(store).ok
+        url = archives()
+        trial = kill_cli("run", url, _run_args(url, inputs, tmp_path / "out"), kill_at, tmp_path, expected)
+        assert trial.inside_writes and trial.lost == 0 and trial.kept == 0 and trial.verified, trial
+        # the re-run: same windows, prices, alerts and chain records, nothing twice (a run killed between
+        # its windows' commit and its diagrams' commit leaves diagrams the re-run does not write: the next test)
+        assert trial.redone and trial.duplicated == 0 and set(trial.missing) <= {"diagrams"}, trial
 
 
 @pytest.mark.xfail(strict=True, reason="until a run is one transaction (issue 19 item 5)")
@@ -190,24 +155,9 @@ def test_ingest_killed_inside_its_writes_then_resent(archives: Archives, inputs,
     expected = archive_view(reference)
     for kill_at in _kill_points(total, 1, seed=23):
         url, token = prepared()
-        before, log = table_counts(url), tmp_path / f"kill{kill_at}.log"
-        server = start_server(url, config, log, kill_at, tmp_path / f"kill{kill_at}.out")
-        try:
-            assert post_prices(server, "Fund North", body, token) is None  # the server died answering
-            assert wait_killed(server.process) == KILLED
-        finally:
-            server.stop()
-        assert read_log(log).killed_at == kill_at
-        _assert_exactly_committed(url, log, before)
-        server = start_server(url, config, tmp_path / f"again{kill_at}.log", 0, tmp_path / f"again{kill_at}.out")
-        try:
-            again = post_prices(server, "Fund North", body, token)
-        finally:
-            server.stop()
-        assert again is not None and again.status_code == 200, again and again.text
-        assert archive_view(url) == expected
-        with open_store(url, create=False) as store:
-            assert verify_chain(store).ok
+        trial = kill_ingest(url, config, body, token, "Fund North", kill_at, tmp_path, expected)
+        assert trial.inside_writes and trial.lost == 0 and trial.kept == 0 and trial.verified, trial
+        assert trial.equal, trial  # the re-sent request leaves what an uninterrupted one does
 
 
 @pytest.mark.timeout(300)
@@ -222,25 +172,20 @@ def test_review_killed_inside_its_writes_then_repeated(archives: Archives, tmp_p
             ids = [r.id for r in store.append_alerts(alerts, run.id).added]
         return url, ids[2]
 
-    def review(url: str, alert_id: int, log: Path, kill_at: int) -> int:
+    def review_args(url: str, alert_id: int) -> list[str]:
         args = ["alerts", "review", str(alert_id), "--store", url, "--action", "escalate"]
-        args += ["--reviewer", "desk one", "--comment", "moves with the index"]
-        return run_cli(log, kill_at, args).returncode
+        return args + ["--reviewer", "desk one", "--comment", "moves with the index"]
 
     reference, alert_id = prepared()
-    assert review(reference, alert_id, tmp_path / "ref.log", 0) == 0
+    assert run_cli(tmp_path / "ref.log", 0, review_args(reference, alert_id)).returncode == 0
     total = read_log(tmp_path / "ref.log").events
     expected = archive_view(reference)
     assert len(expected["reviews"]) == 1
     for kill_at in _kill_points(total, 1, seed=29):
         url, alert_id = prepared()
-        before, log = table_counts(url), tmp_path / f"kill{kill_at}.log"
-        assert review(url, alert_id, log, kill_at) == KILLED
-        _assert_exactly_committed(url, log, before)
-        assert review(url, alert_id, tmp_path / f"again{kill_at}.log", 0) == 0
-        assert archive_view(url) == expected
-        with open_store(url, create=False) as store:
-            assert verify_chain(store).ok
+        trial = kill_cli("review", url, review_args(url, alert_id), kill_at, tmp_path, expected)
+        assert trial.inside_writes and trial.lost == 0 and trial.kept == 0 and trial.verified, trial
+        assert trial.equal, trial
 
 
 def test_the_view_sees_a_changed_record(archives: Archives) -> None:
