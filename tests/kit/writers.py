@@ -15,7 +15,13 @@ from collections.abc import Callable
 from dataclasses import dataclass
 from typing import Any
 
+import pandas as pd
+
+from riskshape import Config, archive_run, validate_prices
+from riskshape.compute.monitor import MonitorResult
+from riskshape.daily import Ingestor
 from riskshape.errors import RiskshapeError
+from riskshape.reviews import review_alert
 from riskshape.store import Store, open_store
 
 Work = Callable[[Store], object]
@@ -70,3 +76,19 @@ def at_once(url: str, works: list[Work], timeout: float = 600) -> list[Outcome]:
             if process.is_alive():
                 process.kill()
     return [got[slot] for slot in range(len(works))]
+
+
+def run_work(result: MonitorResult, portfolio: str, store: Store) -> int:
+    """Archive a computed run (``riskshape run`` without the computing); the number of alerts it added."""
+    return len(archive_run(store, portfolio, result).alerts.added)
+
+
+def ingest_work(prices: pd.DataFrame, config: Config, portfolio: str, store: Store) -> tuple[int, int, int]:
+    """Ingest prices as the service does; (prices added, windows added, alerts raised)."""
+    report = Ingestor(config).ingest(store, portfolio, validate_prices(prices))
+    return report.prices_added, report.windows_added, len(report.alerts)
+
+
+def review_work(alert_id: int, reviewer: str, store: Store) -> int:
+    """Acknowledge an alert; the review's place in the ledger."""
+    return review_alert(store, alert_id, "acknowledge", reviewer).seq

@@ -14,15 +14,13 @@ import pandas as pd
 import pytest
 import sqlalchemy as sa
 
-from riskshape import Config, archive_run, monitor, validate_prices
+from riskshape import Config, archive_run, monitor
 from riskshape.alerts import evaluate_rules
 from riskshape.compute.monitor import MonitorResult
-from riskshape.daily import Ingestor
 from riskshape.demo.scenario import generate_scenario
-from riskshape.reviews import review_alert
 from riskshape.store import Store, verify_chain
 from tests.kit.service import write_config
-from tests.kit.writers import Outcome, at_once
+from tests.kit.writers import Outcome, at_once, ingest_work, review_work, run_work
 
 WRITERS = 8
 
@@ -53,24 +51,11 @@ def _no_lock_errors(outcomes: list[Outcome]) -> None:
     assert not [o for o in outcomes if o.lock_error or o.status == "crash"], outcomes
 
 
-def _run(result: MonitorResult, portfolio: str, store: Store) -> int:
-    return len(archive_run(store, portfolio, result).alerts.added)
-
-
-def _ingest(prices: pd.DataFrame, config: Config, portfolio: str, store: Store) -> tuple[int, int, int]:
-    report = Ingestor(config).ingest(store, portfolio, validate_prices(prices))
-    return report.prices_added, report.windows_added, len(report.alerts)
-
-
-def _review(alert_id: int, reviewer: str, store: Store) -> int:
-    return review_alert(store, alert_id, "acknowledge", reviewer).seq
-
-
 @pytest.mark.timeout(600)
 def test_eight_runs_at_once_of_different_portfolios_and_of_one(store: Store, store_url: str, small) -> None:
     _, config, result, firings = small
     windows = len(result.window_ends)
-    outcomes = at_once(store_url, [partial(_run, result, f"Fund {n}") for n in range(WRITERS)])
+    outcomes = at_once(store_url, [partial(run_work, result, f"Fund {n}") for n in range(WRITERS)])
     _no_lock_errors(outcomes)
     assert [o.detail for o in outcomes] == [firings] * WRITERS
     for n in range(WRITERS):
@@ -79,7 +64,7 @@ def test_eight_runs_at_once_of_different_portfolios_and_of_one(store: Store, sto
             "diagrams": windows * (config.maxdim + 1),
             "alerts": firings,
         }
-    outcomes = at_once(store_url, [partial(_run, result, "Fund Shared") for _ in range(WRITERS)])
+    outcomes = at_once(store_url, [partial(run_work, result, "Fund Shared") for _ in range(WRITERS)])
     _no_lock_errors(outcomes)
     assert sum(o.detail for o in outcomes) == firings  # raised once, whoever wrote first
     assert _counts(store, "Fund Shared") == {
@@ -98,10 +83,10 @@ def test_eight_ingests_at_once_of_different_portfolios_and_of_one(store: Store, 
     names = [f"Feed {n}" for n in range(WRITERS)] + ["Feed Shared"]
     for name in names:
         store.create_portfolio(name)
-    outcomes = at_once(store_url, [partial(_ingest, prices, config, name) for name in names[:WRITERS]])
+    outcomes = at_once(store_url, [partial(ingest_work, prices, config, name) for name in names[:WRITERS]])
     _no_lock_errors(outcomes)
     assert [o.detail for o in outcomes] == [(cells, windows, firings)] * WRITERS
-    outcomes = at_once(store_url, [partial(_ingest, prices, config, "Feed Shared") for _ in range(WRITERS)])
+    outcomes = at_once(store_url, [partial(ingest_work, prices, config, "Feed Shared") for _ in range(WRITERS)])
     _no_lock_errors(outcomes)
     assert all(o.status == "ok" for o in outcomes), outcomes
     added = [o.detail for o in outcomes]
@@ -125,11 +110,11 @@ def test_eight_reviews_at_once_of_different_alerts_and_of_one(store: Store, stor
     ids = [a.id for a in store.list_alerts(limit=None).items][: WRITERS + 1]
     assert len(ids) == WRITERS + 1
     head = verify_chain(store).head.count
-    outcomes = at_once(store_url, [partial(_review, ids[n], f"reviewer {n}") for n in range(WRITERS)])
+    outcomes = at_once(store_url, [partial(review_work, ids[n], f"reviewer {n}") for n in range(WRITERS)])
     _no_lock_errors(outcomes)
     assert all(o.status == "ok" for o in outcomes), outcomes
     assert sorted(o.detail for o in outcomes) == list(range(head + 1, head + WRITERS + 1))  # one place each
-    outcomes = at_once(store_url, [partial(_review, ids[-1], f"reviewer {n}") for n in range(WRITERS)])
+    outcomes = at_once(store_url, [partial(review_work, ids[-1], f"reviewer {n}") for n in range(WRITERS)])
     _no_lock_errors(outcomes)
     done = [o for o in outcomes if o.status == "ok"]
     refused = [o for o in outcomes if o.status == "refused"]
