@@ -13,7 +13,10 @@
    counted kill landed inside an open write transaction). After each kill: rows lost from what the
    child had committed, rows kept beyond it, ``verify``; then the operation is redone uninterrupted and
    the archive compared with the reference's (apart from time stamps, the hashes over them and ids):
-   rows twice, rows missing (by table). Trials are in ``tests/kit/kill_trials.py``.
+   rows twice, rows missing (by table). Trials are in ``tests/kit/kill_trials.py``. The children are
+   forked from this warm process (:class:`tests.kit.crash.Forked`: the fault point installed, then
+   ``riskshape.cli.main(args)``, the same code from there on as ``python -m tests.kit.fault_point``,
+   which the tests use) so that many trials fit in the time; a kill point may repeat.
 2. **Eight writers at once** (forked processes released by one barrier, ``tests/kit/writers.py``),
    ``--rounds`` times on one archive per backend: 8 runs of different portfolios, 8 runs of one; 8
    ingests of different portfolios, 8 of one; 8 reviews of different alerts, 8 of one alert. A writer
@@ -40,6 +43,10 @@ import numpy as np
 ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))  # the test kits: the fault point, the trials, the writers
 
+import uvicorn  # noqa: E402, F401
+
+import riskshape.cli  # noqa: E402, F401  (warm: each trial's children are forked from this process)
+import riskshape_service  # noqa: E402, F401
 from riskshape import Config, monitor  # noqa: E402
 from riskshape.alerts import evaluate_rules  # noqa: E402
 from riskshape.demo.scenario import generate_scenario  # noqa: E402
@@ -109,11 +116,11 @@ def kill_section(backend: str, counts: dict[str, int], folder: Path, seed: int) 
 
         if counts["run"]:
             reference = make()
-            assert run_cli(folder / "run-ref.log", 0, run_args(reference)).returncode == 0
+            assert run_cli(folder / "run-ref.log", 0, run_args(reference), forked=True).returncode == 0
             expected, total = archive_view(reference), read_log(folder / "run-ref.log").events
             for kill_at in _points(total, counts["run"], rng):
                 url = make()
-                trials.append(kill_cli("run", url, run_args(url), kill_at, folder, expected))
+                trials.append(kill_cli("run", url, run_args(url), kill_at, folder, expected, forked=True))
                 print(f"  {backend} run    killed at {kill_at:3d}/{total}: {_brief(trials[-1])}", flush=True)
 
         def fed() -> tuple[str, str]:
@@ -124,7 +131,9 @@ def kill_section(backend: str, counts: dict[str, int], folder: Path, seed: int) 
 
         if counts["ingest"]:
             reference, token = fed()
-            server = start_server(reference, config, folder / "ingest-ref.log", 0, folder / "ingest-ref.out")
+            server = start_server(
+                reference, config, folder / "ingest-ref.log", 0, folder / "ingest-ref.out", forked=True
+            )
             try:
                 answered = post_prices(server, "Fund North", body, token)
             finally:
@@ -133,7 +142,9 @@ def kill_section(backend: str, counts: dict[str, int], folder: Path, seed: int) 
             expected, total = archive_view(reference), read_log(folder / "ingest-ref.log").events
             for kill_at in _points(total, counts["ingest"], rng):
                 url, token = fed()
-                trials.append(kill_ingest(url, config, body, token, "Fund North", kill_at, folder, expected))
+                trials.append(
+                    kill_ingest(url, config, body, token, "Fund North", kill_at, folder, expected, forked=True)
+                )
                 print(f"  {backend} ingest killed at {kill_at:3d}/{total}: {_brief(trials[-1])}", flush=True)
 
         def with_alerts() -> tuple[str, list[str]]:
@@ -148,11 +159,11 @@ def kill_section(backend: str, counts: dict[str, int], folder: Path, seed: int) 
 
         if counts["review"]:
             reference, args = with_alerts()
-            assert run_cli(folder / "review-ref.log", 0, args).returncode == 0
+            assert run_cli(folder / "review-ref.log", 0, args, forked=True).returncode == 0
             expected, total = archive_view(reference), read_log(folder / "review-ref.log").events
             for kill_at in _points(total, counts["review"], rng):
                 url, args = with_alerts()
-                trials.append(kill_cli("review", url, args, kill_at, folder, expected))
+                trials.append(kill_cli("review", url, args, kill_at, folder, expected, forked=True))
                 print(f"  {backend} review killed at {kill_at:3d}/{total}: {_brief(trials[-1])}", flush=True)
     return trials
 

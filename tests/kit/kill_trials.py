@@ -76,28 +76,45 @@ def _trial(operation: str, kill_at: int, killed: bool, after: tuple, redone: boo
     )
 
 
-def kill_cli(operation: str, url: str, args: list[str], kill_at: int, folder: Path, expected: View) -> Trial:
+def kill_cli(
+    operation: str, url: str, args: list[str], kill_at: int, folder: Path, expected: View, *, forked: bool = False
+) -> Trial:
     """Kill a riskshape command (``args``) at ``kill_at``, check, run it again, compare."""
     before, log = table_counts(url), folder / f"kill{kill_at}.log"
-    killed = run_cli(log, kill_at, args).returncode == KILLED
+    log.unlink(missing_ok=True)
+    killed = run_cli(log, kill_at, args, forked=forked).returncode == KILLED
     after = _after_kill(url, log, before)
-    redone = run_cli(folder / f"redo{kill_at}.log", 0, args).returncode == 0
+    redo = folder / f"redo{kill_at}.log"
+    redo.unlink(missing_ok=True)
+    redone = run_cli(redo, 0, args, forked=forked).returncode == 0
     return _trial(operation, kill_at, killed, after, redone, url, expected)
 
 
 def kill_ingest(
-    url: str, config: Path, body: bytes, token: str, portfolio: str, kill_at: int, folder: Path, expected: View
+    url: str,
+    config: Path,
+    body: bytes,
+    token: str,
+    portfolio: str,
+    kill_at: int,
+    folder: Path,
+    expected: View,
+    *,
+    forked: bool = False,
 ) -> Trial:
     """Kill the service (uvicorn) at ``kill_at`` while it ingests ``body``, check, re-send it, compare."""
     before, log = table_counts(url), folder / f"kill{kill_at}.log"
-    server = start_server(url, config, log, kill_at, folder / f"kill{kill_at}.out")
+    log.unlink(missing_ok=True)
+    server = start_server(url, config, log, kill_at, folder / f"kill{kill_at}.out", forked=forked)
     try:
         answered = post_prices(server, portfolio, body, token)
         killed = answered is None and wait_killed(server.process) == KILLED
     finally:
         server.stop()
     after = _after_kill(url, log, before)
-    server = start_server(url, config, folder / f"redo{kill_at}.log", 0, folder / f"redo{kill_at}.out")
+    redo = folder / f"redo{kill_at}.log"
+    redo.unlink(missing_ok=True)
+    server = start_server(url, config, redo, 0, folder / f"redo{kill_at}.out", forked=forked)
     try:
         again = post_prices(server, portfolio, body, token)
     finally:
