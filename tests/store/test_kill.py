@@ -186,6 +186,8 @@ def test_an_ingest_killed_between_its_windows_and_its_alerts_is_completed_when_r
 ) -> None:
     # Today the re-sent request finds its prices and windows archived, answers "nothing new", and the
     # diagrams and alerts of those windows are never written.
+    if archives.backend != "sqlite":  # type: ignore[attr-defined]
+        pytest.skip("CI time: the PostgreSQL case is counted by benchmarks/reliability.py")
     _, config, body = inputs
     _, expected, reference_log = _ingest_reference(archives, inputs, tmp_path, ingest_references)
     url, token = _fed(archives)
