@@ -47,6 +47,31 @@ def test_findings_match_pandas(rng: np.random.Generator) -> None:
     assert moves == expected and len(moves) == 4  # each jump, and each return from it
 
 
+def test_a_move_from_the_archived_days_before_is_found_and_theirs_are_not_repeated(
+    rng: np.random.Generator,
+) -> None:
+    table = _table(rng, n_dates=30)
+    table.iloc[5, 0] *= 5.0  # a bad print among the archived days (and the return from it)
+    before, new = validate_prices(table.iloc[:25]), table.iloc[25:].copy()
+    new.iloc[:, 2] /= 8.0  # a jump from the last archived price to the first new one
+    new.iloc[0, 3] = np.nan  # an asset missing on the first new day: its move is from its last price
+    new.iloc[1:, 3] *= 3.0
+    config = Config(window=10)
+    alone = find_quality_issues(validate_prices(new), config)
+    found = find_quality_issues(validate_prices(new), config, before=before)
+    assert not [f for f in alone if f.kind == "large_move"]  # the request alone hides both jumps
+    # pandas' reference: one-day ratios from each asset's last price, over the archived and new days
+    ratio = pd.concat([table.iloc[:25], new]).ffill().pct_change(fill_method=None) + 1.0
+    expected = {
+        (asset, str(day.date()))
+        for asset in table.columns
+        for day, r in ratio[asset].iloc[25:].items()
+        if pd.notna(new.loc[day, asset]) and (r > 2.0 or r < 0.5)
+    }
+    assert {(f.asset, f.date) for f in found if f.kind == "large_move"} == expected
+    assert expected == {(codes(5)[2], str(new.index[0].date())), (codes(5)[3], str(new.index[1].date()))}
+
+
 def test_windows_all_left_out_agree_with_the_engine(rng: np.random.Generator) -> None:
     table = _table(rng, n_dates=50)
     table.iloc[15:35, :] = 60.0  # every asset flat for 20 days: windows inside have no asset

@@ -58,7 +58,9 @@ class QualityFinding:
         return self.message
 
 
-def find_quality_issues(prices: pd.DataFrame, config: Config, source: str = "prices") -> tuple[QualityFinding, ...]:
+def find_quality_issues(
+    prices: pd.DataFrame, config: Config, source: str = "prices", *, before: pd.DataFrame | None = None
+) -> tuple[QualityFinding, ...]:
     """Every data-quality finding of a validated price table, in the order left out, constant, moves.
 
     Parameters
@@ -69,6 +71,10 @@ def find_quality_issues(prices: pd.DataFrame, config: Config, source: str = "pri
         ``window``, ``step``, ``min_coverage`` and ``checks.max_day_ratio`` are used.
     source : str
         Name used in messages.
+    before : pandas.DataFrame, optional
+        Archived prices of the days just before the table (wide, dates ascending, all before the
+        table's first): an ingest passes them so that the first new price of an asset is compared
+        with its last archived one. Findings are about the table's own days only.
 
     Returns
     -------
@@ -88,11 +94,17 @@ def find_quality_issues(prices: pd.DataFrame, config: Config, source: str = "pri
     names = [str(c) for c in prices.columns]
     found = _windows_all_left_out(values, dates, config, source)
     found += _constant_assets(values, dates, names, source)
-    found += _large_moves(values, dates, names, config.checks.max_day_ratio, source)
-    return tuple(found)
+    if before is not None and len(before):
+        earlier = before.reindex(columns=prices.columns).to_numpy(dtype=float)
+        values, dates = np.vstack([earlier, values]), pd.DatetimeIndex(before.index).append(dates)
+    moves = _large_moves(values, dates, names, config.checks.max_day_ratio, source)
+    first = len(dates) - len(prices)  # rows of ``before`` come first: their own moves were reported then
+    return tuple(found + [m for m in moves if m.date >= _day(dates, first)])
 
 
-def check_quality(prices: pd.DataFrame, config: Config, source: str = "prices") -> tuple[QualityFinding, ...]:
+def check_quality(
+    prices: pd.DataFrame, config: Config, source: str = "prices", *, before: pd.DataFrame | None = None
+) -> tuple[QualityFinding, ...]:
     """The findings of :func:`find_quality_issues`, or a refusal when ``[checks] quality = "refuse"``.
 
     Parameters
@@ -101,6 +113,8 @@ def check_quality(prices: pd.DataFrame, config: Config, source: str = "prices") 
     config : Config
     source : str
         Name used in messages.
+    before : pandas.DataFrame, optional
+        Archived prices of the days just before the table (see :func:`find_quality_issues`).
 
     Returns
     -------
@@ -112,7 +126,7 @@ def check_quality(prices: pd.DataFrame, config: Config, source: str = "prices") 
     DataError
         If ``config.checks.quality`` is ``"refuse"`` and there is a finding (the first is named).
     """
-    found = find_quality_issues(prices, config, source)
+    found = find_quality_issues(prices, config, source, before=before)
     if found and config.checks.quality == "refuse":
         more = f" (and {len(found) - 1} more)" if len(found) > 1 else ""
         raise DataError(

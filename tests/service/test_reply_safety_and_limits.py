@@ -236,6 +236,22 @@ def test_ingest_reply_names_a_likely_bad_print(client: TestClient, auth: Auth, p
     assert any(f"asset '{codes(4)[1]}' on {day.date()}" in w and "likely bad print" in w for w in warnings)
 
 
+def test_ingest_compares_the_first_new_price_with_the_last_archived_one(
+    client: TestClient, auth: Auth, portfolio: str
+) -> None:
+    prices = small_prices(31)
+    archived, new = prices.iloc[:30], prices.iloc[30:].copy()
+    asset, last_day = codes(4)[2], archived.index[-1]
+    new.loc[:, asset] = archived[asset].iloc[-1] * 10  # a misplaced decimal point on the first new day
+    first = client.post("/v1/portfolios/p/prices", content=csv_body(archived), headers={**auth("ingest"), **CSV})
+    assert first.status_code == 200 and cautioned(first)["warnings"] == []
+    response = client.post("/v1/portfolios/p/prices", content=csv_body(new), headers={**auth("ingest"), **CSV})
+    assert response.status_code == 200, response.text
+    warnings = cautioned(response)["warnings"]
+    assert len(warnings) == 1, warnings  # only the new day's move, nothing of the archived days
+    assert f"asset '{asset}' on {new.index[0].date()}" in warnings[0] and f"on {last_day.date()}" in warnings[0]
+
+
 def test_ingest_refuses_findings_when_configured(
     make_settings: Callable[..., ServiceSettings], auth: Auth, tmp_path: Path
 ) -> None:

@@ -20,21 +20,22 @@ __all__ = ["backup"]
     "target",
     type=click.Path(path_type=Path, dir_okay=False),
     required=True,
-    help="The backup file (must not exist). SQLite: an archive file; PostgreSQL: a pg_dump custom-format file.",
+    help="The backup file (must not exist). SQLite: an archive file; PostgreSQL: a pg_dump custom-format file "
+    "of the archive's schema.",
 )
 def backup(store_url: str, target: Path) -> None:
     """Copy the archive consistently while others write to it, verify the copy, print its head.
 
-    To restore a SQLite archive: stop the service, move the damaged file (and its -wal and -shm
-    files) aside, then run `riskshape backup --store sqlite:///BACKUP --to ARCHIVE` (the copy is
-    verified again on the way back). PostgreSQL: pg_restore the dump into an empty database, then
-    run `riskshape audit verify --expect-head HEAD` with the head printed here.
+    The copy is verified before it is kept (PostgreSQL: the dump is loaded into a scratch database,
+    which needs the CREATEDB privilege, and dropped afterwards). To restore a SQLite archive: stop the
+    service, move the damaged file (and its -wal and -shm files) aside, then run `riskshape backup
+    --store sqlite:///BACKUP --to ARCHIVE` (the copy is verified again on the way back). PostgreSQL:
+    `pg_restore --no-owner --dbname=postgresql://USER@HOST:5432/EMPTY_DATABASE BACKUP`, then `riskshape
+    audit verify --expect-head HEAD` with the head printed here.
     """
     with open_store(store_url, create=False) as store:
         report = backup_store(store, target)
-    if report.verified:
-        click.echo(f"backup:   {report.path} (verified: the chain holds)")
-    else:
-        click.echo(f"backup:   {report.path} (a dump: restore it, then run audit verify --expect-head)")
+    kind = "" if store_url.startswith("sqlite") else "a pg_dump file, loaded and "
+    click.echo(f"backup:   {report.path} ({kind}verified: the chain holds)")
     click.echo(f"head:     {report.head}")
     click.echo(CAUTION)
