@@ -82,12 +82,15 @@ def _locate(
         reason = f"{_key(table, rows[at], names)}: does not match {seal.named}: {what}"
         return BadRecord(seal.seq, table, int(rows[at][0]), reason)
     if len(rows) < count:
-        where = f"before {table} id {rows[at][0]}" if at is not None and first < len(rows) else "at the range's end"
+        if at is not None and first < len(rows):
+            where = f" just before id {rows[at][0]}"
+        else:
+            where = f" after id {rows[-1][0]}" if rows else ""
         reason = (
-            f"{count - len(rows)} row(s) of {seal.named} are missing {where} "
-            f"(ids {part['after']}..{part['through']}): deleted"
+            f"{count - len(rows)} row(s) of {seal.named} (ids {int(part['after']) + 1} to {part['through']}) "
+            f"are missing{where}: deleted, or moved to another portfolio"
         )
-        return BadRecord(seal.seq, table, None if at is None else int(rows[at][0]), reason)
+        return BadRecord(seal.seq, table, None, reason)
     if len(rows) > count and at is not None:
         reason = f"{_key(table, rows[at], names)}: not in {seal.named}: inserted"
         return BadRecord(seal.seq, table, int(rows[at][0]), reason)
