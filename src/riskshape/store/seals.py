@@ -33,7 +33,7 @@ from sqlalchemy.engine import Connection
 from riskshape.store import schema as t
 from riskshape.store.database import before_commit, fault_point
 from riskshape.store.events import append_event_on, event_payload
-from riskshape.store.merkle import merkle_root
+from riskshape.store.merkle import leaf_hash, root_of_leaf_hashes
 
 __all__ = [
     "SEALED",
@@ -82,8 +82,14 @@ MAX_TAGS = {"runs": 1_000, "prices": 100_000, "features": 25_000, "diagrams": 50
 a commitment's payload under the events' 1 MB limit."""
 
 
+_AS_IS = (str, int, type(None))
+_ENCODER = json.JSONEncoder(separators=(",", ":"), ensure_ascii=False)
+
+
 def _plain(value: object) -> object:
     """A column value as the driver returned it, in one text form on every backend."""
+    if type(value) in _AS_IS:  # the usual case first (exact types: bool is not taken as int)
+        return value
     if value is None or isinstance(value, str):
         return value
     if isinstance(value, bool):
@@ -111,25 +117,31 @@ def row_leaf(table: str, row: Sequence[object]) -> bytes:
     >>> row_leaf("prices", (7, 1, date(2031, 3, 3), "XQ01", 101.5, 0, "2031-03-03 18:00:00.000000"))
     b'["prices",7,1,"2031-03-03","XQ01","101.5",0,"2031-03-03 18:00:00.000000"]'
     """
-    plain = [table, *(_plain(v) for v in row)]
-    return json.dumps(plain, separators=(",", ":"), ensure_ascii=False).encode("utf-8")
+    return _ENCODER.encode([table, *[_plain(v) for v in row]]).encode("utf-8")
 
 
-def _tags(leaves: Sequence[bytes], group: int) -> list[bytes]:
-    return [hashlib.sha256(b"".join(leaves[i : i + group])).digest()[:TAG_BYTES] for i in range(0, len(leaves), group)]
+def _tags(hashes: Sequence[bytes], group: int) -> list[bytes]:
+    """First bytes of each leaf hash (of the hash of each group's leaf hashes past :data:`MAX_TAGS`)."""
+    if group == 1:
+        return [h[:TAG_BYTES] for h in hashes]
+    return [hashlib.sha256(b"".join(hashes[i : i + group])).digest()[:TAG_BYTES] for i in range(0, len(hashes), group)]
+
+
+def _leaf_hashes(table: str, rows: Sequence[Sequence[object]]) -> list[bytes]:
+    return [leaf_hash(row_leaf(table, r)) for r in rows]
 
 
 def rows_digest(table: str, rows: Sequence[Sequence[object]]) -> dict[str, Any]:
-    """Count, Merkle root, group size and tags (base64) of rows of ``table`` in id order."""
-    leaves = [row_leaf(table, r) for r in rows]
-    group = max(1, math.ceil(len(leaves) / MAX_TAGS[table]))
-    tags = base64.b64encode(b"".join(_tags(leaves, group))).decode("ascii")
-    return {"count": len(leaves), "root": merkle_root(leaves), "group": group, "tags": tags}
+    """Count, RFC 6962 Merkle root, group size and tags (base64) of rows of ``table`` in id order."""
+    hashes = _leaf_hashes(table, rows)
+    group = max(1, math.ceil(len(hashes) / MAX_TAGS[table]))
+    tags = base64.b64encode(b"".join(_tags(hashes, group))).decode("ascii")
+    return {"count": len(hashes), "root": root_of_leaf_hashes(hashes), "group": group, "tags": tags}
 
 
 def row_tags(table: str, rows: Sequence[Sequence[object]], group: int) -> list[bytes]:
     """The tag of each group of ``group`` rows (for finding which row a changed root comes from)."""
-    return _tags([row_leaf(table, r) for r in rows], group)
+    return _tags(_leaf_hashes(table, rows), group)
 
 
 def fetch_rows(
