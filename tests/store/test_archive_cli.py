@@ -73,6 +73,29 @@ def test_verify_fails_naming_the_first_bad_record(archive: str, capsys: pytest.C
     assert status == 1 and "seq 9" in out and "tail cut" in out
 
 
+def test_verify_names_a_covered_row_and_seal_covers_an_older_archive(
+    archive: str, capsys: pytest.CaptureFixture[str]
+) -> None:
+    status, out, _ = _run(capsys, "audit", "verify", "--store", archive)
+    assert "covered by them and checked: runs, prices, features, diagrams, portfolios, API keys" in out
+    with open_store(archive) as store, around_triggers(store) as connection:
+        old = connection.execute(sa.text("SELECT price FROM prices WHERE id = 7")).scalar_one()
+        connection.execute(sa.text("UPDATE prices SET price = :p WHERE id = 7"), {"p": old + 1.0})
+    status, out, _ = _run(capsys, "audit", "verify", "--store", archive)
+    assert status == 1 and "first bad record: seq 2 (prices id 7): portfolio 'Fund North'" in out
+    assert "run 1's commitment (seq 2)" in out and "the ledger's 9 records verified" in out
+    with open_store(archive) as store, around_triggers(store) as connection:
+        connection.execute(sa.text("UPDATE prices SET price = :p WHERE id = 7"), {"p": old})
+        # a portfolio archived by a riskshape before commitments (no commitment of its own)
+        connection.execute(sa.text("INSERT INTO portfolios (name, created_at) VALUES ('Fund Old', '2030-01-01')"))
+    status, out, _ = _run(capsys, "audit", "verify", "--store", archive)
+    assert status == 1 and "'Fund Old' is not covered by any commitment" in out
+    status, out, _ = _run(capsys, "audit", "seal", "--store", archive)
+    assert status in (None, 0) and out.splitlines()[0] == CAUTION and "1 commitment(s) appended; head 10:" in out
+    status, out, _ = _run(capsys, "audit", "verify", "--store", archive)
+    assert status in (None, 0) and "ok: 10 records verified" in out
+
+
 def test_user_errors_are_one_line_and_status_2(
     archive: str, tmp_path: Path, capsys: pytest.CaptureFixture[str]
 ) -> None:
