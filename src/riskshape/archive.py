@@ -2,7 +2,8 @@
 
 :func:`archive_run` stores the run's prices (corrections where they differ from what is archived),
 its manifest, features, diagrams, and appends the alerts its rules raise (idempotently: a second
-run over the same data adds nothing; a run over new days adds only what is new).
+run over the same data adds nothing; a run over new days adds only what is new), all in one write
+transaction that ends with the run's chained commitment: a reader sees the whole run or none of it.
 
 :func:`recompute_run` is the one way back from the archive to a run's windows: it reads the
 prices the run saw and its configuration and recomputes the windows up to a date through
@@ -30,6 +31,7 @@ from riskshape.errors import ConfigError, RiskshapeError
 from riskshape.explain.archived import explanation_json
 from riskshape.prices import hash_prices
 from riskshape.store import AlertAppend, AlertRecord, Run, RunManifest, Store, WriteCount
+from riskshape.store.database import fault_point
 
 __all__ = [
     "RunReport",
@@ -148,7 +150,6 @@ def archive_run(
             f"archive_run: the configuration given (hash {config.hash()[:12]}) is not the one the result was "
             f"computed with (hash {result.config.hash()[:12]}); pass result.config or run monitor again"
         )
-    store.ensure_portfolio(portfolio)
     manifest = RunManifest(
         config=config.to_mapping(),
         config_hash=config.hash(),
@@ -156,20 +157,20 @@ def archive_run(
         package_version=result.package_version,
         source=source,
     )
-    held = set(store.window_ends(portfolio, manifest.config_hash))
-    run = store.create_run(portfolio, manifest, result.prices)
-    features = store.write_features(run.id, result.features)
-    dims = range(config.maxdim + 1)
-    fresh = [end for end in result.window_ends if end.date() not in held]
-    written = store.write_diagrams(run.id, ((end, k, result.diagram(end, k)) for end in fresh for k in dims))
-    skipped = (len(result.window_ends) - len(fresh)) * len(dims)  # archived already: kept, not compared
-    diagrams = WriteCount(added=written.added, existing=written.existing + skipped, differing=written.differing)
+    # Reads and rule evaluation first, outside the write lock; the writes below are idempotent, so a
+    # run archived by another writer in between only turns these into "existing" counts.
+    known = any(p.name == portfolio for p in store.list_portfolios())
+    held = set(store.window_ends(portfolio, manifest.config_hash)) if known else set()
     stamp = (raised_at or datetime.now(timezone.utc)).astimezone(timezone.utc)
-    archived = {
-        (a.rule, a.window_end)
-        for a in store.list_alerts(portfolio=portfolio, limit=None).items
-        if a.config_hash == manifest.config_hash
-    }
+    archived = (
+        {
+            (a.rule, a.window_end)
+            for a in store.list_alerts(portfolio=portfolio, limit=None).items
+            if a.config_hash == manifest.config_hash
+        }
+        if known
+        else set()
+    )
     firings = evaluate_rules(result.features, config.alerts.rules)
     new = [f for f in firings if (f.rule, f.window_end.date()) not in archived]
     alerts = [
@@ -184,7 +185,23 @@ def archive_run(
         )
         for f in new
     ]
-    appended = store.append_alerts(alerts, run.id)
+    dims = range(config.maxdim + 1)
+    fresh = [end for end in result.window_ends if end.date() not in held]
+    # One transaction: the run's prices, manifest, features, diagrams, alerts and its commitment are
+    # seen together or not at all (a crash anywhere inside leaves nothing of the run).
+    with store.transaction():
+        store.ensure_portfolio(portfolio)
+        fault_point("archive_run:portfolio")
+        run = store.create_run(portfolio, manifest, result.prices)
+        fault_point("archive_run:run")
+        features = store.write_features(run.id, result.features)
+        fault_point("archive_run:features")
+        written = store.write_diagrams(run.id, ((end, k, result.diagram(end, k)) for end in fresh for k in dims))
+        fault_point("archive_run:diagrams")
+        appended = store.append_alerts(alerts, run.id)
+        fault_point("archive_run:alerts")
+    skipped = (len(result.window_ends) - len(fresh)) * len(dims)  # archived already: kept, not compared
+    diagrams = WriteCount(added=written.added, existing=written.existing + skipped, differing=written.differing)
     already = appended.existing + len(firings) - len(new)  # found archived before explaining them
     return RunReport(
         run=run, features=features, diagrams=diagrams, alerts=AlertAppend(added=appended.added, existing=already)

@@ -54,4 +54,6 @@ def test_ingest_poll_review_verify_on_postgresql(pg_url: str, tmp_path) -> None:
         )
         assert review.status_code == 201 and review.json()["review"]["reviewer"] == "pg-admin"
         verified = cautioned(client.get("/v1/audit/verify", headers=admin))
-        assert verified["ok"] and verified["checked"] == len(ingested["alerts"]) + 1
+        with open_store(pg_url) as store:  # the chained events: commitments of the portfolio and runs, key events
+            events = len(store.list_events())
+        assert verified["ok"] and verified["checked"] == len(ingested["alerts"]) + 1 + events

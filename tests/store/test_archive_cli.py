@@ -22,7 +22,11 @@ from tests.kit.archive import around_triggers, make_alerts, manifest, walk_price
 
 @pytest.fixture
 def archive(tmp_path: Path, rng: np.random.Generator) -> str:
-    """A SQLite archive with 4 alerts (one on a portfolio whose name looks like a formula) and a review."""
+    """A SQLite archive with 4 alerts (one on a portfolio whose name looks like a formula) and a review.
+
+    Ledger: per portfolio, the commitments of the portfolio and of its run, then its 2 alerts (seq 1-8);
+    the review is seq 9.
+    """
     url = f"sqlite:///{tmp_path / 'cli.sqlite'}"
     with open_store(url) as store:
         for name in ("Fund North", "=HYPERLINK(1)"):
@@ -44,10 +48,10 @@ def _run(capsys: pytest.CaptureFixture[str], *argv: str) -> tuple[object, str, s
 
 def test_verify_and_head(archive: str, capsys: pytest.CaptureFixture[str]) -> None:
     status, out, _ = _run(capsys, "audit", "verify", "--store", archive)
-    assert status in (None, 0) and out.splitlines()[0] == CAUTION and "ok: 5 records verified" in out
+    assert status in (None, 0) and out.splitlines()[0] == CAUTION and "ok: 9 records verified" in out
     status, out, _ = _run(capsys, "audit", "head", "--store", archive)
     head = out.splitlines()[-1]
-    assert head.startswith("5:") and len(head) == 2 + 64
+    assert head.startswith("9:") and len(head) == 2 + 64
     status, out, _ = _run(capsys, "audit", "verify", "--store", archive, "--expect-head", head)
     assert status in (None, 0) and "matches the expected head" in out
 
@@ -59,14 +63,37 @@ def test_verify_fails_naming_the_first_bad_record(archive: str, capsys: pytest.C
             connection.execute(sa.text("UPDATE alerts SET rule = 'rule_b' WHERE id = 2"))
     status, out, _ = _run(capsys, "audit", "verify", "--store", archive)
     assert status == 1 and out.splitlines()[0] == CAUTION
-    assert "first bad record: seq 2 (alerts id 2)" in out
+    assert "first bad record: seq 4 (alerts id 2)" in out
     with open_store(archive) as store, around_triggers(store) as connection:
         connection.execute(sa.text("UPDATE alerts SET rule = 'rule_a' WHERE id = 2"))
         connection.execute(sa.text("DELETE FROM reviews"))
-        connection.execute(sa.text("DELETE FROM ledger WHERE seq = 5"))
+        connection.execute(sa.text("DELETE FROM ledger WHERE seq = 9"))
     assert _run(capsys, "audit", "verify", "--store", archive)[0] in (None, 0)  # the cut tail is invisible alone
     status, out, _ = _run(capsys, "audit", "verify", "--store", archive, "--expect-head", kept)
-    assert status == 1 and "seq 5" in out and "tail cut" in out
+    assert status == 1 and "seq 9" in out and "tail cut" in out
+
+
+def test_verify_names_a_covered_row_and_seal_covers_an_older_archive(
+    archive: str, capsys: pytest.CaptureFixture[str]
+) -> None:
+    status, out, _ = _run(capsys, "audit", "verify", "--store", archive)
+    assert "covered by them and checked: runs, prices, features, diagrams, portfolios, API keys" in out
+    with open_store(archive) as store, around_triggers(store) as connection:
+        old = connection.execute(sa.text("SELECT price FROM prices WHERE id = 7")).scalar_one()
+        connection.execute(sa.text("UPDATE prices SET price = :p WHERE id = 7"), {"p": old + 1.0})
+    status, out, _ = _run(capsys, "audit", "verify", "--store", archive)
+    assert status == 1 and "first bad record: seq 2 (prices id 7): portfolio 'Fund North'" in out
+    assert "run 1's commitment (seq 2)" in out and "the ledger's 9 records verified" in out
+    with open_store(archive) as store, around_triggers(store) as connection:
+        connection.execute(sa.text("UPDATE prices SET price = :p WHERE id = 7"), {"p": old})
+        # a portfolio archived by a riskshape before commitments (no commitment of its own)
+        connection.execute(sa.text("INSERT INTO portfolios (name, created_at) VALUES ('Fund Old', '2030-01-01')"))
+    status, out, _ = _run(capsys, "audit", "verify", "--store", archive)
+    assert status == 1 and "'Fund Old' is not covered by any commitment" in out
+    status, out, _ = _run(capsys, "audit", "seal", "--store", archive)
+    assert status in (None, 0) and out.splitlines()[0] == CAUTION and "1 commitment(s) appended; head 10:" in out
+    status, out, _ = _run(capsys, "audit", "verify", "--store", archive)
+    assert status in (None, 0) and "ok: 10 records verified" in out
 
 
 def test_user_errors_are_one_line_and_status_2(

@@ -13,7 +13,7 @@ import numpy as np
 import pytest
 import sqlalchemy as sa
 
-from riskshape.store import Store, verify_chain
+from riskshape.store import Store, chain_head, verify_chain
 from tests.kit.archive import make_alerts
 
 REPO = Path(__file__).resolve().parents[2]  # the writer runs as ``python -m tests.kit.archive_writer`` from here
@@ -46,6 +46,7 @@ def _ledger(store: Store) -> dict[tuple[str, int], int]:
 
 @pytest.mark.timeout(120)
 def test_sigkill_mid_writing_loses_no_committed_alert(store: Store, store_url: str, run, tmp_path: Path) -> None:
+    base = chain_head(store).count  # the commitments of the portfolio and its run
     errors = tmp_path / "writer.err"
     child = _writer(store_url, run.id, "crash_rule", 2_000, errors)  # far more than it gets to write
     assert child.stdout is not None
@@ -64,12 +65,14 @@ def test_sigkill_mid_writing_loses_no_committed_alert(store: Store, store_url: s
     assert len(archived) >= len(committed)  # at most the commit in flight is there but unprinted
     report = verify_chain(store)
     assert report.ok, report.first_bad
-    assert report.head.count == len(archived) and sorted(archived.values()) == list(range(1, len(archived) + 1))
+    assert report.head.count == base + len(archived)
+    assert sorted(archived.values()) == list(range(base + 1, base + len(archived) + 1))
 
 
 @pytest.mark.timeout(120)
 def test_two_writers_at_once_never_fork_the_chain(store: Store, store_url: str, run, tmp_path: Path) -> None:
     # Writer 1 is a child process, writer 2 is this test's process; both start on the same signal.
+    base = chain_head(store).count  # the commitments of the portfolio and its run
     go = tmp_path / "go"
     errors = tmp_path / "writer.err"
     child = _writer(store_url, run.id, "writer_1", 40, errors, go)
@@ -99,6 +102,6 @@ def test_two_writers_at_once_never_fork_the_chain(store: Store, store_url: str, 
     assert min(mine_seqs) < max(their_seqs) and min(their_seqs) < max(mine_seqs)
     archived = _ledger(store)
     assert archived == {(kind, i): seq for kind, i, seq in mine + theirs}
-    assert sorted(archived.values()) == list(range(1, 2 * 48 + 1))  # every place taken exactly once
+    assert sorted(archived.values()) == list(range(base + 1, base + 2 * 48 + 1))  # every place taken exactly once
     report = verify_chain(store)
-    assert report.ok and report.head.count == 2 * 48
+    assert report.ok and report.head.count == base + 2 * 48

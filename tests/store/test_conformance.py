@@ -16,7 +16,7 @@ from alembic.autogenerate import compare_metadata
 from alembic.runtime.migration import MigrationContext
 
 from riskshape.errors import ConflictError, DataError, NotFoundError, StoreError
-from riskshape.store import GENESIS_HASH, Store, open_store, verify_chain
+from riskshape.store import GENESIS_HASH, Store, chain_head, open_store, verify_chain
 from riskshape.store.schema import APPEND_ONLY_TABLES, metadata
 from tests.kit.archive import make_alerts, manifest, walk_prices
 
@@ -184,10 +184,12 @@ def test_diagrams_round_trip_as_float32(store: Store, run, rng: np.random.Genera
 
 def test_alerts_append_idempotent_and_chained(store: Store, run, rng: np.random.Generator) -> None:
     batch = make_alerts(rng, 6)
+    before = chain_head(store)  # the commitments of the portfolio and its run
+    assert before.count == 2 and before.head_hash != GENESIS_HASH
     first = store.append_alerts(batch, run.id)
     assert len(first.added) == 6 and first.existing == 0
-    assert first.added[0].prev_hash == GENESIS_HASH
-    assert [a.seq for a in first.added] == [1, 2, 3, 4, 5, 6]
+    assert first.added[0].prev_hash == before.head_hash
+    assert [a.seq for a in first.added] == [3, 4, 5, 6, 7, 8]
     assert all(b.prev_hash == a.entry_hash for a, b in zip(first.added, first.added[1:]))
     again = store.append_alerts(batch, run.id)
     assert again.added == () and again.existing == 6
@@ -250,18 +252,18 @@ def test_list_alerts_filters_and_paging(store: Store, run, rng: np.random.Genera
 def test_reviews_join_the_chain(store: Store, run, rng: np.random.Generator) -> None:
     alerts = store.append_alerts(make_alerts(rng, 2), run.id).added
     review = store.append_review(alerts[0].id, "escalate", "Reviewer Two", "needs a look")
-    assert review.seq == 3 and review.prev_hash == alerts[1].entry_hash
+    assert review.seq == 2 + 3 and review.prev_hash == alerts[1].entry_hash
     store.append_alerts(make_alerts(rng, 1, start="2031-05-01"), run.id)
     dismissal = store.append_review(alerts[0].id, "dismiss", "Reviewer Three")
     detail = store.get_alert(alerts[0].id)
     assert [r.action for r in detail.reviews] == ["escalate", "dismiss"]
-    assert detail.reviews[1] == dismissal and dismissal.seq == 5
+    assert detail.reviews[1] == dismissal and dismissal.seq == 2 + 5
     with pytest.raises(StoreError, match="acknowledge, dismiss, escalate"):
         store.append_review(alerts[0].id, "approve", "Reviewer Two")
     with pytest.raises(NotFoundError, match="alert 99"):
         store.append_review(99, "dismiss", "Reviewer Two")
     report = verify_chain(store)
-    assert report.ok and report.head.count == 5 and report.head.head_hash == dismissal.entry_hash
+    assert report.ok and report.head.count == 2 + 5 and report.head.head_hash == dismissal.entry_hash
 
 
 @pytest.mark.parametrize("table", APPEND_ONLY_TABLES)

@@ -12,7 +12,7 @@ from alembic.autogenerate import compare_metadata
 from alembic.migration import MigrationContext
 
 from riskshape.errors import NotFoundError, StoreError
-from riskshape.store import Run, Store, open_store, verify_chain
+from riskshape.store import Run, Store, catalog, open_store, pricebook, seal_archive, series, verify_chain
 from riskshape.store.database import _alembic_config, create_archive_engine, write_transaction
 from riskshape.store.events import event_payload
 from riskshape.store.schema import metadata
@@ -26,22 +26,23 @@ def test_events_share_the_ledger_and_verify(store: Store, run: Run, rng: np.rand
     )
     store.append_event("period_note", {"period": ["2030-01-01", "2030-03-31"], "count": 3})
     report = verify_chain(store)
-    assert report.ok and report.checked == 4
-    assert first.seq == 3 and first.portfolio_id is not None
+    assert report.ok and report.checked == 2 + 4  # after the commitments of the portfolio and its run
+    assert first.seq == 2 + 3 and first.portfolio_id is not None
     assert first.data == {"date": "2030-02-03", "share": 0.75}
-    assert [e.kind for e in store.list_events()] == ["day_closed", "period_note"]
-    assert [e.id for e in store.list_events(portfolio="Fund North")] == [first.id]
+    assert [e.kind for e in store.list_events()] == ["records_sealed", "records_sealed", "day_closed", "period_note"]
+    assert [e.id for e in store.list_events(kind="day_closed", portfolio="Fund North")] == [first.id]
     assert store.list_events(kind="day_closed", subject="2030-01-01") == ()
 
 
 def test_events_refuse_what_cannot_be_archived(store: Store, run: Run) -> None:
+    before = store.list_events()
     with pytest.raises(StoreError, match="event kind 'Day Closed'"):
         store.append_event("Day Closed", {})
     with pytest.raises(StoreError, match=r"payload\.share: nan is not a finite number"):
         store.append_event("day_closed", {"share": float("nan")})
     with pytest.raises(NotFoundError, match="portfolio 'Nowhere'"):
         store.append_event("day_closed", {}, portfolio="Nowhere")
-    assert store.list_events() == () and verify_chain(store).checked == 0  # nothing half-written
+    assert store.list_events() == before and verify_chain(store).checked == len(before)  # nothing half-written
 
 
 def test_payload_text_is_canonical() -> None:
@@ -69,15 +70,22 @@ def test_events_are_append_only(store: Store, run: Run) -> None:
         connection.execute(sa.text("UPDATE events SET actor = 'someone'"))
 
 
-def test_migration_from_0001_keeps_every_record(store_url: str, rng: np.random.Generator) -> None:
-    """An archive written at revision 0001 opens at 0002 with the same chain, and takes events."""
+def test_migration_from_0001_keeps_every_record(
+    store_url: str, rng: np.random.Generator, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    """An archive written at revision 0001 opens at 0002 with the same chain, and takes events; once
+    sealed (it was written before commitments), everything it holds verifies.
+    """
     engine = create_archive_engine(store_url)
     config = _alembic_config()
     with write_transaction(engine) as connection:
         config.attributes["connection"] = connection
         command.upgrade(config, "0001")
     engine.dispose()
-    # write records with the 0001 tables only (the store's ledger code reads no events table for appends)
+    # write records with the 0001 tables only (the store's ledger code reads no events table for appends),
+    # as a riskshape before commitments did: no records_sealed event (there is no events table yet)
+    for module in (catalog, pricebook, series):
+        monkeypatch.setattr(module, "mark_unsealed", lambda connection, portfolio_id: None)
     with _at_0001(store_url) as old:
         old.create_portfolio("Fund North")
         run = old.create_run("Fund North", manifest(), walk_prices(rng))
@@ -86,15 +94,19 @@ def test_migration_from_0001_keeps_every_record(store_url: str, rng: np.random.G
         old.append_review(alert_id, "escalate", "ana", "too close to the threshold")
         with old.engine.connect() as connection:
             before = connection.execute(sa.text("SELECT seq, entry_hash FROM ledger ORDER BY seq")).all()
+    monkeypatch.undo()
     with open_store(store_url) as upgraded:
         with upgraded.engine.connect() as connection:
             assert connection.execute(sa.text("SELECT seq, entry_hash FROM ledger ORDER BY seq")).all() == before
-        assert verify_chain(upgraded).ok and verify_chain(upgraded).checked == 4
+        unsealed = verify_chain(upgraded)
+        assert not unsealed.ok and unsealed.checked == 4 and "not covered" in unsealed.first_bad.reason
+        assert seal_archive(upgraded) == 1 and seal_archive(upgraded) == 0
+        assert verify_chain(upgraded).ok and verify_chain(upgraded).checked == 5
         with upgraded.engine.connect() as connection:  # the rebuilt tables are the models' tables (Alembic's diff)
             context = MigrationContext.configure(connection, opts={"compare_type": True})
             assert compare_metadata(context, metadata) == []
         upgraded.append_event("day_closed", {"date": "2030-02-03"}, portfolio="Fund North")
-        assert verify_chain(upgraded).ok and verify_chain(upgraded).checked == 5
+        assert verify_chain(upgraded).ok and verify_chain(upgraded).checked == 6
         # the rebuilt tables keep their append-only triggers and their foreign keys
         with pytest.raises(sa.exc.DBAPIError), write_transaction(upgraded.engine) as connection:
             connection.execute(sa.text("DELETE FROM reviews"))

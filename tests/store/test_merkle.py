@@ -5,6 +5,7 @@ from __future__ import annotations
 import hashlib
 
 import numpy as np
+import sqlalchemy as sa
 
 from riskshape.store import Store, verify_chain
 from riskshape.store.merkle import merkle_root
@@ -39,4 +40,7 @@ def test_empty_tree_is_the_hash_of_nothing() -> None:
 def test_verify_reports_the_root_of_the_entry_hashes(store: Store, run, rng: np.random.Generator) -> None:
     added = store.append_alerts(make_alerts(rng, 5), run.id).added
     report = verify_chain(store)
-    assert report.merkle_root == merkle_root([bytes.fromhex(a.entry_hash) for a in added])
+    with store.engine.connect() as connection:  # the two commitments (portfolio, run) come first
+        entries = connection.execute(sa.text("SELECT entry_hash FROM ledger ORDER BY seq")).scalars().all()
+    assert entries[2:] == [a.entry_hash for a in added] and len(entries) == 7
+    assert report.merkle_root == merkle_root([bytes.fromhex(h) for h in entries])

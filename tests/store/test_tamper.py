@@ -18,10 +18,13 @@ from riskshape.store import Store, chain_head, schema, verify_chain
 from riskshape.store.canonical import ALERT_FIELDS, REVIEW_FIELDS, entry_hash
 from tests.kit.archive import around_triggers, make_alerts
 
+OFFSET = 2
+"""Ledger records before the fixture's own: the commitments of the portfolio and of its run."""
+
 
 @pytest.fixture
 def ledger(store: Store, run, rng: np.random.Generator) -> Store:
-    """Seven records: alerts 1-5 (seq 1-5), a review of alert 2 (seq 6), alert 6 (seq 7)."""
+    """Seven records after the two commitments: alerts 1-5 (seq 3-7), a review of alert 2 (seq 8), alert 6 (seq 9)."""
     store.append_alerts(make_alerts(rng, 5), run.id)
     store.append_review(2, "acknowledge", "Reviewer One", "first look")
     store.append_alerts(make_alerts(rng, 1, start="2030-09-02"), run.id)
@@ -63,8 +66,8 @@ def _edit(store: Store, table: str, record_id: int, field: str, new: object = No
 @pytest.mark.parametrize(
     ("table", "record_id", "seq", "fields"),
     [
-        ("alerts", 4, 4, ALERT_FIELDS + ("entry_hash",)),
-        ("reviews", 1, 6, REVIEW_FIELDS + ("entry_hash",)),
+        ("alerts", 4, 4 + OFFSET, ALERT_FIELDS + ("entry_hash",)),
+        ("reviews", 1, 6 + OFFSET, REVIEW_FIELDS + ("entry_hash",)),
     ],
 )
 def test_changing_any_stored_field_is_caught(
@@ -86,26 +89,28 @@ def test_changing_any_stored_field_is_caught(
 
 def test_a_flipped_byte_in_a_hash_column_of_the_ledger_is_caught(ledger: Store) -> None:
     with around_triggers(ledger) as connection:
-        connection.execute(sa.text("UPDATE ledger SET entry_hash = :h WHERE seq = 3"), {"h": "0" * 64})
+        connection.execute(
+            sa.text("UPDATE ledger SET entry_hash = :h WHERE seq = :s"), {"h": "0" * 64, "s": 3 + OFFSET}
+        )
     report = verify_chain(ledger)
-    assert not report.ok and report.first_bad.seq == 3
+    assert not report.ok and report.first_bad.seq == 3 + OFFSET
     assert "ledger entry disagrees" in report.first_bad.reason
 
 
 @pytest.mark.parametrize("where", ["record only", "record and its ledger entry"])
 def test_a_deleted_record_is_caught(ledger: Store, where: str) -> None:
     with around_triggers(ledger) as connection:
-        connection.execute(sa.text("DELETE FROM alerts WHERE seq = 3"))
+        connection.execute(sa.text("DELETE FROM alerts WHERE seq = :s"), {"s": 3 + OFFSET})
         if where != "record only":
-            connection.execute(sa.text("DELETE FROM ledger WHERE seq = 3"))
+            connection.execute(sa.text("DELETE FROM ledger WHERE seq = :s"), {"s": 3 + OFFSET})
     report = verify_chain(ledger)
-    assert not report.ok and report.first_bad.seq == 3
+    assert not report.ok and report.first_bad.seq == 3 + OFFSET
     assert "deleted" in report.first_bad.reason
 
 
 def test_a_deleted_first_record_is_caught(ledger: Store) -> None:
     with around_triggers(ledger) as connection:
-        connection.execute(sa.text("DELETE FROM alerts WHERE seq = 1"))
+        connection.execute(sa.text("DELETE FROM events WHERE seq = 1"))  # the portfolio's commitment
         connection.execute(sa.text("DELETE FROM ledger WHERE seq = 1"))
     report = verify_chain(ledger)
     assert not report.ok and report.first_bad.seq == 1
@@ -119,7 +124,10 @@ def test_swapped_records_are_caught(ledger: Store) -> None:
             for r in connection.execute(sa.text("SELECT id, seq, prev_hash, entry_hash FROM alerts WHERE id IN (2, 3)"))
         }
         for table in ("alerts", "ledger"):
-            for seq, filler in ((2, "a"), (3, "b")):  # park both rows on free values (UNIQUE columns)
+            for seq, filler in (
+                (rows[2].seq, "a"),
+                (rows[3].seq, "b"),
+            ):  # park both rows on free values (UNIQUE columns)
                 connection.execute(
                     sa.text(f"UPDATE {table} SET seq = :tmp, prev_hash = :p, entry_hash = :h WHERE seq = :seq"),
                     {"tmp": seq + 1_000_000, "p": filler * 64, "h": filler.upper() * 63 + "0", "seq": seq},
@@ -135,7 +143,7 @@ def test_swapped_records_are_caught(ledger: Store) -> None:
                     },
                 )
     report = verify_chain(ledger)
-    assert not report.ok and report.first_bad.seq == 2
+    assert not report.ok and report.first_bad.seq == 2 + OFFSET
 
 
 def _forged(ledger: Store) -> dict[str, object]:
@@ -180,11 +188,11 @@ def test_a_cut_tail_is_caught_only_against_a_head_kept_elsewhere(ledger: Store) 
     kept = chain_head(ledger)
     assert verify_chain(ledger, expect_head=str(kept)).ok
     with around_triggers(ledger) as connection:
-        connection.execute(sa.text("DELETE FROM alerts WHERE seq = 7"))
-        connection.execute(sa.text("DELETE FROM ledger WHERE seq = 7"))
+        connection.execute(sa.text("DELETE FROM alerts WHERE seq = :s"), {"s": 7 + OFFSET})
+        connection.execute(sa.text("DELETE FROM ledger WHERE seq = :s"), {"s": 7 + OFFSET})
     assert verify_chain(ledger).ok  # a chain alone cannot see its tail cut
     by_count = verify_chain(ledger, expect_head=str(kept))
-    assert not by_count.ok and by_count.first_bad.seq == 7 and "tail cut" in by_count.first_bad.reason
+    assert not by_count.ok and by_count.first_bad.seq == 7 + OFFSET and "tail cut" in by_count.first_bad.reason
     by_hash = verify_chain(ledger, expect_head=kept.head_hash)
     assert not by_hash.ok and "not in the archive" in by_hash.first_bad.reason
 

@@ -5,7 +5,7 @@ from __future__ import annotations
 import click
 
 from riskshape import CAUTION
-from riskshape.store import chain_head, open_store, verify_chain
+from riskshape.store import chain_head, open_store, seal_archive, verify_chain
 from riskshape.types import ExecutorKind
 
 __all__ = ["audit", "STORE_OPTION"]
@@ -32,6 +32,10 @@ STORE_OPTION = click.option(
 )
 
 
+COVERED_TABLES = ("runs", "prices", "features", "diagrams", "portfolios", "api_keys")
+COVERED = "runs, prices, features, diagrams, portfolios, API keys"
+
+
 @click.group()
 def audit() -> None:
     """Check that the archive has not been tampered with, and reproduce archived alerts."""
@@ -46,18 +50,39 @@ def audit() -> None:
     help="A head printed earlier by 'riskshape audit head' (COUNT:HASH, or HASH): also catches a cut tail.",
 )
 def verify(store_url: str, expect_head: str | None) -> None:
-    """Recompute every hash of the ledger; exit 1 naming the first record that does not match."""
+    """Recompute every hash of the ledger and every commitment; exit 1 naming the first record that does not match."""
     click.echo(CAUTION)
     with open_store(store_url, create=False) as store:
         report = verify_chain(store, expect_head=expect_head)
     if report.ok:
         suffix = " and matches the expected head" if expect_head else ""
         click.echo(f"ok: {report.checked} records verified{suffix}; head {report.head}")
+        click.echo(f"covered by them and checked: {COVERED}")
         click.echo(f"merkle root (RFC 6962) of the {report.checked} records: {report.merkle_root}")
         return
     click.echo(f"FAILED: first bad record: {report.first_bad}")
-    click.echo(f"{report.checked} records before it verified (up to head {report.head})")
+    if report.first_bad is not None and report.first_bad.table in COVERED_TABLES:
+        click.echo(
+            f"the ledger's {report.checked} records verified (head {report.head}); this row breaks what they cover"
+        )
+        if report.first_bad.seq == 0 and "not covered" in report.first_bad.reason:
+            click.echo("an archive written before commitments existed: 'riskshape audit seal' covers it as it is now")
+    else:
+        click.echo(f"{report.checked} records before it verified (up to head {report.head})")
     raise click.exceptions.Exit(1)
+
+
+@audit.command()
+@STORE_OPTION
+def seal(store_url: str) -> None:
+    """Commit rows no chained record covers yet (once, for an archive written before commitments existed)."""
+    click.echo(CAUTION)
+    with open_store(store_url, create=False) as store:
+        added = seal_archive(store)
+        head = chain_head(store)
+    click.echo(f"{added} commitment(s) appended; head {head}")
+    if added:
+        click.echo("they vouch for the rows as they are now, not for their history before; keep the new head elsewhere")
 
 
 @audit.command()

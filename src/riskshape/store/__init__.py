@@ -43,6 +43,7 @@ if TYPE_CHECKING:
     from riskshape.store.store import chain_head as chain_head
     from riskshape.store.store import change_marker as change_marker
     from riskshape.store.store import open_store as open_store
+    from riskshape.store.store import seal_archive as seal_archive
     from riskshape.store.store import verify_chain as verify_chain
 
 _EXPORTS = {
@@ -51,6 +52,7 @@ _EXPORTS = {
     "open_store": "riskshape.store.store",
     "Store": "riskshape.store.store",
     "verify_chain": "riskshape.store.store",
+    "seal_archive": "riskshape.store.store",
     "chain_head": "riskshape.store.store",
     "change_marker": "riskshape.store.store",
     "ChangeMarker": "riskshape.store.markers",

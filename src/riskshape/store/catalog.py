@@ -15,6 +15,7 @@ from riskshape.errors import ConflictError, NotFoundError, StoreError
 from riskshape.store import schema as t
 from riskshape.store.database import read_transaction, write_transaction
 from riskshape.store.records import Portfolio, PriceWrite, Run, RunManifest
+from riskshape.store.seals import mark_unsealed
 from riskshape.types import PriceFrame
 
 __all__ = [
@@ -73,6 +74,7 @@ def _insert_portfolio(connection: Connection, name: str) -> Portfolio:
     now = datetime.now(timezone.utc)
     new_id = connection.execute(sa.insert(t.portfolios).values(name=name, created_at=now)).inserted_primary_key
     assert new_id is not None
+    mark_unsealed(connection, int(new_id[0]))
     return Portfolio(id=int(new_id[0]), name=name, created_at=now)
 
 
@@ -165,6 +167,7 @@ def create_run(engine: Engine, portfolio: str, manifest: RunManifest, prices: Pr
         }
         run_id = connection.execute(sa.insert(t.runs).values(**values)).inserted_primary_key
         assert run_id is not None
+        mark_unsealed(connection, pid)
         row = connection.execute(_run_query().where(t.runs.c.id == run_id[0])).one()
     return _run(row)
 

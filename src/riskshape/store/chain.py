@@ -6,6 +6,9 @@ swapped or renumbered (``prev_hash`` or the hash breaks), a row inserted around 
 row whose hash is not the hash of its content. A chain alone cannot see records cut off its tail,
 nor a well-formed record appended by someone who follows the algorithm: compare against a head
 kept elsewhere (``expect_head``; RFC 9162 calls such a commitment a tree head).
+
+Once the chain verifies, the rows it covers through commitments (runs, prices, features,
+diagrams, portfolios) and the API keys are checked against it (:mod:`riskshape.store.coverage`).
 """
 
 from __future__ import annotations
@@ -21,6 +24,7 @@ from sqlalchemy.engine import Connection
 from riskshape.errors import AuditError
 from riskshape.store import schema as t
 from riskshape.store.canonical import entry_hash
+from riskshape.store.coverage import check_coverage
 from riskshape.store.merkle import merkle_root
 from riskshape.store.records import GENESIS_HASH, BadRecord, Head, VerifyReport
 
@@ -164,6 +168,9 @@ def verify_ledger(connection: Connection, expect_head: str | None = None) -> Ver
         problem = _against(expected, head, hashes_at)
         if problem is not None:
             return VerifyReport(ok=False, checked=checked, head=head, first_bad=problem, merkle_root=root)
+    problem = check_coverage(connection)
+    if problem is not None:
+        return VerifyReport(ok=False, checked=checked, head=head, first_bad=problem, merkle_root=root)
     return VerifyReport(ok=True, checked=checked, head=head, first_bad=None, merkle_root=root)
 
 

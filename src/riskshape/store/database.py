@@ -9,12 +9,21 @@ start with ``BEGIN IMMEDIATE`` and hold the write lock *before* it reads the led
 PostgreSQL: a write transaction first takes a transaction-scoped advisory lock
 (``pg_advisory_xact_lock``) keyed by the current schema; the ledger's UNIQUE ``seq`` and
 ``prev_hash`` are the second line of defence against a fork.
+
+Write transactions nest: inside an open write transaction of an engine (in the same thread or
+task), :func:`write_transaction` and :func:`read_transaction` on that engine join it instead of
+opening another, so a whole run (its prices, summaries, diagrams, alerts and chained records)
+commits at once or not at all (``Store.transaction``). Work registered with
+:func:`before_commit` runs once, at the end of the outermost transaction, before it commits (the
+commitments of :mod:`riskshape.store.seals`).
 """
 
 from __future__ import annotations
 
-from collections.abc import Iterator
+from collections.abc import Callable, Iterator
 from contextlib import contextmanager
+from contextvars import ContextVar
+from dataclasses import dataclass, field
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
@@ -36,6 +45,9 @@ __all__ = [
     "schema_revision",
     "head_revision",
     "archive_exists",
+    "before_commit",
+    "fault_point",
+    "set_fault_hook",
 ]
 
 WRITE_OPTION = "riskshape_write"
@@ -111,13 +123,60 @@ def _configure_sqlite(engine: Engine) -> None:
         connection.exec_driver_sql("BEGIN IMMEDIATE" if write else "BEGIN")
 
 
+@dataclass
+class _Unit:
+    """The open write transaction of an engine in this thread or task, and its work before commit."""
+
+    engine: Engine
+    connection: Connection
+    pending: dict[object, Callable[[Connection], None]] = field(default_factory=dict)
+
+
+_UNIT: ContextVar[_Unit | None] = ContextVar("riskshape_write_unit", default=None)
+_FAULT_HOOK: list[Callable[[str], None]] = []
+
+
+def set_fault_hook(hook: Callable[[str], None] | None) -> None:
+    """Install (or with None remove) a function called with the name of each :func:`fault_point`.
+
+    For fault-injection tests only: a test's child process installs a hook that pauses or kills
+    the process at a named point inside the archive's writes. Nothing installs one otherwise.
+    """
+    _FAULT_HOOK.clear()
+    if hook is not None:
+        _FAULT_HOOK.append(hook)
+
+
+def fault_point(name: str) -> None:
+    """A named point inside the archive's writes where a fault-injection test may stop the process."""
+    for hook in _FAULT_HOOK:
+        hook(name)
+
+
+def before_commit(connection: Connection, key: object, work: Callable[[Connection], None]) -> None:
+    """Run ``work(connection)`` once at the end of the outermost write transaction, before it commits.
+
+    Work registered twice under the same ``key`` runs once. Raises StoreError outside a write
+    transaction.
+    """
+    unit = _UNIT.get()
+    if unit is None or unit.connection is not connection:
+        raise StoreError("archive writes must run inside write_transaction (a riskshape defect: please report it)")
+    unit.pending.setdefault(key, work)
+
+
 @contextmanager
 def write_transaction(engine: Engine) -> Iterator[Connection]:
     """A transaction that holds the archive's write lock from its first statement.
 
     SQLite: ``BEGIN IMMEDIATE``. PostgreSQL: ``pg_advisory_xact_lock``, released at commit or
-    rollback. Commits on normal exit, rolls back on an exception.
+    rollback. Commits on normal exit, rolls back on an exception. Inside another write
+    transaction of the same engine it joins that one (which commits or rolls back everything).
     """
+    outer = _UNIT.get()
+    if outer is not None and outer.engine is engine:
+        yield outer.connection
+        return
     with engine.connect() as connection:
         connection.execution_options(**{WRITE_OPTION: True})
         with connection.begin():
@@ -125,7 +184,16 @@ def write_transaction(engine: Engine) -> Iterator[Connection]:
                 connection.execute(
                     sa.text("SELECT pg_advisory_xact_lock(:key, hashtext(current_schema()))"), {"key": LOCK_KEY}
                 )
-            yield connection
+            unit = _Unit(engine, connection)
+            token = _UNIT.set(unit)
+            try:
+                yield connection
+                while unit.pending:
+                    key = next(iter(unit.pending))
+                    unit.pending.pop(key)(connection)
+                fault_point("commit")
+            finally:
+                _UNIT.reset(token)
 
 
 @contextmanager
@@ -161,7 +229,14 @@ def _migration_transaction(engine: Engine) -> Iterator[Connection]:
 
 @contextmanager
 def read_transaction(engine: Engine) -> Iterator[Connection]:
-    """A read transaction (one consistent snapshot on SQLite; statement snapshots on PostgreSQL)."""
+    """A read transaction (one consistent snapshot on SQLite; statement snapshots on PostgreSQL).
+
+    Inside a write transaction of the same engine it reads through that one (seeing its writes).
+    """
+    outer = _UNIT.get()
+    if outer is not None and outer.engine is engine:
+        yield outer.connection
+        return
     with engine.connect() as connection, connection.begin():
         yield connection
 

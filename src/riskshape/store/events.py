@@ -18,7 +18,7 @@ from datetime import datetime, timezone
 from typing import Any
 
 import sqlalchemy as sa
-from sqlalchemy.engine import Engine
+from sqlalchemy.engine import Connection, Engine
 
 from riskshape.errors import NotFoundError, StoreError
 from riskshape.store import schema as t
@@ -27,7 +27,7 @@ from riskshape.store.database import read_transaction, write_transaction
 from riskshape.store.ledger import ledger_head
 from riskshape.store.records import EventRecord, Head
 
-__all__ = ["append_event", "list_events", "event_payload", "EventCheck"]
+__all__ = ["append_event", "append_event_on", "list_events", "event_payload", "EventCheck"]
 
 EventCheck = Callable[[Head], Mapping[str, object] | None]
 """Called with the ledger head inside the write transaction, before an event is appended; it raises
@@ -89,7 +89,6 @@ def append_event(
         if text is not None and (not isinstance(text, str) or not text.strip() or len(text) > 200):
             raise StoreError(f"event {name} must be a non-empty text of at most 200 characters, got {text!r}")
     payload = event_payload(data)
-    recorded = (now or datetime.now(timezone.utc)).astimezone(timezone.utc)
     with write_transaction(engine) as connection:
         portfolio_id = None
         if portfolio is not None:
@@ -98,30 +97,62 @@ def append_event(
             ).scalar()
             if portfolio_id is None:
                 raise NotFoundError(f"portfolio {portfolio!r} is not in the archive")
-        seq, prev = ledger_head(connection)
-        if check is not None:
-            seen = check(Head(count=seq, head_hash=prev))
-            if seen:
-                payload = event_payload({**data, **seen})
-        next_id = int(connection.execute(sa.select(sa.func.coalesce(sa.func.max(t.events.c.id), 0))).scalar_one()) + 1
-        row: dict[str, Any] = {
-            "id": next_id,
-            "seq": seq + 1,
-            "prev_hash": prev,
-            "kind": kind,
-            "portfolio_id": portfolio_id,
-            "portfolio": portfolio,
-            "subject": subject,
-            "payload": payload,
-            "actor": actor,
-            "recorded_at": recorded,
-        }
-        row["entry_hash"] = entry_hash("events", row)
-        connection.execute(
-            sa.insert(t.ledger),
-            {"seq": row["seq"], "kind": "event", "prev_hash": prev, "entry_hash": row["entry_hash"]},
+        return append_event_on(
+            connection,
+            kind,
+            payload,
+            portfolio=portfolio,
+            portfolio_id=portfolio_id,
+            subject=subject,
+            actor=actor,
+            now=now,
+            check=(None if check is None else lambda head: _merged(data, check(head))),
         )
-        connection.execute(sa.insert(t.events), row)
+
+
+def _merged(data: Mapping[str, object], seen: Mapping[str, object] | None) -> str | None:
+    return event_payload({**data, **seen}) if seen else None
+
+
+def append_event_on(
+    connection: Connection,
+    kind: str,
+    payload: str,
+    *,
+    portfolio: str | None = None,
+    portfolio_id: int | None = None,
+    subject: str | None = None,
+    actor: str | None = None,
+    now: datetime | None = None,
+    check: Callable[[Head], str | None] | None = None,
+) -> EventRecord:
+    """Append one event inside an open write transaction (``payload`` from :func:`event_payload`).
+
+    ``check`` may return a replacement payload text (or None to keep it).
+    """
+    recorded = (now or datetime.now(timezone.utc)).astimezone(timezone.utc)
+    seq, prev = ledger_head(connection)
+    if check is not None:
+        payload = check(Head(count=seq, head_hash=prev)) or payload
+    next_id = int(connection.execute(sa.select(sa.func.coalesce(sa.func.max(t.events.c.id), 0))).scalar_one()) + 1
+    row: dict[str, Any] = {
+        "id": next_id,
+        "seq": seq + 1,
+        "prev_hash": prev,
+        "kind": kind,
+        "portfolio_id": portfolio_id,
+        "portfolio": portfolio,
+        "subject": subject,
+        "payload": payload,
+        "actor": actor,
+        "recorded_at": recorded,
+    }
+    row["entry_hash"] = entry_hash("events", row)
+    connection.execute(
+        sa.insert(t.ledger),
+        {"seq": row["seq"], "kind": "event", "prev_hash": prev, "entry_hash": row["entry_hash"]},
+    )
+    connection.execute(sa.insert(t.events), row)
     return EventRecord(**row)
 
 

@@ -11,17 +11,30 @@ from __future__ import annotations
 import hashlib
 from collections.abc import Sequence
 
-__all__ = ["merkle_root"]
+__all__ = ["merkle_root", "leaf_hash", "root_of_leaf_hashes"]
 
 
-def _mth(leaves: Sequence[bytes]) -> bytes:
-    n = len(leaves)
-    if n == 0:
-        return hashlib.sha256(b"").digest()
-    if n == 1:
-        return hashlib.sha256(b"\x00" + leaves[0]).digest()
-    k = 1 << ((n - 1).bit_length() - 1)  # largest power of two < n
-    return hashlib.sha256(b"\x01" + _mth(leaves[:k]) + _mth(leaves[k:])).digest()
+def leaf_hash(data: bytes) -> bytes:
+    """RFC 6962's hash of one leaf: SHA-256(0x00 || data)."""
+    return hashlib.sha256(b"\x00" + data).digest()
+
+
+def root_of_leaf_hashes(hashes: Sequence[bytes]) -> str:
+    """The Merkle Tree Hash (hex) of leaves given by their :func:`leaf_hash` values.
+
+    Built level by level from the leaves up: pairing neighbours and carrying an unpaired last node up
+    unchanged gives the same tree as RFC 6962's split at the largest power of two below n (the left
+    subtree is always complete), without recursion.
+    """
+    if not hashes:
+        return hashlib.sha256(b"").hexdigest()
+    level = list(hashes)
+    while len(level) > 1:
+        paired = [hashlib.sha256(b"\x01" + level[i] + level[i + 1]).digest() for i in range(0, len(level) - 1, 2)]
+        if len(level) % 2:
+            paired.append(level[-1])
+        level = paired
+    return level[0].hex()
 
 
 def merkle_root(leaves: Sequence[bytes]) -> str:
@@ -50,4 +63,4 @@ def merkle_root(leaves: Sequence[bytes]) -> str:
     >>> merkle_root([a, b, c]) == sha(b"\x01" + left + sha(b"\x00" + c)).hex()
     True
     """
-    return _mth(leaves).hex()
+    return root_of_leaf_hashes([leaf_hash(leaf) for leaf in leaves])

@@ -19,6 +19,7 @@ from sqlalchemy.engine import Connection
 from riskshape.prices import ValidPrices, ensure_valid
 from riskshape.store import schema as t
 from riskshape.store.records import PriceCorrection, PriceWrite
+from riskshape.store.seals import mark_unsealed
 
 __all__ = ["validated", "append_prices", "read_prices", "list_corrections", "max_price_id", "INDEX_UNIT"]
 
@@ -130,6 +131,7 @@ def _bulk_insert(
     """
     if not rows:
         return
+    mark_unsealed(connection, portfolio_id)
     columns = "portfolio_id, date, asset, price, revision, recorded_at"
     params: list[tuple[object, ...]]
     if connection.dialect.name == "sqlite":

@@ -348,7 +348,11 @@ class Head:
 
 @dataclass(frozen=True)
 class BadRecord:
-    """The first ledger record that does not verify, and why."""
+    """The first record that does not verify, and why.
+
+    ``seq`` is the ledger record (an alert, review, event or the commitment covering the row) where the
+    problem was found; 0 for a row that no chained record covers.
+    """
 
     seq: int
     table: str
@@ -357,6 +361,8 @@ class BadRecord:
 
     def __str__(self) -> str:
         ident = f" id {self.record_id}" if self.record_id is not None else ""
+        if self.seq == 0:  # a row outside the ledger that no chained record covers
+            return f"{self.table}{ident}: {self.reason}"
         return f"seq {self.seq} ({self.table}{ident}): {self.reason}"
 
 

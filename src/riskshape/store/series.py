@@ -29,6 +29,7 @@ from riskshape.store.knowledge import current_version, known_runs
 from riskshape.store.ledger import to_date
 from riskshape.store.pricebook import INDEX_UNIT
 from riskshape.store.records import Diagram, FeaturesPage, WriteCount
+from riskshape.store.seals import mark_unsealed
 from riskshape.types import Diagram as DiagramArray
 
 __all__ = ["write_features", "read_features", "window_ends", "write_diagrams", "read_diagram", "latest_config_hash"]
@@ -90,6 +91,7 @@ def write_features(engine: Engine, run_id: int, features: pd.DataFrame, supersed
         ]
         if rows:
             connection.execute(sa.insert(f), rows)
+            mark_unsealed(connection, pid)
     fresh = len(rows) - (len(differs) if supersede else 0)
     return WriteCount(added=len(rows), existing=len(ends) - fresh - len(differs), differing=len(differs))
 
@@ -195,6 +197,7 @@ def write_diagrams(
         ]
         if rows:
             connection.execute(sa.insert(d), rows)
+            mark_unsealed(connection, pid)
     fresh = len(rows) - (len(differs) if supersede else 0)
     return WriteCount(added=len(rows), existing=len(prepared) - fresh - len(differs), differing=len(differs))
 

@@ -1,6 +1,7 @@
 """The archive: :func:`open_store` and the :class:`Store` with its typed repository methods.
 
-Every method runs in its own transaction; writes hold the archive's write lock (see
+Every method runs in its own transaction, or inside :meth:`Store.transaction` when one is open (so
+several writes commit together); writes hold the archive's write lock (see
 :mod:`riskshape.store.database`). Database failures surface as :class:`~riskshape.errors.StoreError`
 (a constraint violation as :class:`~riskshape.errors.ConflictError`).
 """
@@ -8,7 +9,8 @@ Every method runs in its own transaction; writes hold the archive's write lock (
 from __future__ import annotations
 
 import functools
-from collections.abc import Callable, Iterable, Mapping, Sequence
+from collections.abc import Callable, Iterable, Iterator, Mapping, Sequence
+from contextlib import contextmanager
 from datetime import date, datetime, timezone
 from typing import TYPE_CHECKING, ParamSpec, TypeVar
 
@@ -56,7 +58,7 @@ if TYPE_CHECKING:
 # The price book and the series (pandas, numpy) load with the first method that reads or writes
 # them, so the commands that read only alerts, reviews and the chain start quickly.
 
-__all__ = ["Store", "open_store", "verify_chain", "chain_head", "change_marker"]
+__all__ = ["Store", "open_store", "verify_chain", "chain_head", "change_marker", "seal_archive"]
 
 P = ParamSpec("P")
 R = TypeVar("R")
@@ -102,6 +104,33 @@ class Store:
     def close(self) -> None:
         """Release the database connections."""
         self.engine.dispose()
+
+    @contextmanager
+    def transaction(self) -> Iterator[Store]:
+        """One write transaction around several of this store's writes: all of them commit, or none.
+
+        Holds the archive's write lock from the start; every write method called inside (in the
+        same thread) joins it, and reads inside see its writes. Each portfolio written gets one
+        commitment (``records_sealed``) just before the commit. An exception rolls everything back.
+
+        Yields
+        ------
+        Store
+            This store.
+
+        Examples
+        --------
+        >>> with store.transaction():  # doctest: +SKIP
+        ...     run = store.create_run("Fund North", manifest, prices)
+        ...     store.write_features(run.id, features)
+        """
+        try:
+            with write_transaction(self.engine):
+                yield self
+        except sa.exc.IntegrityError as err:
+            raise ConflictError(f"transaction: the archive refused the write ({_one_line(err)})") from None
+        except sa.exc.SQLAlchemyError as err:
+            raise StoreError(f"transaction: database error ({_one_line(err)})") from None
 
     @property
     def dialect(self) -> str:
@@ -531,6 +560,29 @@ def verify_chain(store: Store, expect_head: str | None = None) -> VerifyReport:
     """
     with read_transaction(store.engine) as connection:
         return verify_ledger(connection, expect_head)
+
+
+@_database_errors
+def seal_archive(store: Store) -> int:
+    """Commit every row not yet covered by a commitment (once, after upgrading an archive written
+    before commitments existed; riskshape's own writes seal themselves).
+
+    The commitments vouch for the rows as they are now, not for what happened to them before.
+
+    Parameters
+    ----------
+    store : Store
+        An open archive.
+
+    Returns
+    -------
+    int
+        Commitments appended (0 when everything was covered already).
+    """
+    from riskshape.store.seals import seal_all
+
+    with write_transaction(store.engine) as connection:
+        return seal_all(connection)
 
 
 @_database_errors
