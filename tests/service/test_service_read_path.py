@@ -296,12 +296,23 @@ def test_the_fast_path_answers_as_the_endpoint_does(client: TestClient, auth: Au
     second = client.get(LATEST, headers=auth("reader"))  # answered from the prepared bytes
     assert context.markers.reads == reads + 1  # still one change-marker read for the request
     assert second.content == first.content and second.headers["ETag"] == first.headers["ETag"]
-    for header in ("Content-Type", "Cache-Control", "Vary", "X-Riskshape-Caution"):
+    for header in ("Content-Type", "Cache-Control", "Vary", "X-Riskshape-Caution", "X-Riskshape-Known-At"):
         assert second.headers[header] == first.headers[header]
+
+    def headers_of(response: object) -> dict[str, str]:  # every header but the request's own id
+        return {k: v for k, v in response.headers.items() if k != "x-request-id"}  # type: ignore[attr-defined]
+
+    assert headers_of(second) == headers_of(first)  # the same header set as the endpoint's
+    etag = {"If-None-Match": first.headers["ETag"]}
+    fast_304 = client.get(LATEST, headers=auth("reader") | etag)
+    routed_304 = client.get(LATEST, params={"x": "1"}, headers=auth("reader") | etag)  # a query: the endpoint
+    assert fast_304.status_code == routed_304.status_code == 304
+    assert headers_of(fast_304) == headers_of(routed_304) and fast_304.content == routed_304.content == b""
     with_query = client.get(LATEST, params={"x": "1"}, headers=auth("reader"))
     assert with_query.status_code == 200 and with_query.content == first.content
     metrics = client.get("/metrics", headers=auth("admin")).text
     assert 'route="/v1/portfolios/{name}/latest",status="200"} 3.0' in metrics.replace("_total", "")
+    assert 'route="/v1/portfolios/{name}/latest",status="304"} 2.0' in metrics.replace("_total", "")
     for headers in ({}, {"X-Riskshape-Key": "nope.nope"}, auth("reader") | {"X-Riskshape-Key": "x" * 300}):
         refused = client.get(LATEST, headers=headers)
         assert refused.status_code == 401 and "ETag" not in refused.headers
