@@ -1,12 +1,14 @@
 """Start-up of the quick commands: ``riskshape --version``, ``alerts list`` and ``audit head`` on a
-10,000-alert archive, each timed against ``python -c pass`` in the same run (``farm-bench --vs``).
+10,000-alert archive, each timed against ``python -c pass`` in the same run.
 
 1. builds (or reuses, with ``--archive``) a SQLite archive of fictional portfolios holding
    ``--alerts`` alerts on the chain (20 portfolios, one run each; the alerts are written through
    :meth:`riskshape.store.Store.append_alerts`, as a run writes them);
-2. for each command, runs ``farm-bench -n RUNS --vs '<python> -c pass' -- <riskshape> ...``: the
-   two commands alternate and the ratio is taken pair by pair, so it keeps its meaning on a busy
-   machine; ``farm-bench`` prints the medians (wall, cpu, peak memory) and the ratio;
+2. for each command, starts it and ``python -c pass`` in turn (``--runs`` pairs after one
+   warm-up pair), each a fresh process timed from outside: CPU is the operating system's user +
+   system seconds of the finished child (``os.wait4``), wall a monotonic clock around it. The
+   ratio is taken pair by pair, so it keeps its meaning on a busy machine; the medians are printed
+   with min and max;
 3. prints the machine load (``uptime``) before and after.
 
     python benchmarks/cli_start.py --runs 10
@@ -20,11 +22,13 @@ from __future__ import annotations
 
 import argparse
 import hashlib
+import os
 import shlex
-import shutil
+import statistics
 import subprocess
 import sys
 import tempfile
+import time
 from datetime import datetime, timedelta, timezone
 from pathlib import Path
 
@@ -90,6 +94,38 @@ def _uptime() -> str:
     return subprocess.run(["uptime"], capture_output=True, text=True, check=False).stdout.strip()
 
 
+def time_process(command: list[str]) -> tuple[float, float]:
+    """(CPU seconds, wall seconds) of one run of ``command``, its output thrown away; exits non-zero stop."""
+    began = time.perf_counter()
+    child = subprocess.Popen(command, stdin=subprocess.DEVNULL, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
+    _, status, usage = os.wait4(child.pid, 0)
+    wall = time.perf_counter() - began
+    assert child.stderr is not None
+    errors = child.stderr.read().decode(errors="replace").strip()
+    child.stderr.close()
+    if status != 0:
+        raise SystemExit(f"{shlex.join(command)} failed ({status}): {errors}")
+    return usage.ru_utime + usage.ru_stime, wall
+
+
+def _spread(values: list[float]) -> str:
+    return f"{statistics.median(values):.3f} ({min(values):.3f} to {max(values):.3f})"
+
+
+def compare(command: list[str], baseline: list[str], runs: int) -> None:
+    """Run ``command`` and ``baseline`` in turn ``runs`` times (after a warm-up pair) and print the figures."""
+    time_process(command), time_process(baseline)
+    pairs = [(time_process(command), time_process(baseline)) for _ in range(runs)]
+    cpu = [a[0] for a, _ in pairs]
+    wall = [a[1] for a, _ in pairs]
+    base = [b[0] for _, b in pairs]
+    ratio = [a[0] / b[0] for a, b in pairs]
+    print(f"  CPU s  median (min to max): {_spread(cpu)}")
+    print(f"  wall s median (min to max): {_spread(wall)}")
+    print(f"  python -c pass, CPU s:      {_spread(base)}")
+    print(f"  ratio to python -c pass:    {_spread(ratio)} (pair by pair)")
+
+
 def main(argv: list[str] | None = None) -> int:
     """Build the archive and time the commands; see the module notes."""
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
@@ -97,25 +133,22 @@ def main(argv: list[str] | None = None) -> int:
     parser.add_argument("--runs", type=int, default=10, help="timed pairs per command (default 10)")
     parser.add_argument("--archive", type=Path, default=None, help="keep the archive here (reused if it exists)")
     args = parser.parse_args(argv)
-    if shutil.which("farm-bench") is None:
-        raise SystemExit("farm-bench is not on PATH")
     print(CAUTION)
     with tempfile.TemporaryDirectory(prefix="riskshape-cli-") as folder:
         path = args.archive or Path(folder) / "alerts.sqlite"
         url = f"sqlite:///{path}" if path.exists() else build_archive(path, args.alerts)
         riskshape = str(Path(sys.executable).with_name("riskshape"))
-        baseline = f"{shlex.quote(sys.executable)} -c pass"
+        baseline = [sys.executable, "-c", "pass"]
         commands = (
             [riskshape, "--version"],
             [riskshape, "alerts", "list", "--store", url],
             [riskshape, "audit", "head", "--store", url],
         )
-        print(f"archive: {url} ({args.alerts} alerts)")
+        print(f"archive: {url} ({args.alerts} alerts); {args.runs} pairs per command")
         print(f"load before: {_uptime()}")
         for command in commands:
-            line = ["farm-bench", "-n", str(args.runs), "--vs", baseline, "--", *command]
-            print(f"\n$ {shlex.join(line)}", flush=True)
-            subprocess.run(line, check=False)
+            print(f"\n$ {shlex.join(command)}", flush=True)
+            compare(command, baseline, args.runs)
         print(f"\nload after: {_uptime()}")
     return 0
 

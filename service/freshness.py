@@ -3,8 +3,16 @@ is under way share the next read, which starts after all of them arrived.
 
 So each request still gets a marker read from the archive *after* it arrived -- a write committed
 before the request, through any worker, is seen -- while many concurrent pollers of one portfolio
-cost one query per round rather than one each (like a group commit, for reads). The reads run in
-the thread pool; the rounds are kept on the event loop.
+cost one query per round rather than one each (like a group commit, for reads). The rounds are
+kept on the event loop. A round starts on the loop's next turn, so every request that arrived in
+this turn joins it.
+
+Where the read runs: on a SQLite archive, on the event loop itself. The marker is one indexed
+query on a local file (about 0.07 ms); SQLite's WAL mode never makes a reader wait for a writer.
+Sent to the thread pool instead, the read waited for the GIL behind the loop's own work (up to the
+interpreter's 5 ms switch interval, several times a query) while every request of the round, and
+so the loop, sat idle: in-process, 64 concurrent pollers got twice the throughput with the read
+inline. On PostgreSQL the read is a network round trip and stays in the thread pool.
 """
 
 from __future__ import annotations
@@ -66,7 +74,10 @@ class MarkerRounds:
                 future, rounds.waiting = rounds.waiting, None  # later arrivals wait for the next round
                 self.reads += 1
                 try:
-                    marker = await run_in_threadpool(change_marker, store, portfolio)
+                    if store.dialect == "sqlite":
+                        marker = change_marker(store, portfolio)  # see the module notes
+                    else:
+                        marker = await run_in_threadpool(change_marker, store, portfolio)
                 except Exception as err:  # handed to every request of the round (404, 503, ...)
                     future.set_exception(err)
                 except BaseException:  # cancelled (the app stops): no request waits for ever

@@ -23,9 +23,9 @@ from __future__ import annotations
 
 import json
 import logging
+import random
 import re
 import time
-import uuid
 from typing import Any
 from urllib.parse import urlsplit
 
@@ -47,6 +47,7 @@ __all__ = [
     "JsonDepthMiddleware",
     "SAFETY_HEADERS",
     "json_depth",
+    "new_request_id",
 ]
 
 CAUTION_HEADER = "X-Riskshape-Caution"
@@ -79,6 +80,14 @@ def error_body(detail: str, request_id: str, **more: Any) -> dict[str, Any]:
     return {"detail": detail, "request_id": request_id, **more, "caution": CAUTION}
 
 
+def new_request_id() -> str:
+    """A fresh request id: 32 random hex digits (uuid4's length; from :func:`random.getrandbits`,
+    reseeded in each forked process, as ids need to be unique, not secret, and ``uuid4`` reads the
+    operating system's entropy on every request).
+    """
+    return f"{random.getrandbits(128):032x}"
+
+
 def _route_label(scope: Scope) -> str:
     route = scope.get("route")
     path = getattr(route, "path", None)
@@ -105,6 +114,17 @@ class RequestContextMiddleware:
         self.metrics = metrics
         self.max_body_bytes = max_body_bytes
         self.cors_origins = frozenset(o.rstrip("/") for o in cors_origins)
+        self._instruments: dict[tuple[str, str, int], tuple[Any, Any]] = {}
+
+    def _observe(self, method: str, route: str, code: int, elapsed: float) -> None:
+        """Count the request and its latency (each label set's instruments looked up once, then kept)."""
+        key = (method, route, code)
+        held = self._instruments.get(key)
+        if held is None:  # bounded: methods, route templates and status codes are finite sets
+            held = (self.metrics.requests.labels(method, route, str(code)), self.metrics.latency.labels(method, route))
+            self._instruments[key] = held
+        held[0].inc()
+        held[1].observe(elapsed)
 
     async def __call__(self, scope: Scope, receive: Receive, send: Send) -> None:
         """Serve one ASGI connection; HTTP requests get the id, caution, limit, log and metrics."""
@@ -113,7 +133,7 @@ class RequestContextMiddleware:
             return
         headers = Headers(scope=scope)
         given = headers.get(REQUEST_ID_HEADER, "")
-        request_id = given if _GOOD_ID.match(given) else uuid.uuid4().hex
+        request_id = given if _GOOD_ID.match(given) else new_request_id()
         scope.setdefault("state", {})["request_id"] = request_id
         token = REQUEST_ID.set(request_id)
         started = time.perf_counter()
@@ -189,21 +209,21 @@ class RequestContextMiddleware:
             route = _route_label(scope)
             method = str(scope.get("method", "-"))
             method = method if method in _METHODS else "other"  # bounded label values
-            self.metrics.requests.labels(method, route, str(status["code"])).inc()
-            self.metrics.latency.labels(method, route).observe(elapsed)
-            caller = scope.get("state", {}).get("caller")
-            log.info(
-                "request",
-                extra={
-                    "method": method,
-                    "path": scope.get("path"),
-                    "route": route,
-                    "status": status["code"],
-                    "duration_ms": round(elapsed * 1000, 3),
-                    "key_id": getattr(caller, "key_id", None),
-                    "client": (scope.get("client") or ("-",))[0],
-                },
-            )
+            self._observe(method, route, int(status["code"]), elapsed)
+            if log.isEnabledFor(logging.INFO):  # the access log (off below info, as under the benchmark)
+                caller = scope.get("state", {}).get("caller")
+                log.info(
+                    "request",
+                    extra={
+                        "method": method,
+                        "path": scope.get("path"),
+                        "route": route,
+                        "status": status["code"],
+                        "duration_ms": round(elapsed * 1000, 3),
+                        "key_id": getattr(caller, "key_id", None),
+                        "client": (scope.get("client") or ("-",))[0],
+                    },
+                )
             REQUEST_ID.reset(token)
 
     @staticmethod

@@ -16,6 +16,7 @@ matching tag gets ``304 Not Modified`` and no body (the caution header is on eve
 
 from __future__ import annotations
 
+import functools
 import hashlib
 import threading
 from collections import OrderedDict
@@ -52,6 +53,7 @@ def _tag(*parts: object) -> str:
     return f'"{digest[:40]}"'
 
 
+@functools.lru_cache(maxsize=1024)  # a marker stands for many requests (every poller of its round)
 def latest_etag(marker: ChangeMarker) -> str:
     """The strong ETag of a portfolio's latest state: its runs, windows and the ledger head."""
     return _tag("latest", marker.portfolio, marker.series_key, marker.days_key, marker.ledger_count, marker.ledger_hash)

@@ -16,7 +16,7 @@ from starlette.concurrency import run_in_threadpool
 from starlette.responses import RedirectResponse, Response
 
 import riskshape.reviews as reviews
-from riskshape import ConflictError, DataError, NotFoundError, RiskshapeError, reproduce_alert
+from riskshape import ConflictError, DataError, NotFoundError, RiskshapeError, reproduce_alert, reproduce_alert_now
 from riskshape.outputs import collect_review, export_alerts, render_html
 from riskshape.outputs.palette import SEVERITIES
 from riskshape.selection import to_period
@@ -107,6 +107,8 @@ def make_router() -> APIRouter:
         problem: str = "",
         status_code: int = 200,
         reproduced: object = None,
+        known_now: object = None,
+        known_now_problem: str = "",
         typed: dict[str, str] | None = None,
     ) -> Response:
         store = store_of(request)
@@ -135,6 +137,8 @@ def make_router() -> APIRouter:
             message=message,
             problem=problem,
             reproduced=reproduced,
+            known_now=known_now,
+            known_now_problem=known_now_problem,
             typed=typed or {},
         )
 
@@ -173,11 +177,22 @@ def make_router() -> APIRouter:
             session = check_form(session, form, Permission.read)
         except Refusal as refusal:
             return refuse(refusal, session)
+        store = store_of(request)
         try:
-            report = await _run(reproduce_alert, store_of(request), alert_id)
+            report = await _run(reproduce_alert, store, alert_id)
         except RiskshapeError as err:
             return await alert_page(request, session, alert_id, problem=str(err), status_code=status_of(err))
-        return await alert_page(request, session, alert_id, reproduced=report)
+        # As known now: over the prices after every later correction (whether it would still fire).
+        # The confirmation above stands on its own, so a failure here is shown beside it.
+        now: object = None
+        now_problem = ""
+        try:
+            now = await _run(reproduce_alert_now, store, alert_id)
+        except RiskshapeError as err:
+            now_problem = str(err)
+        return await alert_page(
+            request, session, alert_id, reproduced=report, known_now=now, known_now_problem=now_problem
+        )
 
     @router.get("/audit")
     async def audit(request: Request) -> Response:

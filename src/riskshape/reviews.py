@@ -30,7 +30,7 @@ from typing import cast, get_args
 
 from riskshape.errors import AccessError, ConflictError, DataError
 from riskshape.selection import Period, split_names, to_period
-from riskshape.store import AlertRecord, Head, ReviewRecord, Store
+from riskshape.store import AlertPage, AlertRecord, Head, ReviewRecord, Store
 from riskshape.types import AlertStatus
 
 __all__ = [
@@ -372,23 +372,97 @@ def list_queue(
     ------
     DataError
         If a status is unknown, a date or moment unreadable, ``start`` after ``end``, or paging negative.
+
+    Notes
+    -----
+    Only the reviewed alerts are read in full (their statuses come from their reviews through
+    :func:`status_of`); the alerts without reviews, open by the same definition, are counted and
+    paged in the archive, so a page costs about the same on 100 alerts or 100,000.
     """
     if (limit is not None and limit < 0) or offset < 0:
         raise DataError(f"paging: limit and offset must not be negative, got limit={limit}, offset={offset}")
-    wanted = _statuses(status)
+    wanted = _statuses(status) or STATUSES
     period = to_period(start, end)
-    rows = _matching(store, split_names(portfolio), split_names(severity), split_names(rule), period, as_known_at)
-    items = [
-        QueueItem(alert=a, status=status_of(rs), last_review=rs[-1] if rs else None, n_reviews=len(rs))
-        for a, rs in rows
-    ]
-    counts = _count([i.status for i in items])
-    if wanted is not None:
-        items = [i for i in items if i.status in wanted]
-    rank = {s: n for n, s in enumerate(STATUSES)}
-    items.sort(key=lambda i: (rank[i.status], -i.alert.window_end.toordinal(), i.alert.id))
-    page = items[offset:] if limit is None else items[offset : offset + limit]
-    return QueuePage(items=tuple(page), total=len(items), offset=offset, counts=counts)
+    query = _QueueQuery(store, split_names(portfolio), split_names(severity), split_names(rule), period, as_known_at)
+    # Only reviewed alerts are read in full: an alert without reviews is open (status_of of no
+    # reviews), so the unreviewed ones are counted and paged in the archive.
+    reviewed = query.reviewed_items()
+    n_unreviewed = query.count_unreviewed()
+    counts = _count([i.status for i in reviewed])
+    counts[status_of(())] += n_unreviewed
+    shown = sorted((i for i in reviewed if i.status in wanted), key=_queue_order)
+    reviewed_open = [i for i in shown if i.status == "open"]
+    rest = shown[len(reviewed_open) :]  # open sorts first
+    n_open = n_unreviewed + len(reviewed_open) if "open" in wanted else 0
+    total = n_open + len(rest)
+    stop = total if limit is None else min(total, offset + limit)
+    page: list[QueueItem] = []
+    if offset < n_open:
+        page.extend(query.open_slice(reviewed_open, offset, min(stop, n_open)))
+    page.extend(rest[max(0, offset - n_open) : max(0, stop - n_open)])
+    return QueuePage(items=tuple(page), total=total, offset=offset, counts=counts)
+
+
+_RANK: dict[AlertStatus, int] = {s: n for n, s in enumerate(STATUSES)}
+
+
+def _queue_order(item: QueueItem) -> tuple[int, int, int]:
+    """The queue's order: by status (open first), then newest window first, then id."""
+    return (_RANK[item.status], -item.alert.window_end.toordinal(), item.alert.id)
+
+
+@dataclass(frozen=True)
+class _QueueQuery:
+    """The queue's filters, and the archive reads that page it."""
+
+    store: Store
+    portfolios: tuple[str, ...] | None
+    severities: tuple[str, ...] | None
+    rules: tuple[str, ...] | None
+    period: Period
+    as_known_at: object
+
+    def _alerts(self, reviewed: bool, limit: int | None, offset: int = 0) -> AlertPage:
+        return self.store.list_alerts(
+            portfolio=self.portfolios,
+            since=self.period.start,
+            until=self.period.end,
+            severity=self.severities,
+            rule=self.rules,
+            reviewed=reviewed,
+            limit=limit,
+            offset=offset,
+            as_known_at=self.as_known_at,
+            newest_first=True,
+        )
+
+    def reviewed_items(self) -> list[QueueItem]:
+        """Every matching alert with a review (by ``as_known_at``), its status from its reviews."""
+        alerts = self._alerts(True, None).items
+        by_alert: dict[int, list[ReviewRecord]] = {a.id: [] for a in alerts}
+        for review in self.store.list_reviews(list(by_alert), as_known_at=self.as_known_at) if alerts else ():
+            by_alert[review.alert_id].append(review)
+        return [
+            QueueItem(alert=a, status=status_of(rs), last_review=rs[-1] if rs else None, n_reviews=len(rs))
+            for a in alerts
+            for rs in (by_alert[a.id],)
+        ]
+
+    def count_unreviewed(self) -> int:
+        """How many matching alerts have no review (by ``as_known_at``)."""
+        return self._alerts(False, 0).total
+
+    def open_slice(self, reviewed_open: Sequence[QueueItem], low: int, high: int) -> list[QueueItem]:
+        """Items ``low`` to ``high`` (exclusive) of the open part of the queue.
+
+        The open part is the unreviewed alerts (read from the archive in the queue's order) merged
+        with the reviewed alerts whose reviews leave them open (``reviewed_open``, sorted).
+        """
+        skip = low if not reviewed_open else 0  # merged with others, the page's start is not known in advance
+        page = self._alerts(False, high - skip, skip).items
+        unreviewed = [QueueItem(alert=a, status=status_of(()), last_review=None, n_reviews=0) for a in page]
+        merged = sorted([*unreviewed, *reviewed_open], key=_queue_order)
+        return merged[low - skip : high - skip]
 
 
 def sign_off(

@@ -104,3 +104,25 @@ def test_the_quick_read_probe_sees_pandas_where_a_command_reads_prices(tmp_path)
     )
     out = subprocess.run([sys.executable, "-c", probe], capture_output=True, text=True, check=True, timeout=120)
     assert out.stdout.strip().splitlines()[-1] == "True"
+
+
+def test_the_program_leaves_its_objects_to_the_exit_and_a_caller_keeps_its_collector(tmp_path) -> None:
+    # Run as the program (no argv: sys.argv), main freezes what the imports made so the shutdown
+    # does not walk it; called with arguments in a caller's process, it leaves gc alone.
+    url = f"sqlite:///{tmp_path / 'a.sqlite'}"
+    subprocess.run(
+        [sys.executable, "-c", f"from riskshape.store import open_store; open_store({url!r}).close()"],
+        check=True,
+        timeout=120,
+    )
+    frozen = {}
+    for how, call in (("program", "sys.argv = ['riskshape'] + ARGS; main()"), ("caller", "main(ARGS)")):
+        probe = (
+            f"import gc, sys\nfrom riskshape.cli import main\nARGS = ['alerts', 'list', '--store', {url!r}]\n"
+            f"{call}\nprint(gc.get_freeze_count())"
+        )
+        out = subprocess.run([sys.executable, "-c", probe], capture_output=True, text=True, check=True, timeout=120)
+        assert "decision aid" in out.stdout  # the command ran and printed its caution
+        frozen[how] = int(out.stdout.strip().splitlines()[-1])
+    assert frozen["caller"] == 0
+    assert frozen["program"] > 10_000

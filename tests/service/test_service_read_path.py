@@ -200,6 +200,71 @@ def test_key_cache_rechecks_after_its_time_and_keeps_only_digests(store_url: str
     assert held == [token_digest(token)] and token not in held
 
 
+def test_a_key_in_use_is_checked_ahead_of_expiry_once(store_url: str, keys: dict[str, str]) -> None:
+    clock = _Clock()
+    cache = KeyCache(recheck_seconds=1.0, clock=clock)
+    token = keys["reader"]
+    with open_store(store_url) as store:
+        assert cache.fresh_and_due(token) == (None, False)  # never checked: nothing to renew
+        key = cache.check(store, token)
+        assert cache.fresh_and_due(token) == (key, False)  # young
+        clock.now += 0.5
+        assert cache.fresh_and_due(token) == (key, True)  # half-way: one caller checks it again
+        assert cache.fresh_and_due(token) == (key, False)  # the others do not
+        clock.now += 0.4
+        assert cache.fresh_and_due(token) == (key, False)  # still handed out, not done yet
+        store.revoke_api_key(key.key_id)
+        assert cache.check(store, token).revoked  # type: ignore[union-attr]  # the check ahead sees it
+        assert cache.fresh_and_due(token)[0].revoked  # type: ignore[union-attr]
+        clock.now += 0.5
+        assert cache.fresh_and_due(token)[1]  # due again after the new check's half-way
+
+        class Broken:
+            def lookup_api_key(self, token: str) -> None:
+                raise RuntimeError("archive gone")
+
+        with pytest.raises(RuntimeError):
+            cache.check(Broken(), token)  # type: ignore[arg-type]
+        assert cache.fresh_and_due(token)[1]  # a failed check hands the renewal out again
+        clock.now += 0.5
+        assert cache.fresh_and_due(token) == (None, False)  # never trusted past the recheck time
+
+
+def test_polling_latest_never_falls_to_the_slow_path_and_revocation_still_holds(
+    make_settings: Callable[..., object], keys: dict[str, str], store_url: str, scenario_prices: pd.DataFrame
+) -> None:
+    recheck = 0.3
+    app = create_app(make_settings(key_recheck_seconds=recheck))  # type: ignore[arg-type]
+    headers = {"X-Riskshape-Key": keys["reader"]}
+    with TestClient(app) as client:
+        created = client.post("/v1/portfolios", json={"name": "alpha"}, headers={"X-Riskshape-Key": keys["admin"]})
+        assert created.status_code == 201
+        client.post(
+            "/v1/portfolios/alpha/prices",
+            content=csv_body(scenario_prices.iloc[:N_FIRST]),
+            headers={"X-Riskshape-Key": keys["ingest"], "Content-Type": "text/csv"},
+        ).raise_for_status()
+        assert client.get(LATEST, headers=headers).status_code == 200  # checks the key, prepares the body
+        context = app.state.context
+        slow, checks = [], []
+        fresh, check = context.keys.fresh, context.keys.check
+        context.keys.fresh = lambda token: slow.append(1) or fresh(token)  # only the endpoint asks this
+        context.keys.check = lambda store, token: checks.append(1) or check(store, token)
+        until = time.monotonic() + 4 * recheck
+        while time.monotonic() < until:
+            assert client.get(LATEST, headers=headers).status_code == 200
+        assert slow == [] and len(checks) >= 3  # checked ahead, in the background, every half-period
+        with open_store(store_url) as store:
+            store.revoke_api_key(keys["reader"].split(".", 1)[0])
+        revoked_at = time.monotonic()
+        answers = []
+        while time.monotonic() < revoked_at + 2 * recheck:
+            sent = time.monotonic()
+            answers.append((sent - revoked_at, client.get(LATEST, headers=headers).status_code))
+        late = [status for after, status in answers if after >= recheck]
+        assert late and set(late) == {401}  # refused by every request sent past the recheck time
+
+
 def test_a_revoked_key_is_refused_within_the_recheck_time(
     make_settings: Callable[..., object], keys: dict[str, str], store_url: str
 ) -> None:
@@ -232,12 +297,23 @@ def test_the_fast_path_answers_as_the_endpoint_does(client: TestClient, auth: Au
     second = client.get(LATEST, headers=auth("reader"))  # answered from the prepared bytes
     assert context.markers.reads == reads + 1  # still one change-marker read for the request
     assert second.content == first.content and second.headers["ETag"] == first.headers["ETag"]
-    for header in ("Content-Type", "Cache-Control", "Vary", "X-Riskshape-Caution"):
+    for header in ("Content-Type", "Cache-Control", "Vary", "X-Riskshape-Caution", "X-Riskshape-Known-At"):
         assert second.headers[header] == first.headers[header]
+
+    def headers_of(response: object) -> dict[str, str]:  # every header but the request's own id
+        return {k: v for k, v in response.headers.items() if k != "x-request-id"}  # type: ignore[attr-defined]
+
+    assert headers_of(second) == headers_of(first)  # the same header set as the endpoint's
+    etag = {"If-None-Match": first.headers["ETag"]}
+    fast_304 = client.get(LATEST, headers=auth("reader") | etag)
+    routed_304 = client.get(LATEST, params={"x": "1"}, headers=auth("reader") | etag)  # a query: the endpoint
+    assert fast_304.status_code == routed_304.status_code == 304
+    assert headers_of(fast_304) == headers_of(routed_304) and fast_304.content == routed_304.content == b""
     with_query = client.get(LATEST, params={"x": "1"}, headers=auth("reader"))
     assert with_query.status_code == 200 and with_query.content == first.content
     metrics = client.get("/metrics", headers=auth("admin")).text
     assert 'route="/v1/portfolios/{name}/latest",status="200"} 3.0' in metrics.replace("_total", "")
+    assert 'route="/v1/portfolios/{name}/latest",status="304"} 2.0' in metrics.replace("_total", "")
     for headers in ({}, {"X-Riskshape-Key": "nope.nope"}, auth("reader") | {"X-Riskshape-Key": "x" * 300}):
         refused = client.get(LATEST, headers=headers)
         assert refused.status_code == 401 and "ETag" not in refused.headers

@@ -6,6 +6,7 @@ User errors (any :class:`riskshape.errors.RiskshapeError`) end with one line on 
 
 from __future__ import annotations
 
+import gc
 import importlib
 import sys
 from typing import Any
@@ -65,7 +66,10 @@ def cli() -> None:
 
 
 def main(argv: list[str] | None = None) -> Any:
-    """Entry point: run the CLI, turning riskshape's own errors into one line and exit status 2."""
+    """Entry point: run the CLI, turning riskshape's own errors into one line and exit status 2.
+
+    Without ``argv`` (the console script) the process is taken to exit after the command.
+    """
     from riskshape.compute import keep_blas_pinned
 
     keep_blas_pinned()  # this process is riskshape's own (see keep_blas_pinned)
@@ -83,3 +87,11 @@ def main(argv: list[str] | None = None) -> Any:
     except KeyboardInterrupt:
         click.echo("riskshape: interrupted", err=True)
         sys.exit(130)
+    finally:
+        if argv is None:
+            # Run as the program (arguments from sys.argv), which exits next: spare the
+            # interpreter's shutdown from walking every object the imports made (SQLAlchemy's
+            # cost about 0.1 s of a 0.45 s `alerts list`). Frozen objects are left to the
+            # operating system; files and the archive were closed by the command's `with` blocks.
+            # Called in-process with arguments (tests, scripts), the caller's collector is left alone.
+            gc.freeze()

@@ -243,18 +243,24 @@ def review_from_row(row: Any) -> ReviewRecord:
     return ReviewRecord(**{name: m[name] for name in ReviewRecord.__dataclass_fields__})
 
 
+def _listed(values: str | Sequence[str]) -> list[str]:
+    """One value or several, as a list (for an ``IN`` condition)."""
+    return [values] if isinstance(values, str) else list(values)
+
+
 def list_alerts(
     engine: Engine,
     *,
-    portfolio: str | None = None,
+    portfolio: str | Sequence[str] | None = None,
     since: object = None,
     until: object = None,
     severity: str | Sequence[str] | None = None,
-    rule: str | None = None,
+    rule: str | Sequence[str] | None = None,
     reviewed: bool | None = None,
     limit: int | None = 100,
     offset: int = 0,
     as_known_at: datetime | None = None,
+    newest_first: bool = False,
 ) -> AlertPage:
     """Alerts matching the filters. See :meth:`riskshape.store.Store.list_alerts`."""
     if limit is not None and limit < 0 or offset < 0:
@@ -262,16 +268,15 @@ def list_alerts(
     a = t.alerts
     conditions: list[Any] = []
     if portfolio is not None:
-        conditions.append(a.c.portfolio == portfolio)
+        conditions.append(a.c.portfolio.in_(_listed(portfolio)))
     if since is not None:
         conditions.append(a.c.window_end >= to_date(since, "since"))
     if until is not None:
         conditions.append(a.c.window_end <= to_date(until, "until"))
     if severity is not None:
-        levels = [severity] if isinstance(severity, str) else list(severity)
-        conditions.append(a.c.severity.in_(levels))
+        conditions.append(a.c.severity.in_(_listed(severity)))
     if rule is not None:
-        conditions.append(a.c.rule == rule)
+        conditions.append(a.c.rule.in_(_listed(rule)))
     if as_known_at is not None:
         conditions.append(a.c.run_id.in_(known_runs(as_known_at)))
     if reviewed is not None:
@@ -283,7 +288,8 @@ def list_alerts(
     with read_transaction(engine) as connection:
         total = int(connection.execute(sa.select(sa.func.count()).select_from(a).where(where)).scalar_one())
         columns = [a.c[name] for name in _ALERT_FIELDS]  # in the record's order: built by position
-        query = sa.select(*columns).where(where).order_by(a.c.window_end, a.c.id).offset(offset)
+        newest = a.c.window_end.desc() if newest_first else a.c.window_end
+        query = sa.select(*columns).where(where).order_by(newest, a.c.id).offset(offset)
         if limit is not None:
             query = query.limit(limit)
         items = tuple(AlertRecord(*r) for r in connection.execute(query))

@@ -371,19 +371,23 @@ class Store:
     def list_alerts(
         self,
         *,
-        portfolio: str | None = None,
+        portfolio: str | Sequence[str] | None = None,
         since: object = None,
         until: object = None,
         severity: str | Sequence[str] | None = None,
-        rule: str | None = None,
+        rule: str | Sequence[str] | None = None,
         reviewed: bool | None = None,
         limit: int | None = 100,
         offset: int = 0,
         as_known_at: object = None,
+        newest_first: bool = False,
     ) -> AlertPage:
-        """Alerts by window end (then id). ``since``/``until`` bound the window end (inclusive);
-        ``reviewed`` True/False keeps alerts with / without any review. With ``as_known_at`` (see
-        :meth:`read_features`), only the alerts of runs recorded by then (and reviews made by then).
+        """Alerts by window end (then id; ``newest_first``: latest window end first, then id).
+
+        ``portfolio``, ``severity`` and ``rule`` keep alerts with one of the values given;
+        ``since``/``until`` bound the window end (inclusive); ``reviewed`` True/False keeps alerts
+        with / without any review. With ``as_known_at`` (see :meth:`read_features`), only the alerts
+        of runs recorded by then (and reviews made by then). ``limit=0`` counts without reading.
         """
         return ledger.list_alerts(
             self.engine,
@@ -396,6 +400,7 @@ class Store:
             limit=limit,
             offset=offset,
             as_known_at=to_known_at(as_known_at),
+            newest_first=newest_first,
         )
 
     @_database_errors

@@ -9,8 +9,11 @@ import json
 import pandas as pd
 from fastapi.testclient import TestClient
 
+from riskshape import reproduce_alert_now
 from riskshape.caution import CAUTION
 from riskshape.outputs import palette
+from riskshape.store import open_store
+from tests.kit.service import csv_body
 from tests.service.console.conftest import PORTFOLIO, sign_in
 
 
@@ -112,3 +115,46 @@ def test_a_refused_form_keeps_what_was_typed(client: TestClient, keys: dict[str,
     assert no_comment.status_code == 422 and '<option value="dismiss" selected>' in no_comment.text
     kept = client.post(f"/console/alerts/{first}/review", data={"action": "close", "comment": typed, "csrf": csrf})
     assert kept.status_code == 409 and f">{typed}</textarea>" in kept.text  # close does not apply to an open alert
+
+
+def _reproduced(client: TestClient, csrf: str, alert_id: int) -> str:
+    page = client.post(f"/console/alerts/{alert_id}/reproduce", data={"csrf": csrf})
+    assert page.status_code == 200, page.text[:500]
+    assert CAUTION in page.text
+    return page.text
+
+
+def test_reproduce_shows_the_alert_as_known_then_and_now(
+    client: TestClient, keys: dict[str, str], loaded: int, store_url: str, scenario_prices: pd.DataFrame
+) -> None:
+    # The reference for "now" is riskshape.reproduce_alert_now on the same archive (itself checked
+    # against a fresh monitor run in tests/test_hindsight.py); the page must say what it says.
+    csrf = sign_in(client, keys["reviewer"])
+    reader = {"X-Riskshape-Key": keys["reader"]}
+    alert = client.get("/v1/alerts", params={"portfolio": PORTFOLIO}, headers=reader).json()["items"][0]
+    with open_store(store_url) as store:
+        before = reproduce_alert_now(store, alert["id"])
+    shown = _reproduced(client, csrf, alert["id"])
+    assert "As known when it was raised" in shown and "Matches: every check passed" in shown
+    assert "As known now" in shown and "0 price correction(s) since it was raised" in shown
+    assert before.verdict in shown and "(unchanged)" in before.verdict
+    assert "agrees with the recomputation" in shown
+
+    # One price of the alert's day corrected through the API: then still confirms, now follows it.
+    day = pd.Timestamp(alert["window_end"])
+    asset = scenario_prices.loc[day].dropna().index[0]
+    fixed = scenario_prices.loc[[day], [asset]] * 1.25
+    answer = client.post(
+        f"/v1/portfolios/{PORTFOLIO}/prices",
+        params={"correction": "true"},
+        content=csv_body(fixed),
+        headers={"X-Riskshape-Key": keys["ingest"], "Content-Type": "text/csv"},
+    )
+    assert answer.status_code == 200 and answer.json()["corrections"] == 1, answer.text
+    with open_store(store_url) as store:
+        after = reproduce_alert_now(store, alert["id"])
+    assert after.corrections == 1 and after.changed  # the correction moved the window's value
+    shown = _reproduced(client, csrf, alert["id"])
+    assert "Matches: every check passed" in shown  # as known then: the prices its run saw
+    assert "1 price correction(s) since it was raised" in shown and after.verdict in shown
+    assert before.verdict not in shown
