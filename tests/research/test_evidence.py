@@ -116,6 +116,16 @@ def test_point_estimates_are_the_event_studys(demo) -> None:
     assert table["p_auc_null"].between(1 / 3, 1).all()  # two surrogates: p is 1/3, 2/3 or 1
 
 
+def test_one_event_gives_no_interval_for_what_rests_on_events(demo) -> None:
+    # the demo's stress regime is one event: a resample holds it or not, so a hit rate's interval would be [1, 1]
+    features, events = demo
+    table = evidence_table(features, events, columns=["h0_entropy"], horizon=60, n_boot=20, n_surrogates=0)
+    row = table.loc["h0_entropy"]
+    assert row["covered"] == 1 and np.isfinite(row["hit_rate"])
+    assert np.isnan([row["hit_rate_low"], row["f1_high"], row["mean_lead_days_low"], row["precision_low"]]).all()
+    assert np.isfinite([row["auc_low"], row["false_alarms_per_year_low"]]).all()
+
+
 def test_alerts_scored_before_a_day_do_not_depend_on_what_follows(demo) -> None:
     # no look-ahead: the alert rules are causal, so changing the signal after day T leaves every alert
     # at or before T, hence every alert record up to T, as it was
@@ -221,4 +231,4 @@ def test_anchor_verdicts_follow_the_intervals() -> None:
     verdicts = compare_with_anchor(table)  # anchor: F1 0.50, hit rate 2/4, lead 34 days
     assert verdicts.loc["a"].tolist() == ["better", "cannot tell", "better"]  # 0.5 sits on the interval's end
     assert verdicts.loc["b"].tolist() == ["worse", "cannot tell", "cannot tell"]
-    assert verdicts.loc["c"].tolist() == ["no estimate", "worse", "out of reach"]
+    assert verdicts.loc["c"].tolist() == ["no interval", "worse", "out of reach"]

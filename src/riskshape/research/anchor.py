@@ -11,8 +11,8 @@ better when the whole confidence interval lies on the better side of the anchor 
 rate and lead), worse when it lies wholly on the other, cannot tell when the interval holds the
 anchor (the anchor has no interval of its own, so it is taken as a point). A lead time cannot
 exceed the study's horizon (a hit is an alert within ``horizon`` days before the start), so with a
-horizon below the anchor's lead the verdict on lead is **out of reach**; a NaN interval gives
-**no estimate**.
+horizon below the anchor's lead the verdict on lead is **out of reach**; a NaN interval (no
+estimate, or too few events for one: ``evidence_table``'s ``min_events``) gives **no interval**.
 """
 
 from __future__ import annotations
@@ -61,7 +61,7 @@ PUBLISHED_ANCHOR = PublishedAnchor(
 
 def _verdict(low: float, high: float, anchor: float) -> str:
     if not (np.isfinite(low) and np.isfinite(high)):
-        return "no estimate"
+        return "no interval"
     if low > anchor:
         return "better"
     if high < anchor:

@@ -59,6 +59,7 @@ __all__ = [
 EVIDENCE_MEASURES: tuple[str, ...] = ("hit_rate", "mean_lead_days", "false_alarms_per_year", "precision", "f1", "auc")
 """The measures :func:`evidence_table` gives with intervals, in its columns' order."""
 
+_RESTS_ON_EVENTS = ("hit_rate", "mean_lead_days", "precision", "f1")
 _FIELDS = ("score", "label", "n_true", "n_false", "n_covered", "n_covered_hit", "n_hit", "lead_sum")
 _SKIPPED = ("n_assets", "n_left_out", "base_n_assets")
 
@@ -247,6 +248,7 @@ def evidence_table(
     bootstrap: BootstrapKind = "stationary",
     confidence: float = 0.95,
     n_surrogates: int = 99,
+    min_events: int = 3,
     seed: int = 0,
 ) -> pd.DataFrame:
     """Each column's lead time, hit rate, false alarms per year, precision, F1 and AUC with intervals.
@@ -273,6 +275,11 @@ def evidence_table(
         Coverage of the percentile intervals.
     n_surrogates : int
         IAAFT surrogates per column for the null (0: none).
+    min_events : int
+        Fewer covered events than this and the intervals of the measures that rest on events
+        (hit rate, mean lead, precision, F1) are NaN: a resample holds each event or not, so with
+        one event the interval is a point (``[1, 1]`` for a hit) and says nothing. The point
+        estimates stay.
     seed : int
         Seeds the bootstrap and the surrogates (one stream per column, in order).
 
@@ -284,7 +291,7 @@ def evidence_table(
         ``p_auc`` (bootstrap, AUC > 0.5), ``n_boot_auc`` (replicates with both labels);
         ``auc_null_median``, ``auc_null_q95``, ``f1_null_median``, ``p_auc_null`` (surrogates;
         NaN when ``n_surrogates`` is 0); and the settings: ``horizon``, ``block_days``,
-        ``block_rows``, ``bootstrap``, ``n_boot``, ``n_surrogates``, ``confidence``.
+        ``block_rows``, ``bootstrap``, ``n_boot``, ``n_surrogates``, ``confidence``, ``min_events``.
 
     Raises
     ------
@@ -344,6 +351,9 @@ def evidence_table(
             )
             null = _null(signal, events, rule, direction, horizon, post_event_days, n_surrogates, rng)
         low, high = boot.interval(confidence)
+        if study.n_covered < min_events:
+            for measure in _RESTS_ON_EVENTS:
+                low[EVIDENCE_MEASURES.index(measure)] = high[EVIDENCE_MEASURES.index(measure)] = np.nan
         row: dict[str, object] = {
             "direction": direction,
             "events": len(study.per_event),
@@ -373,6 +383,7 @@ def evidence_table(
             n_boot=n_boot,
             n_surrogates=n_surrogates,
             confidence=confidence,
+            min_events=min_events,
         )
         rows.append(pd.Series(row, name=col))
     table = pd.DataFrame(rows)
