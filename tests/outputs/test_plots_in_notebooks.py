@@ -45,3 +45,24 @@ def test_the_png_is_the_figure_itself(run) -> None:
     full_width, full_height = fig.get_size_inches() * 100
     assert full_width / 2 < width <= full_width + 21
     assert full_height / 2 < height <= full_height + 21
+
+
+def test_interval_plot_draws_each_row_in_palette_colours_and_shows_in_jupyter() -> None:
+    from matplotlib.colors import to_hex
+
+    from riskshape.outputs import palette, plot_intervals
+
+    table = pd.DataFrame(
+        {"auc": [0.6, 0.55, 0.5], "auc_low": [0.5, 0.4, float("nan")], "auc_high": [0.7, 0.66, float("nan")]},
+        index=["h0_entropy", "h1_landscape_l1", "base_ew_volatility"],
+    )
+    ax = plot_intervals(table, "auc")
+    assert [t.get_text() for t in ax.get_yticklabels()] == list(table.index)
+    assert len(ax.collections) == 2  # a row without an interval gets its point only
+    colours = {to_hex(c) for coll in ax.collections for c in coll.get_colors()} | {
+        to_hex(line.get_color()) for line in ax.lines
+    }
+    assert colours <= {c.lower() for c in palette.colours()}
+    assert [t.get_text() for t in ax.get_legend().get_texts()] == ["H0", "H1", "baseline", "no information"]
+    data, _ = formatters.DisplayFormatter().format(ax.figure)
+    assert data["image/png"].startswith(PNG_SIGNATURE)
