@@ -278,8 +278,8 @@ def evidence_table(
     min_events : int
         Fewer covered events than this and the intervals of the measures that rest on events
         (hit rate, mean lead, precision, F1) are NaN: a resample holds each event or not, so with
-        one event the interval is a point (``[1, 1]`` for a hit) and says nothing. The point
-        estimates stay.
+        one event the interval is a point (``[1, 1]`` for a hit) and says nothing. Likewise the
+        mean lead's interval with fewer hit events than this. The point estimates stay.
     seed : int
         Seeds the bootstrap and the surrogates (one stream per column, in order).
 
@@ -351,9 +351,11 @@ def evidence_table(
             )
             null = _null(signal, events, rule, direction, horizon, post_event_days, n_surrogates, rng)
         low, high = boot.interval(confidence)
-        if study.n_covered < min_events:
-            for measure in _RESTS_ON_EVENTS:
-                low[EVIDENCE_MEASURES.index(measure)] = high[EVIDENCE_MEASURES.index(measure)] = np.nan
+        thin = list(_RESTS_ON_EVENTS) if study.n_covered < min_events else []
+        if int(study.per_event["hit"].sum()) < min_events:
+            thin.append("mean_lead_days")  # a mean over fewer hits than that is a point, not an interval
+        for measure in thin:
+            low[EVIDENCE_MEASURES.index(measure)] = high[EVIDENCE_MEASURES.index(measure)] = np.nan
         row: dict[str, object] = {
             "direction": direction,
             "events": len(study.per_event),
@@ -386,6 +388,6 @@ def evidence_table(
             min_events=min_events,
         )
         rows.append(pd.Series(row, name=col))
-    table = pd.DataFrame(rows)
+    table = pd.DataFrame(rows).infer_objects()
     table.index.name = "signal"
     return table
