@@ -3,7 +3,8 @@
 - :mod:`~riskshape.outputs.run_folder`: features, diagrams, left-out assets and manifest of a run;
 - :mod:`~riskshape.outputs.export`: archived alerts as CSV or JSON lines;
 - :mod:`~riskshape.outputs.report`: the review report (HTML, optionally PDF);
-- :mod:`~riskshape.outputs.plots`: figures for notebooks and reports (loads matplotlib on first use).
+- :mod:`~riskshape.outputs.plots`: figures for notebooks and reports (loads matplotlib on first use);
+- :mod:`~riskshape.outputs.interval_plots`: a measure and its interval per row of an evidence table.
 
 >>> from riskshape.outputs import EXPORT_COLUMNS
 >>> EXPORT_COLUMNS[:2]
@@ -19,6 +20,7 @@ from riskshape._lazy import lazy_exports
 if TYPE_CHECKING:
     from riskshape.outputs.export import EXPORT_COLUMNS as EXPORT_COLUMNS
     from riskshape.outputs.export import export_alerts as export_alerts
+    from riskshape.outputs.interval_plots import plot_intervals as plot_intervals
     from riskshape.outputs.plots import plot_barcode as plot_barcode
     from riskshape.outputs.plots import plot_diagram as plot_diagram
     from riskshape.outputs.plots import plot_landscape as plot_landscape
@@ -47,6 +49,7 @@ _EXPORTS = {
     "plot_barcode": "riskshape.outputs.plots",
     "plot_landscape": "riskshape.outputs.plots",
     "plot_window": "riskshape.outputs.plots",
+    "plot_intervals": "riskshape.outputs.interval_plots",
 }
 
 __all__ = list(_EXPORTS)

@@ -1,7 +1,11 @@
 """Figures for research and reports (matplotlib, no pyplot state).
 
 Every function takes ``ax=None`` (a new figure is made, on the Agg canvas, when none is given)
-and returns the Axes it drew on (or the Figure, for multi-panel plots). Every figure carries
+and returns the Axes it drew on (or the Figure, for multi-panel plots). The figures are made
+without pyplot, so Jupyter's matplotlib integration (which registers its PNG formatter only
+when ``%matplotlib inline`` runs or pyplot picks its backend) never sees them: each new figure is
+a :class:`NotebookFigure`, which gives Jupyter its PNG itself (``_repr_png_``), with or without
+that integration. Every figure carries
 :data:`riskshape.caution.CAUTION_SHORT` in small print (:func:`add_caution`, called by each
 function); :func:`save_figure` writes PNG and SVG. Colours, markers and line styles come from
 :mod:`riskshape.outputs.palette` only, and every series differs from the others on its axes by
@@ -11,6 +15,7 @@ marker or line style as well as colour.
 from __future__ import annotations
 
 from collections.abc import Mapping, Sequence
+from io import BytesIO
 from pathlib import Path
 from typing import TypeVar, cast
 
@@ -51,6 +56,33 @@ _CAUTION_GID = "riskshape-caution"
 _FigureT = TypeVar("_FigureT", bound="Figure | SubFigure")
 
 
+class NotebookFigure(Figure):
+    """A matplotlib Figure that Jupyter shows as a PNG without pyplot (``_repr_png_``).
+
+    IPython's display machinery asks an object for ``_repr_png_`` when no formatter is
+    registered for its type; where the inline backend has registered one for ``Figure``, that
+    one is used instead, so the figure is shown once either way.
+    """
+
+    def _repr_png_(self) -> bytes:
+        """The figure as PNG bytes (100 dpi, trimmed to its drawn area), as Jupyter shows it.
+
+        Returns
+        -------
+        bytes
+        """
+        buffer = BytesIO()
+        self.savefig(buffer, format="png", dpi=100, bbox_inches="tight")
+        return buffer.getvalue()
+
+
+def _new_figure(figsize: tuple[float, float]) -> Figure:
+    """A constrained-layout :class:`NotebookFigure` on the Agg canvas."""
+    fig = NotebookFigure(figsize=figsize, layout="constrained")
+    FigureCanvasAgg(fig)
+    return fig
+
+
 def add_caution(fig: _FigureT) -> _FigureT:
     """Put the caution in small print at the bottom right of ``fig`` (once).
 
@@ -72,8 +104,7 @@ def add_caution(fig: _FigureT) -> _FigureT:
 def new_axes(ax: Axes | None = None, figsize: tuple[float, float] = (7.0, 4.0)) -> Axes:
     """``ax`` itself, or the Axes of a new Agg figure; the figure carries the caution either way."""
     if ax is None:
-        fig = Figure(figsize=figsize, layout="constrained")
-        FigureCanvasAgg(fig)
+        fig = _new_figure(figsize)
         ax = fig.add_subplot()
     add_caution(ax.figure)
     return ax
@@ -235,8 +266,7 @@ def plot_summaries(
     matplotlib.figure.Figure
         The figure.
     """
-    fig = Figure(figsize=(8.0, 1.8 * len(columns) + 0.6), layout="constrained")
-    FigureCanvasAgg(fig)
+    fig = _new_figure((8.0, 1.8 * len(columns) + 0.6))
     axes = fig.subplots(len(columns), 1, sharex=True, squeeze=False)[:, 0]
     for ax, col in zip(axes, columns):
         plot_summary(features[col], alerts=(alerts or {}).get(col), events=events, regimes=regimes, ax=ax)
@@ -417,8 +447,7 @@ def plot_window(result: MonitorResult, window_end: object) -> Figure:
     """
     diagrams = tuple(result.diagram(window_end, k) for k in range(result.config.maxdim + 1))
     corr, labels = window_correlation(result, window_end)
-    fig = Figure(figsize=(12.0, 8.0), layout="constrained")
-    FigureCanvasAgg(fig)
+    fig = _new_figure((12.0, 8.0))
     grid = fig.add_gridspec(2, 3)
     plot_diagram(diagrams, ax=fig.add_subplot(grid[0, 0]))
     plot_barcode(diagrams, ax=fig.add_subplot(grid[0, 1]))

@@ -1,5 +1,5 @@
 """Research tools: baselines, stress events, event studies (of levels and changes), walk-forward comparisons,
-surrogates, sweeps.
+surrogates, sweeps, evidence with error bars.
 
 The names in ``__all__`` load their module on first use; the event study, walk-forward and
 surrogate tools load scikit-learn and arch, which the monitor itself does not need.
@@ -12,6 +12,9 @@ from typing import TYPE_CHECKING
 from riskshape._lazy import lazy_exports
 
 if TYPE_CHECKING:
+    from riskshape.research.anchor import PUBLISHED_ANCHOR as PUBLISHED_ANCHOR
+    from riskshape.research.anchor import PublishedAnchor as PublishedAnchor
+    from riskshape.research.anchor import compare_with_anchor as compare_with_anchor
     from riskshape.research.baselines import absorption_ratio as absorption_ratio
     from riskshape.research.baselines import compute_baselines as compute_baselines
     from riskshape.research.baselines import features_with_baselines as features_with_baselines
@@ -24,6 +27,9 @@ if TYPE_CHECKING:
     from riskshape.research.events import drawdown_events as drawdown_events
     from riskshape.research.events import events_from_periods as events_from_periods
     from riskshape.research.events import portfolio_drawdown_events as portfolio_drawdown_events
+    from riskshape.research.evidence import evidence_table as evidence_table
+    from riskshape.research.gain import gain_table as gain_table
+    from riskshape.research.multitest import mark_multiple_tests as mark_multiple_tests
     from riskshape.research.study import EventStudy as EventStudy
     from riskshape.research.study import crisis_direction as crisis_direction
     from riskshape.research.study import event_study as event_study
@@ -50,6 +56,12 @@ _EXPORTS = {
     "drawdown_events": "riskshape.research.events",
     "portfolio_drawdown_events": "riskshape.research.events",
     "events_from_periods": "riskshape.research.events",
+    "evidence_table": "riskshape.research.evidence",
+    "gain_table": "riskshape.research.gain",
+    "mark_multiple_tests": "riskshape.research.multitest",
+    "compare_with_anchor": "riskshape.research.anchor",
+    "PublishedAnchor": "riskshape.research.anchor",
+    "PUBLISHED_ANCHOR": "riskshape.research.anchor",
     "EventStudy": "riskshape.research.study",
     "event_study": "riskshape.research.study",
     "study_table": "riskshape.research.study",
