@@ -414,6 +414,11 @@ class Store:
         """Chained events in ledger order, optionally of one kind, portfolio and subject."""
         return events.list_events(self.engine, kind=kind, portfolio=portfolio, subject=subject)
 
+    @_database_errors
+    def latest_event(self, kind: str, portfolio: str) -> EventRecord | None:
+        """The portfolio's latest chained event of ``kind`` (one row read), or None if it has none."""
+        return events.latest_event(self.engine, kind=kind, portfolio=portfolio)
+
     # -- API keys --------------------------------------------------------------------------------
     @_database_errors
     def create_api_key(self, owner: str, role: str) -> NewApiKey:
