@@ -256,7 +256,8 @@ def test_review_records_the_keys_owner(client: TestClient, auth: Auth, loaded: d
 
 def test_audit_head_and_verify(client: TestClient, auth: Auth, loaded: dict) -> None:
     head = cautioned(client.get("/v1/audit/head", headers=auth("reviewer")))
-    assert head["count"] == len(loaded["alerts"]) and head["head"] == f"{head['count']}:{head['head_hash']}"
+    # the run's alerts and the portfolio's day state after it (riskshape.daily.tail_run.DAY_STATE)
+    assert head["count"] == len(loaded["alerts"]) + 1 and head["head"] == f"{head['count']}:{head['head_hash']}"
     verified = cautioned(client.get("/v1/audit/verify", params={"expect_head": head["head"]}, headers=auth("reviewer")))
     assert verified["ok"] is True and verified["checked"] == head["count"] and verified["first_bad"] is None
     wrong = f"{head['count'] + 1}:{head['head_hash']}"

@@ -54,4 +54,5 @@ def test_ingest_poll_review_verify_on_postgresql(pg_url: str, tmp_path) -> None:
         )
         assert review.status_code == 201 and review.json()["review"]["reviewer"] == "pg-admin"
         verified = cautioned(client.get("/v1/audit/verify", headers=admin))
-        assert verified["ok"] and verified["checked"] == len(ingested["alerts"]) + 1
+        # the alerts, the review, and the day state after the run (riskshape.daily.tail_run.DAY_STATE)
+        assert verified["ok"] and verified["checked"] == len(ingested["alerts"]) + 2

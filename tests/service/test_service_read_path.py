@@ -146,7 +146,8 @@ def test_the_change_marker_grows_with_each_write(
 ) -> None:
     store = client.app.state.context.store  # type: ignore[attr-defined]
     before = change_marker(store, "alpha")
-    assert before.run_id == store.latest_run("alpha").id and before.ledger_count == len(loaded["alerts"])
+    # the ledger: the run's alerts and the day state after it (riskshape.daily.tail_run.DAY_STATE)
+    assert before.run_id == store.latest_run("alpha").id and before.ledger_count == len(loaded["alerts"]) + 1
     _ingest(client, auth, scenario_prices.iloc[N_FIRST : N_FIRST + 1])
     after = change_marker(store, "alpha")
     assert after.run_id is not None and after.run_id > before.run_id

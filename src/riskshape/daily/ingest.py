@@ -255,6 +255,7 @@ def _plan(
     counted_until: date | None,
     book: DayBook,
     first_held: date | None = None,
+    last_held: date | None = None,
 ) -> _Plan:
     _check_assets(portfolio, incoming, held, source)
     if not len(held.columns):  # a new portfolio: its assets in name order, however the first prices came
@@ -270,16 +271,17 @@ def _plan(
                 f"{source}: asset {asset!r} has a price on {_day(late[0])}, after its last trading day {last} "
                 f"(it is delisted from portfolio {portfolio!r}); leave it out of days after {last}"
             )
-    if len(held.index):
-        last_held = held.index[-1]
+    if len(held.index) or last_held is not None:
+        # held may be only the body's span (the bounded path): then the archive's first and last dates are given
         first = first_held or _day(held.index[0])
-        inside = incoming.index[(incoming.index < last_held) & ~incoming.index.isin(held.index)]
+        last_day = pd.Timestamp(last_held if last_held is not None else held.index[-1])
+        inside = incoming.index[(incoming.index < last_day) & ~incoming.index.isin(held.index)]
         if len(inside):
             raise DataError(
                 f"{source}: date {_day(inside[0])} (asset {incoming.columns[0]!r}) was never a trading day of "
                 f"portfolio {portfolio!r}: it falls inside the archived history ({first} to "
-                f"{_day(last_held)}) but has no prices there, and windows count trading days -- check the date; "
-                f"only days after {_day(last_held)} can be added (rerun the portfolio over the full history to "
+                f"{_day(last_day)}) but has no prices there, and windows count trading days -- check the date; "
+                f"only days after {_day(last_day)} can be added (rerun the portfolio over the full history to "
                 "change its calendar)"
             )
     overlap = incoming.index.intersection(held.index)
@@ -656,8 +658,20 @@ class Ingestor:
         added = corrections = unchanged = 0
         fixed: CorrectionReport | None = None
         if prices is not None:
-            held = store.read_prices(portfolio, start=prices.index.min(), assets=assets)  # the body's span on
-            plan = _plan(portfolio, prices, held, correction, source, counted_until, book, first_held=state.first_date)
+            pending_cells = read_cells(store.engine, portfolio, counted_until)
+            last = max([counted_until, *pending_cells["date"]])
+            held = store.read_prices(portfolio, start=prices.index.min(), end=prices.index.max(), assets=assets)
+            plan = _plan(
+                portfolio,
+                prices,
+                held,
+                correction,
+                source,
+                counted_until,
+                book,
+                first_held=state.first_date,
+                last_held=last,
+            )
             if plan.corrections:
                 fixed = apply_corrections(
                     store,
