@@ -338,7 +338,7 @@ def archive_tail_run(
         package_version=result.package_version,
         source=source,
     )
-    run = store.create_run(portfolio, manifest, result.prices)
+    run = store.create_run(portfolio, manifest, result.prices, prices_archived=True)  # read from the archive
     features = diagrams = WriteCount(0, 0, 0)
     if len(result.window_ends):
         features = store.write_features(run.id, result.features)
@@ -360,7 +360,7 @@ def archive_tail_run(
         )
         for f in firings
     ]
-    appended = store.append_alerts(alerts, run.id)
+    appended = store.append_alerts(alerts, run.id) if alerts else None  # no write (and no commit) for none
     after = DayState(
         run_id=run.id,
         config_hash=state.config_hash,
@@ -374,7 +374,7 @@ def archive_tail_run(
         run=run,
         features=features,
         diagrams=diagrams,
-        alerts=appended.added,
+        alerts=appended.added if appended is not None else (),
         windows_computed=len(result.window_ends),
         window_ends=result.window_ends,
         state=after,
