@@ -151,6 +151,7 @@ def main(argv: list[str] | None = None) -> None:
     parser.add_argument("--assets", type=int, default=50)
     parser.add_argument("--one-assets", type=int, default=100)
     parser.add_argument("--years", type=float, default=5.0)
+    parser.add_argument("--only-cli", action="store_true", help="section 1 only (the command line)")
     parser.add_argument("--days", type=int, default=5, help="portfolio-days timed in section 3, cold and warm each")
     args = parser.parse_args(argv)
     keep_blas_pinned()
@@ -178,6 +179,9 @@ def main(argv: list[str] | None = None) -> None:
             f"1. {command}: {wall:.2f} s wall for {len(names)} portfolios ({per * 1000:.0f} ms each; "
             f"1,000 portfolios at that rate: {per * 1000:.0f} s; target < 60 s); peak RSS {rss:.0f} MiB"
         )
+        if args.only_cli:
+            print(f"uptime: {subprocess.run(['uptime'], capture_output=True, text=True).stdout.strip()}")
+            return
         ingestor = Ingestor(config, cache_size=max(128, len(names)))
         serial = _feed(url, prices.iloc[[-2]], names, ingestor, workers=1)
         threads = _feed(url, prices.iloc[[-1]], names, ingestor, workers=2)

@@ -9,11 +9,13 @@ Policy (what the service's price endpoints and the command line apply):
   (:func:`pending_days`). Sending the rest of a pending day is an ordinary ingest. An asset that
   stopped trading is delisted (:meth:`Ingestor.delist`), so days after its last one do not wait
   for it. Closings and delistings are chained records (``day_closed``, ``asset_delisted``).
-* **New days** that count are appended; the windows they complete are computed with
-  :meth:`riskshape.MonitorResult.update` on the portfolio's result kept in memory (rebuilt once
-  with :func:`riskshape.monitor` from the archived prices after a restart, or when someone else
-  wrote to the portfolio), then archived with :func:`riskshape.archive.archive_run`, which
-  evaluates the alert rules and appends only alerts not yet archived.
+* **New days** that count are appended; the windows they complete are computed from the tail
+  of the prices alone and archived with the alerts the rules' carry raises
+  (:mod:`riskshape.daily.tail_run`: the day state kept after every run, so a restart takes the
+  same bounded path). When the latest run has no day state (a run archived another way), the
+  whole history is computed once (:meth:`riskshape.MonitorResult.update` on a result kept in
+  memory, or :func:`riskshape.monitor` over the archived prices) and archived with
+  :func:`riskshape.archive.archive_run`, and the state is saved for the next day.
 * **Idempotent**: a day already archived with the same prices adds nothing; sending the same
   body twice adds no prices, windows, runs or alerts.
 * **Revisions**: a price that differs from the archived one for a day that counts (or a price
