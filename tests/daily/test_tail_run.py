@@ -30,6 +30,7 @@ from riskshape.prices import ValidPrices, validate_prices
 from riskshape.store import Store, open_store, verify_chain
 from tests.kit.archive import walk_prices
 from tests.kit.assets import codes
+from tests.kit.postgres import fresh_schema_url
 
 ASSETS = codes(8)
 RULES = [
@@ -101,25 +102,40 @@ def _alerts(store: Store) -> list[tuple[object, ...]]:
     ]
 
 
+@pytest.fixture(params=["sqlite", pytest.param("postgresql", marks=pytest.mark.postgres)])
+def fed_url(request: pytest.FixtureRequest, tmp_path: Path) -> Iterator[str]:
+    """Where the days are fed: an SQLite file, or a PostgreSQL schema of its own."""
+    if request.param == "sqlite":
+        yield _url(tmp_path, "fed")
+        return
+    with fresh_schema_url("rs_tail") as url:
+        yield url
+
+
 @pytest.mark.parametrize("step,new_days", [(1, 12), (3, 16)], ids=["daily", "step-3"])
 def test_days_fed_after_restarts_archive_what_a_full_run_archives(
-    tmp_path: Path, rng: np.random.Generator, monkeypatch: pytest.MonkeyPatch, step: int, new_days: int
+    tmp_path: Path,
+    rng: np.random.Generator,
+    monkeypatch: pytest.MonkeyPatch,
+    step: int,
+    new_days: int,
+    fed_url: str,
 ) -> None:
     config = _config(step)
     prices = _history(rng, 160)
     held = len(prices) - new_days
-    with open_store(_url(tmp_path, "fed")) as store:
+    with open_store(fed_url) as store:
         store.ensure_portfolio("alpha")
         Ingestor(config).ingest(store, "alpha", _valid(prices.iloc[:held]))  # the first ingest: the full path
     monkeypatch.setattr(ingest_module, "monitor", _no_full_path)
     for day in range(held, len(prices)):
-        with open_store(_url(tmp_path, "fed")) as store:  # a restart before every day
+        with open_store(fed_url) as store:  # a restart before every day
             report = Ingestor(config).ingest(store, "alpha", _valid(prices.iloc[[day]]))
         assert report.run_id is not None
     monkeypatch.undo()
     with open_store(_url(tmp_path, "full")) as full:
         archive_run(full, "alpha", monitor(prices, config))
-        with open_store(_url(tmp_path, "fed")) as fed:
+        with open_store(fed_url) as fed:
             pd.testing.assert_frame_equal(fed.read_features("alpha").frame, full.read_features("alpha").frame)
             assert fed.window_ends("alpha") == full.window_ends("alpha")
             for end in full.window_ends("alpha")[-5:]:
