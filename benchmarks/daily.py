@@ -4,14 +4,17 @@
     python benchmarks/daily.py --portfolios 10       # a smaller N (the per-portfolio figure is printed)
 
 1. **Many portfolios through the command line.** N portfolios of ``--assets`` fictional assets
-   hold ``--years`` of business days on an embedded SQLite archive (set up by archiving one
-   computed run under every name: the set-up is not what is measured). A day file with a
-   ``portfolio`` column carries the next day for all of them; ``riskshape ingest --prices DAYFILE
-   --store URL`` runs it in a fresh process (so every portfolio starts cold, as after a restart).
-2. **The same day in one process**, cold (a fresh ``Ingestor``) and then warm (the next days, the
-   same ``Ingestor``, results kept in memory), one portfolio at a time and, warm, on two threads:
-   what ``riskshape.daily.ingest_many`` would gain from threads, and what a cold portfolio costs.
-3. **One portfolio-day at ``--one-assets`` assets** (100) and the same history: cold and warm.
+   hold ``--years`` of business days on an embedded SQLite archive. Set-up (not measured): one
+   portfolio is ingested whole (its run, features, diagrams, alerts and day state); its prices,
+   run, features and diagrams are then copied in SQL under the other N - 1 names, each with its own
+   day state appended to the ledger (alerts are not copied: a day does not read them). A day file
+   with a ``portfolio`` column carries the next day for all of them; ``riskshape ingest --prices
+   DAYFILE --store URL`` runs it in a fresh process (as after a restart); its peak resident memory
+   is reported.
+2. **The next days in one process**, one portfolio at a time and on two threads.
+3. **One portfolio-day at ``--one-assets`` assets** (100) and the same history: cold (the archive
+   opened afresh and a new ``Ingestor`` for each day, as after a restart) and warm (the same
+   ``Ingestor`` and store), ``--days`` days each, median and range.
 
 Prints the figures, the command and ``uptime``. Not a test: figures vary with the machine's load.
 """
@@ -20,6 +23,8 @@ from __future__ import annotations
 
 import argparse
 import os
+import resource
+import statistics
 import subprocess
 import sys
 import tempfile
@@ -27,15 +32,18 @@ import time
 from pathlib import Path
 
 import pandas as pd
+import sqlalchemy as sa
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
 
 from data import factor_prices  # noqa: E402
 
-from riskshape import Config, archive_run, monitor  # noqa: E402
+from riskshape import Config  # noqa: E402
 from riskshape.compute.executors import keep_blas_pinned  # noqa: E402
 from riskshape.daily import Ingestor, ingest_many, split_feed  # noqa: E402
-from riskshape.store import open_store  # noqa: E402
+from riskshape.daily.tail_run import read_day_state, save_day_state  # noqa: E402
+from riskshape.store import Store, open_store  # noqa: E402
+from riskshape.store import schema as t  # noqa: E402
 
 BUSINESS_DAYS_PER_YEAR = 252
 
@@ -53,12 +61,51 @@ def _long(day: pd.DataFrame, names: list[str]) -> pd.DataFrame:
     ]
 
 
+def _copy_portfolio(store: Store, template: str, name: str) -> None:
+    """Copy the template's prices, run, features and diagrams under ``name`` (SQL), then append its day state."""
+    source = store.get_portfolio(template).id
+    target = store.ensure_portfolio(name).id
+    run = store.latest_run(template)
+    assert run is not None
+    with store.engine.begin() as connection:
+        for table in (t.prices,):
+            columns = [c.name for c in table.columns if c.name not in ("id", "portfolio_id")]
+            connection.execute(
+                sa.insert(table).from_select(
+                    ["portfolio_id", *columns],
+                    sa.select(sa.literal(target), *[table.c[c] for c in columns]).where(table.c.portfolio_id == source),
+                )
+            )
+        top = connection.execute(sa.select(sa.func.max(t.prices.c.id)).where(t.prices.c.portfolio_id == target))
+        row = connection.execute(sa.select(t.runs).where(t.runs.c.id == run.id)).one()._asdict()
+        row.update(portfolio_id=target, prices_through_id=int(top.scalar_one()))
+        del row["id"]
+        new_run = connection.execute(sa.insert(t.runs).values(**row)).inserted_primary_key
+        assert new_run is not None
+        for table in (t.features, t.diagrams):
+            columns = [c.name for c in table.columns if c.name not in ("id", "portfolio_id", "run_id")]
+            connection.execute(
+                sa.insert(table).from_select(
+                    ["portfolio_id", "run_id", *columns],
+                    sa.select(sa.literal(target), sa.literal(int(new_run[0])), *[table.c[c] for c in columns]).where(
+                        table.c.portfolio_id == source
+                    ),
+                )
+            )
+    state = read_day_state(store, template, run)
+    assert state is not None
+    copied = store.latest_run(name)
+    assert copied is not None
+    save_day_state(store, name, type(state)(**{**state.__dict__, "run_id": copied.id}))
+
+
 def _set_up(url: str, prices: pd.DataFrame, names: list[str], config: Config) -> float:
     start = time.perf_counter()
-    result = monitor(prices, config)
     with open_store(url) as store:
-        for name in names:
-            archive_run(store, name, result, config, source="set-up", explain=False)
+        store.ensure_portfolio(names[0])
+        Ingestor(config).ingest(store, names[0], prices, source="set-up")
+        for name in names[1:]:
+            _copy_portfolio(store, names[0], name)
     return time.perf_counter() - start
 
 
@@ -84,13 +131,17 @@ def _feed(url: str, day: pd.DataFrame, names: list[str], ingestor: Ingestor, wor
     return wall
 
 
-def _one(url: str, day: pd.DataFrame, ingestor: Ingestor) -> float:
-    with open_store(url) as store:
-        start = time.perf_counter()
-        report = ingestor.ingest(store, "one", day, source="day")
-        wall = time.perf_counter() - start
+def _one(store: Store, day: pd.DataFrame, ingestor: Ingestor) -> float:
+    start = time.perf_counter()
+    report = ingestor.ingest(store, "one", day, source="day")
+    wall = time.perf_counter() - start
     assert report.windows_added == 1, report.note
     return wall
+
+
+def _spread(times: list[float]) -> str:
+    ms = [x * 1000 for x in times]
+    return f"median {statistics.median(ms):.1f} ms ({min(ms):.1f} to {max(ms):.1f})"
 
 
 def main(argv: list[str] | None = None) -> None:
@@ -100,6 +151,8 @@ def main(argv: list[str] | None = None) -> None:
     parser.add_argument("--assets", type=int, default=50)
     parser.add_argument("--one-assets", type=int, default=100)
     parser.add_argument("--years", type=float, default=5.0)
+    parser.add_argument("--only-cli", action="store_true", help="section 1 only (the command line)")
+    parser.add_argument("--days", type=int, default=5, help="portfolio-days timed in section 3, cold and warm each")
     args = parser.parse_args(argv)
     keep_blas_pinned()
     config = Config()
@@ -110,43 +163,54 @@ def main(argv: list[str] | None = None) -> None:
     with tempfile.TemporaryDirectory() as folder:
         prices = factor_prices(n_days + 3, args.assets, seed=1)  # the history and three new days
         held = prices.iloc[:-3]
-        cli_url = f"sqlite:///{Path(folder) / 'cli.sqlite'}"
-        setup = _set_up(cli_url, held, names, config)
-        print(f"set-up: {len(names)} portfolios x {args.assets} assets x {len(held)} days in {setup:.1f} s")
+        url = f"sqlite:///{Path(folder) / 'many.sqlite'}"
+        setup = _set_up(url, held, names, config)
+        size = (Path(folder) / "many.sqlite").stat().st_size / 2**30
+        print(
+            f"set-up: {len(names)} portfolios x {args.assets} assets x {len(held)} days "
+            f"in {setup:.1f} s ({size:.1f} GiB)"
+        )
         day_file = Path(folder) / "day.csv"
         _long(prices.iloc[[-3]], names).to_csv(day_file, index=False)
-        wall, command = _cli_day(cli_url, day_file)
+        wall, command = _cli_day(url, day_file)
+        rss = resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss / 1024
         per = wall / len(names)
         print(
             f"1. {command}: {wall:.2f} s wall for {len(names)} portfolios ({per * 1000:.0f} ms each; "
-            f"1,000 portfolios at that rate: {per * 1000:.0f} s; target < 60 s)"
+            f"1,000 portfolios at that rate: {per * 1000:.0f} s; target < 60 s); peak RSS {rss:.0f} MiB"
         )
-
-        lib_url = f"sqlite:///{Path(folder) / 'lib.sqlite'}"
-        _set_up(lib_url, held, names, config)
+        if args.only_cli:
+            print(f"uptime: {subprocess.run(['uptime'], capture_output=True, text=True).stdout.strip()}")
+            return
         ingestor = Ingestor(config, cache_size=max(128, len(names)))
-        cold = _feed(lib_url, prices.iloc[[-3]], names, ingestor, workers=1)
-        serial = _feed(lib_url, prices.iloc[[-2]], names, ingestor, workers=1)
-        threads = _feed(lib_url, prices.iloc[[-1]], names, ingestor, workers=2)
+        serial = _feed(url, prices.iloc[[-2]], names, ingestor, workers=1)
+        threads = _feed(url, prices.iloc[[-1]], names, ingestor, workers=2)
         n = len(names)
         print(
-            f"2. in one process: cold (fresh Ingestor) {cold / n * 1000:.0f} ms per portfolio; "
-            f"warm one at a time {serial / n * 1000:.0f} ms; warm on 2 threads {threads / n * 1000:.0f} ms"
+            f"2. in one process, the next days: one at a time {serial / n * 1000:.0f} ms per portfolio; "
+            f"on 2 threads {threads / n * 1000:.0f} ms"
         )
 
-        one = factor_prices(n_days + 2, args.one_assets, seed=2)  # the history and two new days
+        one = factor_prices(n_days + 2 * args.days, args.one_assets, seed=2)  # the history and the days timed
         one_url = f"sqlite:///{Path(folder) / 'one.sqlite'}"
         with open_store(one_url) as store:
             store.ensure_portfolio("one")
-            Ingestor(config).ingest(store, "one", one.iloc[:-2], source="set-up")
-        day_ingestor = Ingestor(config)  # fresh: as after a restart
-        cold_one = _one(one_url, one.iloc[[-2]], day_ingestor)
-        warm_one = _one(one_url, one.iloc[[-1]], day_ingestor)  # the next day: its result is in memory
+            Ingestor(config).ingest(store, "one", one.iloc[:n_days], source="set-up")
+        cold: list[float] = []
+        for k in range(args.days):  # a restart before each day: the archive opened afresh, nothing in memory
+            with open_store(one_url) as store:
+                cold.append(_one(store, one.iloc[[n_days + k]], Ingestor(config)))
+        warm: list[float] = []
+        with open_store(one_url) as store:
+            day_ingestor = Ingestor(config)
+            for k in range(args.days, 2 * args.days):
+                warm.append(_one(store, one.iloc[[n_days + k]], day_ingestor))
         print(
-            f"3. one portfolio-day, {args.one_assets} assets, {len(one) - 2} days held: cold {cold_one * 1000:.0f} ms, "
-            f"warm {warm_one * 1000:.0f} ms (target < 30 ms, restart or not)"
+            f"3. one portfolio-day, {args.one_assets} assets, {n_days} days held: cold {_spread(cold)}, "
+            f"warm {_spread(warm)} (target < 30 ms, restart or not)"
         )
     print(f"cores: {os.cpu_count()}")
+    print(f"uptime: {subprocess.run(['uptime'], capture_output=True, text=True).stdout.strip()}")
 
 
 if __name__ == "__main__":

@@ -260,8 +260,9 @@ def recompute_run(
     """Recompute a run's windows up to ``upto`` from its archived prices and configuration.
 
     Reads the prices as of the run (later corrections left out) and the run's configuration,
-    checks that they hash to what the run recorded, and runs :func:`riskshape.monitor` over the
-    prices up to ``upto``.
+    checks that the prices the run read (from its first date: a run of the daily loop reads a
+    tail) hash to what the run recorded, and runs :func:`riskshape.monitor` over the portfolio's
+    prices from its first date up to ``upto`` (the windows are anchored there).
 
     Parameters
     ----------
@@ -298,16 +299,17 @@ def recompute_run(
         checks.append(Check("configuration hash", again == run.config_hash, run.config_hash, again))
         if compute is not None:
             config = config.replace(compute=compute)
-    prices = store.read_prices(
-        run.portfolio, start=run.first_date, end=run.last_date, assets=run.assets, as_of_run=run.id
-    )
+    # from the portfolio's first date: a run of the daily loop (or a correction's) read only a tail of
+    # the history, and its input hash covers that tail; its windows are anchored at the first date
+    history = store.read_prices(run.portfolio, end=run.last_date, assets=run.assets, as_of_run=run.id)
+    prices = history.loc[pd.Timestamp(run.first_date) :] if run.first_date is not None else history
     archived_hash = hash_prices(prices)
     checks.append(Check("run prices hash", archived_hash == run.input_hash, run.input_hash, archived_hash))
     result: MonitorResult | None = None
     failure: str | None = None
     if config is not None and (not require_hashes or all(c.ok for c in checks)):
         try:
-            result = monitor(prices.loc[: pd.Timestamp(upto)], config)
+            result = monitor(history.loc[: pd.Timestamp(upto)], config)
         except RiskshapeError as err:
             failure = str(err)
     return Recomputation(run=run, config=config, checks=tuple(checks), result=result, failure=failure)

@@ -114,7 +114,6 @@ def test_run_killed_inside_its_writes_then_rerun(
         assert trial.redone and trial.duplicated == 0 and set(trial.missing) <= {"diagrams"}, trial
 
 
-@pytest.mark.xfail(strict=True, reason="until a run is one transaction (issue 19 item 5)")
 @pytest.mark.timeout(300)
 def test_a_run_killed_inside_its_writes_is_seen_whole_or_not_at_all_and_the_rerun_completes_it(
     archives: Archives, inputs, tmp_path: Path, run_references: dict
@@ -179,7 +178,6 @@ def test_ingest_killed_inside_its_writes_then_resent(
         assert set(trial.missing) <= {"diagrams", "alerts", "ledger"}, trial
 
 
-@pytest.mark.xfail(strict=True, reason="until a run is one transaction (issue 19 item 5)")
 @pytest.mark.timeout(300)
 def test_an_ingest_killed_between_its_windows_and_its_alerts_is_completed_when_resent(
     archives: Archives, inputs, tmp_path: Path, ingest_references: dict

@@ -12,6 +12,11 @@ from typing import TYPE_CHECKING
 from riskshape._lazy import lazy_exports
 
 if TYPE_CHECKING:
+    from riskshape.alerts.carry import RuleCarry as RuleCarry
+    from riskshape.alerts.carry import RulesCarry as RulesCarry
+    from riskshape.alerts.carry import advance_rules as advance_rules
+    from riskshape.alerts.carry import carry_rules as carry_rules
+    from riskshape.alerts.carry import lookback_needed as lookback_needed
     from riskshape.alerts.model import Alert as Alert
     from riskshape.alerts.model import Firing as Firing
     from riskshape.alerts.readiness import describe_readiness as describe_readiness
@@ -27,6 +32,11 @@ if TYPE_CHECKING:
     from riskshape.alerts.thresholds import trailing_levels as trailing_levels
 
 _EXPORTS = {
+    "RuleCarry": "riskshape.alerts.carry",
+    "RulesCarry": "riskshape.alerts.carry",
+    "advance_rules": "riskshape.alerts.carry",
+    "carry_rules": "riskshape.alerts.carry",
+    "lookback_needed": "riskshape.alerts.carry",
     "trailing_levels": "riskshape.alerts.thresholds",
     "Alert": "riskshape.alerts.model",
     "Firing": "riskshape.alerts.model",

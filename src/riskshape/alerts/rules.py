@@ -50,10 +50,10 @@ import numpy as np
 import pandas as pd
 
 from riskshape.alerts.model import Firing
-from riskshape.alerts.thresholds import MIN_PAST_VALUES, clean_values, trailing_levels
+from riskshape.alerts.thresholds import MIN_PAST_VALUES, RuleLevels, clean_values, trailing_levels
 from riskshape.config import AlertsConfig, RuleConfig
 from riskshape.errors import ConfigError, DataError
-from riskshape.types import FloatArray, IntArray, Positions, Severity
+from riskshape.types import BoolArray, FloatArray, IntArray, Positions, Severity
 
 __all__ = [
     "RuleState",
@@ -163,8 +163,21 @@ def _stamp(index: pd.DatetimeIndex, position: int | None) -> pd.Timestamp | None
     return None if position is None else pd.Timestamp(index[position])
 
 
-def _trace(values: pd.Series, rule: RuleConfig) -> _Trace:
-    """Run the rule's state machine (module docstring, points 2-8) over a cleaned series."""
+@dataclass(frozen=True)
+class _Decisions:
+    """Per-window inputs of the state machine (module docstring, points 1-4)."""
+
+    levels: RuleLevels
+    values: FloatArray
+    present: BoolArray
+    judged: BoolArray
+    beyond: BoolArray
+    past_clear: BoolArray
+    need: int
+
+
+def _decisions(values: pd.Series, rule: RuleConfig) -> _Decisions:
+    """Which windows are judged, beyond the threshold, past the clear level (a cleaned series)."""
     levels = trailing_levels(values, rule)
     x = values.to_numpy()
     need = max(rule.min_history, MIN_PAST_VALUES[rule.kind])
@@ -174,29 +187,51 @@ def _trace(values: pd.Series, rule: RuleConfig) -> _Trace:
         judged = present & (levels.history >= need) & ~np.isnan(levels.threshold)
         beyond = judged & (sign * x > sign * levels.threshold)
         past_clear = present & ~np.isnan(levels.clear) & (sign * x <= sign * levels.clear)
+    return _Decisions(levels, x, present, judged, beyond, past_clear, need)
+
+
+@dataclass(frozen=True)
+class _Machine:
+    """The state machine's state after a window (points 5-8): all a later window needs of the past."""
+
+    run: int
+    active_since: int | None  # position of the firing that made it active (may precede the series)
+    last_fired: int | None  # position of the latest firing (may precede the series)
+
+
+def _run_machine(
+    beyond: BoolArray, past_clear: BoolArray, rule: RuleConfig, start: int, state: _Machine
+) -> tuple[list[int], _Machine]:
+    """Positions ``start ..`` through the state machine from ``state``: the firings and the state after."""
     fired: list[int] = []
-    run = 0
-    active_since: int | None = None
-    for t in range(len(x)):
+    run, active_since, last_fired = state.run, state.active_since, state.last_fired
+    for t in range(start, len(beyond)):
         if active_since is not None and past_clear[t]:
             active_since = None
         run = run + 1 if beyond[t] else 0
-        cooling = bool(fired) and t - fired[-1] <= rule.cooldown
+        cooling = last_fired is not None and t - last_fired <= rule.cooldown
         if run >= rule.consecutive and active_since is None and not cooling:
             fired.append(t)
-            active_since = t
+            active_since = last_fired = t
+    return fired, _Machine(run=run, active_since=active_since, last_fired=last_fired)
+
+
+def _trace(values: pd.Series, rule: RuleConfig) -> _Trace:
+    """Run the rule's state machine (module docstring, points 2-8) over a cleaned series."""
+    d = _decisions(values, rule)
+    fired, end = _run_machine(d.beyond, d.past_clear, rule, 0, _Machine(run=0, active_since=None, last_fired=None))
     return _Trace(
-        values=x,
-        threshold=levels.threshold,
-        clear=levels.clear,
-        history=levels.history,
+        values=d.values,
+        threshold=d.levels.threshold,
+        clear=d.levels.clear,
+        history=d.levels.history,
         fired=np.asarray(fired, dtype=np.int64),
-        run=run,
-        active_since=active_since,
-        last_fired=fired[-1] if fired else None,
-        history_needed=need,
-        n_judged=int(np.count_nonzero(judged)),
-        next_history=int(np.count_nonzero(present[-rule.lookback :])),
+        run=end.run,
+        active_since=end.active_since,
+        last_fired=end.last_fired,
+        history_needed=d.need,
+        n_judged=int(np.count_nonzero(d.judged)),
+        next_history=int(np.count_nonzero(d.present[-rule.lookback :])),
     )
 
 

@@ -13,8 +13,14 @@ with the past, never with itself.
   (``ddof=1``, common practice), for ``z`` = ``threshold`` (and ``clear``). Needs at least two
   past values. A constant history (std 0) puts both levels at its mean.
 
-The rolling statistics are pandas' (``Series.rolling``), which skip missing values and use only
-values up to the current position, so the levels at ``t`` never depend on anything after ``t``.
+The levels at ``t`` are computed from the values of ``t``'s own history alone, laid out the same
+way at every window (``lookback`` slots, missing ones left out), so they never depend on anything
+after ``t`` -- nor on anything before its history: a series that starts ``lookback`` windows before
+``t`` gives the same levels at ``t``, bit for bit, as the whole series (the daily loop evaluates a
+new window from the archived tail of the series, :mod:`riskshape.alerts.carry`). The quantile is
+pandas' rolling quantile (an order statistic of the window's values, whatever came before); the
+mean and standard deviation are summed over the window's own slots (pandas' rolling mean and
+variance update running sums, whose last bits depend on where the series started).
 """
 
 from __future__ import annotations
@@ -103,9 +109,31 @@ def trailing_levels(values: pd.Series, rule: RuleConfig) -> RuleLevels:
         threshold = window.quantile(rule.threshold, interpolation="linear").to_numpy(dtype=np.float64)
         clear = window.quantile(clear_at, interpolation="linear").to_numpy(dtype=np.float64)
     else:  # zscore
-        window = past.rolling(rule.lookback, min_periods=MIN_PAST_VALUES["zscore"])
-        mean = window.mean().to_numpy(dtype=np.float64)
-        std = window.std(ddof=1).to_numpy(dtype=np.float64)
+        mean, std = _trailing_mean_std(values.to_numpy(dtype=np.float64), rule.lookback)
         threshold = mean + rule.threshold * std
         clear = mean + clear_at * std
     return RuleLevels(history=history, threshold=threshold, clear=clear)
+
+
+def _trailing_mean_std(x: FloatArray, lookback: int) -> tuple[FloatArray, FloatArray]:
+    """Mean and sample std (``ddof=1``) of the ``lookback`` values before each position, missing left out.
+
+    Each position's history is one row of ``lookback`` slots (NaN before the series starts), summed
+    on its own: the result at ``t`` depends on the values of ``t``'s history and nothing else.
+    NaN where fewer than :data:`MIN_PAST_VALUES` ``["zscore"]`` values are present.
+    """
+    n = len(x)
+    if n == 0:
+        return np.empty(0), np.empty(0)
+    padded = np.concatenate([np.full(lookback, np.nan), x])
+    rows = np.ascontiguousarray(np.lib.stride_tricks.sliding_window_view(padded, lookback)[:n])
+    present = ~np.isnan(rows)
+    count = present.sum(axis=1)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        mean = np.where(present, rows, 0.0).sum(axis=1) / count
+        deviations = np.where(present, rows - mean[:, None], 0.0)
+        std = np.sqrt((deviations * deviations).sum(axis=1) / (count - 1))
+    short = count < MIN_PAST_VALUES["zscore"]
+    mean[short] = np.nan
+    std[short] = np.nan
+    return mean, std

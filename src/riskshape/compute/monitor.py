@@ -126,7 +126,8 @@ class MonitorResult:
 
     def _volatility(self, ends: pd.DatetimeIndex) -> pd.Series:
         """The equal-weight volatility of the windows ending at ``ends``: the workers' baselines where
-        the run computed them with the windows, else the same function on the same blocks."""
+        the run computed them with the windows, else the same function on the same blocks.
+        """
         if self.with_baselines:
             return self.baselines["base_ew_volatility"].reindex(ends)
         return window_volatility(self.returns, ends, self.config)

@@ -257,6 +257,7 @@ def apply_corrections(
     source: str = "correction",
     actor: str | None = None,
     explain: bool = True,
+    counted_through: date | None = None,
 ) -> CorrectionReport:
     """Archive corrected prices and supersede the windows and alerts they change (see the module notes).
 
@@ -279,6 +280,9 @@ def apply_corrections(
         Who sent them, kept with the chained records.
     explain : bool
         Archive each alert the correction raises with its explanation.
+    counted_through : datetime.date, optional
+        The portfolio's last counted day: pending days after it have no window, and a correction
+        computes none for them (default: every archived date counts).
 
     Returns
     -------
@@ -301,7 +305,8 @@ def apply_corrections(
             "[derived] off for this portfolio"
         )
     assets = list(run.assets)
-    calendar = pd.DatetimeIndex(pd.to_datetime(store.price_dates(portfolio)))
+    archived = pd.DatetimeIndex(pd.to_datetime(store.price_dates(portfolio)))
+    calendar = archived if counted_through is None else archived[archived <= pd.Timestamp(counted_through)]
     revised = revised.dropna(how="all").dropna(axis=1, how="all")
     unknown = [a for a in revised.columns if a not in assets]
     if unknown:
@@ -309,7 +314,7 @@ def apply_corrections(
             f"{source}: asset {unknown[0]!r} is not one of portfolio {portfolio!r}'s assets; "
             "correct only prices of its assets"
         )
-    outside = revised.index.difference(calendar)
+    outside = revised.index.difference(archived)
     if len(outside):
         raise DataError(
             f"{source}: date {outside[0].date()} is not an archived trading day of portfolio {portfolio!r}; "
@@ -317,6 +322,7 @@ def apply_corrections(
         )
     before = store.read_prices(portfolio, start=revised.index[0].date(), end=revised.index[-1].date(), assets=assets)
     rows = calendar.get_indexer(revised.index)
+    rows = rows[rows >= 0]  # a revised price on a pending day enters no window yet
     n_returns = len(calendar) - 1
     ends = window_end_positions(n_returns, config.window, config.step) if n_returns >= config.window else np.array([])
     touched = with_carried_sums(affected_windows(rows, ends, config.window), ends, config.window, config.step)

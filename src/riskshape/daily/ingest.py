@@ -9,11 +9,13 @@ Policy (what the service's price endpoints and the command line apply):
   (:func:`pending_days`). Sending the rest of a pending day is an ordinary ingest. An asset that
   stopped trading is delisted (:meth:`Ingestor.delist`), so days after its last one do not wait
   for it. Closings and delistings are chained records (``day_closed``, ``asset_delisted``).
-* **New days** that count are appended; the windows they complete are computed with
-  :meth:`riskshape.MonitorResult.update` on the portfolio's result kept in memory (rebuilt once
-  with :func:`riskshape.monitor` from the archived prices after a restart, or when someone else
-  wrote to the portfolio), then archived with :func:`riskshape.archive.archive_run`, which
-  evaluates the alert rules and appends only alerts not yet archived.
+* **New days** that count are appended; the windows they complete are computed from the tail
+  of the prices alone and archived with the alerts the rules' carry raises
+  (:mod:`riskshape.daily.tail_run`: the day state kept after every run, so a restart takes the
+  same bounded path). When the latest run has no day state (a run archived another way), the
+  whole history is computed once (:meth:`riskshape.MonitorResult.update` on a result kept in
+  memory, or :func:`riskshape.monitor` over the archived prices) and archived with
+  :func:`riskshape.archive.archive_run`, and the state is saved for the next day.
 * **Idempotent**: a day already archived with the same prices adds nothing; sending the same
   body twice adds no prices, windows, runs or alerts.
 * **Revisions**: a price that differs from the archived one for a day that counts (or a price
@@ -51,6 +53,15 @@ from riskshape.daily.days import (
     cut_off_how,
     day_statuses,
     split_counted,
+)
+from riskshape.daily.tail import Tail, read_tail, tail_span
+from riskshape.daily.tail_run import (
+    DayState,
+    archive_tail_run,
+    read_day_state,
+    recarry,
+    save_day_state,
+    state_after_full_run,
 )
 from riskshape.prices import MIN_ASSETS, ValidPrices
 from riskshape.store import AlertRecord, Run, Store
@@ -245,6 +256,8 @@ def _plan(
     source: str,
     counted_until: date | None,
     book: DayBook,
+    first_held: date | None = None,
+    last_held: date | None = None,
 ) -> _Plan:
     _check_assets(portfolio, incoming, held, source)
     if not len(held.columns):  # a new portfolio: its assets in name order, however the first prices came
@@ -260,15 +273,17 @@ def _plan(
                 f"{source}: asset {asset!r} has a price on {_day(late[0])}, after its last trading day {last} "
                 f"(it is delisted from portfolio {portfolio!r}); leave it out of days after {last}"
             )
-    if len(held.index):
-        last_held = held.index[-1]
-        inside = incoming.index[(incoming.index < last_held) & ~incoming.index.isin(held.index)]
+    if len(held.index) or last_held is not None:
+        # held may be only the body's span (the bounded path): then the archive's first and last dates are given
+        first = first_held or _day(held.index[0])
+        last_day = pd.Timestamp(last_held if last_held is not None else held.index[-1])
+        inside = incoming.index[(incoming.index < last_day) & ~incoming.index.isin(held.index)]
         if len(inside):
             raise DataError(
                 f"{source}: date {_day(inside[0])} (asset {incoming.columns[0]!r}) was never a trading day of "
-                f"portfolio {portfolio!r}: it falls inside the archived history ({_day(held.index[0])} to "
-                f"{_day(last_held)}) but has no prices there, and windows count trading days -- check the date; "
-                f"only days after {_day(last_held)} can be added (rerun the portfolio over the full history to "
+                f"portfolio {portfolio!r}: it falls inside the archived history ({first} to "
+                f"{_day(last_day)}) but has no prices there, and windows count trading days -- check the date; "
+                f"only days after {_day(last_day)} can be added (rerun the portfolio over the full history to "
                 "change its calendar)"
             )
     overlap = incoming.index.intersection(held.index)
@@ -514,6 +529,11 @@ class Ingestor:
         """Archive the prices (if any), close what the cut-off rule closes, compute the days that count."""
         store.get_portfolio(portfolio)
         config, run = portfolio_config(store, portfolio, self.default_config)
+        state = None if run is None else read_day_state(store, portfolio, run)
+        if run is not None and state is not None:
+            bounded = self._advance_tail(store, portfolio, prices, config, run, state, correction, source)
+            if bounded is not None:
+                return bounded
         counted_until = None if run is None else run.last_date
         held = store.read_prices(portfolio, assets=None if run is None else run.assets)
         book = read_day_book(store, portfolio)
@@ -525,7 +545,15 @@ class Ingestor:
             if plan.corrections and run is not None:
                 # corrections supersede the windows they touch, alone (daily/corrections.py); what the
                 # result kept in memory rests on the old prices, so it is dropped
-                fixed = apply_corrections(store, portfolio, revised_cells(plan.sent, held), config, run, source=source)
+                fixed = apply_corrections(
+                    store,
+                    portfolio,
+                    revised_cells(plan.sent, held),
+                    config,
+                    run,
+                    source=source,
+                    counted_through=counted_until,
+                )
                 self._forget(portfolio)
                 held = store.read_prices(portfolio, assets=list(run.assets))
                 run = store.latest_run(portfolio)
@@ -568,6 +596,8 @@ class Ingestor:
         expected = len(window_end_positions(n_returns, config.window, config.step))
         archived = len(store.window_ends(portfolio, config.hash()))
         if fixed is not None and (through is None or counted_until is None or through <= counted_until):
+            if state is not None and fixed.run_id is not None:
+                save_day_state(store, portfolio, recarry(store, portfolio, store.get_run(fixed.run_id), state, config))
             return replace(_corrected(portfolio, fixed, unchanged), pending=pending, closed=tuple(closed_now))
         if (
             (not corrections or fixed is not None)
@@ -586,6 +616,7 @@ class Ingestor:
             config,
         )
         report = archive_run(store, portfolio, result, config, source=source)
+        save_day_state(store, portfolio, state_after_full_run(report.run, result, config))
         self._remember(portfolio, result)
         n_added = report.features.added
         new_ends = result.window_ends[len(result.window_ends) - n_added :] if n_added else result.window_ends[:0]
@@ -606,6 +637,125 @@ class Ingestor:
             run_id=report.run.id,
             note=(note if fixed is None else f"{fixed.note}; {note}") + waiting,
         )
+
+    def _advance_tail(
+        self,
+        store: Store,
+        portfolio: str,
+        prices: pd.DataFrame | None,
+        config: Config,
+        run: Run,
+        state: DayState,
+        correction: bool,
+        source: str,
+    ) -> IngestReport | None:
+        """The bounded path (:mod:`riskshape.daily.tail_run`): what the new days need, read from the tail.
+
+        None (having written nothing) when the full path must run instead: the archived series does
+        not match the saved state.
+        """
+        assets = list(run.assets)
+        counted_until = state.counted_through
+        book = read_day_book(store, portfolio)
+        added = corrections = unchanged = 0
+        fixed: CorrectionReport | None = None
+        if prices is not None:
+            pending_cells = read_cells(store.engine, portfolio, counted_until)
+            last = max([counted_until, *pending_cells["date"]])
+            held = store.read_prices(portfolio, start=prices.index.min(), end=prices.index.max(), assets=assets)
+            plan = _plan(
+                portfolio,
+                prices,
+                held,
+                correction,
+                source,
+                counted_until,
+                book,
+                first_held=state.first_date,
+                last_held=last,
+            )
+            if plan.corrections:
+                fixed = apply_corrections(
+                    store,
+                    portfolio,
+                    revised_cells(plan.sent, held),
+                    config,
+                    run,
+                    source=source,
+                    counted_through=counted_until,
+                )
+                self._forget(portfolio)
+                if fixed.run_id is not None:
+                    run = store.get_run(fixed.run_id)
+                    state = recarry(store, portfolio, run, state, config)
+                    save_day_state(store, portfolio, state)
+            written = store.append_prices(portfolio, plan.sent, source=source)
+            added = written.added + written.corrections - (0 if fixed is not None else plan.corrections)
+            corrections, unchanged = plan.corrections, plan.unchanged
+        statuses = day_statuses(read_cells(store.engine, portfolio, counted_until), assets, book)
+        closed_now = self._close_by_cut_off(store, portfolio, statuses)
+        if closed_now:
+            book = DayBook(closed={**book.closed, **closed_now}, delisted=book.delisted)
+            statuses = day_statuses(read_cells(store.engine, portfolio, counted_until), assets, book)
+        counted, pending = split_counted(statuses)
+        base = dict(
+            portfolio=portfolio,
+            prices_added=added,
+            corrections=corrections,
+            unchanged=unchanged,
+            pending=pending,
+            closed=tuple(closed_now),
+        )
+        waiting = f"; {len(pending)} day(s) pending, from {pending[0].day}" if pending else ""
+        if not counted:
+            if fixed is not None:
+                return replace(_corrected(portfolio, fixed, unchanged), pending=pending, closed=tuple(closed_now))
+            note = "nothing new: every price was already archived with the same value" if not pending else ""
+            note = note or f"prices archived; no day counts yet{waiting}"
+            return IngestReport(**base, **_no_windows(note))  # type: ignore[arg-type]
+        through = counted[-1].day
+        span = tail_span(state.n_prices, state.n_prices + len(counted), config)
+        if span.windows_before != state.carry.windows:  # not the state of this series: the full path rebuilds it
+            return None
+        if len(span.new_ends):
+            tail = read_tail(store, portfolio, assets, span, through, config)
+        else:
+            days = store.read_prices(portfolio, start=counted[0].day, end=through, assets=assets)
+            tail = Tail(span=span, prices=days, previous=None)
+        self._forget(portfolio)  # the result kept in memory (full path) is behind now
+        try:
+            done = archive_tail_run(store, portfolio, tail, config, state, through, source=source)
+        except DataError:  # the archived series does not match the state (nothing written): the full path
+            return None
+        n_added = done.features.added
+        note = f"{n_added} window(s) added"
+        return IngestReport(
+            **base,  # type: ignore[arg-type]
+            windows_computed=done.windows_computed,
+            windows_added=n_added,
+            windows_differing=done.features.differing,
+            first_window=done.window_ends[0].date() if len(done.window_ends) else None,
+            last_window=done.window_ends[-1].date() if len(done.window_ends) else None,
+            alerts=done.alerts if fixed is None else fixed.alerts_raised + done.alerts,
+            run_id=done.run.id,
+            note=(note if fixed is None else f"{fixed.note}; {note}") + waiting,
+        )
+
+    def _close_by_cut_off(self, store: Store, portfolio: str, statuses: tuple[DayStatus, ...]) -> dict[date, str]:
+        """Close (chained ``day_closed`` records) the days the ``[daily] close_share`` rule closes now."""
+        closing = closes_by_cut_off(statuses, self.default_config.daily.close_share)
+        if not closing:
+            return {}
+        how = cut_off_how(float(self.default_config.daily.close_share or 0.0))
+        for status in closing:
+            store.append_event(
+                DAY_CLOSED,
+                {"who": "riskshape", "how": how, "missing": list(status.missing)},
+                portfolio=portfolio,
+                subject=status.day.isoformat(),
+                actor="riskshape",
+            )
+        return {status.day: how for status in closing}
 
     def _result(
         self, portfolio: str, table: ValidPrices, held: pd.DataFrame, corrections: int, config: Config

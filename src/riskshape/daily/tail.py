@@ -14,10 +14,9 @@ tail's returns and its absolute ``row_offset`` computes exactly the windows a fu
 tail's dates, one for its prices, one per homology dimension for the previous diagrams), and
 :func:`tail_windows` the computation.
 
-Not yet here (the rule states): the alert rules read a trailing history of each summary
-(``lookback`` windows for a quantile or z-score rule) and carry state across windows (hysteresis,
-cool-down, consecutive counts). :func:`riskshape.archive.archive_run` evaluates them over the whole
-series today, so the ingest still hands it the whole history; the tail feeds the windows only.
+The rule states (what the alert rules carry across windows, and the trailing summaries the
+quantile and z-score rules read) are :mod:`riskshape.daily.tail_run`'s: with them the ingest
+archives a day from the tail alone (:func:`riskshape.daily.tail_run.archive_tail_run`).
 """
 
 from __future__ import annotations

@@ -126,9 +126,12 @@ def _run_query() -> sa.Select[Any]:
     return sa.select(t.runs, t.portfolios.c.name).join(t.portfolios, t.portfolios.c.id == t.runs.c.portfolio_id)
 
 
-def create_run(engine: Engine, portfolio: str, manifest: RunManifest, prices: PriceFrame | None = None) -> Run:
+def create_run(
+    engine: Engine, portfolio: str, manifest: RunManifest, prices: PriceFrame | None = None, archived: bool = False
+) -> Run:
     """Archive the prices of a run (as corrections where they differ) and record its manifest, in one
-    transaction. See :meth:`riskshape.store.Store.create_run`.
+    transaction; with ``archived``, the prices were read from the archive as they stand and only their
+    extent is recorded. See :meth:`riskshape.store.Store.create_run`.
     """
     import pandas as pd  # writing a run only: the archive's reads load no pandas
 
@@ -148,7 +151,7 @@ def create_run(engine: Engine, portfolio: str, manifest: RunManifest, prices: Pr
     with write_transaction(engine) as connection:
         now = datetime.now(timezone.utc)  # under the write lock: run ids grow with created_at (knowledge time)
         pid = portfolio_id(connection, portfolio)
-        written = PriceWrite(0, 0, 0) if valid is None else append_prices(connection, pid, valid, now)
+        written = PriceWrite(0, 0, 0) if valid is None or archived else append_prices(connection, pid, valid, now)
         values = {
             "portfolio_id": pid,
             "created_at": now,

@@ -27,7 +27,7 @@ from riskshape.store.database import read_transaction, write_transaction
 from riskshape.store.ledger import ledger_head
 from riskshape.store.records import EventRecord, Head
 
-__all__ = ["append_event", "append_event_on", "list_events", "event_payload", "EventCheck"]
+__all__ = ["append_event", "append_event_on", "list_events", "latest_event", "event_payload", "EventCheck"]
 
 EventCheck = Callable[[Head], Mapping[str, object] | None]
 """Called with the ledger head inside the write transaction, before an event is appended; it raises
@@ -181,3 +181,21 @@ def list_events(
         rows = connection.execute(query).all()
     fields = EventRecord.__dataclass_fields__
     return tuple(EventRecord(**{name: row._mapping[name] for name in fields}) for row in rows)
+
+
+def latest_event(engine: Engine, *, kind: str, portfolio: str) -> EventRecord | None:
+    """The portfolio's latest event of one kind, or None: one row read, however many there are.
+
+    See :meth:`riskshape.store.Store.latest_event`.
+    """
+    query = (
+        sa.select(t.events)
+        .where(t.events.c.kind == kind, t.events.c.portfolio == portfolio)
+        .order_by(t.events.c.seq.desc())
+        .limit(1)
+    )
+    with read_transaction(engine) as connection:
+        row = connection.execute(query).first()
+    if row is None:
+        return None
+    return EventRecord(**{name: row._mapping[name] for name in EventRecord.__dataclass_fields__})

@@ -249,13 +249,17 @@ class Store:
             return pricebook.list_corrections(connection, catalog.portfolio_id(connection, portfolio), first, last)
 
     @_database_errors
-    def create_run(self, portfolio: str, manifest: RunManifest, prices: PriceFrame | None = None) -> Run:
+    def create_run(
+        self, portfolio: str, manifest: RunManifest, prices: PriceFrame | None = None, *, prices_archived: bool = False
+    ) -> Run:
         """Record a run: archive its prices (corrections where they differ) and its manifest, atomically.
 
         The run remembers the extent of the prices (dates, assets, highest price row), so
-        :meth:`read_prices` with ``as_of_run`` rebuilds exactly the table it saw.
+        :meth:`read_prices` with ``as_of_run`` rebuilds exactly the table it saw. With
+        ``prices_archived`` the prices were just read from the archive (the daily loop's tail): only
+        their extent is recorded, without comparing them with the archive again.
         """
-        return catalog.create_run(self.engine, portfolio, manifest, prices)
+        return catalog.create_run(self.engine, portfolio, manifest, prices, prices_archived)
 
     @_database_errors
     def get_run(self, run_id: int) -> Run:
@@ -491,6 +495,11 @@ class Store:
         return events.list_events(
             self.engine, kind=kind, portfolio=portfolio, subject=subject, as_known_at=to_known_at(as_known_at)
         )
+
+    @_database_errors
+    def latest_event(self, kind: str, portfolio: str) -> EventRecord | None:
+        """The portfolio's latest chained event of ``kind`` (one row read), or None if it has none."""
+        return events.latest_event(self.engine, kind=kind, portfolio=portfolio)
 
     # -- API keys --------------------------------------------------------------------------------
     @_database_errors

@@ -1,0 +1,410 @@
+"""A new day from the tail alone: the state a day needs kept in the archive, and the run that archives its windows.
+
+The windows of a new day need the tail of the prices and the previous window's diagrams
+(:mod:`riskshape.daily.tail`); its alerts need the rules' carry and the ``lookback`` feature rows
+before the new windows (:mod:`riskshape.alerts.carry`). What is left is where the series stands:
+how many price dates count, through which day. :class:`DayState` holds the three (carry, count,
+day) as of one run; it is kept in the archive as a chained ``day_state`` record after every run
+of the daily loop, so a restarted service takes the same bounded path as a warm one.
+
+A state is used only when it belongs to the portfolio's latest run (same run id and
+configuration hash); any other run (``riskshape run``, a run archived by an older version) makes
+the next day rebuild it from the whole history once (:meth:`riskshape.daily.Ingestor.ingest`'s
+full path), after which the days are bounded again.
+
+:func:`archive_tail_run` is the one place a tail is archived: a run over the tail's prices (its
+manifest's input hash is theirs), the new windows' features and diagrams, the alerts the carry
+raises -- the same records a full run over the whole history archives for those windows -- and
+the state after them.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from datetime import date, datetime, timezone
+
+import pandas as pd
+
+from riskshape.alerts.carry import RulesCarry, advance_rules, carry_rules, lookback_needed
+from riskshape.alerts.model import Alert, Firing
+from riskshape.compute import window_end_positions
+from riskshape.compute.monitor import MonitorResult
+from riskshape.compute.returns import to_returns
+from riskshape.config import Config
+from riskshape.daily.tail import Tail, read_tail, tail_span, tail_windows
+from riskshape.errors import DataError
+from riskshape.explain.archived import explanation_json
+from riskshape.prices import ValidPrices, hash_prices
+from riskshape.store import AlertRecord, EventRecord, Run, RunManifest, Store, WriteCount
+from riskshape.store.presence import recent_dates
+
+__all__ = [
+    "DAY_STATE",
+    "DayState",
+    "TailRun",
+    "read_day_state",
+    "save_day_state",
+    "state_after_full_run",
+    "recarry",
+    "archive_tail_run",
+    "EXPLAIN_CONTEXT",
+]
+
+DAY_STATE = "day_state"
+"""Kind of the chained record of a portfolio's state after a run (subject: the last counted day)."""
+
+EXPLAIN_CONTEXT = 61
+"""Windows before an alert's window that its explanation reads (:func:`riskshape.explain.explain_alert`
+with its defaults looks 60 windows back for loops and ``ceil(window / step)`` for the disjoint window);
+with one more, the explanation is the one a full run gives."""
+
+
+@dataclass(frozen=True)
+class DayState:
+    """Where a portfolio's series stands after a run: all a new day needs besides the tail.
+
+    Attributes
+    ----------
+    run_id : int
+        The run it was saved after (the state is used only while that run is the latest).
+    config_hash : str
+        The configuration of the series.
+    first_date : datetime.date
+        The portfolio's first counted price date.
+    counted_through : datetime.date
+        The last counted price date (days after it are new or pending).
+    n_prices : int
+        Counted price dates through ``counted_through``.
+    carry : RulesCarry
+        The rules' carry after the last archived window.
+    """
+
+    run_id: int
+    config_hash: str
+    first_date: date
+    counted_through: date
+    n_prices: int
+    carry: RulesCarry
+
+    def to_data(self) -> dict[str, object]:
+        """Plain JSON data for the chained record.
+
+        Returns
+        -------
+        dict
+        """
+        return {
+            "run": self.run_id,
+            "config_hash": self.config_hash,
+            "first_date": self.first_date.isoformat(),
+            "counted_through": self.counted_through.isoformat(),
+            "n_prices": self.n_prices,
+            "carry": self.carry.to_data(),
+        }
+
+
+def read_day_state(store: Store, portfolio: str, run: Run) -> DayState | None:
+    """The portfolio's saved state, if it belongs to ``run`` (its latest run); else None.
+
+    Parameters
+    ----------
+    store : Store
+        The archive.
+    portfolio : str
+        The portfolio.
+    run : Run
+        Its latest run.
+
+    Returns
+    -------
+    DayState or None
+        None when none was saved after ``run`` (the caller rebuilds it from the whole history).
+    """
+    event = store.latest_event(DAY_STATE, portfolio)
+    if event is None:
+        return None
+    data = event.data
+    try:
+        state = DayState(
+            run_id=int(str(data["run"])),
+            config_hash=str(data["config_hash"]),
+            first_date=date.fromisoformat(str(data["first_date"])),
+            counted_through=date.fromisoformat(str(data["counted_through"])),
+            n_prices=int(str(data["n_prices"])),
+            carry=RulesCarry.from_data(data["carry"]),  # type: ignore[arg-type]
+        )
+    except (KeyError, TypeError, ValueError, DataError):
+        return None
+    if state.run_id != run.id or state.config_hash != run.config_hash:
+        return None
+    return state
+
+
+def save_day_state(store: Store, portfolio: str, state: DayState) -> EventRecord:
+    """Append the state as a chained ``day_state`` record.
+
+    Parameters
+    ----------
+    store : Store
+        The archive.
+    portfolio : str
+        The portfolio.
+    state : DayState
+        After its latest run.
+
+    Returns
+    -------
+    EventRecord
+    """
+    return store.append_event(
+        DAY_STATE, state.to_data(), portfolio=portfolio, subject=state.counted_through.isoformat(), actor="riskshape"
+    )
+
+
+def state_after_full_run(run: Run, result: MonitorResult, config: Config) -> DayState:
+    """The state after a run archived from a whole history (``result`` covers every counted day).
+
+    Parameters
+    ----------
+    run : Run
+        The run that archived ``result``.
+    result : MonitorResult
+        The whole history's result.
+    config : Config
+        Its configuration.
+
+    Returns
+    -------
+    DayState
+    """
+    return DayState(
+        run_id=run.id,
+        config_hash=config.hash(),
+        first_date=result.prices.index[0].date(),
+        counted_through=result.prices.index[-1].date(),
+        n_prices=len(result.prices),
+        carry=carry_rules(result.features, config.alerts.rules),
+    )
+
+
+def recarry(store: Store, portfolio: str, run: Run, state: DayState, config: Config) -> DayState:
+    """The state after a correction's run: the same days, the carry rebuilt from the archived series.
+
+    A correction may change windows anywhere, and the rules' state machine carries their effect
+    forward, so the carry is made again from the features series (the windows' summaries, not the
+    prices).
+
+    Parameters
+    ----------
+    store : Store
+    portfolio : str
+    run : Run
+        The correction's run (now the latest).
+    state : DayState
+        The state before the correction.
+    config : Config
+
+    Returns
+    -------
+    DayState
+    """
+    watched = sorted({rule.summary for rule in config.alerts.rules})
+    series = store.read_features(portfolio, config_hash=config.hash(), columns=watched or None).frame
+    return DayState(
+        run_id=run.id,
+        config_hash=state.config_hash,
+        first_date=state.first_date,
+        counted_through=state.counted_through,
+        n_prices=state.n_prices,
+        carry=carry_rules(series, config.alerts.rules),
+    )
+
+
+@dataclass(frozen=True)
+class TailRun:
+    """What :func:`archive_tail_run` archived."""
+
+    run: Run
+    features: WriteCount
+    diagrams: WriteCount
+    alerts: tuple[AlertRecord, ...]
+    windows_computed: int
+    window_ends: pd.DatetimeIndex
+    state: DayState
+
+
+def _tail_result(tail: Tail, config: Config) -> MonitorResult:
+    """The new windows as a result over the tail's prices (their returns, diagrams and inputs)."""
+    ends, windows = tail_windows(tail, config)
+    prices = ValidPrices.of_validated_parts(tail.prices)
+    return MonitorResult(
+        config=config,
+        prices=prices,
+        returns=to_returns(prices, config.returns),
+        window_ends=ends,
+        windows=tuple(windows),
+    )
+
+
+def _date_of_row(store: Store, portfolio: str, tail: Tail, row: int, through: date, n_now: int) -> date:
+    """The price date at absolute row ``row`` (from the tail when it holds it, else one bounded query)."""
+    if row >= tail.span.first_row:
+        found: date = tail.prices.index[row - tail.span.first_row].date()
+        return found
+    return recent_dates(store.engine, portfolio, through, n_now - row)[0]
+
+
+def _past_features(
+    store: Store, portfolio: str, config: Config, tail: Tail, state: DayState, through: date, n_now: int
+) -> pd.DataFrame:
+    """The feature rows of the last ``lookback`` archived windows (what the carry needs)."""
+    need = min(lookback_needed(config.alerts.rules), state.carry.windows)
+    watched = sorted({rule.summary for rule in config.alerts.rules})
+    if not need or not watched:
+        return pd.DataFrame(columns=watched, index=pd.DatetimeIndex([], name="window_end"), dtype=float)
+    ends = window_end_positions(n_now - 1, config.window, config.step)
+    start = _date_of_row(store, portfolio, tail, int(ends[state.carry.windows - need]) + 1, through, n_now)
+    past = store.read_features(
+        portfolio, start=start, end=state.counted_through, columns=watched, config_hash=config.hash()
+    ).frame
+    if len(past) != need or (state.carry.window_end is not None and past.index[-1].date() != state.carry.window_end):
+        raise DataError(
+            f"portfolio {portfolio!r}: {len(past)} archived window(s) from {start}, {need} expected before the new "
+            "ones; the archive's series does not match its saved state"
+        )
+    return past
+
+
+def archive_tail_run(
+    store: Store,
+    portfolio: str,
+    tail: Tail,
+    config: Config,
+    state: DayState,
+    through: date,
+    *,
+    source: str | None = None,
+    raised_at: datetime | None = None,
+    explain: bool = True,
+) -> TailRun:
+    """Archive the windows the tail completes, the alerts they raise, and the state after them.
+
+    Parameters
+    ----------
+    store : Store
+        The archive.
+    portfolio : str
+        The portfolio.
+    tail : Tail
+        From :func:`riskshape.daily.tail.read_tail` for the new counted days (``first_row +
+        n_rows`` of its span is the count of price dates now); when its span has no new window,
+        its prices are the new days' (a run still records them).
+    config : Config
+        The portfolio's configuration (that of ``state``).
+    state : DayState
+        The state before the new days.
+    through : datetime.date
+        The last counted day now.
+    source : str, optional
+        Where the prices came from, kept in the manifest.
+    raised_at : datetime, optional
+        When the alerts are raised (UTC); defaults to now.
+    explain : bool
+        Archive each new alert's explanation inside its record.
+
+    Returns
+    -------
+    TailRun
+
+    Raises
+    ------
+    DataError
+        If the archived series does not match the state (the caller rebuilds from the whole history).
+    StoreError
+        If the archive refuses a write.
+    """
+    n_now = tail.span.first_row + tail.span.n_rows
+    result = _tail_result(tail, config)
+    past = _past_features(store, portfolio, config, tail, state, through, n_now) if len(result.window_ends) else None
+    firings, carry = (
+        advance_rules(state.carry, past, result.features, config.alerts.rules)
+        if past is not None
+        else ([], state.carry)
+    )
+    manifest = RunManifest(
+        config=config.to_mapping(),
+        config_hash=config.hash(),
+        input_hash=hash_prices(result.prices),
+        package_version=result.package_version,
+        source=source,
+    )
+    stamp = (raised_at or datetime.now(timezone.utc)).astimezone(timezone.utc)
+    context = _context(store, portfolio, config, state, n_now, through, result, firings) if firings else result
+    alerts = [
+        Alert(
+            portfolio=portfolio,
+            firing=f,
+            raised_at=stamp,
+            config_hash=manifest.config_hash,
+            inputs_hash=context.window_inputs_hash(f.window_end),
+            package_version=result.package_version,
+            explanation=explanation_json(context, f) if explain else None,
+        )
+        for f in firings
+    ]
+    # the writes: one transaction (issue 19: a run is seen whole or not at all; one commitment, one commit)
+    with store.transaction():
+        run = store.create_run(portfolio, manifest, result.prices, prices_archived=True)  # read from the archive
+        features = diagrams = WriteCount(0, 0, 0)
+        if len(result.window_ends):
+            features = store.write_features(run.id, result.features)
+            dims = range(config.maxdim + 1)
+            diagrams = store.write_diagrams(
+                run.id, ((end, k, result.diagram(end, k)) for end in result.window_ends for k in dims)
+            )
+        appended = store.append_alerts(alerts, run.id) if alerts else None  # no write (and no commit) for none
+        after = DayState(
+            run_id=run.id,
+            config_hash=state.config_hash,
+            first_date=state.first_date,
+            counted_through=through,
+            n_prices=n_now,
+            carry=carry,
+        )
+        save_day_state(store, portfolio, after)
+    return TailRun(
+        run=run,
+        features=features,
+        diagrams=diagrams,
+        alerts=appended.added if appended is not None else (),
+        windows_computed=len(result.window_ends),
+        window_ends=result.window_ends,
+        state=after,
+    )
+
+
+def _context(
+    store: Store,
+    portfolio: str,
+    config: Config,
+    state: DayState,
+    n_now: int,
+    through: date,
+    result: MonitorResult,
+    firings: list[Firing],
+) -> MonitorResult:
+    """A result with :data:`EXPLAIN_CONTEXT` windows before the earliest firing (or every window before it).
+
+    Only a day that raises an alert reads and computes these windows (their explanation looks back).
+    """
+    first_new = state.carry.windows
+    earliest = first_new + int(result.window_ends.get_loc(min(f.window_end for f in firings)))
+    context = max(EXPLAIN_CONTEXT, -(-config.window // config.step))
+    start = max(0, earliest - context)
+    if start >= first_new:
+        return result
+    ends = window_end_positions(n_now - 1, config.window, config.step)
+    before = int(ends[start - 1]) + 2 if start else 0  # price dates whose windows end before window `start`
+    span = tail_span(before, n_now, config)
+    wider = read_tail(store, portfolio, list(result.prices.columns), span, through, config)
+    return _tail_result(wider, config)
