@@ -14,8 +14,10 @@ import signal
 import subprocess
 import sys
 import time
+from collections.abc import Sequence
 from dataclasses import dataclass
 from pathlib import Path
+from typing import Any
 
 import httpx
 import sqlalchemy as sa
@@ -175,6 +177,21 @@ def table_counts(url: str) -> dict[str, int]:
         }
 
 
+def _commitments_masked(rows: Sequence[Any], columns: list[str]) -> list[tuple[object, ...]]:
+    """Events with what two honest runs differ in masked: a commitment's sequence number, subject and
+    payload name the row-id and run ranges it covers, which depend on how the work was split into
+    commits (a redo commits what a kill cut apart; ``audit verify`` checks them); a key event's
+    subject and payload carry the key's id, time and token digest (key material, as ``key_id`` above).
+    """
+    seq, subject, payload, kind = (columns.index(c) for c in ("seq", "subject", "payload", "kind"))
+    masked = {
+        "records_sealed": {seq, subject, payload},
+        "key_created": {subject, payload},
+        "key_revoked": {subject, payload},
+    }
+    return [tuple("<masked>" if i in masked.get(str(r[kind]), ()) else v for i, v in enumerate(r)) for r in rows]
+
+
 def archive_view(url: str, tables: tuple[str, ...] | None = None) -> dict[str, list[tuple[object, ...]]]:
     """Every table's rows, sorted, without the columns two honest runs of the same work differ in
     (``runs`` is kept as its configuration and input hashes only; ``portfolio_id`` becomes the name).
@@ -191,6 +208,8 @@ def archive_view(url: str, tables: tuple[str, ...] | None = None) -> dict[str, l
                 continue
             kept = [c for c in table.columns if c.name not in _NOT_COMPARED]
             rows = connection.execute(sa.select(*kept)).all()
+            if table.name == "events":
+                rows = _commitments_masked(rows, [c.name for c in kept])
             at = [i for i, c in enumerate(kept) if c.name == "portfolio_id"]
             view[table.name] = sorted(
                 (tuple(names.get(v) if i in at else v for i, v in enumerate(r)) for r in rows), key=repr
