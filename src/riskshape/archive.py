@@ -23,7 +23,7 @@ from datetime import datetime, timezone
 
 import pandas as pd
 
-from riskshape.alerts.model import Alert
+from riskshape.alerts.model import Alert, Firing
 from riskshape.alerts.rules import evaluate_rules, recheck_firing
 from riskshape.compute.monitor import MonitorResult, monitor
 from riskshape.config import ComputeConfig, Config
@@ -39,6 +39,7 @@ __all__ = [
     "ReproduceReport",
     "Recomputation",
     "archive_run",
+    "alerts_for",
     "recompute_run",
     "reproduce_alert",
     "reproduce_alerts",
@@ -51,6 +52,35 @@ VALUE_RTOL = 1e-5
 epsilon is 1.2e-7), and summaries add up many bars, so agreement to ~1e-5 is float32-level."""
 VALUE_ATOL = 1e-7
 """Absolute tolerance on a recomputed value, for values near zero."""
+
+
+def alerts_for(
+    portfolio: str,
+    firings: Sequence[Firing],
+    result: MonitorResult,
+    config_hash: str,
+    raised_at: datetime,
+    *,
+    explain: bool = True,
+) -> list[Alert]:
+    """The alerts to archive for ``firings`` of a run: each with its window's inputs hash, the
+    package version and (with ``explain``) its explanation, all taken from ``result``.
+
+    The one place a firing becomes an archived alert, for whole runs (:func:`archive_run`) and
+    daily tail runs (:func:`riskshape.daily.tail_run.archive_tail_run`).
+    """
+    return [
+        Alert(
+            portfolio=portfolio,
+            firing=f,
+            raised_at=raised_at,
+            config_hash=config_hash,
+            inputs_hash=result.window_inputs_hash(f.window_end),
+            package_version=result.package_version,
+            explanation=explanation_json(result, f) if explain else None,
+        )
+        for f in firings
+    ]
 
 
 @dataclass(frozen=True)
@@ -173,18 +203,7 @@ def archive_run(
     )
     firings = evaluate_rules(result.features, config.alerts.rules)
     new = [f for f in firings if (f.rule, f.window_end.date()) not in archived]
-    alerts = [
-        Alert(
-            portfolio=portfolio,
-            firing=f,
-            raised_at=stamp,
-            config_hash=manifest.config_hash,
-            inputs_hash=result.window_inputs_hash(f.window_end),
-            package_version=result.package_version,
-            explanation=explanation_json(result, f) if explain else None,
-        )
-        for f in new
-    ]
+    alerts = alerts_for(portfolio, new, result, manifest.config_hash, stamp, explain=explain)
     dims = range(config.maxdim + 1)
     fresh = [end for end in result.window_ends if end.date() not in held]
     # One transaction: the run's prices, manifest, features, diagrams, alerts and its commitment are

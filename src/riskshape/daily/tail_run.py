@@ -26,14 +26,14 @@ from datetime import date, datetime, timezone
 import pandas as pd
 
 from riskshape.alerts.carry import RulesCarry, advance_rules, carry_rules, lookback_needed
-from riskshape.alerts.model import Alert, Firing
+from riskshape.alerts.model import Firing
+from riskshape.archive import alerts_for
 from riskshape.compute import window_end_positions
 from riskshape.compute.monitor import MonitorResult
 from riskshape.compute.returns import to_returns
 from riskshape.config import Config
 from riskshape.daily.tail import Tail, read_tail, tail_span, tail_windows
 from riskshape.errors import DataError
-from riskshape.explain.archived import explanation_json
 from riskshape.prices import ValidPrices, hash_prices
 from riskshape.store import AlertRecord, EventRecord, Run, RunManifest, Store, WriteCount
 from riskshape.store.presence import recent_dates
@@ -340,18 +340,7 @@ def archive_tail_run(
     )
     stamp = (raised_at or datetime.now(timezone.utc)).astimezone(timezone.utc)
     context = _context(store, portfolio, config, state, n_now, through, result, firings) if firings else result
-    alerts = [
-        Alert(
-            portfolio=portfolio,
-            firing=f,
-            raised_at=stamp,
-            config_hash=manifest.config_hash,
-            inputs_hash=context.window_inputs_hash(f.window_end),
-            package_version=result.package_version,
-            explanation=explanation_json(context, f) if explain else None,
-        )
-        for f in firings
-    ]
+    alerts = alerts_for(portfolio, firings, context, manifest.config_hash, stamp, explain=explain)
     # the writes: one transaction (issue 19: a run is seen whole or not at all; one commitment, one commit)
     with store.transaction():
         run = store.create_run(portfolio, manifest, result.prices, prices_archived=True)  # read from the archive

@@ -8,7 +8,7 @@
 
 >>> from riskshape.outputs import EXPORT_COLUMNS
 >>> EXPORT_COLUMNS[:2]
-('caution', 'id')
+('caution', 'known_at')
 """
 
 from __future__ import annotations
