@@ -64,6 +64,29 @@ def _judge(tamper: Tamper, store: Store, head: str) -> None:
         assert any(str(k) in bad.reason for k in keys), (tamper, str(bad))
 
 
+def _tamper_a_copy(
+    base_file: tuple[Path, str],
+    tmp_path_factory: pytest.TempPathFactory,
+    edit: Callable[[sa.Connection], Tamper],
+) -> None:
+    """Copy the base archive, drop its guards as anyone holding the file can, edit it, judge verify."""
+    base, head = base_file
+    tmp = tmp_path_factory.mktemp("case")
+    copy = tmp / "case.sqlite"
+    shutil.copyfile(base, copy)
+    url = f"sqlite:///{copy}"
+    with open_store(url) as store, store.engine.connect() as connection:
+        connection.connection.driver_connection.execute("PRAGMA foreign_keys = OFF")
+        with connection.begin():
+            for name in APPEND_ONLY_TABLES:
+                for action in ("update", "delete"):
+                    connection.exec_driver_sql(f"DROP TRIGGER IF EXISTS {name}_no_{action}")
+            tamper = edit(connection)
+    with open_store(url) as fresh:
+        _judge(tamper, fresh, head)
+    shutil.rmtree(tmp)
+
+
 @pytest.mark.parametrize("kind", KINDS)
 @pytest.mark.parametrize("table", TABLES)
 @settings(settings.get_profile("tamper-sqlite"))
@@ -77,21 +100,7 @@ def test_sqlite_tamper_is_caught(
     pick_column: int,
     pick_other: int,
 ) -> None:
-    base, head = base_file
-    tmp = tmp_path_factory.mktemp("case")
-    copy = tmp / "case.sqlite"
-    shutil.copyfile(base, copy)
-    url = f"sqlite:///{copy}"
-    with open_store(url) as store, store.engine.connect() as connection:
-        connection.connection.driver_connection.execute("PRAGMA foreign_keys = OFF")
-        with connection.begin():
-            for name in APPEND_ONLY_TABLES:
-                for action in ("update", "delete"):
-                    connection.exec_driver_sql(f"DROP TRIGGER IF EXISTS {name}_no_{action}")
-            tamper = apply(connection, kind, table, pick, pick_column, pick_other)
-    with open_store(url) as fresh:
-        _judge(tamper, fresh, head)
-    shutil.rmtree(tmp)
+    _tamper_a_copy(base_file, tmp_path_factory, lambda c: apply(c, kind, table, pick, pick_column, pick_other))
 
 
 @settings(settings.get_profile("tamper-sqlite"), max_examples=CUT_CASES["sqlite"])
@@ -99,21 +108,7 @@ def test_sqlite_tamper_is_caught(
 def test_sqlite_cut_tail_is_caught_against_a_kept_head(
     base_file: tuple[Path, str], tmp_path_factory: pytest.TempPathFactory, records: int, with_rows: bool
 ) -> None:
-    base, head = base_file
-    tmp = tmp_path_factory.mktemp("cut")
-    copy = tmp / "case.sqlite"
-    shutil.copyfile(base, copy)
-    url = f"sqlite:///{copy}"
-    with open_store(url) as store, store.engine.connect() as connection:
-        connection.connection.driver_connection.execute("PRAGMA foreign_keys = OFF")
-        with connection.begin():
-            for name in APPEND_ONLY_TABLES:
-                for action in ("update", "delete"):
-                    connection.exec_driver_sql(f"DROP TRIGGER IF EXISTS {name}_no_{action}")
-            tamper = cut_tail(connection, records, with_rows)
-    with open_store(url) as fresh:
-        _judge(tamper, fresh, head)
-    shutil.rmtree(tmp)
+    _tamper_a_copy(base_file, tmp_path_factory, lambda c: cut_tail(c, records, with_rows))
 
 
 class _Undo(Exception):
