@@ -82,6 +82,8 @@ def ingest(
         else:
             for line in _report_lines(outcome.report):
                 click.echo(line)
+            for warning in outcome.warnings:
+                click.echo(f"  warning: {warning}")
     if failed:
         raise DataError(
             f"{failed} of {len(outcomes)} portfolio(s) refused (listed above; nothing of them archived); "
