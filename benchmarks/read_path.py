@@ -7,10 +7,15 @@ Needs Debian's ``wrk`` (``apt-get update && apt-get install -y wrk``). On 127.0.
 2. for each worker count asked (``--workers 1 2``), starts ``riskshape serve --workers N`` and, on
    the same uvicorn with the same options and worker count, a bare FastAPI app whose one endpoint
    returns a constant JSON object;
-3. runs ``wrk`` (one thread, ``--connections`` keep-alive connections, ``--seconds`` each) against
+3. warms every worker of both servers up: short ``wrk`` runs (``--connections`` connections) against
+   each target until every worker process has held some of the connections (the worker processes
+   are the server's spawned children, or the server itself with one worker; a worker answers the
+   requests of the connections it accepted), so no timed run pays a worker's first requests (its
+   key check and its prepared body);
+4. runs ``wrk`` (one thread, ``--connections`` keep-alive connections, ``--seconds`` each) against
    the bare endpoint and against ``latest``, alternating, ``--rounds`` times; with ``--etag`` also
    against ``latest`` sending the current ETag in ``If-None-Match`` (304 answers);
-4. prints requests/s and p99 latency of each run, and per worker count the medians and the ratios
+5. prints requests/s and p99 latency of each run, and per worker count the medians and the ratios
    (throughput of latest / bare; p99 of latest / bare).
 
     python benchmarks/read_path.py --workers 1 2 --rounds 3
@@ -35,6 +40,7 @@ from dataclasses import dataclass
 from pathlib import Path
 
 import httpx
+import psutil
 
 from riskshape.caution import CAUTION
 from riskshape.demo.scenario import generate_scenario
@@ -155,6 +161,55 @@ def run_wrk(url: str, script: Path, connections: int, seconds: int, target: str)
     )
 
 
+WARM_UP_SECONDS = 3
+WARM_UP_TRIES = 5
+
+
+def worker_processes(server: subprocess.Popen[bytes], workers: int) -> list[psutil.Process]:
+    """The processes that answer requests: the server itself with one worker, else its spawned workers."""
+    main = psutil.Process(server.pid)
+    if workers == 1:
+        return [main]
+    found: list[psutil.Process] = []
+    deadline = time.monotonic() + 120
+    while time.monotonic() < deadline:
+        found = [c for c in main.children() if any("spawn_main" in part for part in c.cmdline())]
+        if len(found) == workers:
+            return found
+        time.sleep(0.2)
+    raise SystemExit(f"expected {workers} worker processes under pid {server.pid}, found {len(found)}")
+
+
+def held_connections(process: psutil.Process, port: int) -> int:
+    """Established connections to ``port`` that ``process`` accepted (it answers their requests)."""
+    return sum(
+        1 for c in process.net_connections(kind="tcp") if c.status == psutil.CONN_ESTABLISHED and c.laddr.port == port
+    )
+
+
+def warm_up(processes: list[psutil.Process], runs: list[tuple[str, Path]], connections: int) -> list[int]:
+    """Run ``wrk`` against every target until each worker process has held some of its connections.
+
+    Returns the most connections each worker held at once. A worker still starting holds none (it
+    accepts only once its event loop runs), so this waits for it too.
+    """
+    most = [0] * len(processes)
+    for _ in range(WARM_UP_TRIES):
+        for target, script in runs:
+            port = int(target.split(":")[2].split("/")[0])
+            command = ["wrk", "-t1", f"-c{connections}", f"-d{WARM_UP_SECONDS}s", "-s", str(script), target]
+            load = subprocess.Popen(command, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
+            while load.poll() is None:
+                time.sleep(0.25)
+                for i, process in enumerate(processes):
+                    most[i] = max(most[i], held_connections(process, port))
+            if load.returncode != 0:
+                raise SystemExit(f"wrk failed during the warm-up against {target} (exit status {load.returncode})")
+        if min(most) > 0:
+            return most
+    raise SystemExit(f"the warm-up did not reach every worker (most connections held per worker: {most})")
+
+
 def load_portfolio(base: str, token: str) -> None:
     prices = generate_scenario(seed=7, n_days=500, assets_per_sector=4).prices
     headers = {"X-Riskshape-Key": token}
@@ -217,6 +272,11 @@ def main() -> None:
                 )
                 figures: dict[str, list[Figure]] = {"bare": [], "latest": [], "latest 304": []}
                 print(f"\n--workers {workers}: {args.connections} connections, 1 wrk thread, {args.seconds} s a run")
+                reads = [(latest_url, plain), (latest_url, conditional)]
+                warmed = warm_up(worker_processes(server, workers), reads, args.connections)
+                warmed_bare = warm_up(worker_processes(bare, workers), [(f"{bare_base}/bare", plain)], args.connections)
+                held = f"latest {warmed}, bare {warmed_bare}"
+                print(f"  warm-up: every worker answered (most connections held at once per worker: {held})")
                 for _ in range(args.rounds):
                     runs = [("bare", f"{bare_base}/bare", plain), ("latest", latest_url, plain)]
                     if args.etag:

@@ -140,12 +140,14 @@ def store_status(store: Store) -> Head:
     return chain_head(store)
 
 
-def pending(store: Store, portfolio: str) -> tuple[DayStatus, ...]:
+def pending(store: Store, portfolio: str, known_at: datetime | None = None) -> tuple[DayStatus, ...]:
     """The portfolio's pending days (archived, not counting yet), oldest first.
+
+    With ``known_at``, those riskshape showed at that moment (see :func:`riskshape.daily.pending_days`).
 
     Raises
     ------
     NotFoundError
         If the portfolio does not exist.
     """
-    return pending_days(store, portfolio)
+    return pending_days(store, portfolio, as_known_at=known_at)

@@ -13,13 +13,14 @@ from __future__ import annotations
 from datetime import date
 from typing import Annotated
 
-from fastapi import APIRouter, Path
+from fastapi import APIRouter, Path, Response
 from starlette.concurrency import run_in_threadpool
 
 from riskshape.daily import IngestReport
 from riskshape_service import access
 from riskshape_service.convert import pending_out
 from riskshape_service.deps import ContextDep, IngestDep, ReaderDep, StoreDep
+from riskshape_service.knowledge import KnownAtQuery, knowledge_headers, read_known_at
 from riskshape_service.routers import API_PREFIX, errors
 from riskshape_service.routers.portfolios import PortfolioName
 from riskshape_service.routers.prices import ingest_out
@@ -35,10 +36,18 @@ def make_router(settings: ServiceSettings) -> APIRouter:
     """The router of ``/v1/portfolios/{name}/days`` and ``/v1/portfolios/{name}/assets``."""
     router = APIRouter(prefix=f"{API_PREFIX}/portfolios", tags=["days"])
 
-    @router.get("/{name}/days/pending", response_model=PendingDaysOut, responses=errors(401, 403, 404, 429))
-    async def list_pending(name: PortfolioName, caller: ReaderDep, store: StoreDep) -> PendingDaysOut:
-        """The days archived that do not count yet (no window, no rule), oldest first, with the assets missing."""
-        found = await run_in_threadpool(access.pending, store, name)
+    @router.get("/{name}/days/pending", response_model=PendingDaysOut, responses=errors(401, 403, 404, 422, 429))
+    async def list_pending(
+        name: PortfolioName, caller: ReaderDep, store: StoreDep, response: Response, as_known_at: KnownAtQuery = None
+    ) -> PendingDaysOut:
+        """The days archived that do not count yet (no window, no rule), oldest first, with the assets missing.
+
+        With `as_known_at`, the days pending at that moment, as they stood then (a day completed or
+        closed since is listed; a day whose first price came later is not).
+        """
+        known_at = read_known_at(as_known_at)
+        found = await run_in_threadpool(access.pending, store, name, known_at)
+        response.headers.update(knowledge_headers(known_at))
         return PendingDaysOut(portfolio=name, items=[pending_out(d) for d in found], count=len(found))
 
     @router.post("/{name}/days/{day}/close", response_model=IngestOut, responses=errors(401, 403, 404, 409, 429))

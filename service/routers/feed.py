@@ -60,7 +60,7 @@ def _item(outcome: PortfolioOutcome) -> FeedItemOut:
     return FeedItemOut(
         portfolio=outcome.portfolio,
         archived=outcome.report is not None,
-        result=None if outcome.report is None else ingest_out(outcome.report),
+        result=None if outcome.report is None else ingest_out(outcome.report, outcome.warnings),
         error=outcome.error,
     )
 
@@ -88,8 +88,9 @@ def make_router(settings: ServiceSettings) -> APIRouter:
 
         Each portfolio's rows are validated and ingested as `POST /v1/portfolios/{name}/prices` would
         (days count once complete, pending days wait, idempotent, 409-worthy revisions refused without
-        `correction=true`). A portfolio refused -- bad rows, an unknown asset, a conflict, no such
-        portfolio -- archives nothing and has its message in `error`; the others are taken.
+        `correction=true`, data-quality findings in the portfolio's `warnings`). A portfolio refused -- bad
+        rows, an unknown asset, a conflict, no such portfolio, a data-quality finding under `[checks] quality
+        = "refuse"` -- archives nothing and has its message in `error`; the others are taken.
         """
         media = media_type(request)
         raw = await request.body()

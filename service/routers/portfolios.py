@@ -59,7 +59,8 @@ def make_router(settings: ServiceSettings) -> APIRouter:
 
         Served from bytes prepared once per change of the archive, with a strong `ETag`; send it back
         in `If-None-Match` to get `304 Not Modified` while nothing has changed. With `as_known_at`,
-        exactly the state riskshape showed at that moment (read for the request, without an ETag).
+        exactly the state riskshape showed at that moment, its pending days included (read for the
+        request, without an ETag).
         """
         store, context = access.store, access.context
         known_at = read_known_at(as_known_at)
@@ -87,14 +88,14 @@ def render_latest(store: Store, name: str, context: ServiceContext, marker: Chan
 
 
 def render_latest_known_at(store: Store, name: str, context: ServiceContext, known_at: datetime) -> bytes:
-    """The JSON bytes of a portfolio's latest state exactly as riskshape showed it at ``known_at``.
-
-    The pending days are those of the archive now (the days' own knowledge time is not kept).
+    """The JSON bytes of a portfolio's latest state exactly as riskshape showed it at ``known_at``,
+    its pending days included (those of that moment).
     """
-    return _latest_bytes(store, name, access.latest_state_known_at(store, name, known_at, context.config))
+    state = access.latest_state_known_at(store, name, known_at, context.config)
+    return _latest_bytes(store, name, state, known_at)
 
 
-def _latest_bytes(store: Store, name: str, state: access.LatestState) -> bytes:
+def _latest_bytes(store: Store, name: str, state: access.LatestState, known_at: datetime | None = None) -> bytes:
     out = LatestOut(
         portfolio=state.portfolio,
         config_hash=state.config_hash,
@@ -103,6 +104,6 @@ def _latest_bytes(store: Store, name: str, state: access.LatestState) -> bytes:
         values={k: finite_or_none(v) for k, v in state.values.items()},
         rules=[rule_state_out(s) for s in state.rules],
         active_alerts=[alert_out(a) for a in state.active_alerts],
-        pending=[pending_out(d) for d in access.pending(store, name)],
+        pending=[pending_out(d) for d in access.pending(store, name, known_at)],
     )
     return out.model_dump_json().encode("utf-8")

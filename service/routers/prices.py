@@ -12,15 +12,12 @@ import json
 from collections.abc import Sequence
 from typing import Annotated, TypeVar
 
-import pandas as pd
 from fastapi import APIRouter, HTTPException, Query, Request
 from fastapi.exceptions import RequestValidationError
 from pydantic import BaseModel, ValidationError
 from starlette.concurrency import run_in_threadpool
 
-from riskshape import check_quality
-from riskshape.daily import IngestReport
-from riskshape.store import Store
+from riskshape.daily import IngestReport, check_ingest_quality
 from riskshape_service.bodies import CSV_SOURCE, JSON_SOURCE, table_from_csv, table_from_json, validated_prices
 from riskshape_service.convert import alert_out, pending_out
 from riskshape_service.deps import ContextDep, IngestDep, StoreDep
@@ -113,18 +110,6 @@ def ingest_out(report: IngestReport, warnings: Sequence[str] = ()) -> IngestOut:
     )
 
 
-def archived_before(store: Store, name: str, prices: pd.DataFrame, days: int = 10) -> pd.DataFrame | None:
-    """The portfolio's archived prices on its last ``days`` archived dates before the request's first date
-    (None when there are none), so the quality check compares each asset's first new price with its
-    last archived one. Reads at most ``days`` dates of prices.
-    """
-    first = pd.Timestamp(prices.index[0]).date()
-    earlier = [day for day in store.price_dates(name) if day < first]
-    if not earlier:
-        return None
-    return store.read_prices(name, start=earlier[max(0, len(earlier) - days)], end=earlier[-1])
-
-
 def make_router(settings: ServiceSettings) -> APIRouter:
     """The router of ``POST /v1/portfolios/{name}/prices``: archive prices and compute what they complete."""
     router = APIRouter(prefix=f"{API_PREFIX}/portfolios", tags=["prices"])
@@ -196,8 +181,7 @@ def make_router(settings: ServiceSettings) -> APIRouter:
         )
 
         # checked before anything is archived: with [checks] quality = "refuse" a finding is a 422
-        before = await run_in_threadpool(archived_before, store, name, prices)
-        findings = await run_in_threadpool(check_quality, prices, context.config, source, before=before)
+        findings = await run_in_threadpool(check_ingest_quality, store, name, prices, context.config, source)
 
         def work() -> IngestReport:
             return context.ingestor.ingest(store, name, prices, correction=correction, source=source)

@@ -51,7 +51,8 @@ def make_router(settings: ServiceSettings) -> APIRouter:
         Served from bytes prepared once per change of the portfolio's windows, with a strong `ETag`;
         send it back in `If-None-Match` to get `304 Not Modified` while nothing has changed. With
         `as_known_at`, exactly the page riskshape showed at that moment: each window's version then,
-        under the latest configuration then (read for the request, without an ETag).
+        under the latest configuration then, and the days pending then (read for the request, without
+        an ETag).
         """
         query = PageQuery(start, end, None if summaries is None else tuple(summaries), limit, offset)
         store, context = access.store, access.context
@@ -106,9 +107,8 @@ def render_series_page(
 def render_series_page_known_at(
     store: Store, name: str, context: ServiceContext, known_at: datetime, query: PageQuery
 ) -> bytes:
-    """The JSON bytes of one page of a portfolio's series exactly as riskshape showed it at ``known_at``.
-
-    The pending days are those of the archive now (the days' own knowledge time is not kept).
+    """The JSON bytes of one page of a portfolio's series exactly as riskshape showed it at ``known_at``,
+    its pending days included (those of that moment).
     """
     snapshot = access.snapshot_known_at(store, name, known_at, context.config)
     page = snapshot.page(
@@ -118,10 +118,12 @@ def render_series_page_known_at(
         limit=query.limit,
         offset=query.offset,
     )
-    return _page_bytes(store, name, page, query)
+    return _page_bytes(store, name, page, query, known_at)
 
 
-def _page_bytes(store: Store, name: str, page: FeaturesPage, query: PageQuery) -> bytes:
+def _page_bytes(
+    store: Store, name: str, page: FeaturesPage, query: PageQuery, known_at: datetime | None = None
+) -> bytes:
     rows = [
         SeriesRow(window_end=stamp.date(), values=[finite_or_none(v) for v in values])
         for stamp, values in zip(page.frame.index, page.frame.to_numpy(dtype=float))
@@ -136,6 +138,6 @@ def _page_bytes(store: Store, name: str, page: FeaturesPage, query: PageQuery) -
         offset=query.offset,
         limit=query.limit,
         next_offset=following if following < page.total else None,
-        pending=[pending_out(d) for d in access.pending(store, name)],
+        pending=[pending_out(d) for d in access.pending(store, name, known_at)],
     )
     return out.model_dump_json().encode("utf-8")

@@ -78,3 +78,52 @@ def test_a_bad_portfolio_is_refused_alone(
         assert store.latest_run("Fund Birch") is None
         assert store.read_prices("Fund Birch").empty
         assert len(store.read_prices("Fund Alder")) == 24 and len(store.read_prices("Fund Cedar")) == 24
+
+
+def _ingest(capsys: pytest.CaptureFixture[str], *argv: str) -> tuple[object, str, str]:
+    try:
+        status = main(list(argv))
+    except SystemExit as stop:
+        status = stop.code
+    out, err = capsys.readouterr()
+    return status, out, err
+
+
+@pytest.mark.parametrize("mode", ["warn", "refuse"])
+def test_each_portfolios_prices_are_checked_for_quality_against_its_archive(
+    tmp_path: Path, rng: np.random.Generator, capsys: pytest.CaptureFixture[str], mode: str
+) -> None:
+    table = _long(rng)
+    days = sorted(table["date"].unique())
+    url = f"sqlite:///{tmp_path / 'archive.sqlite'}"
+    config = tmp_path / "checks.toml"
+    config.write_text(f'[monitor]\nwindow = 20\n[compute]\nexecutor = "serial"\n[checks]\nquality = "{mode}"\n')
+    head, last = tmp_path / "head.csv", tmp_path / "last.csv"
+    table[table["date"] < days[-1]].to_csv(head, index=False)
+    new = table[table["date"] == days[-1]].copy()
+    asset = "XB02"  # Fund Birch's; its last day's price x10 (a misplaced decimal point)
+    at = (new["portfolio"] == "Fund Birch") & (new["asset"] == asset)
+    new.loc[at, "price"] = repr(float(new.loc[at, "price"].iloc[0]) * 10)
+    new.to_csv(last, index=False)
+    assert _ingest(capsys, "ingest", "--prices", str(head), "--store", url, "--config", str(config))[0] in (None, 0)
+    status, out, err = _ingest(capsys, "ingest", "--prices", str(last), "--store", url, "--config", str(config))
+    # reference: pandas' one-day ratios of Fund Birch's prices, archived and new (bound x2, the default)
+    birch = pd.concat([table[table["date"] < days[-1]], new])
+    wide = birch[birch["portfolio"] == "Fund Birch"].pivot(index="date", columns="asset", values="price").astype(float)
+    ratio = wide.pct_change(fill_method=None).iloc[-1] + 1.0
+    assert list(ratio.index[(ratio > 2.0) | (ratio < 0.5)]) == [asset]
+    named = f"asset '{asset}' on {days[-1]}"
+    with open_store(url) as store:
+        birch_dates = len(store.read_prices("Fund Birch"))
+        others = [len(store.read_prices(n)) for n in ("Fund Alder", "Fund Cedar")]
+    assert others == [24, 24]
+    if mode == "warn":
+        assert status in (None, 0), err
+        warnings = [line for line in out.splitlines() if line.startswith("  warning: ")]
+        assert len(warnings) == 1 and named in warnings[0] and "portfolio Fund Birch" in warnings[0], out
+        assert birch_dates == 24
+    else:
+        assert status == 2 and "1 of 3 portfolio(s) refused" in err
+        (refused,) = [line for line in out.splitlines() if line.startswith("Fund Birch: refused")]
+        assert named in refused and "refused because [checks] quality = 'refuse'" in refused
+        assert birch_dates == 23  # nothing of Fund Birch's day was archived

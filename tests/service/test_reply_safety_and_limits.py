@@ -266,3 +266,71 @@ def test_ingest_refuses_findings_when_configured(
         assert response.status_code == 422
         assert "has the same price" in cautioned(response)["detail"]
         assert archive_rows(settings.store_url) == before
+
+
+# -- data quality in the many-portfolio reply (POST /v1/prices) --------------------------------------
+def _feed_csv(parts: dict[str, pd.DataFrame]) -> bytes:
+    """A long many-portfolio CSV body: portfolio, date, asset, price."""
+    rows = []
+    for name, table in parts.items():
+        long = table.rename_axis("date").reset_index().melt(id_vars="date", var_name="asset", value_name="price")
+        long.insert(0, "portfolio", name)
+        rows.append(long)
+    body = pd.concat(rows, ignore_index=True).sort_values(["date", "portfolio"], kind="stable")
+    return body.to_csv(index=False, date_format="%Y-%m-%d", float_format="%.17g").encode("utf-8")
+
+
+def _two_portfolios(client: TestClient, auth: Auth) -> dict[str, pd.DataFrame]:
+    parts = {"p": small_prices(31), "q": small_prices(31, seed=4)}
+    for name in parts:
+        assert client.post("/v1/portfolios", json={"name": name}, headers=auth("admin")).status_code == 201
+    first = client.post(
+        "/v1/prices", content=_feed_csv({n: t.iloc[:30] for n, t in parts.items()}), headers={**auth("ingest"), **CSV}
+    )
+    assert first.status_code == 200, first.text
+    assert [item["result"]["warnings"] for item in cautioned(first)["items"]] == [[], []]
+    return parts
+
+
+def test_many_portfolio_reply_names_each_portfolios_bad_print(client: TestClient, auth: Auth) -> None:
+    parts = _two_portfolios(client, auth)
+    asset, day, last_day = codes(4)[2], parts["q"].index[30], parts["q"].index[29]
+    parts["q"].loc[day, asset] = parts["q"].loc[last_day, asset] * 10  # a misplaced decimal point
+    response = client.post(
+        "/v1/prices", content=_feed_csv({n: t.iloc[30:] for n, t in parts.items()}), headers={**auth("ingest"), **CSV}
+    )
+    assert response.status_code == 200, response.text
+    items = {item["portfolio"]: item for item in cautioned(response)["items"]}
+    assert items["p"]["result"]["warnings"] == [] and items["p"]["archived"]
+    assert items["q"]["archived"] and items["q"]["result"]["prices_added"] == 4  # warn (the default): taken
+    (warning,) = items["q"]["result"]["warnings"]  # the move from the last archived price, nothing older
+    assert f"asset '{asset}' on {day.date()}" in warning and f"on {last_day.date()}" in warning
+    assert "portfolio q" in warning and "likely bad print" in warning
+
+
+def test_many_portfolio_quality_refusal_refuses_that_portfolio_alone(
+    make_settings: Callable[..., ServiceSettings], keys: dict[str, str], auth: Auth, tmp_path: Path
+) -> None:
+    config = tmp_path / "strict.toml"
+    config.write_text('[monitor]\nwindow = 20\n[compute]\nexecutor = "serial"\n[checks]\nquality = "refuse"\n')
+    settings = make_settings(config_path=str(config))
+    with TestClient(create_app(settings)) as client:
+        parts = _two_portfolios(client, auth)
+        asset, day = codes(4)[0], parts["p"].index[30]
+        parts["p"].loc[day, asset] = parts["p"].loc[parts["p"].index[29], asset] / 10
+        before = archive_rows(settings.store_url)
+        response = client.post(
+            "/v1/prices",
+            content=_feed_csv({n: t.iloc[30:] for n, t in parts.items()}),
+            headers={**auth("ingest"), **CSV},
+        )
+        assert response.status_code == 200, response.text
+        body = cautioned(response)
+        items = {item["portfolio"]: item for item in body["items"]}
+        assert body["refused"] == 1 and not items["p"]["archived"] and items["p"]["result"] is None
+        assert f"asset '{asset}' on {day.date()}" in items["p"]["error"] and "refused because" in items["p"]["error"]
+        assert items["q"]["archived"] and items["q"]["result"]["prices_added"] == 4
+        after = archive_rows(settings.store_url)
+        assert after["prices"] == before["prices"] + 4  # q's day only: nothing of p
+        p_prices = client.get("/v1/portfolios/p/series?limit=500", headers=auth("reader")).json()
+        assert p_prices["total"] == 10  # p's windows unchanged (30 dates, window 20)

@@ -9,12 +9,13 @@ trading. Every change is a chained record in the archive.
 from __future__ import annotations
 
 import getpass
-from datetime import date
+from datetime import date, datetime
 from pathlib import Path
 
 import click
 
 from riskshape import CAUTION, Config, DataError
+from riskshape.cli.alerts import KNOWN_AT_OPTION
 from riskshape.cli.audit import STORE_OPTION
 
 __all__ = ["ingest", "days", "assets"]
@@ -40,6 +41,13 @@ def _report_lines(report: object) -> list[str]:
     for alert in report.alerts:
         lines.append(f"  alert {alert.id}: {alert.window_end} {alert.rule} ({alert.severity}) {alert.summary}")
     return lines
+
+
+def _days_knowledge(as_known_at: datetime | None) -> str:
+    """The line stating the knowledge ``days list`` shows."""
+    if as_known_at is None:
+        return "knowledge: current"
+    return f"knowledge: as known at {as_known_at.isoformat()} (later prices, closings and delistings left out)"
 
 
 def _config(path: Path | None) -> Config:
@@ -74,6 +82,8 @@ def ingest(
         else:
             for line in _report_lines(outcome.report):
                 click.echo(line)
+            for warning in outcome.warnings:
+                click.echo(f"  warning: {warning}")
     if failed:
         raise DataError(
             f"{failed} of {len(outcomes)} portfolio(s) refused (listed above; nothing of them archived); "
@@ -89,14 +99,16 @@ def days() -> None:
 @days.command("list")
 @STORE_OPTION
 @click.option("--portfolio", required=True)
-def list_days(store_url: str, portfolio: str) -> None:
-    """List the portfolio's pending days and the assets each still waits for."""
+@KNOWN_AT_OPTION
+def list_days(store_url: str, portfolio: str, as_known_at: datetime | None) -> None:
+    """List the portfolio's pending days and the assets each still waits for (as known at a moment, if given)."""
     from riskshape.daily import pending_days
     from riskshape.store import open_store
 
     click.echo(CAUTION)
+    click.echo(_days_knowledge(as_known_at))
     with open_store(store_url, create=False) as store:
-        pending = pending_days(store, portfolio)
+        pending = pending_days(store, portfolio, as_known_at=as_known_at)
     if not pending:
         click.echo(f"{portfolio}: no pending day")
     for status in pending:

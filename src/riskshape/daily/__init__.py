@@ -12,6 +12,7 @@ from typing import TYPE_CHECKING
 from riskshape._lazy import lazy_exports
 
 if TYPE_CHECKING:
+    from riskshape.daily.checks import check_ingest_quality as check_ingest_quality
     from riskshape.daily.days import DayStatus as DayStatus
     from riskshape.daily.ingest import Ingestor as Ingestor
     from riskshape.daily.ingest import IngestReport as IngestReport
@@ -24,6 +25,7 @@ if TYPE_CHECKING:
     from riskshape.daily.many import split_feed as split_feed
 
 _EXPORTS = {
+    "check_ingest_quality": "riskshape.daily.checks",
     "DayStatus": "riskshape.daily.days",
     "Ingestor": "riskshape.daily.ingest",
     "IngestReport": "riskshape.daily.ingest",

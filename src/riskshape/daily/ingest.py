@@ -37,7 +37,7 @@ from __future__ import annotations
 import threading
 from collections import OrderedDict
 from dataclasses import dataclass, replace
-from datetime import date
+from datetime import date, datetime
 
 import numpy as np
 import pandas as pd
@@ -148,7 +148,7 @@ def portfolio_config(store: Store, portfolio: str, default: Config) -> tuple[Con
     return Config.from_mapping(run.config, where=f"run {run.id} of portfolio {portfolio!r}"), run
 
 
-def read_day_book(store: Store, portfolio: str) -> DayBook:
+def read_day_book(store: Store, portfolio: str, *, as_known_at: datetime | None = None) -> DayBook:
     """The portfolio's closed days and delistings, from their chained records.
 
     Parameters
@@ -157,16 +157,18 @@ def read_day_book(store: Store, portfolio: str) -> DayBook:
         The archive.
     portfolio : str
         The portfolio's name.
+    as_known_at : datetime.datetime, optional
+        Only the records chained at or before this moment (default: all of them).
 
     Returns
     -------
     DayBook
     """
     closed: dict[date, str] = {}
-    for event in store.list_events(kind=DAY_CLOSED, portfolio=portfolio):
+    for event in store.list_events(kind=DAY_CLOSED, portfolio=portfolio, as_known_at=as_known_at):
         closed[date.fromisoformat(str(event.subject))] = str(event.data.get("how", CLOSED_BY_HAND))
     delisted: dict[str, date] = {}
-    for event in store.list_events(kind=ASSET_DELISTED, portfolio=portfolio):
+    for event in store.list_events(kind=ASSET_DELISTED, portfolio=portfolio, as_known_at=as_known_at):
         delisted[str(event.subject)] = date.fromisoformat(str(event.data["last_trading_day"]))
     return DayBook(closed=closed, delisted=delisted)
 
@@ -177,7 +179,7 @@ def _assets(store: Store, portfolio: str, run: Run | None) -> list[str]:
     return list(store.read_prices(portfolio).columns)
 
 
-def pending_days(store: Store, portfolio: str) -> tuple[DayStatus, ...]:
+def pending_days(store: Store, portfolio: str, *, as_known_at: datetime | None = None) -> tuple[DayStatus, ...]:
     """The portfolio's pending days: archived after its latest run, not counting yet (oldest first).
 
     Parameters
@@ -186,18 +188,24 @@ def pending_days(store: Store, portfolio: str) -> tuple[DayStatus, ...]:
         The archive.
     portfolio : str
         The portfolio's name (NotFoundError if it is not archived).
+    as_known_at : datetime.datetime, optional
+        The pending days riskshape showed at this moment (timezone-aware): judged from the latest
+        run, the prices and the chained day records (closings, delistings) recorded by then. A day
+        pending then but complete or closed since is pending in this answer; a day whose first price
+        came later is absent. Default: current knowledge.
 
     Returns
     -------
     tuple of DayStatus
         Each with the listed assets still missing (empty for a complete day waiting on an earlier one).
     """
-    run = store.latest_run(portfolio)
+    run = store.latest_run(portfolio, as_known_at=as_known_at)
     after = None if run is None else run.last_date
-    statuses = day_statuses(
-        read_cells(store.engine, portfolio, after), _assets(store, portfolio, run), read_day_book(store, portfolio)
-    )
-    return split_counted(statuses)[1]
+    cells = read_cells(store.engine, portfolio, after, as_known_at=as_known_at)
+    # before the first run every cell is read: its assets are the archived ones (read_prices' columns)
+    assets = list(run.assets) if run is not None else sorted({str(a) for a in cells["asset"]})
+    book = read_day_book(store, portfolio, as_known_at=as_known_at)
+    return split_counted(day_statuses(cells, assets, book))[1]
 
 
 def _same_prices(a: pd.DataFrame, b: pd.DataFrame) -> bool:

@@ -39,6 +39,7 @@ from pathlib import Path
 
 import pandas as pd
 
+from riskshape.daily.checks import check_ingest_quality
 from riskshape.daily.ingest import Ingestor, IngestReport
 from riskshape.errors import DataError, RiskshapeError
 from riskshape.prices import ValidPrices, csv_table, validate_prices
@@ -64,11 +65,12 @@ class Feed:
 
 @dataclass(frozen=True)
 class PortfolioOutcome:
-    """One portfolio's answer: its report, or why nothing of it was archived."""
+    """One portfolio's answer: its report, or why nothing of it was archived; its data-quality warnings."""
 
     portfolio: str
     report: IngestReport | None
     error: str | None
+    warnings: tuple[str, ...] = ()
 
 
 def split_feed(table: pd.DataFrame, source: str, portfolio: str | None = None) -> Feed:
@@ -176,7 +178,9 @@ def ingest_many(
     Returns
     -------
     tuple of PortfolioOutcome
-        In the feed's order; a refused portfolio has its message and archived nothing.
+        In the feed's order; a refused portfolio has its message and archived nothing. Each
+        portfolio's prices are checked for data quality first (:func:`riskshape.daily.checks.check_ingest_quality`):
+        the findings are its ``warnings``, or its refusal when ``[checks] quality = "refuse"``.
     """
     if workers is None:
         workers = 1
@@ -184,11 +188,14 @@ def ingest_many(
     def one(name: str) -> PortfolioOutcome:
         if name in feed.refused:
             return PortfolioOutcome(name, None, feed.refused[name])
-        try:
+        try:  # the quality check first: refused ("[checks] quality = 'refuse'"), nothing is written
+            found = check_ingest_quality(
+                store, name, feed.prices[name], ingestor.default_config, f"day file (portfolio {name})"
+            )
             report = ingestor.ingest(store, name, feed.prices[name], correction=correction, source="day file")
         except RiskshapeError as err:
             return PortfolioOutcome(name, None, str(err))
-        return PortfolioOutcome(name, report, None)
+        return PortfolioOutcome(name, report, None, tuple(str(f) for f in found))
 
     names = feed.portfolios
     if workers <= 1 or len(names) <= 1:

@@ -7,7 +7,7 @@ missing is an archived NULL cell (the asset has answered for that day).
 
 from __future__ import annotations
 
-from datetime import date
+from datetime import date, datetime
 
 import pandas as pd
 import sqlalchemy as sa
@@ -21,7 +21,9 @@ from riskshape.store.pricebook import _latest
 __all__ = ["read_cells", "recent_dates"]
 
 
-def read_cells(engine: Engine, portfolio: str, after: date | None) -> pd.DataFrame:
+def read_cells(
+    engine: Engine, portfolio: str, after: date | None, *, as_known_at: datetime | None = None
+) -> pd.DataFrame:
     """The latest revision of every archived cell dated after ``after`` (every cell when None).
 
     Parameters
@@ -32,6 +34,10 @@ def read_cells(engine: Engine, portfolio: str, after: date | None) -> pd.DataFra
         An existing portfolio (NotFoundError otherwise).
     after : datetime.date or None
         Only cells dated strictly after this day.
+    as_known_at : datetime.datetime, optional
+        Only the revisions recorded at or before this moment (timezone-aware): the cells as they
+        stood then. Price rows are appended under the archive's write lock, so their ids grow with
+        ``recorded_at`` and "recorded by then" is "id at most that of the last row recorded by then".
 
     Returns
     -------
@@ -40,8 +46,17 @@ def read_cells(engine: Engine, portfolio: str, after: date | None) -> pd.DataFra
     """
     with read_transaction(engine) as connection:
         pid = catalog.portfolio_id(connection, portfolio)
+        through = None
+        if as_known_at is not None:
+            through = connection.execute(
+                sa.select(sa.func.max(t.prices.c.id)).where(
+                    t.prices.c.portfolio_id == pid, t.prices.c.recorded_at <= as_known_at
+                )
+            ).scalar()
+            if through is None:  # no price of the portfolio was recorded by then
+                return pd.DataFrame({"date": [], "asset": [], "price": []})
         start = None if after is None else pd.Timestamp(after) + pd.Timedelta(days=1)
-        rows = _latest(connection, pid, None if start is None else start.date(), None, None, None)
+        rows = _latest(connection, pid, None if start is None else start.date(), None, None, through)
     return rows[["date", "asset", "price"]].reset_index(drop=True)
 
 
