@@ -25,6 +25,7 @@ from __future__ import annotations
 import hashlib
 import json
 import math
+from collections.abc import Callable
 from dataclasses import dataclass, replace
 from datetime import date
 
@@ -319,6 +320,7 @@ def apply_corrections(
     actor: str | None = None,
     explain: bool = True,
     counted_through: date | None = None,
+    also: Callable[[Run], None] | None = None,
 ) -> CorrectionReport:
     """Archive corrected prices and supersede the windows and alerts they change (see the module notes).
 
@@ -344,6 +346,9 @@ def apply_corrections(
     counted_through : datetime.date, optional
         The portfolio's last counted day: pending days after it have no window, and a correction
         computes none for them (default: every archived date counts).
+    also : callable, optional
+        The caller's own writes, given the correction's run, committed in the correction's
+        transaction (the daily loop's day state); not called when no window is recomputed.
 
     Returns
     -------
@@ -404,38 +409,42 @@ def apply_corrections(
         package_version=part.result.package_version,
         source=f"{source} (correction)",
     )
-    new_run = store.create_run(portfolio, manifest, part.prices)
-    features = store.write_features(new_run.id, frame, supersede=True)
-    dims = range(config.maxdim + 1)
-    store.write_diagrams(
-        new_run.id,
-        ((end, k, part.result.diagram(end, k)) for end in part.result.window_ends for k in dims),
-        supersede=True,
-    )
     old = store.read_features(
         portfolio, start=frame.index[0], end=frame.index[-1], config_hash=config.hash(), as_known_at=run.created_at
     ).frame
     changed = [end for end in frame.index if end not in old.index or not _same_row(old.loc[end], frame.loc[end])]
-    store.append_event(
-        WINDOW_SUPERSEDED,
-        {
-            "run": new_run.id,
-            "config_hash": config.hash(),
-            "corrected": _cells(revised, before),
-            "windows": [str(end.date()) for end in changed],
-            "recomputed": recomputed,
-            "features_hash": _features_digest(frame.loc[changed]),
-        },
-        portfolio=portfolio,
-        subject=str(changed[0].date()) if changed else str(frame.index[0].date()),
-        actor=actor,
-    )
     superseded: tuple[EventRecord, ...] = ()
     raised: tuple[AlertRecord, ...] = ()
-    if changed:
-        superseded, raised = _review_alerts(
-            store, portfolio, config, new_run, part, changed[0], revised, actor=actor, explain=explain
+    dims = range(config.maxdim + 1)
+    # the revision, the new versions, the chained records and the commitment: one commit, or none
+    with store.transaction():
+        new_run = store.create_run(portfolio, manifest, part.prices)
+        features = store.write_features(new_run.id, frame, supersede=True)
+        store.write_diagrams(
+            new_run.id,
+            ((end, k, part.result.diagram(end, k)) for end in part.result.window_ends for k in dims),
+            supersede=True,
         )
+        store.append_event(
+            WINDOW_SUPERSEDED,
+            {
+                "run": new_run.id,
+                "config_hash": config.hash(),
+                "corrected": _cells(revised, before),
+                "windows": [str(end.date()) for end in changed],
+                "recomputed": recomputed,
+                "features_hash": _features_digest(frame.loc[changed]),
+            },
+            portfolio=portfolio,
+            subject=str(changed[0].date()) if changed else str(frame.index[0].date()),
+            actor=actor,
+        )
+        if changed:
+            superseded, raised = _review_alerts(
+                store, portfolio, config, new_run, part, changed[0], revised, actor=actor, explain=explain
+            )
+        if also is not None:
+            also(new_run)
     return CorrectionReport(
         portfolio=portfolio,
         corrections=new_run.corrections_added,

@@ -649,6 +649,13 @@ class Ingestor:
         fixed, run, state : CorrectionReport, Run, DayState or None
             What the correction did, the portfolio's latest run after it, and its day state.
         """
+        kept: list[DayState] = []
+
+        def with_state(new_run: Run) -> None:  # committed with the correction, in its transaction
+            if state is not None:
+                kept.append(recarry(store, portfolio, new_run, state, config))
+                save_day_state(store, portfolio, kept[0])
+
         fixed = apply_corrections(
             store,
             portfolio,
@@ -657,14 +664,12 @@ class Ingestor:
             run,
             source=source,
             counted_through=counted_through,
+            also=with_state,
         )
+        if fixed.run_id is not None:
+            run = store.get_run(fixed.run_id)
+            state = kept[0] if kept else state
         self._forget(portfolio)
-        if fixed.run_id is None:
-            return fixed, run, state
-        run = store.get_run(fixed.run_id)
-        if state is not None:
-            state = recarry(store, portfolio, run, state, config)
-            save_day_state(store, portfolio, state)
         return fixed, run, state
 
     def _advance_tail(
