@@ -154,16 +154,26 @@ def test_the_archive_stores_the_derived_columns_and_alerts_on_them(base: Monitor
     assert len(report.alerts.added) == len(evaluate_rules(result.features, config.alerts.rules)) > 0
 
 
-def test_a_correction_is_refused_before_writing_while_derived_columns_are_archived(
-    base: MonitorResult, tmp_path: Path
-) -> None:
+def test_a_correction_leaves_the_derived_columns_of_a_fresh_run(base: MonitorResult, tmp_path: Path) -> None:
+    # reference: riskshape.monitor over the corrected prices with the same [derived] section (step 2,
+    # one asset missing for a stretch); the derived columns of windows after the recomputed ones move too
     from riskshape.daily.corrections import apply_corrections
 
     with open_store(f"sqlite:///{tmp_path / 'archive.sqlite'}") as store:
         archive_run(store, "derived", base, explain=False)
-        before = store.read_prices("derived")
-        revised = base.prices.iloc[[50]] * 1.01
-        with pytest.raises(ConfigError, match=r"\[derived\] columns .* corrections do not recompute them yet"):
-            apply_corrections(store, "derived", revised, CONFIG, store.latest_run("derived"))
-        pd.testing.assert_frame_equal(store.read_prices("derived"), before)
-        assert len(store.list_runs("derived")) == 1
+        before = store.read_features("derived").frame
+        day = base.prices.index[50]
+        revised = base.prices.loc[[day], base.prices.columns[:2]] * 1.05
+        run = store.latest_run("derived")
+        assert run is not None
+        report = apply_corrections(store, "derived", revised, CONFIG, run)
+        corrected = base.prices.copy()
+        corrected.loc[[day], revised.columns] = revised
+        fresh = monitor(corrected, CONFIG)
+        now = store.read_features("derived").frame
+        pd.testing.assert_frame_equal(now, fresh.features.rename_axis("window_end"), check_exact=True, check_freq=False)
+        net = "h0_total_persistence_net"
+        moved = now.index[~np.isclose(now[net], before[net], equal_nan=True)]
+        # the last window whose returns hold the price of row 50 ends at returns row 50 + 19 (price row 70)
+        assert report.run_id is not None and moved[-1] > base.prices.index[70]
+        assert len(store.list_runs("derived")) == 2

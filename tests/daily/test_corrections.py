@@ -240,3 +240,93 @@ def test_a_null_beside_a_correction_never_replaces_an_archived_price(tmp_path) -
         assert [(c.asset, c.new_price) for c in store.list_corrections(PORTFOLIO)] == [
             (prices.columns[0], prices.iloc[0, 0] * 1.25)
         ]
+
+
+def _derived_config(prices: pd.DataFrame) -> Config:
+    """Derived columns on (net of the market, two changes), a rule on one of them with a threshold from the data."""
+    plain = Config(
+        window=WINDOW,
+        step=1,
+        compute={"executor": "serial"},
+        derived={"net_of_market": True, "net_of_market_window": 10, "change_horizons": [3, 8]},
+        alerts={"rules": []},
+    )
+    features = monitor(prices, plain).features
+    rule = RuleConfig(
+        name="net_level",
+        summary="h0_total_persistence_net",
+        kind="level",
+        threshold=float(features["h0_total_persistence_net"].quantile(0.8)),
+        min_history=0,
+    )
+    return plain.replace(alerts={"rules": [rule.model_dump()]})
+
+
+@pytest.mark.parametrize("row", [5, 30, 58], ids=["early", "middle", "last-days"])
+def test_a_correction_recomputes_the_derived_columns_it_reaches(store: Store, row: int) -> None:
+    # reference: riskshape.monitor over the corrected history with [derived] on (a fresh run); the
+    # trailing fit reaches 10 windows and the longest change 8 windows past the recomputed windows
+    prices = walk_prices(np.random.default_rng(43), n_days=70, assets=codes(5))
+    config = _derived_config(prices)
+    ingestor = _fed(store, prices, config)
+    before = store.read_features(PORTFOLIO).frame
+    assert {"h0_total_persistence_net", "h0_total_persistence_net_z", "mean_correlation_chg_8"} <= set(before.columns)
+    known_before = datetime.now(timezone.utc)
+
+    day, asset = prices.index[row], prices.columns[1]
+    corrected = prices.copy()
+    corrected.loc[day, asset] *= 1.3
+    report = ingestor.ingest(store, PORTFOLIO, corrected.loc[[day], [asset]], correction=True)
+    assert report.run_id is not None
+
+    fresh = monitor(corrected, config).features
+    now = store.read_features(PORTFOLIO).frame
+    pd.testing.assert_frame_equal(now, fresh.rename_axis("window_end"), check_exact=True, check_freq=False)
+    # the derived columns changed past the windows whose returns hold the corrected price
+    ends_at = window_end_positions(len(prices) - 1, WINDOW, 1)
+    holding = prices.index[affected_windows(np.array([row]), ends_at, WINDOW) + 1]
+    net_changed = [
+        e
+        for e in now.index
+        if not np.array_equal(
+            now.loc[e, ["h0_total_persistence_net_z"]].to_numpy(float),
+            before.loc[e, ["h0_total_persistence_net_z"]].to_numpy(float),
+            equal_nan=True,
+        )
+    ]
+    if holding[-1] < now.index[-1]:
+        assert max(net_changed) > holding[-1]
+    pd.testing.assert_frame_equal(
+        store.read_features(PORTFOLIO, as_known_at=known_before).frame, before, check_exact=True
+    )
+    firings = {(f.rule, f.window_end.date()) for f in evaluate_rules(fresh, config.alerts.rules)}
+    assert _current_firings(store) == firings
+    assert verify_chain(store).ok
+
+
+@settings(max_examples=8, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+@given(sequence=corrections)
+def test_with_derived_columns_the_current_series_always_equals_a_fresh_run(
+    tmp_path_factory: pytest.TempPathFactory, sequence
+) -> None:
+    prices = walk_prices(np.random.default_rng(3), n_days=40, assets=codes(4))
+    config = _derived_config(prices)
+    folder = tmp_path_factory.mktemp("derived-corrections")
+    with open_store(f"sqlite:///{folder / 'archive.sqlite'}") as store:
+        ingestor = _fed(store, prices, config)
+        for body in sequence:
+            sent = pd.DataFrame(np.nan, index=prices.index, columns=prices.columns)
+            current = store.read_prices(PORTFOLIO, assets=list(prices.columns))
+            for row, column, factor in body:
+                sent.iloc[row, column] = current.iloc[row, column] * factor
+            ingestor.ingest(store, PORTFOLIO, sent.dropna(how="all"), correction=True)
+            fresh = monitor(store.read_prices(PORTFOLIO, assets=list(prices.columns)), config)
+            pd.testing.assert_frame_equal(
+                store.read_features(PORTFOLIO).frame,
+                fresh.features.rename_axis("window_end"),
+                check_exact=True,
+                check_freq=False,
+            )
+            firings = {(f.rule, f.window_end.date()) for f in evaluate_rules(fresh.features, config.alerts.rules)}
+            assert _current_firings(store) == firings
+        assert verify_chain(store).ok

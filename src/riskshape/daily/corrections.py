@@ -25,7 +25,8 @@ from __future__ import annotations
 import hashlib
 import json
 import math
-from dataclasses import dataclass
+from collections.abc import Callable
+from dataclasses import dataclass, replace
 from datetime import date
 
 import numpy as np
@@ -34,13 +35,14 @@ import pandas as pd
 from riskshape.alerts.model import Alert
 from riskshape.alerts.rules import evaluate_rules, rule_state
 from riskshape.compute.batch import diagram_distances, first_row_needed
+from riskshape.compute.derived import derive_columns, history_needed, window_volatility
 from riskshape.compute.moments import is_rebuild_point
 from riskshape.compute.monitor import MonitorResult, compute_windows_at, settings_of
 from riskshape.compute.returns import to_returns
 from riskshape.compute.summaries import DISTANCE_NAMES
 from riskshape.compute.windows import window_end_positions, window_index
 from riskshape.config import Config
-from riskshape.errors import ConfigError, DataError
+from riskshape.errors import DataError
 from riskshape.explain.archived import explanation_json
 from riskshape.prices import ValidPrices, hash_prices
 from riskshape.store import AlertRecord, EventRecord, Run, RunManifest, Store
@@ -223,6 +225,66 @@ def _recompute(
     return _Slice(prices=prices, result=result)
 
 
+def _with_derived(
+    store: Store,
+    portfolio: str,
+    config: Config,
+    calendar: pd.DatetimeIndex,
+    assets: list[str],
+    ends: Positions,
+    frame: pd.DataFrame,
+    revised: pd.DataFrame,
+) -> pd.DataFrame:
+    """The recomputed windows' rows, and the rows of the windows whose derived columns rest on them.
+
+    A derived value at window ``t`` reads the summaries of windows ``t - H .. t`` (``H`` from
+    :func:`riskshape.compute.derived.history_needed`: the trailing fit's windows, or the longest
+    change's) and the equal-weight volatility of the fit's windows; so the derived columns of the
+    recomputed windows and of the ``H`` windows after them change. They are derived again over the
+    span ``H`` windows either side (the archived summaries, with the recomputed ones put in), each
+    window's volatility from the corrected returns of its own rows, and are equal to a fresh run's:
+    the trailing fits give the same bits however many rows are computed at once.
+
+    Parameters
+    ----------
+    frame : pandas.DataFrame
+        The summaries (no derived column) of consecutive windows, recomputed.
+
+    Returns
+    -------
+    pandas.DataFrame
+        Those windows and the ``H`` after them (fewer at the end of the series), summaries then
+        derived columns, as :attr:`riskshape.MonitorResult.features` orders them.
+    """
+    history = history_needed(config.derived, config.step)
+    dates = calendar[np.asarray(ends, dtype=np.int64) + 1]
+    first, last = dates.get_loc(frame.index[0]), dates.get_loc(frame.index[-1])
+    lo, hi = max(0, first - history), min(len(ends) - 1, last + history)
+    archived = store.read_features(portfolio, start=dates[lo], end=dates[hi], config_hash=config.hash()).frame
+    archived = archived[frame.columns].astype(frame.dtypes.to_dict())
+    span = pd.concat(
+        [archived.loc[archived.index < frame.index[0]], frame, archived.loc[archived.index > frame.index[-1]]]
+    )
+    if not span.index.equals(pd.DatetimeIndex(dates[lo : hi + 1])):
+        raise DataError(
+            f"portfolio {portfolio!r}: the archive holds no current version of some windows from {dates[lo].date()} "
+            f"to {dates[hi].date()}, whose derived columns a correction recomputes; rerun the portfolio"
+        )
+    volatility = pd.Series(np.nan, index=span.index, name="ew_volatility", dtype=float)
+    if config.derived.net_of_market:
+        # each window's volatility from its own corrected returns: the price rows of windows lo .. hi
+        start = int(ends[lo]) - config.window + 1
+        stop = int(ends[hi]) + 1
+        held = store.read_prices(portfolio, start=calendar[start].date(), end=calendar[stop].date(), assets=assets)
+        held = held.reindex(calendar[start : stop + 1])
+        sent = revised.reindex(index=held.index, columns=held.columns)
+        returns = to_returns(ValidPrices.of_validated_parts(held.where(sent.isna(), sent)), config.returns)
+        volatility = window_volatility(returns, pd.DatetimeIndex(span.index), config)
+    derived = derive_columns(span, volatility, config.derived, config.step)
+    whole = span.join(derived.frame)
+    return whole.loc[whole.index >= frame.index[0]]
+
+
 def _features_digest(frame: pd.DataFrame) -> str:
     rows = [
         [str(end.date()), *[None if not math.isfinite(float(v)) else float(v) for v in row]]
@@ -258,6 +320,7 @@ def apply_corrections(
     actor: str | None = None,
     explain: bool = True,
     counted_through: date | None = None,
+    also: Callable[[Run], None] | None = None,
 ) -> CorrectionReport:
     """Archive corrected prices and supersede the windows and alerts they change (see the module notes).
 
@@ -283,6 +346,9 @@ def apply_corrections(
     counted_through : datetime.date, optional
         The portfolio's last counted day: pending days after it have no window, and a correction
         computes none for them (default: every archived date counts).
+    also : callable, optional
+        The caller's own writes, given the correction's run, committed in the correction's
+        transaction (the daily loop's day state); not called when no window is recomputed.
 
     Returns
     -------
@@ -292,18 +358,7 @@ def apply_corrections(
     ------
     DataError
         If a date is not an archived trading day of the portfolio or an asset is not one of its assets.
-    ConfigError
-        If the configuration has ``[derived]`` columns: a correction recomputes only the windows
-        it touches, while each derived value rests on up to ``net_of_market_window`` (or the
-        longest change horizon) windows before it, so it refuses before writing anything.
     """
-    if config.derived.active:
-        raise ConfigError(
-            f"{source}: portfolio {portfolio!r} archives [derived] columns (derived.net_of_market, "
-            "derived.change_horizons), which rest on many earlier windows; corrections do not recompute "
-            "them yet, so nothing was archived. Archive the corrected history as a new portfolio, or turn "
-            "[derived] off for this portfolio"
-        )
     assets = list(run.assets)
     archived = pd.DatetimeIndex(pd.to_datetime(store.price_dates(portfolio)))
     calendar = archived if counted_through is None else archived[archived <= pd.Timestamp(counted_through)]
@@ -332,7 +387,8 @@ def apply_corrections(
     position = int(np.searchsorted(ends, touched[0]))
     previous = _archived_diagrams(store, portfolio, calendar[int(ends[position - 1]) + 1], config) if position else None
     part = _recompute(store, portfolio, config, calendar, assets, touched, revised, previous)
-    frame = part.result.features
+    # the slice's own summaries: its derived columns would rest on the slice alone (see _with_derived)
+    frame = replace(part.result, config=config.replace(derived={}, alerts={"rules": []})).features
     after = int(np.searchsorted(ends, touched[-1])) + 1
     if after < len(ends):  # the next window: same diagram, new distance to the window before it
         next_end = calendar[int(ends[after]) + 1]
@@ -343,6 +399,9 @@ def apply_corrections(
         row = row.astype({c: "float64" for c in _distance_columns(config.maxdim)})
         row.loc[next_end, _distance_columns(config.maxdim)] = distances.ravel()
         frame = pd.concat([frame, row[frame.columns].astype(frame.dtypes.to_dict())])
+    recomputed = len(frame)
+    if config.derived.active:
+        frame = _with_derived(store, portfolio, config, calendar, assets, ends, frame, revised)
     manifest = RunManifest(
         config=config.to_mapping(),
         config_hash=config.hash(),
@@ -350,43 +409,47 @@ def apply_corrections(
         package_version=part.result.package_version,
         source=f"{source} (correction)",
     )
-    new_run = store.create_run(portfolio, manifest, part.prices)
-    features = store.write_features(new_run.id, frame, supersede=True)
-    dims = range(config.maxdim + 1)
-    store.write_diagrams(
-        new_run.id,
-        ((end, k, part.result.diagram(end, k)) for end in part.result.window_ends for k in dims),
-        supersede=True,
-    )
     old = store.read_features(
         portfolio, start=frame.index[0], end=frame.index[-1], config_hash=config.hash(), as_known_at=run.created_at
     ).frame
     changed = [end for end in frame.index if end not in old.index or not _same_row(old.loc[end], frame.loc[end])]
-    store.append_event(
-        WINDOW_SUPERSEDED,
-        {
-            "run": new_run.id,
-            "config_hash": config.hash(),
-            "corrected": _cells(revised, before),
-            "windows": [str(end.date()) for end in changed],
-            "recomputed": len(frame),
-            "features_hash": _features_digest(frame.loc[changed]),
-        },
-        portfolio=portfolio,
-        subject=str(changed[0].date()) if changed else str(frame.index[0].date()),
-        actor=actor,
-    )
     superseded: tuple[EventRecord, ...] = ()
     raised: tuple[AlertRecord, ...] = ()
-    if changed:
-        superseded, raised = _review_alerts(
-            store, portfolio, config, new_run, part, changed[0], revised, actor=actor, explain=explain
+    dims = range(config.maxdim + 1)
+    # the revision, the new versions, the chained records and the commitment: one commit, or none
+    with store.transaction():
+        new_run = store.create_run(portfolio, manifest, part.prices)
+        features = store.write_features(new_run.id, frame, supersede=True)
+        store.write_diagrams(
+            new_run.id,
+            ((end, k, part.result.diagram(end, k)) for end in part.result.window_ends for k in dims),
+            supersede=True,
         )
+        store.append_event(
+            WINDOW_SUPERSEDED,
+            {
+                "run": new_run.id,
+                "config_hash": config.hash(),
+                "corrected": _cells(revised, before),
+                "windows": [str(end.date()) for end in changed],
+                "recomputed": recomputed,
+                "features_hash": _features_digest(frame.loc[changed]),
+            },
+            portfolio=portfolio,
+            subject=str(changed[0].date()) if changed else str(frame.index[0].date()),
+            actor=actor,
+        )
+        if changed:
+            superseded, raised = _review_alerts(
+                store, portfolio, config, new_run, part, changed[0], revised, actor=actor, explain=explain
+            )
+        if also is not None:
+            also(new_run)
     return CorrectionReport(
         portfolio=portfolio,
         corrections=new_run.corrections_added,
         run_id=new_run.id,
-        windows_recomputed=len(frame),
+        windows_recomputed=recomputed,
         windows_superseded=features.differing,
         first_window=changed[0].date() if changed else None,
         last_window=changed[-1].date() if changed else None,

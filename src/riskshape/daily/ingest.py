@@ -551,20 +551,10 @@ class Ingestor:
         if prices is not None:
             plan = _plan(portfolio, prices, held, correction, source, counted_until, book)
             if plan.corrections and run is not None:
-                # corrections supersede the windows they touch, alone (daily/corrections.py); what the
-                # result kept in memory rests on the old prices, so it is dropped
-                fixed = apply_corrections(
-                    store,
-                    portfolio,
-                    revised_cells(plan.sent, held),
-                    config,
-                    run,
-                    source=source,
-                    counted_through=counted_until,
+                fixed, run, state = self._correct(
+                    store, portfolio, plan, held, config, run, state, source, counted_until
                 )
-                self._forget(portfolio)
                 held = store.read_prices(portfolio, assets=list(run.assets))
-                run = store.latest_run(portfolio)
             written = store.append_prices(portfolio, plan.sent, source=source)
             added = written.added + written.corrections - (0 if fixed is not None else plan.corrections)
             corrections, unchanged, table = plan.corrections, plan.unchanged, plan.table
@@ -604,8 +594,6 @@ class Ingestor:
         expected = len(window_end_positions(n_returns, config.window, config.step))
         archived = len(store.window_ends(portfolio, config.hash()))
         if fixed is not None and (through is None or counted_until is None or through <= counted_until):
-            if state is not None and fixed.run_id is not None:
-                save_day_state(store, portfolio, recarry(store, portfolio, store.get_run(fixed.run_id), state, config))
             return replace(_corrected(portfolio, fixed, unchanged), pending=pending, closed=tuple(closed_now))
         if (
             (not corrections or fixed is not None)
@@ -646,6 +634,52 @@ class Ingestor:
             note=(note if fixed is None else f"{fixed.note}; {note}") + waiting,
         )
 
+    def _correct(
+        self,
+        store: Store,
+        portfolio: str,
+        plan: _Plan,
+        held: pd.DataFrame,
+        config: Config,
+        run: Run,
+        state: DayState | None,
+        source: str,
+        counted_through: date | None,
+    ) -> tuple[CorrectionReport, Run, DayState | None]:
+        """The one path of a body's corrections, whichever path computes its new days.
+
+        The corrections supersede the windows they touch, alone (:mod:`riskshape.daily.corrections`);
+        the result kept in memory rests on the old prices, so it is dropped; the day state (when the
+        portfolio keeps one) gets the rules' carry made again over the corrected series.
+
+        Returns
+        -------
+        fixed, run, state : CorrectionReport, Run, DayState or None
+            What the correction did, the portfolio's latest run after it, and its day state.
+        """
+        kept: list[DayState] = []
+
+        def with_state(new_run: Run) -> None:  # committed with the correction, in its transaction
+            if state is not None:
+                kept.append(recarry(store, portfolio, new_run, state, config))
+                save_day_state(store, portfolio, kept[0])
+
+        fixed = apply_corrections(
+            store,
+            portfolio,
+            revised_cells(plan.sent, held),
+            config,
+            run,
+            source=source,
+            counted_through=counted_through,
+            also=with_state,
+        )
+        if fixed.run_id is not None:
+            run = store.get_run(fixed.run_id)
+            state = kept[0] if kept else state
+        self._forget(portfolio)
+        return fixed, run, state
+
     def _advance_tail(
         self,
         store: Store,
@@ -683,20 +717,10 @@ class Ingestor:
                 last_held=last,
             )
             if plan.corrections:
-                fixed = apply_corrections(
-                    store,
-                    portfolio,
-                    revised_cells(plan.sent, held),
-                    config,
-                    run,
-                    source=source,
-                    counted_through=counted_until,
+                fixed, run, kept = self._correct(
+                    store, portfolio, plan, held, config, run, state, source, counted_until
                 )
-                self._forget(portfolio)
-                if fixed.run_id is not None:
-                    run = store.get_run(fixed.run_id)
-                    state = recarry(store, portfolio, run, state, config)
-                    save_day_state(store, portfolio, state)
+                state = kept if kept is not None else state
             written = store.append_prices(portfolio, plan.sent, source=source)
             added = written.added + written.corrections - (0 if fixed is not None else plan.corrections)
             corrections, unchanged = plan.corrections, plan.unchanged
