@@ -335,6 +335,21 @@ class Store:
         )
 
     @_database_errors
+    def last_features(
+        self, portfolio: str, *, end: object, count: int, config_hash: str, columns: Sequence[str] | None = None
+    ) -> pd.DataFrame:
+        """The features of the last ``count`` windows ending on or before ``end`` (current versions), ascending.
+
+        One bounded query (the daily loop's rules read the ``lookback`` windows before a new one);
+        columns as :meth:`read_features`.
+        """
+        from riskshape.store import series  # pandas and numpy load here, not at start
+
+        return series.last_features(
+            self.engine, portfolio, end=end, count=count, config_hash=config_hash, columns=columns
+        )
+
+    @_database_errors
     def write_diagrams(
         self, run_id: int, diagrams: Iterable[tuple[object, int, DiagramArray]], *, supersede: bool = False
     ) -> WriteCount:
