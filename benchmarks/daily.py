@@ -44,6 +44,7 @@ from riskshape.daily import Ingestor, ingest_many, split_feed  # noqa: E402
 from riskshape.daily.tail_run import read_day_state, save_day_state  # noqa: E402
 from riskshape.store import Store, open_store  # noqa: E402
 from riskshape.store import schema as t  # noqa: E402
+from riskshape.store.seals import seal_portfolio  # noqa: E402
 
 BUSINESS_DAYS_PER_YEAR = 252
 
@@ -62,7 +63,7 @@ def _long(day: pd.DataFrame, names: list[str]) -> pd.DataFrame:
 
 
 def _copy_portfolio(store: Store, template: str, name: str) -> None:
-    """Copy the template's prices, run, features and diagrams under ``name`` (SQL), then append its day state."""
+    """Copy the template's prices, run, features and diagrams under ``name`` (SQL, sealed), then its day state."""
     source = store.get_portfolio(template).id
     target = store.ensure_portfolio(name).id
     run = store.latest_run(template)
@@ -92,6 +93,7 @@ def _copy_portfolio(store: Store, template: str, name: str) -> None:
                     ),
                 )
             )
+        seal_portfolio(connection, target)  # its commitment, as a portfolio archived by riskshape has
     state = read_day_state(store, template, run)
     assert state is not None
     copied = store.latest_run(name)

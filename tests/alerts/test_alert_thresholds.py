@@ -74,6 +74,20 @@ def test_zscore_levels_match_numpy_mean_and_sample_std(rng: np.random.Generator,
         assert levels.clear[t] == pytest.approx(mean - 0.5 * std, rel=1e-9)
 
 
+@pytest.mark.parametrize("since", [3, 150, 199])
+def test_zscore_levels_from_a_position_on_equal_those_of_the_whole_series(rng: np.random.Generator, since: int) -> None:
+    # the daily loop judges only its new windows: levels from `since` on must be the whole series' bit for
+    # bit (each position's history is summed on its own); reference: numpy mean and std with ddof=1
+    series = _noisy_series(rng, 200)
+    rule = RuleConfig(name="r", summary="x", kind="zscore", threshold=2.0, clear=0.5, lookback=60, min_history=0)
+    whole, part = trailing_levels(series, rule), trailing_levels(series, rule, since=since)
+    np.testing.assert_array_equal(part.threshold[since:], whole.threshold[since:])
+    np.testing.assert_array_equal(part.clear[since:], whole.clear[since:])
+    assert np.isnan(part.threshold[:since]).all()
+    hist = _history(series.to_numpy(), since, 60)
+    assert part.threshold[since] == pytest.approx(np.mean(hist) + 2.0 * np.std(hist, ddof=1), rel=1e-9)
+
+
 def test_level_kind_levels_are_the_configured_numbers(rng: np.random.Generator) -> None:
     series = _noisy_series(rng, 30)
     levels = trailing_levels(series, RuleConfig(name="r", summary="x", kind="level", threshold=2.5, clear=1.0))

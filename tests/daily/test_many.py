@@ -6,16 +6,24 @@ The reference is the same ingest policy fed one portfolio at a time (riskshape's
 from __future__ import annotations
 
 from pathlib import Path
+from typing import Any
 
 import numpy as np
 import pandas as pd
 import pytest
+from sqlalchemy import event
+from sqlalchemy.engine import Connection
 
 from riskshape import Config
 from riskshape.cli import main
 from riskshape.config import RuleConfig
 from riskshape.daily import Ingestor, ingest_many, split_feed
-from riskshape.store import open_store
+from riskshape.daily import ingest as ingest_module
+from riskshape.daily.tail_run import DAY_STATE
+from riskshape.errors import StoreError
+from riskshape.store import Store, open_store, verify_chain
+from riskshape.store.database import WRITE_OPTION
+from riskshape.store.seals import SEALED
 from tests.kit.archive import walk_prices
 from tests.kit.assets import codes
 
@@ -127,3 +135,98 @@ def test_each_portfolios_prices_are_checked_for_quality_against_its_archive(
         (refused,) = [line for line in out.splitlines() if line.startswith("Fund Birch: refused")]
         assert named in refused and "refused because [checks] quality = 'refuse'" in refused
         assert birch_dates == 23  # nothing of Fund Birch's day was archived
+
+
+def _history_then_day(rng: np.random.Generator) -> tuple[pd.DataFrame, pd.DataFrame]:
+    """The three portfolios' first 23 days, and their 24th day (long tables)."""
+    table = _long(rng)
+    last = table["date"] == table["date"].max()
+    return table[~last].reset_index(drop=True), table[last].reset_index(drop=True)
+
+
+def _archive_view(url: str) -> dict[str, object]:
+    """What a day leaves in the archive, per portfolio, without row ids or clocks."""
+    view: dict[str, object] = {}
+    with open_store(url) as store:
+        assert verify_chain(store).ok
+        for name in NAMES:
+            view[name] = (
+                store.read_prices(name),
+                store.read_features(name).frame,
+                [store.read_diagram(name, end, k).bars.tobytes() for end in store.window_ends(name) for k in (0, 1)],
+                [(a.rule, a.window_end, a.value, a.threshold) for a in store.list_alerts(portfolio=name).items],
+                len(store.list_runs(name)),
+                [(e.subject, e.data["n_prices"]) for e in store.list_events(kind=DAY_STATE, portfolio=name)],
+                len(store.list_events(kind=SEALED, portfolio=name)),
+            )
+    return view
+
+
+def test_a_batched_day_equals_the_portfolios_fed_one_by_one_with_one_commit(
+    tmp_path: Path, rng: np.random.Generator
+) -> None:
+    history, day = _history_then_day(rng)
+    config = _config("serial")
+    urls = {kind: f"sqlite:///{tmp_path / (kind + '.sqlite')}" for kind in ("batched", "alone")}
+    commits: list[object] = []
+
+    def count(connection: Connection) -> None:  # write transactions only (BEGIN IMMEDIATE)
+        if connection.get_execution_options().get(WRITE_OPTION):
+            commits.append(connection)
+
+    for kind, url in urls.items():
+        with open_store(url) as store:
+            for name in NAMES:
+                store.ensure_portfolio(name)
+            ingest_many(store, split_feed(history, "history"), Ingestor(config), batch=1)
+            commits.clear()
+            event.listen(store.engine, "commit", count)
+            ingestor = Ingestor(config)
+            if kind == "batched":
+                outcomes = ingest_many(store, split_feed(day, "day file"), ingestor)
+                assert [o.error for o in outcomes] == [None, None, None]
+                assert len(commits) == 1  # one commit (one fsync) for the three portfolios' day
+            else:
+                feed = split_feed(day, "day file")
+                for name in NAMES:
+                    assert ingestor.ingest(store, name, feed.prices[name]).windows_added == 1
+                assert len(commits) == 3
+            event.remove(store.engine, "commit", count)
+    batched, alone = _archive_view(urls["batched"]), _archive_view(urls["alone"])
+    for name in NAMES:
+        for mine, theirs in zip(batched[name], alone[name]):  # type: ignore[call-overload]
+            if isinstance(mine, pd.DataFrame):
+                pd.testing.assert_frame_equal(mine, theirs)
+            else:
+                assert mine == theirs
+
+
+def test_a_portfolio_failing_after_its_first_writes_is_rolled_back_alone(
+    tmp_path: Path, rng: np.random.Generator, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    history, day = _history_then_day(rng)
+    config = _config("serial")
+    url = f"sqlite:///{tmp_path / 'archive.sqlite'}"
+    with open_store(url) as store:
+        for name in NAMES:
+            store.ensure_portfolio(name)
+        ingest_many(store, split_feed(history, "history"), Ingestor(config))
+    before = _archive_view(url)
+    real = ingest_module.archive_tail_run
+
+    def refuses_birch(store: Store, portfolio: str, *args: Any, **kwargs: Any) -> Any:
+        if portfolio == "Fund Birch":  # its day's prices are written by now: the savepoint must undo them
+            raise StoreError("write_features: the archive refused the write (disk full)")
+        return real(store, portfolio, *args, **kwargs)
+
+    monkeypatch.setattr(ingest_module, "archive_tail_run", refuses_birch)
+    with open_store(url) as store:
+        outcomes = ingest_many(store, split_feed(day, "day file"), Ingestor(config))
+    assert [o.error is None for o in outcomes] == [True, False, True]
+    assert "disk full" in str(outcomes[1].error)
+    after = _archive_view(url)  # verify_chain passes: no commitment names Birch's undone rows
+    pd.testing.assert_frame_equal(after["Fund Birch"][0], before["Fund Birch"][0])  # type: ignore[index]
+    assert after["Fund Birch"][4:] == before["Fund Birch"][4:]  # type: ignore[index]
+    for name in ("Fund Alder", "Fund Cedar"):
+        assert len(after[name][0]) == len(before[name][0]) + 1  # type: ignore[index]
+        assert after[name][4] == before[name][4] + 1  # type: ignore[index,operator]

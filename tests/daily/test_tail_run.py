@@ -71,7 +71,7 @@ def _no_full_path(*args: object, **kwargs: object) -> Any:
 def _counting(store: Store) -> Iterator[dict[str, int]]:
     """Statements sent, and rows of prices and features read, while the block runs."""
     seen = {"statements": 0, "price_rows": 0, "feature_rows": 0}
-    read_prices, read_features = store.read_prices, store.read_features
+    read_prices, read_features, last_features = store.read_prices, store.read_features, store.last_features
 
     def statement(*args: object) -> None:
         seen["statements"] += 1
@@ -86,8 +86,14 @@ def _counting(store: Store) -> Iterator[dict[str, int]]:
         seen["feature_rows"] += len(page.frame)
         return page
 
+    def last(*args: Any, **kwargs: Any) -> pd.DataFrame:
+        frame = last_features(*args, **kwargs)
+        seen["feature_rows"] += len(frame)
+        return frame
+
     store.read_prices = prices  # type: ignore[method-assign]
     store.read_features = features  # type: ignore[method-assign]
+    store.last_features = last  # type: ignore[method-assign]
     event.listen(store.engine, "before_cursor_execute", statement)
     try:
         yield seen

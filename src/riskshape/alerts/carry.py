@@ -260,8 +260,8 @@ def advance_rules(
         prefix = past.iloc[len(past) - min(rule.lookback, len(past)) :] if rule.lookback else past.iloc[:0]
         column = pd.concat([_summary_column(prefix, rule), _summary_column(new, rule)])
         values = _check_series(column, f"summary '{rule.summary}' (rule '{rule.name}')")
-        decisions = _decisions(values, rule)
         start = len(prefix)
+        decisions = _decisions(values, rule, since=start)  # only the new windows are judged
         last_before = start - 1
         machine = _Machine(
             run=before.run,

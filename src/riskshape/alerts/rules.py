@@ -176,9 +176,12 @@ class _Decisions:
     need: int
 
 
-def _decisions(values: pd.Series, rule: RuleConfig) -> _Decisions:
-    """Which windows are judged, beyond the threshold, past the clear level (a cleaned series)."""
-    levels = trailing_levels(values, rule)
+def _decisions(values: pd.Series, rule: RuleConfig, since: int = 0) -> _Decisions:
+    """Which windows are judged, beyond the threshold, past the clear level (a cleaned series).
+
+    Positions before ``since`` may be left unjudged (their z-score levels are not computed).
+    """
+    levels = trailing_levels(values, rule, since)
     x = values.to_numpy()
     need = max(rule.min_history, MIN_PAST_VALUES[rule.kind])
     sign = 1.0 if rule.direction == "above" else -1.0

@@ -76,7 +76,7 @@ def clean_values(series: pd.Series) -> pd.Series:
     return pd.Series(values, index=series.index, name=series.name)
 
 
-def trailing_levels(values: pd.Series, rule: RuleConfig) -> RuleLevels:
+def trailing_levels(values: pd.Series, rule: RuleConfig, since: int = 0) -> RuleLevels:
     """Threshold and clear level of ``rule`` at every window of ``values``.
 
     Parameters
@@ -85,6 +85,10 @@ def trailing_levels(values: pd.Series, rule: RuleConfig) -> RuleLevels:
         The summary series as returned by :func:`clean_values` (float64, NaN = missing).
     rule : RuleConfig
         The rule; its ``clear`` defaults to its ``threshold``.
+    since : int
+        The z-score levels are computed from this position on (NaN before it; the daily loop judges
+        only its new windows); each position's levels depend on its own history only, so they are
+        the same as with ``since = 0``.
 
     Returns
     -------
@@ -109,24 +113,26 @@ def trailing_levels(values: pd.Series, rule: RuleConfig) -> RuleLevels:
         threshold = window.quantile(rule.threshold, interpolation="linear").to_numpy(dtype=np.float64)
         clear = window.quantile(clear_at, interpolation="linear").to_numpy(dtype=np.float64)
     else:  # zscore
-        mean, std = _trailing_mean_std(values.to_numpy(dtype=np.float64), rule.lookback)
+        mean, std = _trailing_mean_std(values.to_numpy(dtype=np.float64), rule.lookback, since)
         threshold = mean + rule.threshold * std
         clear = mean + clear_at * std
     return RuleLevels(history=history, threshold=threshold, clear=clear)
 
 
-def _trailing_mean_std(x: FloatArray, lookback: int) -> tuple[FloatArray, FloatArray]:
+def _trailing_mean_std(x: FloatArray, lookback: int, since: int = 0) -> tuple[FloatArray, FloatArray]:
     """Mean and sample std (``ddof=1``) of the ``lookback`` values before each position, missing left out.
 
     Each position's history is one row of ``lookback`` slots (NaN before the series starts), summed
     on its own: the result at ``t`` depends on the values of ``t``'s history and nothing else.
-    NaN where fewer than :data:`MIN_PAST_VALUES` ``["zscore"]`` values are present.
+    NaN where fewer than :data:`MIN_PAST_VALUES` ``["zscore"]`` values are present, and before ``since``
+    (positions not computed).
     """
     n = len(x)
+    since = min(max(since, 0), n)
     if n == 0:
         return np.empty(0), np.empty(0)
     padded = np.concatenate([np.full(lookback, np.nan), x])
-    rows = np.ascontiguousarray(np.lib.stride_tricks.sliding_window_view(padded, lookback)[:n])
+    rows = np.ascontiguousarray(np.lib.stride_tricks.sliding_window_view(padded, lookback)[since:n])
     present = ~np.isnan(rows)
     count = present.sum(axis=1)
     with np.errstate(invalid="ignore", divide="ignore"):
@@ -136,4 +142,7 @@ def _trailing_mean_std(x: FloatArray, lookback: int) -> tuple[FloatArray, FloatA
     short = count < MIN_PAST_VALUES["zscore"]
     mean[short] = np.nan
     std[short] = np.nan
+    if since:
+        skipped = np.full(since, np.nan)
+        return np.concatenate([skipped, mean]), np.concatenate([skipped, std])
     return mean, std

@@ -369,6 +369,10 @@ class Ingestor:
         with self._guard:
             self._results.pop(portfolio, None)
 
+    def forget(self, portfolio: str) -> None:
+        """Drop what is kept in memory for ``portfolio`` (its writes were rolled back)."""
+        self._forget(portfolio)
+
     def _cached(self, portfolio: str) -> MonitorResult | None:
         with self._guard:
             return self._results.get(portfolio)
@@ -412,6 +416,29 @@ class Ingestor:
         """
         with self._lock(portfolio):
             return self._advance(store, portfolio, prices, correction=correction, source=source)
+
+    def try_ingest(
+        self,
+        store: Store,
+        portfolio: str,
+        prices: ValidPrices,
+        *,
+        correction: bool = False,
+        source: str = "request body",
+    ) -> IngestReport | None:
+        """As :meth:`ingest`, but None at once (nothing done) while another caller ingests ``portfolio``.
+
+        For a caller that holds the archive's write transaction across several portfolios
+        (:func:`riskshape.daily.ingest_many`): waiting there for a portfolio's lock could wait on a
+        caller that itself waits for the write lock.
+        """
+        lock = self._lock(portfolio)
+        if not lock.acquire(blocking=False):
+            return None
+        try:
+            return self._advance(store, portfolio, prices, correction=correction, source=source)
+        finally:
+            lock.release()
 
     def close_day(self, store: Store, portfolio: str, day: date, who: str) -> IngestReport:
         """Close a pending day by hand: it counts with the assets still absent missing there.
@@ -539,7 +566,8 @@ class Ingestor:
         config, run = portfolio_config(store, portfolio, self.default_config)
         state = None if run is None else read_day_state(store, portfolio, run)
         if run is not None and state is not None:
-            bounded = self._advance_tail(store, portfolio, prices, config, run, state, correction, source)
+            with store.transaction():  # the day's prices, run, alerts and state: one commit
+                bounded = self._advance_tail(store, portfolio, prices, config, run, state, correction, source)
             if bounded is not None:
                 return bounded
         counted_until = None if run is None else run.last_date

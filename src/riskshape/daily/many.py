@@ -32,6 +32,7 @@ still feeds several at once when asked.
 from __future__ import annotations
 
 import os
+import time
 from collections.abc import Mapping
 from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, field
@@ -156,10 +157,28 @@ def read_feed(path: str | os.PathLike[str], portfolio: str | None = None) -> Fee
     return split_feed(table, str(file), portfolio)
 
 
+BATCH_PORTFOLIOS = 64
+"""Portfolios at most whose writes share one transaction (one commit) in :func:`ingest_many`."""
+BATCH_SECONDS = 5.0
+"""A shared transaction is committed once it has been open this long (the write lock is held meanwhile)."""
+
+
 def ingest_many(
-    store: Store, feed: Feed, ingestor: Ingestor, *, correction: bool = False, workers: int | None = None
+    store: Store,
+    feed: Feed,
+    ingestor: Ingestor,
+    *,
+    correction: bool = False,
+    workers: int | None = None,
+    batch: int = BATCH_PORTFOLIOS,
 ) -> tuple[PortfolioOutcome, ...]:
-    """Feed every portfolio of ``feed``, several at a time; each answers for itself.
+    """Feed every portfolio of ``feed``; each answers for itself.
+
+    One at a time (the default), the portfolios' writes are batched: up to ``batch`` portfolios
+    (and at most :data:`BATCH_SECONDS` of work) share one write transaction, each inside its own
+    SAVEPOINT, so one commit (one ``fsync``) serves many portfolios while a portfolio refused is
+    rolled back alone. Each portfolio still gets its own runs, records and commitment; the archive
+    ends as if they had been fed one by one.
 
     Parameters
     ----------
@@ -173,7 +192,10 @@ def ingest_many(
         As :meth:`Ingestor.ingest`.
     workers : int, optional
         Portfolios fed at once on threads (default 1: each portfolio's windows use the configured
-        executor instead; see the module notes for the measurement).
+        executor instead; see the module notes for the measurement). On threads each portfolio
+        commits alone.
+    batch : int
+        Portfolios at most per shared transaction (1: each commits alone).
 
     Returns
     -------
@@ -198,7 +220,59 @@ def ingest_many(
         return PortfolioOutcome(name, report, None, tuple(str(f) for f in found))
 
     names = feed.portfolios
-    if workers <= 1 or len(names) <= 1:
+    if workers > 1 and len(names) > 1:
+        with ThreadPoolExecutor(max_workers=workers) as pool:
+            return tuple(pool.map(one, names))
+    if batch <= 1 or len(names) <= 1:
         return tuple(one(n) for n in names)
-    with ThreadPoolExecutor(max_workers=workers) as pool:
-        return tuple(pool.map(one, names))
+    outcomes: dict[str, PortfolioOutcome] = {}
+    queue = [n for n in names if n not in feed.refused]
+    for name in feed.refused:
+        outcomes[name] = one(name)
+    while queue:
+        queue, busy = _one_batch(store, feed, ingestor, queue, batch, correction, outcomes)
+        for name in busy:  # another caller was ingesting them: fed alone, once the batch has committed
+            outcomes[name] = one(name)
+    return tuple(outcomes[n] for n in names)
+
+
+def _one_batch(
+    store: Store,
+    feed: Feed,
+    ingestor: Ingestor,
+    queue: list[str],
+    batch: int,
+    correction: bool,
+    outcomes: dict[str, PortfolioOutcome],
+) -> tuple[list[str], list[str]]:
+    """Feed portfolios from the front of ``queue`` in one transaction; returns the rest and the busy ones."""
+    done: dict[str, PortfolioOutcome] = {}
+    busy: list[str] = []
+    taken = 0
+    start = time.monotonic()
+    try:
+        with store.transaction():
+            for name in queue:
+                if taken >= batch or time.monotonic() - start >= BATCH_SECONDS:
+                    break
+                taken += 1
+                try:
+                    with store.savepoint():
+                        report = ingestor.try_ingest(
+                            store, name, feed.prices[name], correction=correction, source="day file"
+                        )
+                except RiskshapeError as err:  # its writes are rolled back; the others go on
+                    ingestor.forget(name)
+                    done[name] = PortfolioOutcome(name, None, str(err))
+                    continue
+                if report is None:
+                    busy.append(name)
+                else:
+                    done[name] = PortfolioOutcome(name, report, None)
+    except RiskshapeError as err:  # the commit itself failed: nothing of the batch is archived
+        for name in [*done, *busy]:
+            ingestor.forget(name)
+            done[name] = PortfolioOutcome(name, None, f"nothing archived, the archive's commit failed: {err}")
+        busy = []
+    outcomes.update(done)
+    return queue[taken:], busy

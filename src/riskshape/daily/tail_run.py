@@ -36,7 +36,6 @@ from riskshape.daily.tail import Tail, read_tail, tail_span, tail_windows
 from riskshape.errors import DataError
 from riskshape.prices import ValidPrices, hash_prices
 from riskshape.store import AlertRecord, EventRecord, Run, RunManifest, Store, WriteCount
-from riskshape.store.presence import recent_dates
 
 __all__ = [
     "DAY_STATE",
@@ -246,31 +245,19 @@ def _tail_result(tail: Tail, config: Config) -> MonitorResult:
     )
 
 
-def _date_of_row(store: Store, portfolio: str, tail: Tail, row: int, through: date, n_now: int) -> date:
-    """The price date at absolute row ``row`` (from the tail when it holds it, else one bounded query)."""
-    if row >= tail.span.first_row:
-        found: date = tail.prices.index[row - tail.span.first_row].date()
-        return found
-    return recent_dates(store.engine, portfolio, through, n_now - row)[0]
-
-
-def _past_features(
-    store: Store, portfolio: str, config: Config, tail: Tail, state: DayState, through: date, n_now: int
-) -> pd.DataFrame:
-    """The feature rows of the last ``lookback`` archived windows (what the carry needs)."""
+def _past_features(store: Store, portfolio: str, config: Config, state: DayState) -> pd.DataFrame:
+    """The feature rows of the last ``lookback`` archived windows (what the carry needs), in one bounded query."""
     need = min(lookback_needed(config.alerts.rules), state.carry.windows)
     watched = sorted({rule.summary for rule in config.alerts.rules})
     if not need or not watched:
         return pd.DataFrame(columns=watched, index=pd.DatetimeIndex([], name="window_end"), dtype=float)
-    ends = window_end_positions(n_now - 1, config.window, config.step)
-    start = _date_of_row(store, portfolio, tail, int(ends[state.carry.windows - need]) + 1, through, n_now)
-    past = store.read_features(
-        portfolio, start=start, end=state.counted_through, columns=watched, config_hash=config.hash()
-    ).frame
+    past = store.last_features(
+        portfolio, end=state.counted_through, count=need, columns=watched, config_hash=config.hash()
+    )
     if len(past) != need or (state.carry.window_end is not None and past.index[-1].date() != state.carry.window_end):
         raise DataError(
-            f"portfolio {portfolio!r}: {len(past)} archived window(s) from {start}, {need} expected before the new "
-            "ones; the archive's series does not match its saved state"
+            f"portfolio {portfolio!r}: {len(past)} archived window(s) through {state.counted_through}, {need} "
+            "expected before the new ones; the archive's series does not match its saved state"
         )
     return past
 
@@ -325,7 +312,7 @@ def archive_tail_run(
     """
     n_now = tail.span.first_row + tail.span.n_rows
     result = _tail_result(tail, config)
-    past = _past_features(store, portfolio, config, tail, state, through, n_now) if len(result.window_ends) else None
+    past = _past_features(store, portfolio, config, state) if len(result.window_ends) else None
     firings, carry = (
         advance_rules(state.carry, past, result.features, config.alerts.rules)
         if past is not None

@@ -40,6 +40,7 @@ if TYPE_CHECKING:  # Alembic loads only when a schema is created or migrated (it
 __all__ = [
     "create_archive_engine",
     "write_transaction",
+    "savepoint",
     "read_transaction",
     "upgrade",
     "schema_revision",
@@ -194,6 +195,30 @@ def write_transaction(engine: Engine) -> Iterator[Connection]:
                 fault_point("commit")
             finally:
                 _UNIT.reset(token)
+
+
+@contextmanager
+def savepoint(engine: Engine) -> Iterator[Connection]:
+    """A SAVEPOINT inside the open write transaction of ``engine``: an exception undoes only what was written since.
+
+    On an exception the writes since the savepoint are rolled back, the work registered with
+    :func:`before_commit` since then is dropped (a portfolio whose writes were undone gets no
+    commitment for them), and the exception propagates; the transaction stays open for more work.
+    Raises StoreError outside a write transaction of ``engine``.
+    """
+    unit = _UNIT.get()
+    if unit is None or unit.engine is not engine:
+        raise StoreError("a savepoint must run inside write_transaction (a riskshape defect: please report it)")
+    registered = dict(unit.pending)
+    nested = unit.connection.begin_nested()
+    try:
+        yield unit.connection
+    except BaseException:
+        nested.rollback()
+        unit.pending.clear()
+        unit.pending.update(registered)
+        raise
+    nested.commit()
 
 
 @contextmanager

@@ -28,31 +28,28 @@ INDEX_UNIT = "us"
 :func:`riskshape.prices.hash_prices` depends on."""
 
 
-def _long(frame: pd.DataFrame) -> pd.DataFrame:
-    """Wide prices to rows of (date, asset, price), NaN kept."""
-    wide = frame.copy()
-    wide.index = pd.Index(pd.DatetimeIndex(frame.index).date, name="date")
-    wide.columns = pd.Index([str(c) for c in frame.columns], name="asset")
-    return wide.reset_index().melt(id_vars="date", var_name="asset", value_name="price")
-
-
 _LATEST_COLUMNS = ["id", "date", "asset", "price", "revision"]
 
+_Cell = tuple[int, date, str, "float | None", int]
 
-def _latest(
+
+def _latest_cells(
     connection: Connection,
     portfolio_id: int,
     start: date | None,
     end: date | None,
     assets: list[str] | None,
     through_id: int | None,
-) -> pd.DataFrame:
-    """Latest revision of each cell, as rows (id, date, asset, price, revision), dates as ``datetime.date``.
+) -> list[_Cell]:
+    """Latest revision of each cell as tuples (id, date, asset, price or None, revision), by date then asset.
 
     Read through the driver's own cursor: building a SQLAlchemy row per result row took three
     times the driver's fetch (0.25 s against 0.09 s for 128,000 cells on SQLite), and a day's
     ingest reads a portfolio's whole history. Parameters are passed in the driver's own style,
-    as :func:`_bulk_insert` does.
+    as :func:`_bulk_insert` does. The rows come ordered by the cell index ``(portfolio_id, date,
+    asset, revision)``, so the latest revision of a cell is the last of its run of rows; picking it
+    in plain Python costs less than building a table to sort and deduplicate (a day's tail of
+    8,500 cells: 2 ms against 9 ms).
     """
     sqlite = connection.dialect.name == "sqlite"
     mark = "?" if sqlite else "%s"
@@ -71,26 +68,58 @@ def _latest(
         params.append(day(end))
     if assets is not None:
         if not assets:
-            return pd.DataFrame(columns=_LATEST_COLUMNS)
+            return []
         clauses.append(f"asset IN ({', '.join([mark] * len(assets))})")
         params.extend(assets)
     if through_id is not None:
         clauses.append(f"id <= {mark}")
         params.append(through_id)
-    sql = f"SELECT {', '.join(_LATEST_COLUMNS)} FROM {t.prices.name} WHERE {' AND '.join(clauses)}"
+    sql = (
+        f"SELECT {', '.join(_LATEST_COLUMNS)} FROM {t.prices.name} WHERE {' AND '.join(clauses)} "
+        "ORDER BY date, asset, revision"
+    )
     cursor = connection.connection.cursor()
     try:
         cursor.execute(sql, tuple(params))
         rows = cursor.fetchall()
     finally:
         cursor.close()
-    table = pd.DataFrame(rows, columns=_LATEST_COLUMNS)
-    if table.empty:
-        return table
-    table["date"] = pd.to_datetime(table["date"]).dt.date
-    table["price"] = table["price"].astype(float)
-    table = table.sort_values(["date", "asset", "revision"])
-    return table.drop_duplicates(["date", "asset"], keep="last")
+    dates: dict[object, date] = {}
+    for stored in {r[1] for r in rows}:
+        dates[stored] = stored if isinstance(stored, date) else date.fromisoformat(str(stored)[:10])
+    last = len(rows) - 1
+    return [
+        (int(r[0]), dates[r[1]], str(r[2]), None if r[3] is None else float(r[3]), int(r[4]))
+        for i, r in enumerate(rows)
+        if i == last or rows[i + 1][1] != r[1] or rows[i + 1][2] != r[2]
+    ]
+
+
+def _latest(
+    connection: Connection,
+    portfolio_id: int,
+    start: date | None,
+    end: date | None,
+    assets: list[str] | None,
+    through_id: int | None,
+) -> pd.DataFrame:
+    """Latest revision of each cell, as rows (id, date, asset, price, revision), dates as ``datetime.date``.
+
+    Sorted by date and asset; a missing price is NaN. See :func:`_latest_cells`.
+    """
+    cells = _latest_cells(connection, portfolio_id, start, end, assets, through_id)
+    if not cells:
+        return pd.DataFrame(columns=_LATEST_COLUMNS)
+    ids, days, names, prices, revisions = zip(*cells)
+    return pd.DataFrame(
+        {
+            "id": np.asarray(ids, dtype=np.int64),
+            "date": list(days),
+            "asset": list(names),
+            "price": np.asarray([np.nan if p is None else p for p in prices], dtype=float),
+            "revision": np.asarray(revisions, dtype=np.int64),
+        }
+    )
 
 
 def validated(prices: pd.DataFrame, source: str) -> ValidPrices:
@@ -99,26 +128,35 @@ def validated(prices: pd.DataFrame, source: str) -> ValidPrices:
 
 
 def append_prices(connection: Connection, portfolio_id: int, valid: pd.DataFrame, now: datetime) -> PriceWrite:
-    """Append a validated wide price table (see :func:`validated`) inside an open write transaction."""
-    incoming = _long(valid)
-    held = _latest(connection, portfolio_id, incoming["date"].min(), incoming["date"].max(), None, None)
-    merged = incoming.merge(
-        held[["date", "asset", "price", "revision"]], on=["date", "asset"], how="left", suffixes=("", "_held")
+    """Append a validated wide price table (see :func:`validated`) inside an open write transaction.
+
+    Cells are taken asset by asset, each asset's dates in order (the order their rows get ids).
+    """
+    days = list(pd.DatetimeIndex(valid.index).date)
+    names = [str(c) for c in valid.columns]
+    values = valid.to_numpy(dtype=float)
+    held = (
+        {(c[1], c[2]): (c[3], c[4]) for c in _latest_cells(connection, portfolio_id, min(days), max(days), None, None)}
+        if days
+        else {}
     )
-    is_new = merged["revision"].isna().to_numpy()
-    new_price, old_price = merged["price"].to_numpy(float), merged["price_held"].to_numpy(float)
-    same = (new_price == old_price) | (np.isnan(new_price) & np.isnan(old_price))
-    changed = ~is_new & ~same
-    revision = merged["revision"].to_numpy()
-    keep = is_new | changed
-    part = merged[keep]
-    revs = np.where(is_new[keep], 0, np.nan_to_num(revision[keep].astype(float)) + 1).astype(int)
-    rows = [
-        (d, asset, None if math.isnan(price) else float(price), int(r))
-        for (d, asset, price), r in zip(part[["date", "asset", "price"]].itertuples(index=False), revs)
-    ]
+    rows: list[tuple[date, str, float | None, int]] = []
+    added = corrections = unchanged = 0
+    for j, asset in enumerate(names):
+        for i, day in enumerate(days):
+            price = float(values[i, j])
+            cell = None if math.isnan(price) else price
+            archived = held.get((day, asset))
+            if archived is None:
+                rows.append((day, asset, cell, 0))
+                added += 1
+            elif archived[0] == cell:  # the same price, or missing both times
+                unchanged += 1
+            else:
+                rows.append((day, asset, cell, archived[1] + 1))
+                corrections += 1
     _bulk_insert(connection, portfolio_id, rows, now)
-    return PriceWrite(added=int(is_new.sum()), corrections=int(changed.sum()), unchanged=int((~is_new & same).sum()))
+    return PriceWrite(added=added, corrections=corrections, unchanged=unchanged)
 
 
 def _bulk_insert(
@@ -170,16 +208,17 @@ def read_prices(
 
     Columns follow ``assets`` when given (assets never archived come out all-NaN), else sorted names.
     """
-    latest = _latest(connection, portfolio_id, start, end, assets, through_id)
-    if latest.empty:
-        wide = pd.DataFrame(columns=list(assets or []), dtype=float)
-        wide.index = pd.DatetimeIndex([], name="date").as_unit(INDEX_UNIT)
-    else:
-        wide = latest.pivot(index="date", columns="asset", values="price")
-        wide.index = pd.DatetimeIndex(pd.to_datetime(wide.index), name="date").as_unit(INDEX_UNIT)
-        wide = wide.sort_index()
-        columns = list(assets) if assets is not None else sorted(wide.columns)
-        wide = wide.reindex(columns=columns).astype(float)
+    cells = _latest_cells(connection, portfolio_id, start, end, assets, through_id)
+    columns = list(assets) if assets is not None else sorted({c[2] for c in cells})
+    days = sorted({c[1] for c in cells})
+    row_of = {d: i for i, d in enumerate(days)}
+    column_of = {a: j for j, a in enumerate(columns)}
+    values = np.full((len(days), len(columns)), np.nan)
+    for _, day, asset, price, _ in cells:
+        if price is not None:
+            values[row_of[day], column_of[asset]] = price
+    index = pd.DatetimeIndex(pd.to_datetime(days), name="date").as_unit(INDEX_UNIT)
+    wide = pd.DataFrame(values, index=index, columns=columns)
     wide.columns = pd.Index([str(c) for c in wide.columns], name="asset")
     return wide
 

@@ -106,6 +106,49 @@ def window_ends(engine: Engine, portfolio: str, config_hash: str | None = None) 
         return tuple(connection.execute(query.distinct().order_by(f.c.window_end)).scalars())
 
 
+def _features_frame(texts: Sequence[str], ends: Sequence[object], columns: Sequence[str] | None) -> pd.DataFrame:
+    """Archived feature rows (their JSON text and window ends) as a table indexed by ``window_end``."""
+    records = [json.loads(text) for text in texts]
+    known = list(records[0]) if records else []
+    if columns is not None:
+        missing = [c for c in columns if records and c not in records[0]]
+        if missing:
+            raise StoreError(f"features: no column {missing[0]!r}; archived columns are {', '.join(known)}")
+        known = list(columns)
+    frame = pd.DataFrame.from_records(records, columns=known) if records else pd.DataFrame(columns=known)
+    for column in frame.columns:
+        values = frame[column].tolist()
+        is_int = bool(values) and all(isinstance(v, int) and not isinstance(v, bool) for v in values)
+        frame[column] = frame[column].astype("int64" if is_int else "float64")
+    frame.index = pd.DatetimeIndex(pd.to_datetime(list(ends)), name="window_end").as_unit(INDEX_UNIT)
+    return frame
+
+
+def last_features(
+    engine: Engine, portfolio: str, *, end: object, count: int, config_hash: str, columns: Sequence[str] | None = None
+) -> pd.DataFrame:
+    """The last ``count`` windows (current versions) ending on or before ``end``, ascending.
+
+    See :meth:`riskshape.store.Store.last_features`.
+    """
+    f = t.features
+    with read_transaction(engine) as connection:
+        pid = portfolio_id(connection, portfolio)
+        query = (
+            sa.select(f.c.window_end, f.c.values_json)
+            .where(
+                f.c.portfolio_id == pid,
+                f.c.config_hash == config_hash,
+                f.c.window_end <= to_date(end, "end"),
+                current_version(f, None),
+            )
+            .order_by(f.c.window_end.desc())
+            .limit(count)
+        )
+        rows = connection.execute(query).all()[::-1]
+    return _features_frame([r.values_json for r in rows], [r.window_end for r in rows], columns)
+
+
 def read_features(
     engine: Engine,
     portfolio: str,
@@ -135,19 +178,7 @@ def read_features(
         if limit is not None:
             query = query.limit(limit)
         rows = connection.execute(query).all()
-    records = [json.loads(r.values_json) for r in rows]
-    known = list(records[0]) if records else []
-    if columns is not None:
-        missing = [c for c in columns if records and c not in records[0]]
-        if missing:
-            raise StoreError(f"features: no column {missing[0]!r}; archived columns are {', '.join(known)}")
-        known = list(columns)
-    frame = pd.DataFrame.from_records(records, columns=known) if records else pd.DataFrame(columns=known)
-    for column in frame.columns:
-        values = frame[column].tolist()
-        is_int = bool(values) and all(isinstance(v, int) and not isinstance(v, bool) for v in values)
-        frame[column] = frame[column].astype("int64" if is_int else "float64")
-    frame.index = pd.DatetimeIndex(pd.to_datetime([r.window_end for r in rows]), name="window_end").as_unit(INDEX_UNIT)
+    frame = _features_frame([r.values_json for r in rows], [r.window_end for r in rows], columns)
     return FeaturesPage(frame=frame, total=total, offset=offset, config_hash=chosen)
 
 

@@ -25,6 +25,7 @@ from riskshape.store.database import (
     archive_exists,
     create_archive_engine,
     read_transaction,
+    savepoint,
     upgrade,
     write_transaction,
 )
@@ -332,6 +333,52 @@ class Store:
             offset=offset,
             config_hash=config_hash,
             as_known_at=to_known_at(as_known_at),
+        )
+
+    @contextmanager
+    def savepoint(self) -> Iterator[Store]:
+        """Inside :meth:`transaction`: a part that, on an exception, is undone alone (a SQL SAVEPOINT).
+
+        What was written inside is rolled back (with its pending commitment) and the exception
+        propagates; the transaction goes on, and what was written before and after commits with it.
+        Raises StoreError outside :meth:`transaction`.
+
+        Yields
+        ------
+        Store
+            This store.
+
+        Examples
+        --------
+        >>> with store.transaction():  # doctest: +SKIP
+        ...     for name, prices in days.items():
+        ...         try:
+        ...             with store.savepoint():
+        ...                 store.append_prices(name, prices)
+        ...         except ConflictError:
+        ...             pass  # that portfolio's writes are undone; the others commit together
+        """
+        try:
+            with savepoint(self.engine):
+                yield self
+        except sa.exc.IntegrityError as err:
+            raise ConflictError(f"savepoint: the archive refused the write ({_one_line(err)})") from None
+        except sa.exc.SQLAlchemyError as err:
+            raise StoreError(f"savepoint: database error ({_one_line(err)})") from None
+
+    @_database_errors
+    def last_features(
+        self, portfolio: str, *, end: object, count: int, config_hash: str, columns: Sequence[str] | None = None
+    ) -> pd.DataFrame:
+        """The features of the last ``count`` windows ending on or before ``end`` (current versions), ascending.
+
+        One bounded query (the daily loop's rules read the ``lookback`` windows before a new one);
+        columns as :meth:`read_features`.
+        """
+        from riskshape.store import series  # pandas and numpy load here, not at start
+
+        return series.last_features(
+            self.engine, portfolio, end=end, count=count, config_hash=config_hash, columns=columns
         )
 
     @_database_errors
