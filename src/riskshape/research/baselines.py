@@ -273,10 +273,10 @@ def _gram(centred: FloatArray) -> FloatArray:
 
 def _eigenvalues(gram: FloatArray) -> FloatArray:
     """Eigenvalues of a symmetric matrix, ascending (LAPACK ``dsyevr``, values only, lower triangle)."""
-    values, _, info = syevr(gram, compute_v=0, lower=_LOWER)[:3]
-    if info != 0:  # LAPACK did not converge (not seen in practice): numpy's driver, or its error
+    values, _, found, _, info = syevr(gram, compute_v=0, lower=_LOWER)  # w, z, m, isuppz, info
+    if info != 0 or found != gram.shape[0]:  # not converged, or not all found: numpy's driver, or its error
         return cast("FloatArray", np.linalg.eigvalsh(gram))
-    return cast("FloatArray", values)
+    return cast("FloatArray", values[:found])
 
 
 def _volatility_of(centred: FloatArray, periods_per_year: int) -> float:
