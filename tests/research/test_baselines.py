@@ -104,3 +104,49 @@ def test_compute_baselines_sits_on_the_monitors_windows(small_prices: pd.DataFra
     pd.testing.assert_frame_equal(from_returns, baselines)
     assert baselines[list(BASELINE_COLUMNS)].notna().all().all()
     assert ((baselines["absorption_ratio"] > 0) & (baselines["absorption_ratio"] <= 1)).all()
+
+
+@pytest.mark.parametrize(("days", "n"), [(60, 48), (250, 30), (30, 70)], ids=["days>assets", "long", "days<assets"])
+def test_absorption_ratio_against_scikit_learn_pca(rng: np.random.Generator, days: int, n: int) -> None:
+    # source: Kritzman, Li, Page and Rigobon (2011) define the absorption ratio as the share of the total
+    # variance explained by the top fifth of the principal components; scikit-learn's PCA (an outside
+    # implementation, its own SVD) gives each component's share as explained_variance_ratio_. With fewer
+    # days than assets riskshape takes the eigenvalues of the days x days Gram matrix instead.
+    from sklearn.decomposition import PCA
+
+    block = 0.01 * (rng.standard_normal((days, 1)) * rng.uniform(0.2, 1.5, n) + rng.standard_normal((days, n)))
+    k = math.ceil(n / 5)
+    shares = PCA(svd_solver="full").fit(block).explained_variance_ratio_
+    assert absorption_ratio(block) == pytest.approx(shares[:k].sum(), rel=1e-12)
+    assert absorption_ratio(block, k=3) == pytest.approx(shares[:3].sum(), rel=1e-12)
+
+
+@pytest.mark.parametrize(("days", "n"), [(60, 48), (40, 5), (49, 48), (30, 50)], ids=["full", "small", "n+1", "short"])
+def test_turbulence_against_scipy_mahalanobis_with_a_pseudo_inverse(
+    rng: np.random.Generator, days: int, n: int
+) -> None:
+    # source: Kritzman and Li (2010): turbulence is the squared Mahalanobis distance of the last day from
+    # the mean of the preceding days under their covariance; scipy.spatial.distance.mahalanobis with
+    # scipy.linalg.pinvh (the inverse where the covariance is regular, the pseudo-inverse with numpy's
+    # matrix-rank tolerance where it is not) is the reference. "full" and "small" take the leverage path
+    # (Sherman-Morrison on the whole window's Cholesky factor); "n+1" leaves the preceding days' covariance
+    # singular (rank n - 1) although the whole window's is regular; "short" has fewer days than assets.
+    from scipy.linalg import pinvh
+
+    block = rng.standard_normal((days, 1)) * rng.uniform(0.5, 1.5, n) + rng.standard_normal((days, n))
+    block[-1] += 3.0  # a turbulent last day
+    history, today = block[:-1], block[-1]
+    expected = mahalanobis(today, history.mean(axis=0), pinvh(np.cov(history, rowvar=False))) ** 2
+    assert turbulence(block) == pytest.approx(expected, rel=1e-7)
+
+
+def test_turbulence_of_a_single_outlier_by_the_leverage_path_stays_exact(rng: np.random.Generator) -> None:
+    # a last day far outside the history: the leverage h comes close to (T - 1) / T, where the
+    # Sherman-Morrison form h / (a (a - h)) loses digits first; the reference is scipy's mahalanobis
+    # with the exact inverse (Kritzman and Li 2010)
+    block = rng.standard_normal((80, 10))
+    block[-1] = 40.0 * rng.standard_normal(10)
+    history, today = block[:-1], block[-1]
+    expected = mahalanobis(today, history.mean(axis=0), np.linalg.inv(np.cov(history, rowvar=False))) ** 2
+    assert expected > 1e4
+    assert turbulence(block) == pytest.approx(expected, rel=1e-9)

@@ -16,8 +16,17 @@ Each function takes one window's returns block (days x assets, complete: no NaN)
 * :func:`turbulence` - Kritzman and Li (2010, Financial Analysts Journal 66(5):30):
   ``(r_t - mu)' Sigma^-1 (r_t - mu)`` of the window's last day ``r_t`` against the sample mean
   and covariance (ddof = 1) of the window's preceding days. ``Sigma^-1`` is the inverse when
-  Sigma is positive definite (by a Cholesky solve) and the Moore-Penrose pseudo-inverse
-  (numpy.linalg.pinv) when it is singular (fewer days than assets, or collinear assets).
+  Sigma is positive definite and the Moore-Penrose pseudo-inverse (numpy.linalg.pinv) when it
+  is singular (fewer days than assets, or collinear assets).
+
+One window's baselines share one computation (exact linear algebra, the same values as the
+definitions above up to floating-point rounding): the block is centred once, the smaller of its
+two Gram matrices (``X'X``, assets x assets, or ``XX'``, days x days, with the same nonzero
+eigenvalues) formed once and its eigenvalues found once (LAPACK ``dsyevr``); the turbulence
+comes from the whole window's Cholesky factor by the Sherman-Morrison formula (the last day's
+leverage), or from a pseudo-inverse on the history's smaller Gram matrix where the preceding
+days' covariance is singular (see the comment above ``_centred``). Each public function calls
+the same code, so :func:`window_baselines` gives each one's bits.
 
 :func:`compute_baselines` runs them over a whole price (or returns) table on the windows of
 :func:`riskshape.compute.windows.window_end_positions` and :func:`riskshape.compute.windows.select_window`, so
@@ -27,13 +36,15 @@ its index is the ``window_end`` index of ``monitor(...).features``.
 from __future__ import annotations
 
 import math
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, cast
 
 import numpy as np
 import pandas as pd
-from scipy.linalg import cho_factor, cho_solve
+from scipy.linalg.lapack import dpotrf as potrf
+from scipy.linalg.lapack import dsyevr as syevr
+from scipy.linalg.lapack import dtrtrs as trtrs
+from scipy.stats import rankdata
 
-from riskshape.compute.distance import correlation_matrix, covariance_to_correlation, mean_offdiagonal
 from riskshape.compute.executors import make_executor
 from riskshape.compute.returns import to_returns
 from riskshape.compute.windows import select_window, window_end_positions
@@ -61,6 +72,7 @@ TRADING_DAYS_PER_YEAR = 252
 BASELINE_COLUMNS: tuple[str, ...] = ("ew_volatility", "mean_correlation", "absorption_ratio", "turbulence")
 BASELINE_PREFIX = "base_"
 """The prefix :func:`features_with_baselines` gives the baselines' columns."""
+_EPS = float(np.finfo(float).eps)
 
 
 def portfolio_volatility(block: ReturnsBlock, periods_per_year: int = TRADING_DAYS_PER_YEAR) -> float:
@@ -87,8 +99,7 @@ def portfolio_volatility(block: ReturnsBlock, periods_per_year: int = TRADING_DA
     """
     if block.shape[0] < 2 or block.shape[1] == 0:
         return float("nan")
-    portfolio = block.mean(axis=1)
-    return float(portfolio.std(ddof=1) * math.sqrt(periods_per_year))
+    return _volatility_of(_centred(block), periods_per_year)
 
 
 def mean_pairwise_correlation(block: ReturnsBlock, method: CorrelationEstimator = "pearson") -> float:
@@ -99,12 +110,12 @@ def mean_pairwise_correlation(block: ReturnsBlock, method: CorrelationEstimator 
     block : numpy.ndarray
         The window's returns, days x assets.
     method : {"pearson", "spearman"}
-        The correlation estimator.
+        The correlation estimator (Spearman: Pearson on each asset's ranks, ties averaged).
 
     Returns
     -------
     float
-        The mean correlation.
+        The mean correlation; NaN where an asset's returns do not vary.
 
     Examples
     --------
@@ -115,7 +126,7 @@ def mean_pairwise_correlation(block: ReturnsBlock, method: CorrelationEstimator 
     """
     if block.shape[1] < 2:
         return float("nan")
-    return mean_offdiagonal(correlation_matrix(block, method))
+    return _mean_correlation_of(_centred(_ranked(block, method)))
 
 
 def absorption_ratio(block: ReturnsBlock, k: int | None = None) -> float:
@@ -146,16 +157,8 @@ def absorption_ratio(block: ReturnsBlock, k: int | None = None) -> float:
     top = math.ceil(n / 5) if k is None else int(k)
     if not 1 <= top <= n:
         raise DataError(f"absorption_ratio: k must be between 1 and the {n} assets, got {k}")
-    return _absorption_of(np.atleast_2d(np.cov(block, rowvar=False)), top)
-
-
-def _absorption_of(cov: FloatArray, top: int) -> float:
-    """Top-``top`` eigenvalues of the covariance ``cov`` over their total (NaN for a zero covariance)."""
-    eig = np.clip(np.linalg.eigvalsh(cov), 0.0, None)  # ascending; clip rounding below zero
-    total = eig.sum()
-    if not total > 0:
-        return float("nan")
-    return float(eig[-top:].sum() / total)
+    gram = _gram(_centred(block))
+    return _absorption_of(_eigenvalues(gram), gram, top)
 
 
 def turbulence(block: ReturnsBlock) -> float:
@@ -170,8 +173,8 @@ def turbulence(block: ReturnsBlock) -> float:
     Returns
     -------
     float
-        The squared Mahalanobis distance (pseudo-inverse covariance); NaN with fewer than three
-        days or no asset.
+        The squared Mahalanobis distance (pseudo-inverse covariance where it is singular); NaN
+        with fewer than three days or no asset.
 
     Examples
     --------
@@ -180,18 +183,12 @@ def turbulence(block: ReturnsBlock) -> float:
     >>> round(turbulence(b), 12)
     4.5
     """
-    if block.shape[0] < 3 or block.shape[1] == 0:
+    days, n = block.shape
+    if days < 3 or n == 0:
         return float("nan")
-    history, today = block[:-1], block[-1]
-    deviation = today - history.mean(axis=0)
-    cov = np.atleast_2d(np.cov(history, rowvar=False))
-    try:
-        # positive definite (the usual case): a Cholesky solve, the inverse at a tenth of the cost
-        factor = cho_factor(cov, lower=True, check_finite=False)
-        return float(deviation @ cho_solve(factor, deviation, check_finite=False))
-    except np.linalg.LinAlgError:
-        precision = np.linalg.pinv(cov, hermitian=True)
-        return float(deviation @ precision @ deviation)
+    centred = _centred(block)
+    gram = _gram(centred)
+    return _turbulence_of(centred, gram, _eigenvalues(gram) if n <= days - 2 else None)
 
 
 def window_baselines(
@@ -210,10 +207,8 @@ def window_baselines(
     -------
     tuple
         ``(n_assets, ew_volatility, mean_correlation, absorption_ratio, turbulence)``, each
-        bit for bit what its own function gives. With Pearson correlation the window's sample
-        covariance is computed once for the mean correlation and the absorption ratio
-        (:func:`riskshape.compute.distance.covariance_to_correlation` makes the same bits as
-        :func:`riskshape.compute.distance.correlation_matrix`): a third less time per window.
+        bit for bit what its own function gives: the window is centred once, its smaller Gram
+        matrix formed once and its eigenvalues found once, and every baseline reads them.
 
     Examples
     --------
@@ -223,22 +218,132 @@ def window_baselines(
     (4, True)
     """
     days, n = block.shape
-    if method == "pearson" and days >= 2 and n >= 2:
-        cov = np.cov(block, rowvar=False)
-        return (
-            n,
-            portfolio_volatility(block),
-            mean_offdiagonal(covariance_to_correlation(cov)),
-            _absorption_of(cov, math.ceil(n / 5)),
-            turbulence(block),
-        )
+    nan = float("nan")
+    if n == 0 or days < 2:
+        return (n, nan, nan, nan, nan)
+    centred = _centred(block)
+    gram = _gram(centred)
+    eigenvalues = _eigenvalues(gram)
+    correlation = centred if method == "pearson" else _centred(_ranked(block, method))
     return (
         n,
-        portfolio_volatility(block),
-        mean_pairwise_correlation(block, method),
-        absorption_ratio(block) if n else float("nan"),
-        turbulence(block),
+        _volatility_of(centred, TRADING_DAYS_PER_YEAR),
+        _mean_correlation_of(correlation) if n >= 2 else nan,
+        _absorption_of(eigenvalues, gram, math.ceil(n / 5)),
+        _turbulence_of(centred, gram, eigenvalues if n <= days - 2 else None) if days >= 3 else nan,
     )
+
+
+# The shared arithmetic. A window of T days and N assets is centred once (``X``, each asset less
+# its mean); every baseline is read from ``X``, its Gram matrix and that matrix's eigenvalues:
+#
+# * volatility: the equal-weight portfolio's centred returns are ``X 1 / N``;
+# * mean correlation: with ``u_i = 1 / ||X_i||`` the correlation matrix is ``D X'X D``
+#   (``D = diag(u)``), so the sum of all its entries is ``||X u||^2`` and the off-diagonal mean
+#   ``(||X u||^2 - N) / (N (N - 1))``: no N x N matrix;
+# * absorption ratio: the covariance is ``X'X / (T - 1)``; ``X'X`` (N x N) and ``X X'`` (T x T)
+#   have the same nonzero eigenvalues and the same trace, so the smaller of the two serves (the
+#   ratio does not see the 1 / (T - 1));
+# * turbulence: the history's scatter ``S_h`` and the window's ``S = X'X`` differ by one rank-one
+#   term, ``S = S_h + a d d'`` with ``a = (T - 1) / T`` and ``d`` the last day less the history's
+#   mean (the one-observation update of a scatter matrix); the last row of ``X`` is ``a d``. With
+#   the last day's leverage ``h = (a d)' S^-1 (a d)`` (one Cholesky factor and one triangular
+#   solve), Sherman and Morrison's formula gives ``d' S_h^-1 d = h / (a (a - h))``, and the
+#   turbulence is ``(T - 2)`` times that. Where ``S_h`` is singular (``T - 2 < N`` days, collinear
+#   assets) the pseudo-inverse form is taken on the history's smaller Gram matrix instead.
+
+_LOWER = 1
+
+
+def _centred(block: ReturnsBlock) -> FloatArray:
+    """Each column less its mean."""
+    return cast("FloatArray", block - block.mean(axis=0))
+
+
+def _ranked(block: ReturnsBlock, method: CorrelationEstimator) -> FloatArray:
+    """The returns themselves (Pearson) or each column's ranks, ties averaged (Spearman)."""
+    return rankdata(block, axis=0) if method == "spearman" else block
+
+
+def _gram(centred: FloatArray) -> FloatArray:
+    """The smaller Gram matrix of a centred block: ``X'X`` (N x N) when N <= T, else ``X X'``."""
+    days, n = centred.shape
+    return centred.T @ centred if n <= days else centred @ centred.T
+
+
+def _eigenvalues(gram: FloatArray) -> FloatArray:
+    """Eigenvalues of a symmetric matrix, ascending (LAPACK ``dsyevr``, values only, lower triangle)."""
+    values, _, found, _, info = syevr(gram, compute_v=0, lower=_LOWER)  # w, z, m, isuppz, info
+    if info != 0 or found != gram.shape[0]:  # not converged, or not all found: numpy's driver, or its error
+        return cast("FloatArray", np.linalg.eigvalsh(gram))
+    return cast("FloatArray", values[:found])
+
+
+def _volatility_of(centred: FloatArray, periods_per_year: int) -> float:
+    """Annualised sample (ddof = 1) standard deviation of the equal-weight portfolio."""
+    portfolio = centred.mean(axis=1)
+    return math.sqrt(float(portfolio @ portfolio) / (centred.shape[0] - 1) * periods_per_year)
+
+
+def _mean_correlation_of(centred: FloatArray) -> float:
+    """Mean off-diagonal Pearson correlation of the columns (NaN where a column does not vary)."""
+    n = centred.shape[1]
+    norms = np.sqrt(np.einsum("ij,ij->j", centred, centred))
+    if not norms.all():
+        return float("nan")
+    combined = centred @ (1.0 / norms)
+    return float((combined @ combined - n) / (n * (n - 1)))
+
+
+def _absorption_of(eigenvalues: FloatArray, gram: FloatArray, top: int) -> float:
+    """The ``top`` largest eigenvalues (rounding below zero clipped) over the trace."""
+    total = float(np.trace(gram))
+    if not total > 0:
+        return float("nan")
+    return float(np.clip(eigenvalues[-top:], 0.0, None).sum() / total)
+
+
+def _is_rank_deficient(smallest: float, largest: float, shape: tuple[int, int]) -> bool:
+    """numpy.linalg.matrix_rank's tolerance: singular below ``largest * max(shape) * eps``."""
+    return not smallest > largest * max(shape) * _EPS
+
+
+def _turbulence_of(centred: FloatArray, gram: FloatArray, eigenvalues: FloatArray | None) -> float:
+    """Turbulence of the last row; ``eigenvalues`` of ``gram = X'X`` where ``N <= T - 2``, else None."""
+    days, n = centred.shape
+    if eigenvalues is not None and not _is_rank_deficient(eigenvalues[0], eigenvalues[-1], centred.shape):
+        factor, info = potrf(gram, lower=_LOWER, clean=0)
+        if info == 0:
+            solved, info = trtrs(factor, centred[-1], lower=_LOWER)
+            leverage = float(solved @ solved)
+            a = (days - 1) / days
+            # S_h's determinant is S's times (1 - h / a): singular where that factor vanishes
+            if info == 0 and not _is_rank_deficient(
+                eigenvalues[0] * (1.0 - leverage / a), eigenvalues[-1], centred.shape
+            ):
+                return float((days - 2) * leverage / (a * (a - leverage)))
+    history = centred[:-1]
+    mean = history.mean(axis=0)
+    return float((days - 2) * _pseudo_inverse_form(history - mean, centred[-1] - mean))
+
+
+def _pseudo_inverse_form(history: FloatArray, deviation: FloatArray) -> float:
+    """``d' pinv(H'H) d`` for a centred history ``H`` (m x N), by the smaller Gram matrix's eigenpairs.
+
+    With ``H = U s V'``: ``pinv(H'H) = V s^-2 V'``, and ``V'd = s^-1 U'H d``; eigenvalues under
+    numpy.linalg.matrix_rank's tolerance count as zero.
+    """
+    m, n = history.shape
+    small = m <= n
+    values, vectors = np.linalg.eigh(history @ history.T if small else history.T @ history)
+    kept = values > values[-1] * max(m, n) * _EPS
+    if not kept.any():
+        return 0.0
+    if small:
+        weights = (vectors[:, kept].T @ (history @ deviation)) / values[kept]
+    else:
+        weights = (vectors[:, kept].T @ deviation) / np.sqrt(values[kept])
+    return float(weights @ weights)
 
 
 def _baseline_batch(
