@@ -13,12 +13,15 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 from riskshape.compute import matching
 from riskshape.compute.distance import correlation_matrix, correlation_to_distance
 from riskshape.compute.matching import (
     assignment_wasserstein,
     persim_bottleneck,
+    reduced_assignment_matching,
     reduced_assignment_wasserstein,
     sorted_bottleneck_is_optimal,
     sorted_matching_is_optimal,
@@ -267,3 +270,66 @@ def test_augmenting_paths_find_a_maximum_matching_as_hopcroft_karp_does(
         assert all(allowed[i, j] for i, j in enumerate(match) if j >= 0)  # along edges only
         reference = maximum_bipartite_matching(csr_matrix(allowed), perm_type="column")
         assert len(taken) == int(np.count_nonzero(reference >= 0))
+
+
+def _grid_diagram(cells: list[tuple[int, int]]) -> np.ndarray:
+    """Bars on a coarse grid (quarters), so costs tie; empty cells dropped."""
+    bars = np.array([(min(x, y), max(x, y)) for x, y in cells], dtype=float).reshape(-1, 2) / 4.0
+    return bars[bars[:, 1] > bars[:, 0]]
+
+
+_cells = st.lists(st.tuples(st.integers(0, 8), st.integers(0, 8)), min_size=1, max_size=14)
+
+
+@settings(max_examples=150, deadline=None)
+@given(cells_a=_cells, cells_b=_cells, order=st.sampled_from([1.0, 2.0]), jitter=st.integers(0, 2**32 - 1))
+def test_wasserstein_matching_bounds_the_bottleneck_and_the_shortcut_is_exact(
+    cells_a: list[tuple[int, int]], cells_b: list[tuple[int, int]], order: float, jitter: int
+) -> None:
+    """The optimal Wasserstein matching's largest cost bounds the bottleneck; used as ``upper`` it changes nothing.
+
+    References: scipy's square assignment for the Wasserstein value and persim's exact
+    ``bottleneck`` for the bottleneck (no one here wrote either); grid points give ties (the
+    exact comparison ``upper <= lower`` is where a shortcut could go wrong), jittered ones none.
+    """
+    a, b = _grid_diagram(cells_a), _grid_diagram(cells_b)
+    if jitter % 2:  # half the cases off the grid
+        noise = np.random.default_rng(jitter)
+        a = np.sort(a + noise.uniform(0.0, 0.05, a.shape), axis=1)
+        b = np.sort(b + noise.uniform(0.0, 0.05, b.shape), axis=1)
+    if len(a) == 0 or len(b) == 0:
+        return
+    wasserstein, largest = reduced_assignment_matching(a, b, order)
+    assert wasserstein == reduced_assignment_wasserstein(a, b, order)
+    assert wasserstein == pytest.approx(assignment_wasserstein(a, b, order), rel=REL, abs=1e-15)
+    reference = persim_bottleneck(a, b)
+    assert largest >= reference - 1e-15
+    assert threshold_bottleneck(a, b, upper=largest) == threshold_bottleneck(a, b)
+    assert threshold_bottleneck(a, b, upper=largest) == pytest.approx(reference, rel=REL, abs=1e-15)
+
+
+def test_bottleneck_shortcut_applies_on_consecutive_windows(
+    rng: np.random.Generator, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    """On consecutive windows the Wasserstein matching often reaches the lower bound: no matching tested there.
+
+    The pair distances stay equal to persim's bottleneck and to the square assignment (references).
+    """
+    checks = []
+    original = matching._maximum_matching
+
+    def counted(allowed: np.ndarray) -> np.ndarray:
+        checks.append(1)
+        return original(allowed)
+
+    monkeypatch.setattr(matching, "_maximum_matching", counted)
+    diagrams = _consecutive_diagrams(rng, 50, 60, 12)
+    spared = 0
+    for x, y in zip(diagrams[:-1], diagrams[1:]):
+        a, b = x[1], y[1]
+        checks.clear()
+        wasserstein, bottleneck = diagram_pair_distances(a, b)
+        spared += not checks
+        assert bottleneck == pytest.approx(persim_bottleneck(a, b), rel=REL, abs=1e-15)
+        assert wasserstein == pytest.approx(assignment_wasserstein(a, b, 1.0), rel=REL)
+    assert spared >= 1

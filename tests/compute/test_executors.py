@@ -171,3 +171,33 @@ def test_dask_executor_counts_the_cluster_threads(cluster: object) -> None:
     distributed = pytest.importorskip("distributed")
     with distributed.Client(cluster.scheduler_address) as client:  # type: ignore[attr-defined]
         assert DaskExecutor(client=client).workers == 2  # two worker processes of one thread
+
+
+def test_blas_limits_found_once_until_an_import(monkeypatch: pytest.MonkeyPatch) -> None:
+    """The libraries' controller is reused between runs and found again after an import (a new library maybe)."""
+    import sys
+    import types
+
+    from riskshape.compute import executors
+
+    first = executors._controller()
+    assert executors._controller() is first
+    monkeypatch.setitem(sys.modules, "riskshape_test_new_module", types.ModuleType("riskshape_test_new_module"))
+    assert executors._controller() is not first
+
+
+def test_blas_on_one_thread_inside_the_block_and_restored_after() -> None:
+    """Inside a library caller's run BLAS has one thread, after it as many as before (threadpoolctl's own view)."""
+    from threadpoolctl import threadpool_info
+
+    from riskshape.compute import executors
+
+    def blas_threads() -> list[int]:
+        return [p["num_threads"] for p in threadpool_info() if p["user_api"] == "blas"]
+
+    if executors._PIN_FOR_GOOD or executors._BLAS_PINNED:
+        pytest.skip("this process keeps BLAS pinned for good")
+    before = blas_threads()
+    with executors._one_blas_thread():
+        assert blas_threads() and set(blas_threads()) == {1}
+    assert blas_threads() == before

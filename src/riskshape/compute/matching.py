@@ -52,6 +52,10 @@ point's cost to the diagonal is half its lifetime.
   (below both, the set and its neighbourhood are unchanged), so the search jumps there and
   tests again. Every value tested
   is a candidate no larger than the answer, so the first that holds is the answer, exactly.
+  Where the Wasserstein distance of the same pair was solved by the reduced assignment, the
+  largest cost in its optimal matching is an upper bound (it is a matching); where it equals the
+  lower bound that is the answer and no bipartite matching is tested (about one H1 pair in ten
+  to three between consecutive windows at 50 to 100 assets).
   On the H1 diagrams of consecutive windows this tests 2.4 matchings a pair against 4.5 for
   the bisection over the sorted candidates it replaced (1.4x to 1.8x faster, see
   benchmarks/README.md). gudhi's ``bottleneck_distance`` is not used: it is known to return a
@@ -79,6 +83,7 @@ __all__ = [
     "sorted_bottleneck_is_optimal",
     "assignment_wasserstein",
     "reduced_assignment_wasserstein",
+    "reduced_assignment_matching",
     "threshold_bottleneck",
     "persim_bottleneck",
     "pair_costs",
@@ -222,15 +227,50 @@ def reduced_assignment_wasserstein(a: Diagram, b: Diagram, order_p: float, cross
     >>> round(reduced_assignment_wasserstein(a, b, 1.0), 12), round(assignment_wasserstein(a, b, 1.0), 12)
     (0.25, 0.25)
     """
-    pair = pair_costs(a, b) if cross is None else cross
-    diag_a, diag_b = _half_lifetimes(a), _half_lifetimes(b)
+    return reduced_assignment_matching(a, b, order_p, cross)[0]
+
+
+def reduced_assignment_matching(
+    a: Diagram, b: Diagram, order_p: float, cross: FloatArray | None = None
+) -> tuple[float, float]:
+    """:func:`reduced_assignment_wasserstein`, and the largest cost in the optimal matching it found.
+
+    The largest cost (a pair's L-infinity cost or a point's cost to the diagonal, not raised to
+    ``order_p``) is that of one matching, so it bounds the bottleneck distance from above:
+    :func:`threshold_bottleneck` takes it as ``upper``.
+
+    Parameters
+    ----------
+    a, b : numpy.ndarray
+        (n, 2) and (m, 2) finite bars, n, m >= 1.
+    order_p : float
+    cross : numpy.ndarray, optional
+        ``pair_costs(a, b)`` where already computed.
+
+    Returns
+    -------
+    tuple of float
+        ``(wasserstein, largest cost of its matching)``.
+
+    Examples
+    --------
+    The matching of the example above: one pair of cost 0.1, one point to the diagonal at 0.15:
+
+    >>> import numpy as np
+    >>> a = np.array([[0.0, 1.0], [0.2, 0.5]])
+    >>> b = np.array([[0.1, 1.1]])
+    >>> tuple(round(x, 12) for x in reduced_assignment_matching(a, b, 1.0))
+    (0.25, 0.15)
+    """
+    cost = pair = pair_costs(a, b) if cross is None else cross
+    half_a, half_b = diag_a, diag_b = _half_lifetimes(a), _half_lifetimes(b)
     if order_p != 1.0:
         pair, diag_a, diag_b = pair**order_p, diag_a**order_p, diag_b**order_p
     # a pair dearer than sending both its points to the diagonal is in no optimal matching
     gain = pair - diag_a[:, None] - diag_b[None, :]
     useful = gain < 0.0
     rows, cols = np.flatnonzero(useful.any(axis=1)), np.flatnonzero(useful.any(axis=0))
-    paired_cost = 0.0
+    paired_cost = largest = 0.0
     matched_a = np.zeros(len(a), dtype=bool)
     matched_b = np.zeros(len(b), dtype=bool)
     if len(rows):
@@ -244,8 +284,14 @@ def reduced_assignment_wasserstein(a: Diagram, b: Diagram, order_p: float, cross
         matched_a[pick_a] = True
         matched_b[pick_b] = True
         paired_cost = float(pair[pick_a, pick_b].sum())
-    total = paired_cost + diag_a[~matched_a].sum() + diag_b[~matched_b].sum()
-    return float(total ** (1.0 / order_p))
+        if len(pick_a):
+            largest = float(cost[pick_a, pick_b].max())
+    to_diagonal_a, to_diagonal_b = ~matched_a, ~matched_b
+    total = paired_cost + diag_a[to_diagonal_a].sum() + diag_b[to_diagonal_b].sum()
+    for half, left in ((half_a, to_diagonal_a), (half_b, to_diagonal_b)):
+        if left.any():
+            largest = max(largest, float(half[left].max()))
+    return float(total ** (1.0 / order_p)), largest
 
 
 def _shared_diagonal_assignment(gain: FloatArray) -> tuple[Positions, Positions]:
@@ -281,7 +327,7 @@ def persim_bottleneck(a: Diagram, b: Diagram) -> float:
         return float(bottleneck(a, b))
 
 
-def threshold_bottleneck(a: Diagram, b: Diagram, cross: FloatArray | None = None) -> float:
+def threshold_bottleneck(a: Diagram, b: Diagram, cross: FloatArray | None = None, upper: float | None = None) -> float:
     """Exact bottleneck distance of two non-empty diagrams: smallest feasible threshold.
 
     Parameters
@@ -290,6 +336,10 @@ def threshold_bottleneck(a: Diagram, b: Diagram, cross: FloatArray | None = None
         (n, 2) and (m, 2) finite bars, n, m >= 1.
     cross : numpy.ndarray, optional
         ``pair_costs(a, b)`` where already computed.
+    upper : float, optional
+        The largest cost of some matching of ``a`` and ``b`` (an upper bound, e.g. from
+        :func:`reduced_assignment_matching`): where it equals the lower bound, that is the
+        answer and no bipartite matching is tested.
 
     Returns
     -------
@@ -313,6 +363,8 @@ def threshold_bottleneck(a: Diagram, b: Diagram, cross: FloatArray | None = None
         float(np.minimum(diag_a, cross.min(axis=1)).max()),
         float(np.minimum(diag_b, cross.min(axis=0)).max()),
     )
+    if upper is not None and upper <= lower:
+        return lower  # some matching reaches the lower bound
     return _smallest_covering_threshold(cross.T, diag_b, _smallest_covering_threshold(cross, diag_a, lower))
 
 

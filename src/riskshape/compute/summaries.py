@@ -30,6 +30,7 @@ from riskshape.compute.matching import (
     assignment_wasserstein,
     pair_costs,
     persim_bottleneck,
+    reduced_assignment_matching,
     reduced_assignment_wasserstein,
     sorted_bottleneck_is_optimal,
     sorted_matching_is_optimal,
@@ -231,18 +232,22 @@ def diagram_pair_distances(a: Diagram, b: Diagram, order_p: float = 1.0) -> tupl
     if n == 0 or m == 0:
         return wasserstein_distance(a, b, order_p), bottleneck_distance(a, b)
     cross = None
-    wasserstein = bottleneck = None
+    wasserstein = bottleneck = upper = None
     if n == m and _births_zero(a) and _births_zero(b):
         da, db = np.sort(a[:, 1]), np.sort(b[:, 1])
         if sorted_matching_is_optimal(da, db, order_p):
             wasserstein = float(np.sum(np.abs(da - db) ** order_p) ** (1.0 / order_p))
+        # the sorted matching is a matching: its largest cost bounds the bottleneck from above
+        upper = float(np.max(np.abs(da - db)))
         if sorted_bottleneck_is_optimal(da, db):
-            bottleneck = float(np.max(np.abs(da - db)))
+            bottleneck = upper
     if wasserstein is None:
         cross = pair_costs(a, b)
-        wasserstein = reduced_assignment_wasserstein(a, b, order_p, cross)
+        # so does the optimal Wasserstein matching's largest cost
+        wasserstein, largest = reduced_assignment_matching(a, b, order_p, cross)
+        upper = largest if upper is None else min(upper, largest)
     if bottleneck is None:
-        bottleneck = threshold_bottleneck(a, b, pair_costs(a, b) if cross is None else cross)
+        bottleneck = threshold_bottleneck(a, b, pair_costs(a, b) if cross is None else cross, upper)
     return wasserstein, bottleneck
 
 
