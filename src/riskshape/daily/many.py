@@ -211,13 +211,11 @@ def ingest_many(
         if name in feed.refused:
             return PortfolioOutcome(name, None, feed.refused[name])
         try:  # the quality check first: refused ("[checks] quality = 'refuse'"), nothing is written
-            found = check_ingest_quality(
-                store, name, feed.prices[name], ingestor.default_config, f"day file (portfolio {name})"
-            )
+            found = _quality(store, feed, ingestor, name)
             report = ingestor.ingest(store, name, feed.prices[name], correction=correction, source="day file")
         except RiskshapeError as err:
             return PortfolioOutcome(name, None, str(err))
-        return PortfolioOutcome(name, report, None, tuple(str(f) for f in found))
+        return PortfolioOutcome(name, report, None, found)
 
     names = feed.portfolios
     if workers > 1 and len(names) > 1:
@@ -234,6 +232,14 @@ def ingest_many(
         for name in busy:  # another caller was ingesting them: fed alone, once the batch has committed
             outcomes[name] = one(name)
     return tuple(outcomes[n] for n in names)
+
+
+def _quality(store: Store, feed: Feed, ingestor: Ingestor, name: str) -> tuple[str, ...]:
+    """One portfolio's data-quality findings; raises when ``[checks] quality = "refuse"`` finds any."""
+    found = check_ingest_quality(
+        store, name, feed.prices[name], ingestor.default_config, f"day file (portfolio {name})"
+    )
+    return tuple(str(f) for f in found)
 
 
 def _one_batch(
@@ -257,6 +263,7 @@ def _one_batch(
                     break
                 taken += 1
                 try:
+                    found = _quality(store, feed, ingestor, name)  # refused: nothing written
                     with store.savepoint():
                         report = ingestor.try_ingest(
                             store, name, feed.prices[name], correction=correction, source="day file"
@@ -268,7 +275,7 @@ def _one_batch(
                 if report is None:
                     busy.append(name)
                 else:
-                    done[name] = PortfolioOutcome(name, report, None)
+                    done[name] = PortfolioOutcome(name, report, None, found)
     except RiskshapeError as err:  # the commit itself failed: nothing of the batch is archived
         for name in [*done, *busy]:
             ingestor.forget(name)
