@@ -17,7 +17,7 @@ inputs hash and decision.
 from __future__ import annotations
 
 import math
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 from datetime import datetime, timezone
 
@@ -139,6 +139,7 @@ def archive_run(
     source: str | None = None,
     raised_at: datetime | None = None,
     explain: bool = True,
+    with_run: Callable[[Run], object] | None = None,
 ) -> RunReport:
     """Write a monitoring run into the archive and append the alerts its rules raise.
 
@@ -162,6 +163,9 @@ def archive_run(
         When the alerts are raised (UTC); defaults to now.
     explain : bool
         Archive each new alert's explanation (:mod:`riskshape.explain`) inside its record.
+    with_run : callable, optional
+        Further writes that belong with the run (the daily loop's day state), called with the new
+        run inside the run's transaction: they commit with it or not at all.
 
     Returns
     -------
@@ -219,6 +223,8 @@ def archive_run(
         fault_point("archive_run:diagrams")
         appended = store.append_alerts(alerts, run.id)
         fault_point("archive_run:alerts")
+        if with_run is not None:
+            with_run(run)
     skipped = (len(result.window_ends) - len(fresh)) * len(dims)  # archived already: kept, not compared
     diagrams = WriteCount(added=written.added, existing=written.existing + skipped, differing=written.differing)
     already = appended.existing + len(firings) - len(new)  # found archived before explaining them

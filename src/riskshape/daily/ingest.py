@@ -639,8 +639,14 @@ class Ingestor:
             0 if fixed is not None else corrections,
             config,
         )
-        report = archive_run(store, portfolio, result, config, source=source)
-        save_day_state(store, portfolio, state_after_full_run(report.run, result, config))
+        report = archive_run(  # the day state in the run's transaction: a crash leaves both or neither
+            store,
+            portfolio,
+            result,
+            config,
+            source=source,
+            with_run=lambda run: save_day_state(store, portfolio, state_after_full_run(run, result, config)),
+        )
         self._remember(portfolio, result)
         n_added = report.features.added
         new_ends = result.window_ends[len(result.window_ends) - n_added :] if n_added else result.window_ends[:0]
