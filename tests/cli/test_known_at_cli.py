@@ -11,18 +11,9 @@ from datetime import datetime, timezone
 import pandas as pd
 import pytest
 
-from riskshape.cli import main
 from riskshape.store import open_store
+from tests.kit.cli import run_cli
 from tests.kit.corrected import archive_portfolio, correct_day, corrected_prices, rules_config
-
-
-def _run(capsys: pytest.CaptureFixture[str], *argv: str) -> tuple[object, str, str]:
-    try:
-        status = main(list(argv))
-    except SystemExit as stop:
-        status = stop.code
-    out, err = capsys.readouterr()
-    return status, out, err
 
 
 def test_alerts_list_show_export_as_known_before_a_correction(tmp_path, capsys: pytest.CaptureFixture[str]) -> None:
@@ -38,17 +29,17 @@ def test_alerts_list_show_export_as_known_before_a_correction(tmp_path, capsys: 
         "export": ["alerts", "export", "--format", "csv", "--store", url],
         "reviews": ["alerts", "export", "--format", "jsonl", "--what", "reviews", "--store", url],
     }
-    then = {name: _run(capsys, *argv)[1] for name, argv in commands.items()}
+    then = {name: run_cli(capsys, *argv)[1] for name, argv in commands.items()}
     moment = datetime.now(timezone.utc).isoformat()
     with open_store(url) as store:
         correct_day(store, prices, config, pd.Timestamp(alert.window_end), [1.3, 0.8, 1.1, 0.7, 1.2])
         store.append_review(alert.id, "escalate", "second-owner", "after the correction")
     for name, argv in commands.items():
-        status, out, err = _run(capsys, *argv, "--as-known-at", moment)
+        status, out, err = run_cli(capsys, *argv, "--as-known-at", moment)
         assert status in (None, 0), err
         shown = out.replace(f"as known at {moment} (later alerts, reviews and corrections left out)", "current")
         assert shown.replace(moment, "current") == then[name], name
-        assert _run(capsys, *argv)[1] != then[name], f"{name} did not change: the comparison cannot fail"
+        assert run_cli(capsys, *argv)[1] != then[name], f"{name} did not change: the comparison cannot fail"
 
 
 @pytest.mark.parametrize("command", [["alerts", "list"], ["alerts", "show", "1"], ["report", "--out", "r.html"]])
@@ -57,6 +48,6 @@ def test_a_bad_moment_is_one_line_naming_the_option_and_the_format(
 ) -> None:
     url = f"sqlite:///{tmp_path / 'archive.sqlite'}"
     open_store(url).close()
-    status, _, err = _run(capsys, *command, "--store", url, "--as-known-at", "2031-01-07 10:00")
+    status, _, err = run_cli(capsys, *command, "--store", url, "--as-known-at", "2031-01-07 10:00")
     assert status == 2
     assert err.strip().count("\n") == 0 and "--as-known-at" in err and "ISO 8601 with a timezone" in err, err

@@ -26,6 +26,7 @@ from riskshape.store.database import WRITE_OPTION
 from riskshape.store.seals import SEALED
 from tests.kit.archive import walk_prices
 from tests.kit.assets import codes
+from tests.kit.cli import run_cli
 
 RULE = RuleConfig(name="calm", summary="mean_correlation", kind="level", threshold=-1.0, min_history=0)
 NAMES = ("Fund Alder", "Fund Birch", "Fund Cedar")
@@ -88,15 +89,6 @@ def test_a_bad_portfolio_is_refused_alone(
         assert len(store.read_prices("Fund Alder")) == 24 and len(store.read_prices("Fund Cedar")) == 24
 
 
-def _ingest(capsys: pytest.CaptureFixture[str], *argv: str) -> tuple[object, str, str]:
-    try:
-        status = main(list(argv))
-    except SystemExit as stop:
-        status = stop.code
-    out, err = capsys.readouterr()
-    return status, out, err
-
-
 @pytest.mark.parametrize("mode", ["warn", "refuse"])
 def test_each_portfolios_prices_are_checked_for_quality_against_its_archive(
     tmp_path: Path, rng: np.random.Generator, capsys: pytest.CaptureFixture[str], mode: str
@@ -113,8 +105,8 @@ def test_each_portfolios_prices_are_checked_for_quality_against_its_archive(
     at = (new["portfolio"] == "Fund Birch") & (new["asset"] == asset)
     new.loc[at, "price"] = repr(float(new.loc[at, "price"].iloc[0]) * 10)
     new.to_csv(last, index=False)
-    assert _ingest(capsys, "ingest", "--prices", str(head), "--store", url, "--config", str(config))[0] in (None, 0)
-    status, out, err = _ingest(capsys, "ingest", "--prices", str(last), "--store", url, "--config", str(config))
+    assert run_cli(capsys, "ingest", "--prices", str(head), "--store", url, "--config", str(config))[0] in (None, 0)
+    status, out, err = run_cli(capsys, "ingest", "--prices", str(last), "--store", url, "--config", str(config))
     # reference: pandas' one-day ratios of Fund Birch's prices, archived and new (bound x2, the default)
     birch = pd.concat([table[table["date"] < days[-1]], new])
     wide = birch[birch["portfolio"] == "Fund Birch"].pivot(index="date", columns="asset", values="price").astype(float)

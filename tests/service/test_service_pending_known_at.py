@@ -20,9 +20,9 @@ import pandas as pd
 import pytest
 from fastapi.testclient import TestClient
 
-from riskshape.cli import main
 from riskshape_service import create_app
 from riskshape_service.settings import ServiceSettings
+from tests.kit.cli import run_cli
 from tests.kit.postgres import fresh_schema_url
 from tests.kit.service import cautioned, csv_body
 
@@ -124,15 +124,6 @@ def test_before_the_first_price_no_day_is_pending(
         assert client.get(_at(f"{BASE}/days/pending", before), headers=auth("reader")).json()["count"] == 0
 
 
-def _run_cli(capsys: pytest.CaptureFixture[str], *argv: str) -> tuple[object, str, str]:
-    try:
-        status = main(list(argv))
-    except SystemExit as stop:
-        status = stop.code
-    out, err = capsys.readouterr()
-    return status, out, err
-
-
 def test_days_list_as_known_at_prints_what_it_printed_then(
     store_url: str,
     make_settings: Callable[..., ServiceSettings],
@@ -147,15 +138,15 @@ def test_days_list_as_known_at_prints_what_it_printed_then(
         assert client.post("/v1/portfolios", json={"name": "alpha"}, headers=auth("admin")).status_code == 201
         _post(client, auth, prices.iloc[:N_FIRST])
         _post(client, auth, first.iloc[:, :3])
-        status, then, err = _run_cli(capsys, *command)
+        status, then, err = run_cli(capsys, *command)
         assert status in (None, 0), err
         moment = datetime.now(timezone.utc).isoformat()
         assert str(first.index[0].date()) in then
         _post(client, auth, first.iloc[:, 3:])
         _post(client, auth, second.iloc[:, :5])
-    status, known, err = _run_cli(capsys, *command, "--as-known-at", moment)
+    status, known, err = run_cli(capsys, *command, "--as-known-at", moment)
     assert status in (None, 0), err
     note = f"as known at {datetime.fromisoformat(moment).isoformat()} (later prices, closings and delistings left out)"
     assert known.replace(note, "current") == then
-    now = _run_cli(capsys, *command)[1]
+    now = run_cli(capsys, *command)[1]
     assert now != then and str(second.index[0].date()) in now and str(first.index[0].date()) not in now

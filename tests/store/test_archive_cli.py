@@ -14,10 +14,10 @@ import pytest
 import sqlalchemy as sa
 
 from riskshape.caution import CAUTION
-from riskshape.cli import main
 from riskshape.outputs.export import EXPORT_COLUMNS, REVIEW_COLUMNS, neutralise_cell
 from riskshape.store import chain_head, open_store
 from tests.kit.archive import around_triggers, make_alerts, manifest, walk_prices
+from tests.kit.cli import run_cli
 
 
 @pytest.fixture
@@ -37,22 +37,13 @@ def archive(tmp_path: Path, rng: np.random.Generator) -> str:
     return url
 
 
-def _run(capsys: pytest.CaptureFixture[str], *argv: str) -> tuple[object, str, str]:
-    try:
-        status = main(list(argv))
-    except SystemExit as stop:
-        status = stop.code
-    out, err = capsys.readouterr()
-    return status, out, err
-
-
 def test_verify_and_head(archive: str, capsys: pytest.CaptureFixture[str]) -> None:
-    status, out, _ = _run(capsys, "audit", "verify", "--store", archive)
+    status, out, _ = run_cli(capsys, "audit", "verify", "--store", archive)
     assert status in (None, 0) and out.splitlines()[0] == CAUTION and "ok: 9 records verified" in out
-    status, out, _ = _run(capsys, "audit", "head", "--store", archive)
+    status, out, _ = run_cli(capsys, "audit", "head", "--store", archive)
     head = out.splitlines()[-1]
     assert head.startswith("9:") and len(head) == 2 + 64
-    status, out, _ = _run(capsys, "audit", "verify", "--store", archive, "--expect-head", head)
+    status, out, _ = run_cli(capsys, "audit", "verify", "--store", archive, "--expect-head", head)
     assert status in (None, 0) and "matches the expected head" in out
 
 
@@ -61,71 +52,71 @@ def test_verify_fails_naming_the_first_bad_record(archive: str, capsys: pytest.C
         kept = str(chain_head(store))
         with around_triggers(store) as connection:
             connection.execute(sa.text("UPDATE alerts SET rule = 'rule_b' WHERE id = 2"))
-    status, out, _ = _run(capsys, "audit", "verify", "--store", archive)
+    status, out, _ = run_cli(capsys, "audit", "verify", "--store", archive)
     assert status == 1 and out.splitlines()[0] == CAUTION
     assert "first bad record: seq 4 (alerts id 2)" in out
     with open_store(archive) as store, around_triggers(store) as connection:
         connection.execute(sa.text("UPDATE alerts SET rule = 'rule_a' WHERE id = 2"))
         connection.execute(sa.text("DELETE FROM reviews"))
         connection.execute(sa.text("DELETE FROM ledger WHERE seq = 9"))
-    assert _run(capsys, "audit", "verify", "--store", archive)[0] in (None, 0)  # the cut tail is invisible alone
-    status, out, _ = _run(capsys, "audit", "verify", "--store", archive, "--expect-head", kept)
+    assert run_cli(capsys, "audit", "verify", "--store", archive)[0] in (None, 0)  # the cut tail is invisible alone
+    status, out, _ = run_cli(capsys, "audit", "verify", "--store", archive, "--expect-head", kept)
     assert status == 1 and "seq 9" in out and "tail cut" in out
 
 
 def test_verify_names_a_covered_row_and_seal_covers_an_older_archive(
     archive: str, capsys: pytest.CaptureFixture[str]
 ) -> None:
-    status, out, _ = _run(capsys, "audit", "verify", "--store", archive)
+    status, out, _ = run_cli(capsys, "audit", "verify", "--store", archive)
     assert "covered by them and checked: runs, prices, features, diagrams, portfolios, API keys" in out
     with open_store(archive) as store, around_triggers(store) as connection:
         old = connection.execute(sa.text("SELECT price FROM prices WHERE id = 7")).scalar_one()
         connection.execute(sa.text("UPDATE prices SET price = :p WHERE id = 7"), {"p": old + 1.0})
-    status, out, _ = _run(capsys, "audit", "verify", "--store", archive)
+    status, out, _ = run_cli(capsys, "audit", "verify", "--store", archive)
     assert status == 1 and "first bad record: seq 2 (prices id 7): portfolio 'Fund North'" in out
     assert "run 1's commitment (seq 2)" in out and "the ledger's 9 records verified" in out
     with open_store(archive) as store, around_triggers(store) as connection:
         connection.execute(sa.text("UPDATE prices SET price = :p WHERE id = 7"), {"p": old})
         # a portfolio archived by a riskshape before commitments (no commitment of its own)
         connection.execute(sa.text("INSERT INTO portfolios (name, created_at) VALUES ('Fund Old', '2030-01-01')"))
-    status, out, _ = _run(capsys, "audit", "verify", "--store", archive)
+    status, out, _ = run_cli(capsys, "audit", "verify", "--store", archive)
     assert status == 1 and "'Fund Old' is not covered by any commitment" in out
-    status, out, _ = _run(capsys, "audit", "seal", "--store", archive)
+    status, out, _ = run_cli(capsys, "audit", "seal", "--store", archive)
     assert status in (None, 0) and out.splitlines()[0] == CAUTION and "1 commitment(s) appended; head 10:" in out
-    status, out, _ = _run(capsys, "audit", "verify", "--store", archive)
+    status, out, _ = run_cli(capsys, "audit", "verify", "--store", archive)
     assert status in (None, 0) and "ok: 10 records verified" in out
 
 
 def test_user_errors_are_one_line_and_status_2(
     archive: str, tmp_path: Path, capsys: pytest.CaptureFixture[str]
 ) -> None:
-    status, _, err = _run(capsys, "audit", "verify", "--store", f"sqlite:///{tmp_path / 'no' / 'x.sqlite'}")
+    status, _, err = run_cli(capsys, "audit", "verify", "--store", f"sqlite:///{tmp_path / 'no' / 'x.sqlite'}")
     assert status == 2 and err.startswith("riskshape: error:") and len(err.strip().splitlines()) == 1
-    status, _, err = _run(capsys, "audit", "verify", "--store", archive, "--expect-head", "12:xyz")
+    status, _, err = run_cli(capsys, "audit", "verify", "--store", archive, "--expect-head", "12:xyz")
     assert status == 2 and "COUNT:HASH" in err
-    status, _, err = _run(capsys, "alerts", "list", "--store", f"sqlite:///{tmp_path / 'typo.sqlite'}")
+    status, _, err = run_cli(capsys, "alerts", "list", "--store", f"sqlite:///{tmp_path / 'typo.sqlite'}")
     assert status == 2 and "no archive at" in err and not (tmp_path / "typo.sqlite").exists()
 
 
 def test_an_unknown_alert_is_a_user_error(archive: str, capsys: pytest.CaptureFixture[str]) -> None:
-    status, _, err = _run(capsys, "alerts", "show", "77", "--store", archive)
+    status, _, err = run_cli(capsys, "alerts", "show", "77", "--store", archive)
     assert status == 2 and "alert 77 is not in the archive" in err
 
 
 def test_list_show_and_review(archive: str, capsys: pytest.CaptureFixture[str]) -> None:
-    status, out, _ = _run(capsys, "alerts", "list", "--store", archive, "--portfolio", "Fund North")
+    status, out, _ = run_cli(capsys, "alerts", "list", "--store", archive, "--portfolio", "Fund North")
     lines = out.splitlines()
     assert lines[0] == CAUTION and lines[-1].startswith("1-2 of 2 alert(s); by status: 1 open, ")
-    _, out, _ = _run(capsys, "alerts", "list", "--store", archive, "--status", "open")
+    _, out, _ = run_cli(capsys, "alerts", "list", "--store", archive, "--status", "open")
     assert out.splitlines()[-1].startswith("1-3 of 3 alert(s)")
-    _, out, _ = _run(capsys, "alerts", "list", "--store", archive, "--status", "escalated,dismissed")
+    _, out, _ = run_cli(capsys, "alerts", "list", "--store", archive, "--status", "escalated,dismissed")
     rows = out.splitlines()[2:-1]
     assert len(rows) == 1 and rows[0].split()[0] == "1" and "escalated" in rows[0] and "@Reviewer" in rows[0]
-    status, _, err = _run(
+    status, _, err = run_cli(
         capsys, "alerts", "review", "3", "--store", archive, "--action", "dismiss", "--reviewer", "Ana"
     )
     assert status == 2 and "comment" in err and len(err.strip().splitlines()) == 1
-    _, out, _ = _run(
+    _, out, _ = run_cli(
         capsys,
         "alerts",
         "review",
@@ -140,31 +131,33 @@ def test_list_show_and_review(archive: str, capsys: pytest.CaptureFixture[str]) 
         "noise",
     )
     assert "review 2 of alert 3 recorded (dismiss); status dismissed" in out
-    _, out, _ = _run(capsys, "alerts", "list", "--store", archive, "--status", "dismissed", "--status", "escalated")
+    _, out, _ = run_cli(capsys, "alerts", "list", "--store", archive, "--status", "dismissed", "--status", "escalated")
     assert out.splitlines()[-1].startswith("1-2 of 2 alert(s)")
-    _, out, _ = _run(capsys, "alerts", "show", "1", "--store", archive)
+    _, out, _ = run_cli(capsys, "alerts", "show", "1", "--store", archive)
     assert out.splitlines()[0] == CAUTION and "escalate by @Reviewer: -looks real" in out
     assert "entry_hash" in out and "inputs_hash" in out and "status           escalated" in out
-    status, _, err = _run(
+    status, _, err = run_cli(
         capsys, "alerts", "review", "1", "--store", archive, "--action", "close", "--reviewer", "@Reviewer"
     )
     assert status == 2 and "four eyes" in err
-    _, out, _ = _run(capsys, "alerts", "review", "1", "--store", archive, "--action", "close", "--reviewer", "Bo")
+    _, out, _ = run_cli(capsys, "alerts", "review", "1", "--store", archive, "--action", "close", "--reviewer", "Bo")
     assert "status closed" in out
-    status, _, err = _run(
+    status, _, err = run_cli(
         capsys, "alerts", "review", "3", "--store", archive, "--action", "approve", "--reviewer", "Ana"
     )
     assert status == 2 and "approve" in err
 
 
 def test_period_names_and_aliases(archive: str, capsys: pytest.CaptureFixture[str]) -> None:
-    _, out, _ = _run(capsys, "alerts", "list", "--store", archive, "--start", "2030-03-04")
+    _, out, _ = run_cli(capsys, "alerts", "list", "--store", archive, "--start", "2030-03-04")
     assert out.splitlines()[-1].startswith("1-2 of 2 alert(s)")
-    status, out, err = _run(capsys, "alerts", "list", "--store", archive, "--since", "2030-03-04")
+    status, out, err = run_cli(capsys, "alerts", "list", "--store", archive, "--since", "2030-03-04")
     assert out.splitlines()[-1].startswith("1-2 of 2 alert(s)") and "--since is deprecated" in err
-    status, _, err = _run(capsys, "alerts", "list", "--store", archive, "--start", "2030-03-05", "--end", "2030-03-01")
+    status, _, err = run_cli(
+        capsys, "alerts", "list", "--store", archive, "--start", "2030-03-05", "--end", "2030-03-01"
+    )
     assert status == 2 and "start 2030-03-05 is after end 2030-03-01" in err
-    status, _, err = _run(
+    status, _, err = run_cli(
         capsys, "alerts", "list", "--store", archive, "--start", "2030-03-05", "--since", "2030-03-01"
     )
     assert status == 2 and "give only start" in err
@@ -172,16 +165,16 @@ def test_period_names_and_aliases(archive: str, capsys: pytest.CaptureFixture[st
 
 def test_sign_off_commands(archive: str, capsys: pytest.CaptureFixture[str]) -> None:
     sign = ("audit", "sign-off", "--store", archive, "--start", "2030-03-01", "--end", "2030-03-31", "--signer", "Cy")
-    status, _, err = _run(capsys, *sign, "--portfolio", "Fund North")
+    status, _, err = run_cli(capsys, *sign, "--portfolio", "Fund North")
     assert status == 2 and "still open or escalated" in err and "1 (Fund North" in err and "2 (Fund North" in err
-    _run(capsys, "alerts", "review", "1", "--store", archive, "--action", "close", "--reviewer", "Bo")
-    _run(capsys, "alerts", "review", "2", "--store", archive, "--action", "acknowledge", "--reviewer", "Bo")
-    status, out, _ = _run(capsys, *sign, "--portfolio", "Fund North")
+    run_cli(capsys, "alerts", "review", "1", "--store", archive, "--action", "close", "--reviewer", "Bo")
+    run_cli(capsys, "alerts", "review", "2", "--store", archive, "--action", "acknowledge", "--reviewer", "Bo")
+    status, out, _ = run_cli(capsys, *sign, "--portfolio", "Fund North")
     assert status in (None, 0) and "signed off by Cy (Fund North)" in out
     assert "0 open, 1 acknowledged, 0 escalated, 0 dismissed, 1 closed" in out
-    _, out, _ = _run(capsys, "audit", "sign-offs", "--store", archive)
+    _, out, _ = run_cli(capsys, "audit", "sign-offs", "--store", archive)
     assert "2030-03-01 to 2030-03-31  Fund North  by Cy" in out and out.splitlines()[-1] == "1 sign-off(s)"
-    assert _run(capsys, "audit", "verify", "--store", archive)[0] in (None, 0)
+    assert run_cli(capsys, "audit", "verify", "--store", archive)[0] in (None, 0)
 
 
 def test_neutralise_cell_follows_owasp_csv_injection_guidance() -> None:
@@ -195,7 +188,7 @@ def test_neutralise_cell_follows_owasp_csv_injection_guidance() -> None:
 
 def test_export_csv_reads_with_no_options(archive: str, capsys: pytest.CaptureFixture[str], tmp_path: Path) -> None:
     out_file = tmp_path / "alerts.csv"
-    status, out, _ = _run(capsys, "alerts", "export", "--store", archive, "--format", "csv", "--out", str(out_file))
+    status, out, _ = run_cli(capsys, "alerts", "export", "--store", archive, "--format", "csv", "--out", str(out_file))
     assert status in (None, 0) and CAUTION in out
     # pandas.read_csv and csv.DictReader with no options: the header row is the first row.
     table = pd.read_csv(out_file)
@@ -213,28 +206,32 @@ def test_export_csv_reads_with_no_options(archive: str, capsys: pytest.CaptureFi
     assert table.loc[0, "value"] == first.value  # exact: the shortest round-trip text
     assert records[0]["reviews"] == "1" and records[0]["last_action"] == "escalate"
     assert records[0]["status"] == "escalated" and records[1]["status"] == "open"
-    status, out, _ = _run(capsys, "alerts", "export", "--store", archive, "--format", "csv", "--start", "2030-03-04")
+    status, out, _ = run_cli(capsys, "alerts", "export", "--store", archive, "--format", "csv", "--start", "2030-03-04")
     assert [r["id"] for r in csv.DictReader(io.StringIO(out))] == ["2", "4"]
-    status, out, err = _run(capsys, "alerts", "export", "--store", archive, "--format", "csv", "--from", "2030-03-04")
+    status, out, err = run_cli(
+        capsys, "alerts", "export", "--store", archive, "--format", "csv", "--from", "2030-03-04"
+    )
     assert [r["id"] for r in csv.DictReader(io.StringIO(out))] == ["2", "4"] and "--from is deprecated" in err
 
 
 def test_export_reviews_one_row_each(archive: str, capsys: pytest.CaptureFixture[str]) -> None:
-    _run(capsys, "alerts", "review", "1", "--store", archive, "--action", "close", "--reviewer", "=cmd|' /C calc'!A0")
-    status, out, _ = _run(capsys, "alerts", "export", "--store", archive, "--format", "csv", "--what", "reviews")
+    run_cli(
+        capsys, "alerts", "review", "1", "--store", archive, "--action", "close", "--reviewer", "=cmd|' /C calc'!A0"
+    )
+    status, out, _ = run_cli(capsys, "alerts", "export", "--store", archive, "--format", "csv", "--what", "reviews")
     table = pd.read_csv(io.StringIO(out))
     assert tuple(table.columns) == REVIEW_COLUMNS
     assert list(table["action"]) == ["escalate", "close"] and list(table["status_after"]) == ["escalated", "closed"]
     assert list(table["reviewer"]) == ["'@Reviewer", "'=cmd|' /C calc'!A0"]
     assert list(table["comment"].fillna("")) == ["'-looks real", ""]
-    status, out, _ = _run(capsys, "alerts", "export", "--store", archive, "--format", "jsonl", "--what", "reviews")
+    status, out, _ = run_cli(capsys, "alerts", "export", "--store", archive, "--format", "jsonl", "--what", "reviews")
     lines = [json.loads(line) for line in out.splitlines()]
     assert [x["reviewer"] for x in lines] == ["@Reviewer", "=cmd|' /C calc'!A0"]  # JSON keeps text as archived
     assert all(set(x) == set(REVIEW_COLUMNS) for x in lines)
 
 
 def test_export_jsonl_keeps_values_exactly(archive: str, capsys: pytest.CaptureFixture[str]) -> None:
-    status, out, _ = _run(capsys, "alerts", "export", "--store", archive, "--format", "jsonl", "--end", "2030-03-01")
+    status, out, _ = run_cli(capsys, "alerts", "export", "--store", archive, "--format", "jsonl", "--end", "2030-03-01")
     lines = [json.loads(line) for line in out.splitlines()]
     with open_store(archive) as store:
         archived = {a.id: a for a in store.list_alerts(limit=None).items}
@@ -254,10 +251,10 @@ def test_reproduce_command(tmp_path: Path, computed, capsys: pytest.CaptureFixtu
     url = f"sqlite:///{tmp_path / 'runs.sqlite'}"
     with open_store(url) as store:
         alert = archive_run(store, "Fund Scenario", computed).alerts.added[-1]
-    status, out, _ = _run(capsys, "audit", "reproduce", str(alert.id), "--store", url)
+    status, out, _ = run_cli(capsys, "audit", "reproduce", str(alert.id), "--store", url)
     assert status in (None, 0) and out.splitlines()[0] == CAUTION
     assert f"alert {alert.id} reproduced (bit-identical)" in out and "FAIL" not in out
     with open_store(url) as store, around_triggers(store) as connection:
         connection.execute(sa.text("UPDATE alerts SET threshold = threshold * 2 WHERE id = :id"), {"id": alert.id})
-    status, out, _ = _run(capsys, "audit", "reproduce", str(alert.id), "--store", url)
+    status, out, _ = run_cli(capsys, "audit", "reproduce", str(alert.id), "--store", url)
     assert status == 1 and "FAIL threshold" in out and f"alert {alert.id} NOT reproduced: threshold" in out
