@@ -1,12 +1,15 @@
 """Crash and concurrency figures: many kill -9s inside the archive's writes, and eight writers at once.
 
-    python benchmarks/reliability.py                          # 20 runs, 15 ingests, 15 reviews killed per backend
-    python benchmarks/reliability.py --runs 4 --ingests 2 --reviews 2 --rounds 1   # a quick look
+    python benchmarks/reliability.py            # 20 runs, 15 ingests, 15 corrections, 15 reviews killed per backend
+    python benchmarks/reliability.py --runs 4 --ingests 2 --corrections 2 --reviews 2 --rounds 1   # a quick look
     python benchmarks/reliability.py --backends sqlite
 
 1. **Kills.** For each backend (SQLite file; PostgreSQL at 127.0.0.1:5432, a fresh schema per archive),
    ``riskshape run --store`` (18 fictional assets, 60 days, windows of 20, H0 and H1), a service ingest
-   of the same prices on a real uvicorn process, and ``riskshape alerts review`` (an escalation) are
+   of the same prices on a real uvicorn process, a service correction of three archived prices
+   (``correction=true``, after an uninterrupted ingest of the 60 days: the revisions, the superseded
+   windows' new versions, the superseded and newly raised alerts and the day state, one transaction;
+   ``tests.kit.kill_trials.revised_prices``), and ``riskshape alerts review`` (an escalation) are
    each killed at write events drawn uniformly (seeded) from those of an uninterrupted reference run
    (:mod:`tests.kit.fault_point`: before and after each INSERT/UPDATE/DELETE and before each COMMIT of
    a transaction that wrote; the child sends itself SIGKILL there, and its log says where, so every
@@ -53,7 +56,7 @@ from riskshape.demo.scenario import generate_scenario  # noqa: E402
 from riskshape.store import Store, open_store, verify_chain  # noqa: E402
 from tests.kit.archive import make_alerts, manifest, walk_prices  # noqa: E402
 from tests.kit.crash import archive_view, post_prices, read_log, run_cli, start_server  # noqa: E402
-from tests.kit.kill_trials import Trial, kill_cli, kill_ingest  # noqa: E402
+from tests.kit.kill_trials import Trial, ingested, kill_cli, kill_ingest, revised_prices  # noqa: E402
 from tests.kit.postgres import postgres_unreachable  # noqa: E402
 from tests.kit.service import csv_body, write_config  # noqa: E402
 from tests.kit.writers import at_once, ingest_work, review_work, run_work  # noqa: E402
@@ -147,6 +150,30 @@ def kill_section(backend: str, counts: dict[str, int], folder: Path, seed: int) 
                 )
                 print(f"  {backend} ingest killed at {kill_at:3d}/{total}: {_brief(trials[-1])}", flush=True)
 
+        if counts["correction"]:
+            fixes = csv_body(revised_prices(prices))
+            reference = make()
+            token = ingested(reference, config, prices)
+            server = start_server(
+                reference, config, folder / "correction-ref.log", 0, folder / "correction-ref.out", forked=True
+            )
+            try:
+                answered = post_prices(server, "Fund North", fixes, token, correction=True)
+            finally:
+                server.stop()
+            assert answered is not None and answered.status_code == 200, answered
+            assert answered.json()["corrections"] > 0, answered.text
+            expected, total = archive_view(reference), read_log(folder / "correction-ref.log").events
+            for kill_at in _points(total, counts["correction"], rng):
+                url = make()
+                token = ingested(url, config, prices)
+                trials.append(
+                    kill_ingest(
+                        url, config, fixes, token, "Fund North", kill_at, folder, expected, forked=True, correction=True
+                    )
+                )
+                print(f"  {backend} correction killed at {kill_at:3d}/{total}: {_brief(trials[-1])}", flush=True)
+
         def with_alerts() -> tuple[str, list[str]]:
             url = make()
             rng_alerts = np.random.default_rng(3)
@@ -177,7 +204,7 @@ def _brief(trial: Trial) -> str:
 
 def kill_table(backend: str, trials: list[Trial]) -> list[str]:
     rows = []
-    for operation in ("run", "ingest", "review"):
+    for operation in ("run", "ingest", "correction", "review"):
         mine = [t for t in trials if t.operation == operation]
         if not mine:
             continue
@@ -260,6 +287,7 @@ def main() -> None:
     parser.add_argument("--backends", default="sqlite,postgresql")
     parser.add_argument("--runs", type=int, default=20, help="runs killed per backend")
     parser.add_argument("--ingests", type=int, default=15, help="ingests killed per backend")
+    parser.add_argument("--corrections", type=int, default=15, help="corrections killed per backend")
     parser.add_argument("--reviews", type=int, default=15, help="reviews killed per backend")
     parser.add_argument("--rounds", type=int, default=3, help="rounds of eight writers at once per backend")
     parser.add_argument("--seed", type=int, default=2031)
@@ -271,7 +299,7 @@ def main() -> None:
     print("command: python benchmarks/reliability.py " + " ".join(sys.argv[1:]))
     print("load before:", subprocess.run(["uptime"], capture_output=True, text=True).stdout.strip())
     started = time.monotonic()
-    counts = {"run": args.runs, "ingest": args.ingests, "review": args.reviews}
+    counts = {"run": args.runs, "ingest": args.ingests, "correction": args.corrections, "review": args.reviews}
     kills, writers = [], []
     for backend in backends:
         with tempfile.TemporaryDirectory(prefix="rs-reliability-") as folder:

@@ -177,10 +177,21 @@ def table_counts(url: str) -> dict[str, int]:
         }
 
 
-def _run_id_masked(payload: object) -> object:
-    """A day state's payload with its run's id masked (the rest of it compared as it is)."""
+# payload fields that name a run or a new alert by id, by event kind (the rest of each payload compared)
+_IDS_IN_PAYLOAD = {
+    "day_state": ("run",),
+    "window_superseded": ("run",),
+    "alert_superseded": ("run",),  # its "alert" is an alert archived before the correction: compared
+    "alert_raised_by_correction": ("run", "alert"),  # the alert it raised, a new row (its subject too)
+}
+
+
+def _ids_masked(payload: object, fields: tuple[str, ...]) -> object:
+    """An event's payload with the ids in ``fields`` masked (the rest of it compared as it is)."""
     data = json.loads(str(payload))
-    data["run"] = "<masked>"
+    for field in fields:
+        if field in data:
+            data[field] = "<masked>"
     return json.dumps(data, sort_keys=True)
 
 
@@ -189,20 +200,22 @@ def _commitments_masked(rows: Sequence[Any], columns: list[str]) -> list[tuple[o
     payload name the row-id and run ranges it covers, which depend on how the work was split into
     commits (a redo commits what a kill cut apart; ``audit verify`` checks them); a key event's
     subject and payload carry the key's id, time and token digest (key material, as ``key_id`` above);
-    a day state's payload names its run by id (``run_id`` above: on PostgreSQL a transaction cut by a
-    kill has used up sequence values, so the redo's run gets a later id than the reference's).
+    a day state's payload, and a correction's chained records, name its run by id (``run_id`` above: on
+    PostgreSQL a transaction cut by a kill has used up sequence values, so the redo's run gets a later id
+    than the reference's), and an ``alert_raised_by_correction`` names the new alert by id (``id`` above).
     """
     seq, subject, payload, kind = (columns.index(c) for c in ("seq", "subject", "payload", "kind"))
     masked = {
         "records_sealed": {seq, subject, payload},
         "key_created": {subject, payload},
         "key_revoked": {subject, payload},
+        "alert_raised_by_correction": {subject},
     }
     out = []
     for r in rows:
         row = tuple("<masked>" if i in masked.get(str(r[kind]), ()) else v for i, v in enumerate(r))
-        if str(r[kind]) == "day_state":
-            row = tuple(_run_id_masked(v) if i == payload else v for i, v in enumerate(row))
+        if fields := _IDS_IN_PAYLOAD.get(str(r[kind])):
+            row = tuple(_ids_masked(v, fields) if i == payload else v for i, v in enumerate(row))
         out.append(row)
     return out
 
@@ -278,12 +291,17 @@ def start_server(
     return server
 
 
-def post_prices(server: Server, portfolio: str, body: bytes, key: str) -> httpx.Response | None:
-    """POST a CSV body; None when the connection dropped (the server was killed while answering)."""
+def post_prices(
+    server: Server, portfolio: str, body: bytes, key: str, *, correction: bool = False
+) -> httpx.Response | None:
+    """POST a CSV body (``correction``: with ``correction=true``); None when the connection dropped (the
+    server was killed while answering).
+    """
     try:
         return httpx.post(
             f"{server.base}/v1/portfolios/{portfolio}/prices",
             content=body,
+            params={"correction": "true"} if correction else None,
             headers={"X-Riskshape-Key": key, "Content-Type": "text/csv"},
             timeout=120,
         )

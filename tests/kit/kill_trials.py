@@ -1,4 +1,4 @@
-"""One kill -9 trial of ``riskshape run``, a service ingest or a review, and what it left: shared by
+"""One kill -9 trial of ``riskshape run``, a service ingest (or correction) or a review, and what it left: shared by
 ``tests/store/test_kill.py`` (a few trials, asserted) and ``benchmarks/reliability.py`` (many, counted).
 
 A trial kills the operation at one write event (:mod:`tests.kit.fault_point`), compares the archive with
@@ -13,6 +13,11 @@ from collections import Counter
 from dataclasses import dataclass
 from pathlib import Path
 
+import pandas as pd
+
+from riskshape import Config
+from riskshape.daily import Ingestor
+from riskshape.prices import validate_prices
 from riskshape.store import open_store, verify_chain
 from tests.kit.crash import archive_view, post_prices, read_log, run_cli, start_server, table_counts, wait_killed
 
@@ -101,13 +106,16 @@ def kill_ingest(
     expected: View,
     *,
     forked: bool = False,
+    correction: bool = False,
 ) -> Trial:
-    """Kill the service (uvicorn) at ``kill_at`` while it ingests ``body``, check, re-send it, compare."""
+    """Kill the service (uvicorn) at ``kill_at`` while it ingests ``body`` (``correction``: sent with
+    ``correction=true``, the trial's operation then ``correction``), check, re-send it, compare.
+    """
     before, log = table_counts(url), folder / f"kill{kill_at}.log"
     log.unlink(missing_ok=True)
     server = start_server(url, config, log, kill_at, folder / f"kill{kill_at}.out", forked=forked)
     try:
-        answered = post_prices(server, portfolio, body, token)
+        answered = post_prices(server, portfolio, body, token, correction=correction)
         killed = answered is None and wait_killed(server.process) == KILLED
     finally:
         server.stop()
@@ -116,8 +124,34 @@ def kill_ingest(
     redo.unlink(missing_ok=True)
     server = start_server(url, config, redo, 0, folder / f"redo{kill_at}.out", forked=forked)
     try:
-        again = post_prices(server, portfolio, body, token)
+        again = post_prices(server, portfolio, body, token, correction=correction)
     finally:
         server.stop()
     redone = again is not None and again.status_code == 200
-    return _trial("ingest", kill_at, killed, after, redone, url, expected)
+    operation = "correction" if correction else "ingest"
+    return _trial(operation, kill_at, killed, after, redone, url, expected)
+
+
+# the cells a correction revises: (row, asset's column, factor), on archived days that count
+REVISED = ((30, 0, 1.04), (31, 5, 0.97), (52, 11, 1.06))
+
+
+def revised_prices(prices: pd.DataFrame) -> pd.DataFrame:
+    """``prices`` with three archived cells revised (:data:`REVISED`): a correction's body, sent with
+    the rest of the prices unchanged.
+    """
+    revised = prices.copy()
+    for row, column, factor in REVISED:
+        revised.iloc[row, column] = float(prices.iloc[row, column]) * factor
+    return revised
+
+
+def ingested(url: str, config: Path, prices: pd.DataFrame, portfolio: str = "Fund North") -> str:
+    """The portfolio created in the archive at ``url`` and ``prices`` ingested into it (in this process,
+    as the service's ingest does: its windows, alerts and day state); an ingest key's token.
+    """
+    with open_store(url) as store:
+        store.create_portfolio(portfolio)
+        token = store.create_api_key("feed", "ingest").token
+        Ingestor(Config.from_toml(config)).ingest(store, portfolio, validate_prices(prices))
+    return token

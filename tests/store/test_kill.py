@@ -1,5 +1,6 @@
 """kill -9 inside the archive's writes, on SQLite and on PostgreSQL: ``riskshape run --store``, a service
-ingest on a real uvicorn process, and ``riskshape alerts review``.
+ingest on a real uvicorn process, a service correction (``correction=true``) of archived prices, and
+``riskshape alerts review``.
 
 Each child runs under :mod:`tests.kit.fault_point`, which numbers the process's write events (before
 and after each INSERT/UPDATE/DELETE, before each COMMIT of a transaction that wrote) and sends itself
@@ -22,13 +23,14 @@ from contextlib import ExitStack
 from pathlib import Path
 
 import numpy as np
+import pandas as pd
 import pytest
 
 from riskshape.demo.scenario import generate_scenario
 from riskshape.store import open_store
 from tests.kit.archive import make_alerts, manifest, walk_prices
 from tests.kit.crash import archive_view, post_prices, read_log, run_cli, start_server
-from tests.kit.kill_trials import KILLED, kill_cli, kill_ingest
+from tests.kit.kill_trials import KILLED, REVISED, ingested, kill_cli, kill_ingest, revised_prices
 from tests.kit.postgres import fresh_schema_url
 from tests.kit.service import csv_body, write_config
 
@@ -210,6 +212,60 @@ def test_an_ingest_killed_between_its_windows_and_its_alerts_is_completed_when_r
     assert trial.equal, trial
 
 
+@pytest.fixture(scope="module")
+def correction_references() -> dict[str, tuple[int, dict[str, list[tuple[object, ...]]], str]]:
+    """Per backend: the write events of an uninterrupted correction, the archive it leaves, its log."""
+    return {}
+
+
+def _scenario() -> pd.DataFrame:
+    return generate_scenario(seed=5, n_days=60, assets_per_sector=3).prices  # the prices of ``inputs``
+
+
+def _correction_reference(archives: Archives, inputs, folder: Path, cache: dict) -> tuple[int, dict, str]:
+    backend = archives.backend  # type: ignore[attr-defined]
+    if backend not in cache:
+        _, config, _ = inputs
+        reference = archives()
+        token = ingested(reference, config, _scenario())
+        before = archive_view(reference)
+        log = folder / "correction-ref.log"
+        server = start_server(reference, config, log, 0, folder / "correction-ref.out")
+        try:
+            body = csv_body(revised_prices(_scenario()))
+            answer = post_prices(server, "Fund North", body, token, correction=True)
+        finally:
+            server.stop()
+        assert answer is not None and answer.status_code == 200, answer and answer.text
+        assert answer.json()["corrections"] == len(REVISED), answer.text
+        after = archive_view(reference)
+        kinds = {row for row in after["events"]} - {row for row in before["events"]}
+        assert any("window_superseded" in row for row in kinds), "the reference correction superseded nothing"
+        cache[backend] = (read_log(log).events, after, log.read_text(encoding="utf-8"))
+    return cache[backend]
+
+
+@pytest.mark.timeout(300)
+def test_correction_killed_inside_its_writes_then_resent(
+    archives: Archives, inputs, tmp_path: Path, correction_references: dict
+) -> None:
+    # a correction (three archived prices revised, windows superseded, the rules' carry made again)
+    # killed at a random write event, and at its last commit; the re-sent correction gives what the
+    # uninterrupted one gave: the revisions once, each superseded window's new version once, the
+    # chained records once
+    _, config, _ = inputs
+    total, expected, reference_log = _correction_reference(archives, inputs, tmp_path, correction_references)
+    assert reference_log.splitlines()[-1].startswith(f"commit {total} "), reference_log.splitlines()[-1]
+    body = csv_body(revised_prices(_scenario()))
+    for kill_at in [*_kill_points(total - 1, 1, seed=31), total]:
+        url = archives()
+        token = ingested(url, config, _scenario())
+        trial = kill_ingest(url, config, body, token, "Fund North", kill_at, tmp_path, expected, correction=True)
+        assert trial.operation == "correction" and trial.inside_writes, trial
+        assert trial.lost == 0 and trial.kept == 0 and trial.verified, trial
+        assert trial.equal, trial
+
+
 @pytest.mark.timeout(300)
 def test_review_killed_inside_its_writes_then_repeated(archives: Archives, tmp_path: Path) -> None:
     def prepared() -> tuple[str, int]:
@@ -264,3 +320,30 @@ def test_the_view_masks_a_day_states_run_id_only(archives: Archives) -> None:
     first = with_state(1, 60)
     assert with_state(7, 60) == first
     assert with_state(1, 61) != first
+
+
+@pytest.mark.parametrize(
+    ("kind", "masked", "seen"),
+    [
+        ("window_superseded", {"run": 7}, {"windows": ["2031-03-04"]}),
+        ("alert_superseded", {"run": 7}, {"alert": 4}),
+        ("alert_raised_by_correction", {"run": 7, "alert": 9}, {"value": 0.61}),
+    ],
+)
+def test_the_view_masks_a_correction_records_ids_only(
+    archives: Archives, kind: str, masked: dict[str, int], seen: dict[str, object]
+) -> None:
+    # a correction's chained records name its run (and a new alert) by id, which two honest corrections
+    # differ in on PostgreSQL after a kill; every other field is seen
+    base = {"run": 1, "alert": 3, "windows": ["2031-03-03"], "value": 0.6, "rule": "h0_jump"}
+
+    def recorded(data: dict[str, object]) -> dict:
+        url = archives()
+        with open_store(url) as store:
+            store.create_portfolio("Fund North")
+            store.append_event(kind, data, portfolio="Fund North", subject="2031-03-03", actor="riskshape")
+        return archive_view(url, ("events",))
+
+    first = recorded(base)
+    assert recorded({**base, **masked}) == first
+    assert recorded({**base, **seen}) != first
