@@ -3,6 +3,7 @@
     python benchmarks/reliability.py            # 20 runs, 15 ingests, 15 corrections, 15 reviews killed per backend
     python benchmarks/reliability.py --runs 4 --ingests 2 --corrections 2 --reviews 2 --rounds 1   # a quick look
     python benchmarks/reliability.py --backends sqlite
+    python benchmarks/reliability.py --every-point --rounds 0   # each operation killed at every write event once
 
 1. **Kills.** For each backend (SQLite file; PostgreSQL at 127.0.0.1:5432, a fresh schema per archive),
    ``riskshape run --store`` (18 fictional assets, 60 days, windows of 20, H0 and H1), a service ingest
@@ -97,6 +98,8 @@ def archive_maker(backend: str, folder: Path) -> Iterator[Callable[[], str]]:
 
 
 def _points(total: int, n: int, rng: np.random.Generator) -> list[int]:
+    if n < 0:  # --every-point: each write event once, in order
+        return list(range(1, total + 1))
     return [int(k) for k in rng.integers(1, total + 1, size=n)]
 
 
@@ -291,6 +294,11 @@ def main() -> None:
     parser.add_argument("--reviews", type=int, default=15, help="reviews killed per backend")
     parser.add_argument("--rounds", type=int, default=3, help="rounds of eight writers at once per backend")
     parser.add_argument("--seed", type=int, default=2031)
+    parser.add_argument(
+        "--every-point",
+        action="store_true",
+        help="kill each operation once at every one of its write events (instead of the drawn counts)",
+    )
     args = parser.parse_args()
     backends = [b.strip() for b in args.backends.split(",") if b.strip()]
     if "postgresql" in backends and (reason := postgres_unreachable()):
@@ -300,6 +308,8 @@ def main() -> None:
     print("load before:", subprocess.run(["uptime"], capture_output=True, text=True).stdout.strip())
     started = time.monotonic()
     counts = {"run": args.runs, "ingest": args.ingests, "correction": args.corrections, "review": args.reviews}
+    if args.every_point:  # an operation given 0 stays out
+        counts = {operation: -1 if n else 0 for operation, n in counts.items()}
     kills, writers = [], []
     for backend in backends:
         with tempfile.TemporaryDirectory(prefix="rs-reliability-") as folder:
