@@ -50,11 +50,11 @@ class ServiceSettings(BaseModel):
         Portfolios whose archived series (under their latest configuration) and latest state the
         read endpoints keep in memory between writes; the least recently read beyond it is read
         again from the archive at its next read. A snapshot holds one float64 row per window:
-        about 0.1 MB for five years of daily windows.
+        about 30 kB a year of daily windows (0.15 MB for five years).
     prepared_cache_size : int
         Response bodies kept rendered (``latest`` states and series pages, each with its ETag),
         least recently used dropped first; it also bounds the ETags kept per change marker. A
-        latest state is a few kB, a page of 1,000 windows about 0.3 MB.
+        latest state is a few kB, a series page about 0.3 kB a window (0.3 MB for 1,000).
     key_cache_size : int
         API keys whose archive check the service keeps (see ``key_recheck_seconds``), least
         recently used dropped first; about 1 kB each. Only keys the archive knows are kept.
