@@ -57,7 +57,7 @@ class ServiceSettings(BaseModel):
         latest state is a few kB, a series page about 0.3 kB a window (0.3 MB for 1,000).
     key_cache_size : int
         API keys whose archive check the service keeps (see ``key_recheck_seconds``), least
-        recently used dropped first; about 1 kB each. Only keys the archive knows are kept.
+        recently used dropped first; under 1 kB each. Only keys the archive knows are kept.
     key_recheck_seconds : float
         Age past which a worker reads an API key again from the archive before trusting it: a key
         revoked through any process is refused by every worker within this time (0: every request).
