@@ -30,7 +30,6 @@ import argparse
 import os
 import re
 import shutil
-import socket
 import statistics
 import subprocess
 import sys
@@ -41,6 +40,7 @@ from pathlib import Path
 
 import httpx
 import psutil
+from servers import free_port, start_process, start_riskshape, stop, uptime
 
 from riskshape.caution import CAUTION
 from riskshape.demo.scenario import generate_scenario
@@ -82,65 +82,14 @@ class Figure:
     non_2xx: int
 
 
-def free_port() -> int:
-    with socket.socket(socket.AF_INET, socket.SOCK_STREAM) as sock:
-        sock.bind(("127.0.0.1", 0))
-        return int(sock.getsockname()[1])
-
-
-def wait_ready(process: subprocess.Popen[bytes], url: str, log: Path) -> None:
-    deadline = time.monotonic() + 120
-    while time.monotonic() < deadline:
-        try:
-            if httpx.get(url, timeout=2).status_code in (200, 401):
-                return
-        except httpx.TransportError:
-            pass
-        if process.poll() is not None:
-            break
-        time.sleep(0.2)
-    process.terminate()
-    raise SystemExit(f"a server did not start; see {log}")
-
-
-def start_riskshape(folder: Path, url: str, workers: int) -> tuple[subprocess.Popen[bytes], str]:
-    config = folder / "bench.toml"
-    config.write_text(CONFIG, encoding="utf-8")
-    port = free_port()
-    env = {
-        **os.environ,
-        "RISKSHAPE_RATE_LIMIT_PER_MINUTE": "1000000000",
-        "RISKSHAPE_RATE_LIMIT_BURST": "1000000000",
-        "RISKSHAPE_LOG_LEVEL": "warning",
-    }
-    log = folder / f"riskshape-{workers}.log"
-    command = [sys.executable, "-m", "riskshape", "serve", "--store", url, "--host", "127.0.0.1"]
-    command += ["--port", str(port), "--config", str(config), "--workers", str(workers)]
-    process = subprocess.Popen(command, stdout=subprocess.DEVNULL, stderr=log.open("wb"), env=env)
-    base = f"http://127.0.0.1:{port}"
-    wait_ready(process, f"{base}/v1/health", log)
-    return process, base
-
-
 def start_bare(folder: Path, workers: int) -> tuple[subprocess.Popen[bytes], str]:
+    """The bare FastAPI app on the same uvicorn, with the same options and worker count."""
     (folder / "bare_app.py").write_text(BARE_APP, encoding="utf-8")
     port = free_port()
-    log = folder / f"bare-{workers}.log"
     command = [sys.executable, "-m", "uvicorn", "bare_app:app", "--host", "127.0.0.1", "--port", str(port)]
     command += ["--workers", str(workers), "--log-level", "warning", "--no-access-log"]
-    process = subprocess.Popen(command, cwd=folder, stdout=subprocess.DEVNULL, stderr=log.open("wb"))
     base = f"http://127.0.0.1:{port}"
-    wait_ready(process, f"{base}/bare", log)
-    return process, base
-
-
-def stop(process: subprocess.Popen[bytes]) -> None:
-    process.terminate()
-    try:
-        process.wait(timeout=30)
-    except subprocess.TimeoutExpired:
-        process.kill()
-        process.wait(timeout=30)
+    return start_process(command, f"{base}/bare", folder / f"bare-{workers}.log", cwd=folder), base
 
 
 def _ms(value: str, unit: str) -> float:
@@ -244,7 +193,7 @@ def main() -> None:
         raise SystemExit("wrk is not installed; on Debian: apt-get update && apt-get install -y wrk")
 
     print(CAUTION)
-    print(f"machine: {os.cpu_count()} CPU(s); load before: {os.getloadavg()[0]:.2f} {os.getloadavg()[1]:.2f}")
+    print(f"machine: {os.cpu_count()} CPU(s); uptime before: {uptime()}")
     with tempfile.TemporaryDirectory(prefix="riskshape-readpath-") as tmp:
         folder = Path(tmp)
         url = f"sqlite:///{folder / 'archive.sqlite'}"
@@ -255,7 +204,11 @@ def main() -> None:
         plain.write_text(WRK_SCRIPT.format(token=token, etag=""), encoding="utf-8")
         loaded = False
         for workers in args.workers:
-            server, base = start_riskshape(folder, url, workers)
+            config = folder / "bench.toml"
+            config.write_text(CONFIG, encoding="utf-8")
+            server, base = start_riskshape(
+                url, folder, config=config, workers=workers, log_name=f"riskshape-{workers}.log"
+            )
             bare, bare_base = start_bare(folder, workers)
             try:
                 if not loaded:
@@ -302,7 +255,7 @@ def main() -> None:
                     for a, b in zip(figures["latest"], figures["bare"])
                 )
             )
-    print(f"load after: {os.getloadavg()[0]:.2f} {os.getloadavg()[1]:.2f}")
+    print(f"uptime after: {uptime()}")
 
 
 if __name__ == "__main__":

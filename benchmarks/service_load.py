@@ -20,9 +20,7 @@ from __future__ import annotations
 import argparse
 import asyncio
 import os
-import socket
 import subprocess
-import sys
 import tempfile
 import time
 from pathlib import Path
@@ -30,6 +28,7 @@ from pathlib import Path
 import httpx
 import numpy as np
 import pandas as pd
+from servers import start_riskshape, stop
 
 from riskshape.caution import CAUTION
 from riskshape.demo.scenario import generate_scenario
@@ -44,50 +43,11 @@ executor = "serial"
 """
 
 
-def free_port() -> int:
-    with socket.socket(socket.AF_INET, socket.SOCK_STREAM) as sock:
-        sock.bind(("127.0.0.1", 0))
-        return int(sock.getsockname()[1])
-
-
 def start_server(folder: Path, url: str, window: int) -> tuple[subprocess.Popen[bytes], str]:
+    """``riskshape serve`` (one worker) over ``url`` with a configuration of window ``window``."""
     config = folder / "bench.toml"
     config.write_text(CONFIG.format(window=window), encoding="utf-8")
-    port = free_port()
-    env = {
-        **os.environ,
-        "RISKSHAPE_RATE_LIMIT_PER_MINUTE": "100000000",
-        "RISKSHAPE_RATE_LIMIT_BURST": "100000000",
-        "RISKSHAPE_LOG_LEVEL": "warning",
-    }
-    command = [
-        sys.executable,
-        "-m",
-        "riskshape",
-        "serve",
-        "--store",
-        url,
-        "--host",
-        "127.0.0.1",
-        "--port",
-        str(port),
-        "--config",
-        str(config),
-    ]
-    process = subprocess.Popen(command, stdout=subprocess.DEVNULL, stderr=(folder / "server.log").open("wb"), env=env)
-    base = f"http://127.0.0.1:{port}"
-    deadline = time.monotonic() + 60
-    while time.monotonic() < deadline:
-        try:
-            if httpx.get(f"{base}/v1/health", timeout=2).status_code == 200:
-                return process, base
-        except httpx.TransportError:
-            pass
-        if process.poll() is not None:
-            break
-        time.sleep(0.2)
-    process.terminate()
-    raise SystemExit(f"the server did not start; see {folder / 'server.log'}")
+    return start_riskshape(url, folder, config=config, timeout=60)
 
 
 async def poller(
@@ -231,8 +191,7 @@ def main() -> None:
             feed = daily_feed(base, headers, args.feed, args.days, args.assets_per_sector) if args.feed else []
             server_log = (folder / "server.log").read_text(errors="replace")
         finally:
-            process.terminate()
-            process.wait(timeout=30)
+            stop(process)
 
     print(CAUTION)
     print(f"portfolio: {prices.shape[1]} assets, {len(prices)} dates, window {args.window}: {windows} windows")

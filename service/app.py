@@ -117,9 +117,9 @@ def create_app(settings: ServiceSettings | None = None) -> FastAPI:
         metrics=service_metrics,
         limiter=RateLimiter(settings.rate_limit_per_minute, settings.rate_limit_burst),
         ingestor=Ingestor(config, settings.result_cache_size),
-        snapshots=Snapshots(config),
-        keys=KeyCache(settings.key_recheck_seconds),
-        prepared=PreparedBodies(),
+        snapshots=Snapshots(config, settings.snapshot_cache_size),
+        keys=KeyCache(settings.key_recheck_seconds, settings.key_cache_size),
+        prepared=PreparedBodies(settings.prepared_cache_size),
         markers=MarkerRounds(),
     )
 

@@ -53,7 +53,6 @@ def _tag(*parts: object) -> str:
     return f'"{digest[:40]}"'
 
 
-@functools.lru_cache(maxsize=1024)  # a marker stands for many requests (every poller of its round)
 def latest_etag(marker: ChangeMarker) -> str:
     """The strong ETag of a portfolio's latest state: its runs, windows and the ledger head."""
     return _tag("latest", marker.portfolio, marker.series_key, marker.days_key, marker.ledger_count, marker.ledger_hash)
@@ -91,18 +90,23 @@ def not_modified(etag: str) -> Response:
 
 class PreparedBodies:
     """Rendered bodies by what was asked, each with the ETag it was rendered for (least recently
-    used dropped first beyond ``size``).
+    used dropped first beyond ``size``), and the latest-state ETags of the markers seen lately.
 
     Parameters
     ----------
     size : int
-        Bodies kept at most (a latest state is a few kB; a page of 100 windows some 10 kB).
+        Bodies kept at most (a latest state is a few kB; a page of 100 windows some 10 kB), and
+        markers whose ETag is kept (the ``latest_etag`` attribute, a :func:`functools.lru_cache`).
     """
 
     def __init__(self, size: int = 512) -> None:
+        if size < 1:
+            raise ValueError(f"size must be >= 1, got {size}")
         self.size = size
         self._held: OrderedDict[Hashable, tuple[str, bytes]] = OrderedDict()
         self._lock = threading.Lock()
+        # A marker stands for many requests (every poller of its round): its ETag is hashed once.
+        self.latest_etag = functools.lru_cache(maxsize=size)(latest_etag)
 
     def get(self, what: Hashable, etag: str) -> bytes | None:
         """The body rendered for ``what`` at ``etag``, or None (never rendered, or rendered at another)."""

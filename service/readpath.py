@@ -33,7 +33,7 @@ from riskshape_service.auth import KEY_HEADER, Caller, Permission, Role, may
 from riskshape_service.context import ServiceContext
 from riskshape_service.knowledge import knowledge_headers
 from riskshape_service.logs import LOGGER_NAME
-from riskshape_service.prepared import CACHE_HEADERS, etag_matches, latest_etag
+from riskshape_service.prepared import CACHE_HEADERS, etag_matches
 
 __all__ = ["LatestFastPath", "LATEST_ROUTE"]
 
@@ -140,7 +140,7 @@ class LatestFastPath:
             marker = await context.markers.current(store, name)
         except RiskshapeError:
             return None
-        etag = latest_etag(marker)
+        etag = context.prepared.latest_etag(marker)
         if etag_matches(if_none_match, etag):
             answer = _Prepared(304, etag, b"")
         else:

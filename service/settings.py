@@ -46,6 +46,18 @@ class ServiceSettings(BaseModel):
         archive at its next ingest (0.5 s instead of 0.03 s for 24 assets and two years). A result
         holds the portfolio's prices, returns and float32 diagrams: a few MB for 100 assets and two
         years (1.5 MB pickled), about 75 MB for 500 assets and 20 years.
+    snapshot_cache_size : int
+        Portfolios whose archived series (under their latest configuration) and latest state the
+        read endpoints keep in memory between writes; the least recently read beyond it is read
+        again from the archive at its next read. A snapshot holds one float64 row per window:
+        about 30 kB a year of daily windows (0.15 MB for five years).
+    prepared_cache_size : int
+        Response bodies kept rendered (``latest`` states and series pages, each with its ETag),
+        least recently used dropped first; it also bounds the ETags kept per change marker. A
+        latest state is a few kB, a series page about 0.3 kB a window (0.3 MB for 1,000).
+    key_cache_size : int
+        API keys whose archive check the service keeps (see ``key_recheck_seconds``), least
+        recently used dropped first; under 1 kB each. Only keys the archive knows are kept.
     key_recheck_seconds : float
         Age past which a worker reads an API key again from the archive before trusting it: a key
         revoked through any process is refused by every worker within this time (0: every request).
@@ -75,6 +87,9 @@ class ServiceSettings(BaseModel):
     config_path: str | None = None
     log_level: Literal["debug", "info", "warning", "error"] = "info"
     result_cache_size: int = Field(128, ge=0)
+    snapshot_cache_size: int = Field(32, ge=1, le=1_000_000)
+    prepared_cache_size: int = Field(512, ge=1, le=1_000_000)
+    key_cache_size: int = Field(4096, ge=1, le=1_000_000)
     key_recheck_seconds: float = Field(1.0, ge=0, le=60)
     max_request_assets: int = Field(5000, ge=3)
     max_request_rows: int = Field(200_000, ge=1)

@@ -58,7 +58,15 @@ class Snapshot:
 
 
 class Snapshots:
-    """Snapshots of the most recently read portfolios (least recently used dropped first)."""
+    """Snapshots of the most recently read portfolios (least recently used dropped first).
+
+    Parameters
+    ----------
+    default_config : Config
+        The configuration of a portfolio without runs.
+    size : int
+        Portfolios kept at most (``snapshot_cache_size``).
+    """
 
     def __init__(self, default_config: Config, size: int = 32) -> None:
         self.default_config = default_config
@@ -76,8 +84,9 @@ class Snapshots:
         """
         with self._lock:
             held = self._held.get(portfolio)
-        if held is not None and held.key == marker.series_key:
-            return held
+            if held is not None and held.key == marker.series_key:
+                self._held.move_to_end(portfolio)  # a hit counts as a use
+                return held
         run = store.latest_run(portfolio) if marker.run_id is not None else None
         if run is None:
             made = Snapshot(None, self.default_config, pd.DataFrame(index=pd.DatetimeIndex([], name="window_end")))

@@ -14,7 +14,7 @@ from riskshape_service.context import ServiceContext
 from riskshape_service.convert import alert_out, pending_out, rule_state_out
 from riskshape_service.deps import AdminDep, ReadAccessDep, ReaderDep, StoreDep
 from riskshape_service.knowledge import KnownAtQuery, knowledge_headers, read_known_at
-from riskshape_service.prepared import NOT_MODIFIED, etag_matches, latest_etag, not_modified, prepared_response
+from riskshape_service.prepared import NOT_MODIFIED, etag_matches, not_modified, prepared_response
 from riskshape_service.routers import API_PREFIX, errors
 from riskshape_service.schemas import (
     LatestOut,
@@ -68,7 +68,7 @@ def make_router(settings: ServiceSettings) -> APIRouter:
             then = await run_in_threadpool(render_latest_known_at, store, name, context, known_at)
             return Response(then, media_type="application/json", headers=knowledge_headers(known_at))
         marker = await context.markers.current(store, name)
-        etag = latest_etag(marker)
+        etag = context.prepared.latest_etag(marker)
         if etag_matches(request.headers.get("if-none-match"), etag):
             return not_modified(etag)
         body = context.prepared.get(("latest", name), etag)
