@@ -5,12 +5,12 @@
 
 1. **Many portfolios through the command line.** N portfolios of ``--assets`` fictional assets
    hold ``--years`` of business days on an embedded SQLite archive. Set-up (not measured): one
-   portfolio is ingested whole (its run, features, diagrams, alerts and day state); its prices,
-   run, features and diagrams are then copied in SQL under the other N - 1 names, each with its own
-   day state appended to the ledger (alerts are not copied: a day does not read them). A day file
-   with a ``portfolio`` column carries the next day for all of them; ``riskshape ingest --prices
-   DAYFILE --store URL`` runs it in a fresh process (as after a restart); its peak resident memory
-   is reported.
+   portfolio is ingested whole and its last day fed as a day (its run, features, diagrams, alerts,
+   day state and day tail); its prices, run, features and diagrams are then copied in SQL under the
+   other N - 1 names, each with its own day state appended to the ledger and its day tail (alerts
+   are not copied: a day does not read them). A day file with a ``portfolio`` column carries the
+   next day for all of them; ``riskshape ingest --prices DAYFILE --store URL`` runs it in a fresh
+   process (as after a restart); its peak resident memory is reported.
 2. **The next days in one process**, one portfolio at a time and on two threads.
 3. **One portfolio-day at ``--one-assets`` assets** (100) and the same history: cold (the archive
    opened afresh and a new ``Ingestor`` for each day, as after a restart) and warm (the same
@@ -98,14 +98,26 @@ def _copy_portfolio(store: Store, template: str, name: str) -> None:
     assert state is not None
     copied = store.latest_run(name)
     assert copied is not None
+    kept = store.day_tail(template)  # the day tail its last day kept: the same bytes, so the same digest
+    if kept is not None:
+        store.save_day_tail(name, copied.id, kept.payload)
     save_day_state(store, name, type(state)(**{**state.__dict__, "run_id": copied.id}))
+
+
+def _held(store: Store, name: str, prices: pd.DataFrame, config: Config) -> None:
+    """The history as a desk's archive holds it: ingested whole, its last day then fed as a day is.
+
+    The last day leaves the state a day reads (with its day tail where this riskshape keeps one).
+    """
+    store.ensure_portfolio(name)
+    Ingestor(config).ingest(store, name, prices.iloc[:-1], source="set-up")
+    Ingestor(config).ingest(store, name, prices.iloc[[-1]], source="set-up")
 
 
 def _set_up(url: str, prices: pd.DataFrame, names: list[str], config: Config) -> float:
     start = time.perf_counter()
     with open_store(url) as store:
-        store.ensure_portfolio(names[0])
-        Ingestor(config).ingest(store, names[0], prices, source="set-up")
+        _held(store, names[0], prices, config)
         for name in names[1:]:
             _copy_portfolio(store, names[0], name)
     return time.perf_counter() - start
@@ -196,8 +208,7 @@ def main(argv: list[str] | None = None) -> None:
         one = factor_prices(n_days + 2 * args.days, args.one_assets, seed=2)  # the history and the days timed
         one_url = f"sqlite:///{Path(folder) / 'one.sqlite'}"
         with open_store(one_url) as store:
-            store.ensure_portfolio("one")
-            Ingestor(config).ingest(store, "one", one.iloc[:n_days], source="set-up")
+            _held(store, "one", one.iloc[:n_days], config)
         cold: list[float] = []
         for k in range(args.days):  # a restart before each day: the archive opened afresh, nothing in memory
             with open_store(one_url) as store:

@@ -56,6 +56,8 @@ from riskshape.types import PriceFrame
 if TYPE_CHECKING:
     import pandas as pd
 
+    from riskshape.store.tails import StoredTail
+
 # The price book and the series (pandas, numpy) load with the first method that reads or writes
 # them, so the commands that read only alerts, reviews and the chain start quickly.
 
@@ -366,6 +368,39 @@ class Store:
         """
         with _translated("savepoint"), savepoint(self.engine):
             yield self
+
+    @_database_errors
+    def save_day_tail(self, portfolio: str, run_id: int, payload: bytes) -> str:
+        """Replace the portfolio's day tail (:mod:`riskshape.store.tails`); returns its digest.
+
+        Parameters
+        ----------
+        portfolio : str
+        run_id : int
+            The run of the day that kept it.
+        payload : bytes
+            From :func:`riskshape.store.tails.encode_tail`.
+
+        Returns
+        -------
+        str
+            SHA-256 of ``payload`` (the chained day state names it).
+        """
+        from riskshape.store import tails
+
+        return tails.save_tail(self.engine, portfolio, run_id, payload)
+
+    @_database_errors
+    def day_tail(self, portfolio: str) -> StoredTail | None:
+        """The portfolio's day tail row (run id, digest, bytes), or None. See :mod:`riskshape.store.tails`.
+
+        Returns
+        -------
+        StoredTail or None
+        """
+        from riskshape.store import tails
+
+        return tails.read_stored_tail(self.engine, portfolio)
 
     @_database_errors
     def last_features(
