@@ -19,6 +19,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 import pytest
+import sqlalchemy as sa
 from sqlalchemy import event
 
 import riskshape.daily.ingest as ingest_module
@@ -28,6 +29,7 @@ from riskshape.daily import Ingestor
 from riskshape.daily.tail_run import DAY_STATE
 from riskshape.prices import ValidPrices, validate_prices
 from riskshape.store import Store, open_store, verify_chain
+from riskshape.store import schema as t
 from tests.kit.archive import walk_prices
 from tests.kit.assets import codes
 from tests.kit.postgres import fresh_schema_url
@@ -166,14 +168,17 @@ QUIET = [  # rules that read their lookback and never fire: the same reads on ev
 ]
 
 
-def _one_day_counts(tmp_path: Path, rng: np.random.Generator, n_days: int) -> dict[str, int]:
+def _one_day_counts(tmp_path: Path, rng: np.random.Generator, n_days: int, kept: bool = True) -> dict[str, int]:
     config = _config().replace(alerts={"rules": QUIET})
     prices = _history(rng, n_days)
-    url = _url(tmp_path, f"h{n_days}")
+    url = _url(tmp_path, f"h{n_days}-{kept}")
     with open_store(url) as store:
         store.ensure_portfolio("alpha")
         Ingestor(config).ingest(store, "alpha", _valid(prices.iloc[:-2]))
         Ingestor(config).ingest(store, "alpha", _valid(prices.iloc[[-2]]))  # one tail day before the counted one
+        if not kept:  # without the day tail it kept, the day reads the archive's rows
+            with store.engine.begin() as connection:
+                connection.execute(sa.delete(t.day_tails))
     with pytest.MonkeyPatch.context() as patch, open_store(url) as store, _counting(store) as seen:
         patch.setattr(ingest_module, "monitor", _no_full_path)
         report = Ingestor(config).ingest(store, "alpha", _valid(prices.iloc[[-1]]))
@@ -186,13 +191,25 @@ def test_a_day_after_a_restart_reads_the_same_for_five_times_the_history(
 ) -> None:
     # 200 and 200 + 13 * 64 days: the new window sits at the same place between two rebuild points
     # of the running sums (moments.RECOMPUTE_EVERY = 64), so the tail has the same length
-    short = _one_day_counts(tmp_path, rng, 200)
-    long = _one_day_counts(tmp_path, rng, 200 + 13 * 64)
+    short = _one_day_counts(tmp_path, rng, 200, kept=False)
+    long = _one_day_counts(tmp_path, rng, 200 + 13 * 64, kept=False)
     assert long == short
     window = _config().window
     # prices: the day sent, then the window, its returns' base row and at most the rebuild span
     assert long["price_rows"] <= 1 + window + 1 + 64
     assert long["feature_rows"] == max(r.lookback for r in QUIET)  # the longest lookback
+
+
+def test_a_day_after_a_restart_with_its_kept_tail_reads_only_the_day(tmp_path: Path, rng: np.random.Generator) -> None:
+    short = _one_day_counts(tmp_path, rng, 200)
+    long = _one_day_counts(tmp_path, rng, 200 + 13 * 64)
+    assert long == short
+    # prices: the new counted day alone (the day sent finds nothing archived to compare with); the
+    # tail's other rows and the rules' lookback come from the portfolio's day tail (one row)
+    assert long["price_rows"] == 1
+    assert long["feature_rows"] == 0
+    unkept = _one_day_counts(tmp_path, rng, 200 + 13 * 64, kept=False)
+    assert long["statements"] < unkept["statements"]
 
 
 def _correction_counts(

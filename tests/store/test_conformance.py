@@ -26,7 +26,7 @@ def test_schema_from_migrations_matches_the_models(store: Store) -> None:
     with store.engine.connect() as connection:
         context = MigrationContext.configure(connection, opts={"compare_type": True})
         assert compare_metadata(context, metadata) == []
-    assert store.revision == "0004"
+    assert store.revision == "0005"
 
 
 def test_the_shipped_head_is_alembics_head() -> None:

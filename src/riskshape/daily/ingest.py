@@ -54,10 +54,11 @@ from riskshape.daily.days import (
     day_statuses,
     split_counted,
 )
-from riskshape.daily.tail import Tail, read_tail, tail_span
+from riskshape.daily.tail import Tail, read_tail, tail_from_kept, tail_span
 from riskshape.daily.tail_run import (
     DayState,
     archive_tail_run,
+    kept_tail,
     read_day_state,
     recarry,
     save_day_state,
@@ -783,14 +784,20 @@ class Ingestor:
         span = tail_span(state.n_prices, state.n_prices + len(counted), config)
         if span.windows_before != state.carry.windows:  # not the state of this series: the full path rebuilds it
             return None
+        day_tail = kept_tail(store, portfolio, state) if len(span.new_ends) else None
         if len(span.new_ends):
-            tail = read_tail(store, portfolio, assets, span, through, config)
+            from_kept = (
+                tail_from_kept(store, portfolio, assets, span, day_tail, (counted[0].day, through), config)
+                if day_tail is not None
+                else None
+            )
+            tail = from_kept or read_tail(store, portfolio, assets, span, through, config)
         else:
             days = store.read_prices(portfolio, start=counted[0].day, end=through, assets=assets)
             tail = Tail(span=span, prices=days, previous=None)
         self._forget(portfolio)  # the result kept in memory (full path) is behind now
         try:
-            done = archive_tail_run(store, portfolio, tail, config, state, through, source=source)
+            done = archive_tail_run(store, portfolio, tail, config, state, through, source=source, kept=day_tail)
         except DataError:  # the archived series does not match the state (nothing written): the full path
             return None
         n_added = done.features.added

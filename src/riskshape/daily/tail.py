@@ -34,9 +34,10 @@ from riskshape.compute.returns import to_returns
 from riskshape.config import Config
 from riskshape.store import Store
 from riskshape.store.presence import recent_dates
+from riskshape.store.tails import DayTail
 from riskshape.types import Diagrams, Positions
 
-__all__ = ["TailSpan", "Tail", "tail_span", "read_tail", "tail_windows"]
+__all__ = ["TailSpan", "Tail", "tail_span", "read_tail", "tail_from_kept", "tail_windows"]
 
 
 @dataclass(frozen=True)
@@ -134,14 +135,79 @@ def read_tail(store: Store, portfolio: str, assets: list[str], span: TailSpan, t
         if dates
         else pd.DataFrame(columns=assets, dtype=float)
     )
-    previous = None
-    if span.windows_before and len(span.new_ends):
-        previous_end = prices.index[int(span.new_ends[0]) - config.step + 1 - span.first_row]  # price row of it
-        previous = tuple(
-            # archived float32 bars: the float64 values of the run that computed them, exactly
-            store.read_diagram(portfolio, previous_end, k, config.hash()).bars.astype(np.float64)
-            for k in range(config.maxdim + 1)
-        )
+    return Tail(span=span, prices=prices, previous=_previous(store, portfolio, prices, span, config))
+
+
+def _previous(store: Store, portfolio: str, prices: pd.DataFrame, span: TailSpan, config: Config) -> Diagrams | None:
+    """The archived diagrams of the window before the new ones (None when there is none)."""
+    if not (span.windows_before and len(span.new_ends)):
+        return None
+    previous_end = _previous_end(prices, span, config)
+    return tuple(
+        # archived float32 bars: the float64 values of the run that computed them, exactly
+        store.read_diagram(portfolio, previous_end, k, config.hash()).bars.astype(np.float64)
+        for k in range(config.maxdim + 1)
+    )
+
+
+def _previous_end(prices: pd.DataFrame, span: TailSpan, config: Config) -> pd.Timestamp:
+    """End date of the window before the new ones (the price row that labels it)."""
+    return prices.index[int(span.new_ends[0]) - config.step + 1 - span.first_row]
+
+
+def tail_from_kept(
+    store: Store,
+    portfolio: str,
+    assets: list[str],
+    span: TailSpan,
+    kept: DayTail,
+    new_days: tuple[date, date],
+    config: Config,
+) -> Tail | None:
+    """The tail :func:`read_tail` reads, from the kept day tail and the new counted days' prices.
+
+    Parameters
+    ----------
+    store : Store
+        The archive.
+    portfolio : str
+        The portfolio.
+    assets : list of str
+        Its assets, in column order.
+    span : TailSpan
+        From :func:`tail_span` (its rows before the new days must lie in ``kept``).
+    kept : DayTail
+        The day tail saved after the last counted day (:func:`riskshape.daily.tail_run.kept_tail`).
+    new_days : tuple of datetime.date
+        The first and last new counted day.
+    config : Config
+        The portfolio's configuration.
+
+    Returns
+    -------
+    Tail or None
+        None when the kept tail does not reach back to ``span.first_row`` or names other assets
+        (the caller reads the archive).
+    """
+    held = kept.prices
+    if span.first_row < kept.first_row or list(held.columns) != assets:
+        return None
+    new = store.read_prices(portfolio, start=new_days[0], end=new_days[1], assets=assets)
+    before = held.iloc[span.first_row - kept.first_row :]
+    if len(before) + len(new) != span.n_rows:
+        return None
+    values = np.concatenate([before.to_numpy(), new.to_numpy()])
+    prices = pd.DataFrame(values, index=before.index.append(new.index), columns=new.columns)
+    previous: Diagrams | None
+    if (
+        span.windows_before
+        and kept.diagram_end is not None
+        and len(kept.diagrams) == config.maxdim + 1
+        and kept.diagram_end == _previous_end(prices, span, config).date()
+    ):
+        previous = tuple(bars.astype(np.float64) for bars in kept.diagrams)  # as read_tail converts them
+    else:
+        previous = _previous(store, portfolio, prices, span, config)
     return Tail(span=span, prices=prices, previous=previous)
 
 

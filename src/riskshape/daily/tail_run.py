@@ -20,9 +20,10 @@ the state after them.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from datetime import date, datetime, timezone
 
+import numpy as np
 import pandas as pd
 
 from riskshape.alerts.carry import RulesCarry, advance_rules, carry_rules, lookback_needed
@@ -33,9 +34,12 @@ from riskshape.compute.monitor import MonitorResult
 from riskshape.compute.returns import to_returns
 from riskshape.config import Config
 from riskshape.daily.tail import Tail, read_tail, tail_span, tail_windows
-from riskshape.errors import DataError
+from riskshape.errors import DataError, StoreError
 from riskshape.prices import ValidPrices, hash_prices
 from riskshape.store import AlertRecord, EventRecord, Run, RunManifest, Store, WriteCount
+from riskshape.store.pricebook import INDEX_UNIT
+from riskshape.store.series import BAR_DTYPE
+from riskshape.store.tails import DAY_STATE_KIND, DayTail, decode_tail, encode_tail, tail_digest
 
 __all__ = [
     "DAY_STATE",
@@ -45,11 +49,12 @@ __all__ = [
     "save_day_state",
     "state_after_full_run",
     "recarry",
+    "kept_tail",
     "archive_tail_run",
     "EXPLAIN_CONTEXT",
 ]
 
-DAY_STATE = "day_state"
+DAY_STATE = DAY_STATE_KIND
 """Kind of the chained record of a portfolio's state after a run (subject: the last counted day)."""
 
 EXPLAIN_CONTEXT = 61
@@ -76,6 +81,9 @@ class DayState:
         Counted price dates through ``counted_through``.
     carry : RulesCarry
         The rules' carry after the last archived window.
+    tail_digest : str or None
+        SHA-256 of the portfolio's day tail row kept with this state (:mod:`riskshape.store.tails`),
+        or None when none was kept (the next day reads the archive).
     """
 
     run_id: int
@@ -84,6 +92,7 @@ class DayState:
     counted_through: date
     n_prices: int
     carry: RulesCarry
+    tail_digest: str | None = None
 
     def to_data(self) -> dict[str, object]:
         """Plain JSON data for the chained record.
@@ -99,6 +108,7 @@ class DayState:
             "counted_through": self.counted_through.isoformat(),
             "n_prices": self.n_prices,
             "carry": self.carry.to_data(),
+            **({"tail": self.tail_digest} if self.tail_digest is not None else {}),
         }
 
 
@@ -131,6 +141,7 @@ def read_day_state(store: Store, portfolio: str, run: Run) -> DayState | None:
             counted_through=date.fromisoformat(str(data["counted_through"])),
             n_prices=int(str(data["n_prices"])),
             carry=RulesCarry.from_data(data["carry"]),  # type: ignore[arg-type]
+            tail_digest=None if data.get("tail") is None else str(data["tail"]),
         )
     except (KeyError, TypeError, ValueError, DataError):
         return None
@@ -262,6 +273,82 @@ def _past_features(store: Store, portfolio: str, config: Config, state: DayState
     return past
 
 
+def kept_tail(store: Store, portfolio: str, state: DayState) -> DayTail | None:
+    """The day tail saved with ``state``, or None (none saved, or its row is not the one the state names).
+
+    Parameters
+    ----------
+    store : Store
+    portfolio : str
+    state : DayState
+        The portfolio's state (its latest run's).
+
+    Returns
+    -------
+    DayTail or None
+        None sends the day to the archive's rows (which give the same values, more slowly).
+    """
+    if state.tail_digest is None:
+        return None
+    stored = store.day_tail(portfolio)
+    if stored is None or stored.run_id != state.run_id or stored.digest != state.tail_digest:
+        return None
+    if tail_digest(stored.payload) != state.tail_digest:  # the row's bytes were changed after it was saved
+        return None
+    try:
+        kept = decode_tail(stored.payload)
+    except StoreError:
+        return None
+    last = kept.prices.index[-1].date() if len(kept.prices) else None
+    if last != state.counted_through or kept.first_row + len(kept.prices) != state.n_prices:
+        return None
+    return kept
+
+
+def _kept_features(kept: DayTail, config: Config, state: DayState) -> pd.DataFrame | None:
+    """The lookback rows before the new windows from the kept tail (None: read the archive)."""
+    need = min(lookback_needed(config.alerts.rules), state.carry.windows)
+    watched = sorted({rule.summary for rule in config.alerts.rules})
+    features = kept.features
+    if not need or not watched or list(features.columns) != watched or len(features) < need:
+        return None
+    if state.carry.window_end is not None and features.index[-1].date() != state.carry.window_end:
+        return None
+    return features.iloc[len(features) - need :]
+
+
+def _next_tail(
+    tail: Tail, past: pd.DataFrame | None, result: MonitorResult, config: Config, after: DayState
+) -> bytes | None:
+    """The day tail the next day reads: this tail's prices and the lookback after the new windows.
+
+    None (no row kept; the next day reads the archive) when the day computed no window or a
+    watched column is not float64.
+    """
+    if past is None or not len(result.window_ends):
+        return None
+    watched = list(past.columns)
+    computed = result.features
+    if any(str(past[c].dtype) != "float64" or str(computed[c].dtype) != "float64" for c in watched):
+        return None
+    keep = min(lookback_needed(config.alerts.rules), after.carry.windows)
+    ends = past.index.append(pd.DatetimeIndex(result.window_ends).as_unit(INDEX_UNIT))
+    columns = {}
+    for c in watched:
+        new = computed[c].to_numpy(dtype=np.float64)
+        new = np.where(np.isfinite(new), new, np.nan)  # the archive keeps a non-finite summary as null: NaN
+        columns[c] = np.concatenate([past[c].to_numpy(), new])[len(ends) - keep :]
+    features = pd.DataFrame(columns, index=ends[len(ends) - keep :].rename("window_end"))
+    last = result.window_ends[-1]
+    diagrams = tuple(  # as the archive keeps them (float32 bars), so as a day reading them gets them
+        np.asarray(result.diagram(last, k), dtype=float).astype(BAR_DTYPE) for k in range(config.maxdim + 1)
+    )
+    tail_kept = DayTail(
+        first_row=tail.span.first_row, prices=tail.prices, features=features, diagram_end=last.date(), diagrams=diagrams
+    )
+    return encode_tail(tail_kept)
+
+
 def archive_tail_run(
     store: Store,
     portfolio: str,
@@ -273,6 +360,7 @@ def archive_tail_run(
     source: str | None = None,
     raised_at: datetime | None = None,
     explain: bool = True,
+    kept: DayTail | None = None,
 ) -> TailRun:
     """Archive the windows the tail completes, the alerts they raise, and the state after them.
 
@@ -298,10 +386,15 @@ def archive_tail_run(
         When the alerts are raised (UTC); defaults to now.
     explain : bool
         Archive each new alert's explanation inside its record.
+    kept : DayTail, optional
+        The portfolio's day tail saved with ``state`` (:func:`kept_tail`): its feature rows stand
+        for the archive's lookback read.
 
     Returns
     -------
     TailRun
+        After the new windows a day tail is kept for the next day (replacing the portfolio's row),
+        and the state names its digest.
 
     Raises
     ------
@@ -312,7 +405,9 @@ def archive_tail_run(
     """
     n_now = tail.span.first_row + tail.span.n_rows
     result = _tail_result(tail, config)
-    past = _past_features(store, portfolio, config, state) if len(result.window_ends) else None
+    past = _kept_features(kept, config, state) if kept is not None and len(result.window_ends) else None
+    if past is None and len(result.window_ends):
+        past = _past_features(store, portfolio, config, state)
     firings, carry = (
         advance_rules(state.carry, past, result.features, config.alerts.rules)
         if past is not None
@@ -347,6 +442,10 @@ def archive_tail_run(
             n_prices=n_now,
             carry=carry,
         )
+        whole = features.added == len(result.window_ends) and not features.differing
+        payload = _next_tail(tail, past, result, config, after) if whole else None
+        if payload is not None:
+            after = replace(after, tail_digest=store.save_day_tail(portfolio, run.id, payload))
         save_day_state(store, portfolio, after)
     return TailRun(
         run=run,

@@ -13,7 +13,7 @@ from sqlalchemy.engine import Connection, Engine
 
 from riskshape.errors import ConflictError, NotFoundError, StoreError
 from riskshape.store import schema as t
-from riskshape.store.database import read_transaction, write_transaction
+from riskshape.store.database import known_id, read_transaction, write_transaction
 from riskshape.store.records import Portfolio, PriceWrite, Run, RunManifest
 from riskshape.store.seals import mark_unsealed
 from riskshape.types import PriceFrame
@@ -55,9 +55,13 @@ def portfolio_id(connection: Connection, name: str) -> int:
     NotFoundError
         If there is no such portfolio.
     """
+    known = known_id(connection, name)
+    if known is not None:
+        return known
     found = connection.execute(sa.select(t.portfolios.c.id).where(t.portfolios.c.name == name)).scalar()
     if found is None:
         raise NotFoundError(f"portfolio {name!r} is not in the archive; create it or check the name")
+    known_id(connection, name, int(found))
     return int(found)
 
 

@@ -169,6 +169,10 @@ def verify_ledger(connection: Connection, expect_head: str | None = None) -> Ver
         if problem is not None:
             return VerifyReport(ok=False, checked=checked, head=head, first_bad=problem, merkle_root=root)
     problem = check_coverage(connection)
+    if problem is None:
+        from riskshape.store.tails import check_tails  # numpy and pandas load here, not at start
+
+        problem = check_tails(connection)
     if problem is not None:
         return VerifyReport(ok=False, checked=checked, head=head, first_bad=problem, merkle_root=root)
     return VerifyReport(ok=True, checked=checked, head=head, first_bad=None, merkle_root=root)

@@ -40,6 +40,7 @@ if TYPE_CHECKING:  # Alembic loads only when a schema is created or migrated (it
 __all__ = [
     "create_archive_engine",
     "write_transaction",
+    "known_id",
     "savepoint",
     "read_transaction",
     "upgrade",
@@ -131,6 +132,21 @@ class _Unit:
     engine: Engine
     connection: Connection
     pending: dict[object, Callable[[Connection], None]] = field(default_factory=dict)
+    ids: dict[str, int] = field(default_factory=dict)  # portfolio ids looked up in this transaction
+
+
+def known_id(connection: Connection, name: str, found: int | None = None) -> int | None:
+    """A portfolio's id as looked up earlier in the open write transaction on ``connection`` (or None).
+
+    With ``found``, remember it for the rest of the transaction. Outside a write transaction nothing
+    is kept: the lookups a day makes inside its one transaction (a dozen) become one statement.
+    """
+    unit = _UNIT.get()
+    if unit is None or unit.connection is not connection:
+        return None
+    if found is not None:
+        unit.ids[name] = found
+    return unit.ids.get(name)
 
 
 _UNIT: ContextVar[_Unit | None] = ContextVar("riskshape_write_unit", default=None)
@@ -217,6 +233,7 @@ def savepoint(engine: Engine) -> Iterator[Connection]:
         nested.rollback()
         unit.pending.clear()
         unit.pending.update(registered)
+        unit.ids.clear()  # a portfolio created inside is gone again
         raise
     nested.commit()
 

@@ -19,6 +19,10 @@ Design notes
 * ``events`` holds every other chained record (a day closed, a window superseded, a period signed
   off, ...): a ``kind``, the portfolio and subject it concerns, who recorded it, and a canonical
   JSON ``payload``; see :mod:`riskshape.store.events`.
+* ``day_tails`` (migration 0005) keeps one row per portfolio, replaced by every bounded day: what
+  the next day reads instead of the price and feature rows it needs (:mod:`riskshape.store.tails`).
+  It is not history but a copy of archived values; the chained ``day_state`` record names its
+  SHA-256, so an edited row is refused (the day then reads the archive) and ``audit verify`` reports it.
 * Triggers (created by the migration) refuse UPDATE and DELETE on ``ledger``, ``alerts``,
   ``reviews``, ``events``, ``prices`` and ``runs``.
 """
@@ -43,6 +47,7 @@ __all__ = [
     "reviews",
     "events",
     "api_keys",
+    "day_tails",
     "APPEND_ONLY_TABLES",
 ]
 
@@ -223,4 +228,13 @@ api_keys = sa.Table(
     sa.Column("owner", NAME, nullable=False),
     sa.Column("created_at", UtcDateTime, nullable=False),
     sa.Column("revoked", sa.Boolean, nullable=False),
+)
+
+day_tails = sa.Table(
+    "day_tails",
+    metadata,
+    sa.Column("portfolio_id", sa.Integer, sa.ForeignKey("portfolios.id"), primary_key=True, autoincrement=False),
+    sa.Column("run_id", sa.Integer, sa.ForeignKey("runs.id"), nullable=False),
+    sa.Column("digest", HASH, nullable=False),
+    sa.Column("payload", sa.LargeBinary, nullable=False),
 )

@@ -56,6 +56,8 @@ from riskshape.types import PriceFrame
 if TYPE_CHECKING:
     import pandas as pd
 
+    from riskshape.store.tails import StoredTail
+
 # The price book and the series (pandas, numpy) load with the first method that reads or writes
 # them, so the commands that read only alerts, reviews and the chain start quickly.
 
@@ -70,17 +72,28 @@ def _one_line(err: BaseException) -> str:
     return " ".join(str(getattr(err, "orig", None) or err).split())
 
 
+@contextmanager
+def _translated(operation: str) -> Iterator[None]:
+    """Turn SQLAlchemy errors raised inside into riskshape's ConflictError / StoreError, naming ``operation``.
+
+    A refused write (an integrity error) is a ConflictError; any other database error a StoreError.
+    The one translation of :func:`_database_errors`, :meth:`Store.transaction` and :meth:`Store.savepoint`.
+    """
+    try:
+        yield
+    except sa.exc.IntegrityError as err:
+        raise ConflictError(f"{operation}: the archive refused the write ({_one_line(err)})") from None
+    except sa.exc.SQLAlchemyError as err:
+        raise StoreError(f"{operation}: database error ({_one_line(err)})") from None
+
+
 def _database_errors(method: Callable[P, R]) -> Callable[P, R]:
     """Turn SQLAlchemy errors into riskshape's StoreError / ConflictError, naming the operation."""
 
     @functools.wraps(method)
     def wrapper(*args: P.args, **kwargs: P.kwargs) -> R:
-        try:
+        with _translated(method.__name__):
             return method(*args, **kwargs)
-        except sa.exc.IntegrityError as err:
-            raise ConflictError(f"{method.__name__}: the archive refused the write ({_one_line(err)})") from None
-        except sa.exc.SQLAlchemyError as err:
-            raise StoreError(f"{method.__name__}: database error ({_one_line(err)})") from None
 
     return wrapper
 
@@ -125,13 +138,8 @@ class Store:
         ...     run = store.create_run("Fund North", manifest, prices)
         ...     store.write_features(run.id, features)
         """
-        try:
-            with write_transaction(self.engine):
-                yield self
-        except sa.exc.IntegrityError as err:
-            raise ConflictError(f"transaction: the archive refused the write ({_one_line(err)})") from None
-        except sa.exc.SQLAlchemyError as err:
-            raise StoreError(f"transaction: database error ({_one_line(err)})") from None
+        with _translated("transaction"), write_transaction(self.engine):
+            yield self
 
     @property
     def dialect(self) -> str:
@@ -358,13 +366,41 @@ class Store:
         ...         except ConflictError:
         ...             pass  # that portfolio's writes are undone; the others commit together
         """
-        try:
-            with savepoint(self.engine):
-                yield self
-        except sa.exc.IntegrityError as err:
-            raise ConflictError(f"savepoint: the archive refused the write ({_one_line(err)})") from None
-        except sa.exc.SQLAlchemyError as err:
-            raise StoreError(f"savepoint: database error ({_one_line(err)})") from None
+        with _translated("savepoint"), savepoint(self.engine):
+            yield self
+
+    @_database_errors
+    def save_day_tail(self, portfolio: str, run_id: int, payload: bytes) -> str:
+        """Replace the portfolio's day tail (:mod:`riskshape.store.tails`); returns its digest.
+
+        Parameters
+        ----------
+        portfolio : str
+        run_id : int
+            The run of the day that kept it.
+        payload : bytes
+            From :func:`riskshape.store.tails.encode_tail`.
+
+        Returns
+        -------
+        str
+            SHA-256 of ``payload`` (the chained day state names it).
+        """
+        from riskshape.store import tails
+
+        return tails.save_tail(self.engine, portfolio, run_id, payload)
+
+    @_database_errors
+    def day_tail(self, portfolio: str) -> StoredTail | None:
+        """The portfolio's day tail row (run id, digest, bytes), or None. See :mod:`riskshape.store.tails`.
+
+        Returns
+        -------
+        StoredTail or None
+        """
+        from riskshape.store import tails
+
+        return tails.read_stored_tail(self.engine, portfolio)
 
     @_database_errors
     def last_features(
